@@ -1,0 +1,5 @@
+import sys
+
+from acquire.cli import main
+
+sys.exit(main())

@@ -1,0 +1,100 @@
+"""The ``acquire`` command line.
+
+Each subcommand lives in its own module under :mod:`acquire.commands` and exposes three names:
+
+- ``HELP``: one line shown in ``acquire --help``;
+- ``add_arguments(parser)``: declares its options (imports nothing heavy);
+- ``run(args) -> int``: does the work (imports what it needs inside, so ``--help`` stays fast).
+
+Errors the user can cause end with one line on stderr and exit code 2 (``--debug`` shows the
+traceback); Ctrl-C ends with exit code 130.
+"""
+
+from __future__ import annotations
+
+import argparse
+import importlib
+import os
+import sys
+from collections.abc import Sequence
+
+#: Subcommand name -> module under acquire.commands, in the order shown by --help.
+COMMANDS: dict[str, str] = {
+    "demo": "demo",
+    "sim": "sim",
+    "identify": "identify",
+    "sweep": "sweep",
+    "reference": "reference",
+    "predict": "predict",
+    "fit": "fit",
+}
+
+DESCRIPTION = """\
+Characterise and test coils with an impedance (LCR) meter over SCPI.
+
+Trade terms used throughout: Ls/Rs are the series inductance and resistance of the coil's
+equivalent circuit, Lp/Rp the parallel ones; Q = X/R is the quality factor and D = 1/Q the
+dissipation factor; open/short/load are the reference measurements taken on the empty, shorted
+and standard-loaded fixture that let the tool remove the fixture from every reading.
+"""
+
+
+def _load(name: str):
+    return importlib.import_module(f"acquire.commands.{COMMANDS[name]}")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    parser = argparse.ArgumentParser(
+        prog="acquire",
+        description=DESCRIPTION,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
+    parser.add_argument("--debug", action="store_true", help="show the full traceback on errors")
+    sub = parser.add_subparsers(dest="command", metavar="COMMAND")
+    for name in COMMANDS:
+        try:
+            module = _load(name)
+        except ModuleNotFoundError as exc:
+            if exc.name != f"acquire.commands.{COMMANDS[name]}":
+                raise
+            continue
+        p = sub.add_parser(
+            name,
+            help=module.HELP,
+            description=(module.__doc__ or module.HELP),
+            formatter_class=argparse.RawDescriptionHelpFormatter,
+        )
+        module.add_arguments(p)
+        p.set_defaults(_module=module)
+    return parser
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if getattr(args, "_module", None) is None:
+        parser.print_help()
+        return 0
+    debug = args.debug or os.environ.get("ACQUIRE_DEBUG") == "1"
+    try:
+        return int(args._module.run(args) or 0)
+    except KeyboardInterrupt:
+        print("acquire: interrupted", file=sys.stderr)
+        return 130
+    except Exception as exc:  # noqa: BLE001 - turned into one line; --debug re-raises
+        if debug or not _is_user_error(exc):
+            raise
+        print(f"acquire {args.command}: error: {exc}", file=sys.stderr)
+        return 2
+
+
+def _is_user_error(exc: BaseException) -> bool:
+    """True for the project's own errors and OS-level I/O errors (shown as one line)."""
+    from acquire.errors import AcquireError
+    from drivers.errors import InstrumentError
+
+    return isinstance(exc, AcquireError | InstrumentError | OSError)
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,1 @@
+"""One module per ``acquire`` subcommand; see :mod:`acquire.cli` for the contract."""

@@ -1,0 +1,398 @@
+"""The live terminal view of a sweep, and its plain-text and end-of-sweep counterparts.
+
+:class:`DashboardView` renders a :class:`acquire.progress.SweepState` as it stands: the chosen
+quantities plotted against log frequency, the latest point, progress and time left, the meter,
+the reference set and its age, warnings, and a marker at a self-resonance (where the reactance
+turns from inductive to capacitive). It is a pure function of the state; :class:`LiveDashboard`
+redraws it on a timer thread at a bounded rate, so acquisition never waits for the screen.
+Without a terminal, :class:`PlainProgress` prints a progress line at most every few seconds.
+At the end, :func:`summary` shows selected points raw and corrected.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+import time
+from datetime import UTC, datetime
+from typing import TextIO
+
+import numpy as np
+from rich.console import Console, ConsoleOptions, Group, RenderResult
+from rich.live import Live
+from rich.panel import Panel
+from rich.progress_bar import ProgressBar
+from rich.table import Table
+from rich.text import Text
+
+from acquire.impedance import quantities
+from acquire.progress import SweepState, format_duration
+from acquire.textplot import draw, x_axis, y_labels
+from acquire.units import format_si
+
+#: The SI unit of each quantity of :func:`acquire.impedance.quantities`.
+UNITS = {
+    "Ls": "H", "Lp": "H", "Rs": "Ω", "Rp": "Ω", "Cs": "F", "Cp": "F", "Q": "", "D": "",
+    "Z": "Ω", "theta": "°", "X": "Ω", "G": "S", "B": "S",
+}  # fmt: skip
+COLOURS = ("cyan", "magenta", "green", "yellow", "blue", "red")
+SIDE_WIDTH = 34
+
+
+def format_value(name: str, value: float) -> str:
+    """One quantity for people: SI prefixes for dimensioned values, plain digits for Q, D, θ."""
+    if name == "theta":
+        return "—" if not math.isfinite(value) else f"{value:.2f}°"
+    if name in ("Q", "D"):
+        if math.isnan(value):
+            return "—"
+        if math.isinf(value):
+            return "∞"
+        return f"{value:.0f}" if abs(value) >= 1e4 else f"{value:.4g}"
+    return format_si(value, UNITS.get(name, ""))
+
+
+def self_resonance(f: np.ndarray, z: np.ndarray) -> float | None:
+    """The frequency where the impedance ``z`` turns from inductive (X > 0) to capacitive.
+
+    Near a self-resonance the susceptance B = Im(1/Z) passes through zero almost linearly
+    (the admittance of a parallel tank is linear in the detuning), so the zero is interpolated
+    on B, linearly in frequency, between the two points where X changes sign. Among several such
+    changes the one with the largest |Z| is taken, and only if that |Z| is at least a tenth of the
+    largest |Z| measured: a resonance peaks in |Z|, while noise around X = 0 at low frequency
+    does not. None when the data show no such change.
+    """
+    f = np.asarray(f, dtype=float)
+    z = np.asarray(z, dtype=complex)
+    if f.size < 2:
+        return None
+    x = z.imag
+    a, b = x[:-1], x[1:]
+    ok = np.isfinite(z[:-1]) & np.isfinite(z[1:])
+    turn = ok & (a > 0) & (b <= 0)
+    if not turn.any():
+        return None
+    idx = np.flatnonzero(turn)
+    size = np.maximum(np.abs(z[:-1][idx]), np.abs(z[1:][idx]))
+    if size.max() < 0.1 * np.max(np.abs(z[np.isfinite(z)])):
+        return None
+    i = int(idx[np.argmax(size)])
+    with np.errstate(divide="ignore", invalid="ignore"):
+        b0, b1 = (1 / z[i]).imag, (1 / z[i + 1]).imag
+    if not (np.isfinite(b0) and np.isfinite(b1)) or b1 == b0:
+        return float(f[i + 1])
+    return float(f[i] + (f[i + 1] - f[i]) * (-b0) / (b1 - b0))
+
+
+def reference_age(state: SweepState, now: datetime | None = None) -> float | None:
+    """Seconds since the reference set was captured, or None without one."""
+    if state.reference_captured_at is None:
+        return None
+    now = now or datetime.now(UTC)
+    return (now - state.reference_captured_at).total_seconds()
+
+
+class DashboardView:
+    """A rich renderable drawing ``state`` afresh each time it is rendered."""
+
+    def __init__(self, state: SweepState, now: datetime | None = None) -> None:
+        self.state = state
+        self.now = now
+
+    def __rich_console__(self, console: Console, options: ConsoleOptions) -> RenderResult:
+        width = options.max_width
+        height = options.height or console.height
+        yield render(self.state, width=width, height=height, now=self.now)
+
+
+def render(
+    state: SweepState, width: int = 100, height: int = 30, now: datetime | None = None
+) -> Group:
+    """The whole live view for a terminal ``width`` x ``height`` cells."""
+    f, _, _ = state.points()
+    z = state.shown()
+    q = quantities(f, z) if f.size else None
+    srf = self_resonance(f, z) if f.size else None
+    side = width >= 80
+    plot_width = width - (SIDE_WIDTH + 1 if side else 0)
+    plots = _plots(state, f, q, srf, plot_width, height)
+    status = _side(state, f, q, srf, now)
+    body: Table | Group
+    if side:
+        body = Table.grid(padding=(0, 1))
+        body.add_column(width=plot_width)
+        body.add_column(width=SIDE_WIDTH)
+        body.add_row(plots, status)
+    else:
+        body = Group(plots, status)
+    parts: list = [_header(state, now), _progress(state, width)]
+    warnings = state.all_warnings()
+    if warnings:
+        parts.append(Text("\n".join(f"warning: {w}" for w in warnings), style="yellow"))
+    return Group(*parts, body)
+
+
+def _header(state: SweepState, now: datetime | None) -> Text:
+    title = f"Sweep of {state.dut}" if state.dut else "Sweep"
+    text = Text(f"{title} · {state.plan.describe()}", style="bold")
+    text.append(f"\nmeter: {state.meter or 'unknown'}")
+    if state.reference:
+        age = reference_age(state, now)
+        when = f", captured {format_duration(age)} ago" if age is not None else ""
+        text.append(f"\nreference set: {state.reference}{when}")
+    else:
+        text.append("\nreference set: none (raw readings, fixture not removed)", style="yellow")
+    if state.destination:
+        text.append(f"\npoints go to: {state.destination}")
+    return text
+
+
+def _progress(state: SweepState, width: int) -> Table:
+    grid = Table.grid(padding=(0, 1))
+    grid.add_column(width=max(min(width // 3, 40), 10))
+    grid.add_column()
+    done = state.count
+    share = 100.0 * done / max(state.planned, 1)
+    words = {"waiting": "waiting", "running": "measuring"}.get(state.status, state.status)
+    line = f"{words} {done}/{state.planned} · {share:.0f} % · {format_duration(state.elapsed())}"
+    left = state.remaining()
+    if state.status == "running":
+        line += " elapsed · " + (
+            "estimating" if left is None else f"about {format_duration(left)} left"
+        )
+    elif state.reason:
+        line += f" · {state.reason}"
+    grid.add_row(ProgressBar(total=max(state.planned, 1), completed=done), Text(line))
+    return grid
+
+
+def _plots(
+    state: SweepState,
+    f: np.ndarray,
+    q: dict[str, np.ndarray] | None,
+    srf: float | None,
+    width: int,
+    height: int,
+) -> Group:
+    names = state.quantities
+    rows_each = max(min((height - 8) // max(len(names), 1) - 2, 12), 3)
+    x_range = (
+        state.plan.start,
+        state.plan.stop if state.plan.stop > state.plan.start else state.plan.start * 10,
+    )
+    which = "corrected" if state.corrected is not None else "raw"
+    parts = []
+    for k, name in enumerate(names):
+        colour = COLOURS[k % len(COLOURS)]
+        unit = UNITS.get(name, "")
+        y = q[name] if q is not None else np.empty(0)
+        label_width = 9
+        plot = draw(
+            f, y, width - label_width - 1, rows_each, x_range, markers=(srf,) if srf else ()
+        )
+        labels = y_labels(plot, unit)
+        title = Text(f"{name} ({which})", style=f"bold {colour}")
+        if plot.y_log:
+            title.append("  log scale", style="dim")
+        lines = Text()
+        for r, (lab, row) in enumerate(zip(labels, plot.rows, strict=True)):
+            lines.append(("\n" if r else "") + lab.rjust(label_width)[-label_width:] + "│", "dim")
+            lines.append(row, style=colour)
+        axis = Text(" " * (label_width + 1) + x_axis(x_range, width - label_width - 1), style="dim")
+        parts.extend([title, lines, axis])
+    return Group(*parts)
+
+
+def _side(
+    state: SweepState,
+    f: np.ndarray,
+    q: dict[str, np.ndarray] | None,
+    srf: float | None,
+    now: datetime | None,
+) -> Group:
+    latest = Table.grid(padding=(0, 1))
+    latest.add_column(style="bold")
+    latest.add_column(justify="right")
+    if q is not None and f.size:
+        latest.add_row("f", format_si(float(f[-1]), "Hz"))
+        for name in dict.fromkeys((*state.quantities, "Z", "theta")):
+            latest.add_row(
+                "|Z|" if name == "Z" else "θ" if name == "theta" else name,
+                format_value(name, float(q[name][-1])),
+            )
+    else:
+        latest.add_row("", "no points yet")
+    parts: list = [Panel(latest, title="latest point", title_align="left")]
+    if srf is not None:
+        parts.append(
+            Panel(
+                Text(f"≈ {format_si(srf, 'Hz')}\nreactance turns capacitive here (┊ on the plots)"),
+                title="self-resonance",
+                title_align="left",
+                border_style="magenta",
+            )
+        )
+    return Group(*parts)
+
+
+def summary_frequencies(f: np.ndarray, count: int = 6) -> np.ndarray:
+    """Indices of points to tabulate: those nearest each decade in range, else evenly spread."""
+    finite = f[np.isfinite(f) & (f > 0)]
+    if finite.size == 0:
+        return np.empty(0, dtype=int)
+    lo, hi = math.log10(finite.min()), math.log10(finite.max())
+    decades = [10.0**d for d in range(math.ceil(lo - 1e-9), math.floor(hi + 1e-9) + 1)]
+    if len(decades) >= 3:
+        targets = np.log10(decades)
+        if len(targets) > count:
+            targets = targets[np.linspace(0, len(targets) - 1, count).round().astype(int)]
+    else:
+        targets = np.linspace(lo, hi, min(count, f.size))
+    with np.errstate(divide="ignore", invalid="ignore"):
+        lf = np.log10(f)
+    picks = [int(np.nanargmin(np.abs(lf - t))) for t in targets]
+    return np.array(sorted(set(picks)), dtype=int)
+
+
+def summary(state: SweepState, count: int = 6) -> Group:
+    """The end-of-sweep view: outcome, raw vs corrected at a few points, resonance, warnings."""
+    f, raw, corrected = state.points()
+    style = "green" if state.status == "complete" else "yellow"
+    head = Text(
+        f"Sweep {state.status}: {state.count} of {state.planned} points", style=f"bold {style}"
+    )
+    if state.reason:
+        head.append(f" ({state.reason})")
+    if state.destination:
+        head.append(f"\nstored in {state.destination}")
+    parts: list = [head]
+    if f.size:
+        parts.append(_summary_table(state, f, raw, corrected, count))
+        srf_raw = self_resonance(f, raw)
+        lines = []
+        if corrected is not None:
+            srf_cor = self_resonance(f, corrected)
+            lines.append(
+                f"self-resonance: raw {format_si(srf_raw, 'Hz') if srf_raw else 'none in range'}, "
+                f"corrected {format_si(srf_cor, 'Hz') if srf_cor else 'none in range'}"
+            )
+        else:
+            lines.append(
+                f"self-resonance: {format_si(srf_raw, 'Hz') if srf_raw else 'none in range'}"
+            )
+        parts.append(Text("\n".join(lines)))
+    warnings = state.all_warnings()
+    if warnings:
+        parts.append(Text("\n".join(f"warning: {w}" for w in warnings), style="yellow"))
+    return Group(*parts)
+
+
+def _summary_table(
+    state: SweepState,
+    f: np.ndarray,
+    raw: np.ndarray,
+    corrected: np.ndarray | None,
+    count: int,
+) -> Table:
+    picks = summary_frequencies(f, count)
+    fp = f[picks]
+    qr = quantities(fp, raw[picks])
+    qc = quantities(fp, corrected[picks]) if corrected is not None else None
+    title = "raw vs corrected" if qc is not None else "selected points (raw)"
+    table = Table(title=title, title_justify="left")
+    table.add_column("f", justify="right")
+    for name in state.quantities:
+        if qc is None:
+            table.add_column(name, justify="right")
+        else:
+            table.add_column(f"{name} raw", justify="right")
+            table.add_column(f"{name} corrected", justify="right")
+    for j in range(fp.size):
+        row = [format_si(float(fp[j]), "Hz")]
+        for name in state.quantities:
+            row.append(format_value(name, float(qr[name][j])))
+            if qc is not None:
+                row.append(format_value(name, float(qc[name][j])))
+        table.add_row(*row)
+    return table
+
+
+class LiveDashboard:
+    """Redraw a :class:`DashboardView` on rich's refresh thread, at most ``rate`` times a second.
+
+    The acquiring thread only fills the state; :meth:`update` does nothing and exists so a live
+    view and :class:`PlainProgress` can be driven alike.
+    """
+
+    def __init__(
+        self, state: SweepState, console: Console | None = None, rate: float = 4.0
+    ) -> None:
+        self.state = state
+        self.console = console or Console()
+        self._live = Live(
+            DashboardView(state),
+            console=self.console,
+            refresh_per_second=rate,
+            auto_refresh=True,
+            redirect_stdout=False,
+            redirect_stderr=False,
+        )
+
+    def __enter__(self) -> LiveDashboard:
+        self._live.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self._live.stop()
+
+    def update(self) -> None:
+        """Nothing to do per chunk: the refresh thread redraws on its own timer."""
+
+
+class PlainProgress:
+    """Plain progress lines for pipes and scripts, at most one every ``interval`` seconds."""
+
+    def __init__(self, state: SweepState, out: TextIO | None = None, interval: float = 2.0) -> None:
+        self.state = state
+        self.out = out or sys.stdout
+        self.interval = interval
+        self._last = -math.inf
+
+    def __enter__(self) -> PlainProgress:
+        self.out.write(f"sweep: {self.state.plan.describe()}\n")
+        self.out.flush()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.line()
+
+    def update(self) -> None:
+        now = time.monotonic()
+        if now - self._last >= self.interval:
+            self._last = now
+            self.line()
+
+    def line(self) -> None:
+        """Print one progress line for the state as it stands."""
+        s = self.state
+        text = f"{s.count}/{s.planned} points ({100.0 * s.count / max(s.planned, 1):.0f} %)"
+        f, _, _ = s.points()
+        if f.size:
+            q = quantities(f[-1:], s.shown()[-1:])
+            values = "  ".join(f"{n}={format_value(n, float(q[n][0]))}" for n in s.quantities)
+            text += f"  f={format_si(float(f[-1]), 'Hz')}  {values}"
+        left = s.remaining()
+        if left is not None:
+            text += f"  about {format_duration(left)} left"
+        self.out.write(text + "\n")
+        self.out.flush()
+
+
+def open_view(
+    state: SweepState, live: bool = True, console: Console | None = None, rate: float = 4.0
+) -> LiveDashboard | PlainProgress:
+    """A live view when ``live`` and the console is a terminal, else plain progress lines."""
+    console = console or Console()
+    if live and console.is_terminal:
+        return LiveDashboard(state, console, rate)
+    return PlainProgress(state, console.file)

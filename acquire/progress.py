@@ -1,0 +1,147 @@
+"""The state of a sweep in progress: what the live view and the plain progress lines show.
+
+One :class:`SweepState` is filled by the sweep runner as points arrive (on the acquiring thread)
+and read by a renderer (possibly on a timer thread). Appending only writes into preallocated
+arrays and then moves ``count`` forward, so a reader that takes ``count`` first always sees whole
+points; nothing is computed per point beyond counting overrange and invalid readings.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from datetime import datetime
+
+import numpy as np
+
+from acquire.plan import FrequencyPlan
+from acquire.units import format_si
+
+STATUSES = ("waiting", "running", "complete", "interrupted")
+
+
+@dataclass(eq=False)
+class SweepState:
+    """Everything shown about one sweep. Arrays are preallocated to the plan's length.
+
+    ``corrected`` is None when the sweep runs without a reference set. ``meter`` is the meter's
+    identity line, ``reference`` a one-line description of the reference set in use and
+    ``reference_captured_at`` its capture time (timezone-aware), ``destination`` where the points
+    are stored. ``quantities`` names the quantities plotted (keys of
+    :func:`acquire.impedance.quantities`).
+    """
+
+    plan: FrequencyPlan
+    dut: str = ""
+    meter: str = ""
+    reference: str = ""
+    reference_captured_at: datetime | None = None
+    destination: str = ""
+    quantities: tuple[str, ...] = ("Ls", "Rs", "Q")
+    corrected_too: bool = False
+    clock: Callable[[], float] = time.monotonic
+    status: str = "waiting"
+    reason: str = ""
+    count: int = 0
+    overrange: int = 0
+    invalid: int = 0
+    first_overrange: float | None = None
+    started: float | None = None
+    ended: float | None = None
+    warnings: list[str] = field(default_factory=list)
+    frequency: np.ndarray = field(init=False, repr=False)
+    raw: np.ndarray = field(init=False, repr=False)
+    corrected: np.ndarray | None = field(init=False, repr=False)
+
+    def __post_init__(self) -> None:
+        n = len(self.plan)
+        self.frequency = np.full(n, np.nan)
+        self.raw = np.full(n, complex(np.nan, np.nan))
+        self.corrected = np.full(n, complex(np.nan, np.nan)) if self.corrected_too else None
+
+    @property
+    def planned(self) -> int:
+        return len(self.plan)
+
+    def start(self) -> None:
+        """Mark the sweep as running from now."""
+        self.started = self.clock()
+        self.status = "running"
+
+    def add(self, f: np.ndarray, raw: np.ndarray, corrected: np.ndarray | None = None) -> None:
+        """Append a chunk of points (frequency in Hz, raw and corrected complex Z in ohm)."""
+        i, k = self.count, len(f)
+        if i + k > self.planned:
+            raise ValueError(f"{i + k} points received for a plan of {self.planned}")
+        self.frequency[i : i + k] = f
+        self.raw[i : i + k] = raw
+        if self.corrected is not None and corrected is not None:
+            self.corrected[i : i + k] = corrected
+        over = np.isinf(raw.real) | np.isinf(raw.imag)
+        if over.any():
+            if self.first_overrange is None:
+                self.first_overrange = float(np.asarray(f)[over][0])
+            self.overrange += int(over.sum())
+        self.invalid += int((np.isnan(raw.real) | np.isnan(raw.imag)).sum())
+        self.count = i + k
+
+    def finish(self, status: str, reason: str = "") -> None:
+        """Mark the sweep as ``complete`` or ``interrupted`` (with the reason shown)."""
+        if status not in STATUSES:
+            raise ValueError(f"unknown status {status!r}")
+        self.status, self.reason = status, reason
+        self.ended = self.clock()
+
+    def warn(self, text: str) -> None:
+        """Add a warning line once (repeats are ignored)."""
+        if text not in self.warnings:
+            self.warnings.append(text)
+
+    def points(self) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+        """The points so far: frequency, raw Z, corrected Z (or None); views, not copies."""
+        n = self.count
+        corrected = None if self.corrected is None else self.corrected[:n]
+        return self.frequency[:n], self.raw[:n], corrected
+
+    def shown(self) -> np.ndarray:
+        """The impedance the view shows: corrected when there is a reference set, else raw."""
+        f, raw, corrected = self.points()
+        return raw if corrected is None else corrected
+
+    def elapsed(self) -> float:
+        if self.started is None:
+            return 0.0
+        return (self.ended if self.ended is not None else self.clock()) - self.started
+
+    def remaining(self) -> float | None:
+        """Seconds left at the rate so far; None before there is a rate to go by."""
+        if self.status != "running" or self.count == 0:
+            return None
+        return self.elapsed() / self.count * (self.planned - self.count)
+
+    def all_warnings(self) -> list[str]:
+        """The warnings, with overrange and invalid points summarised in one line each."""
+        lines = list(self.warnings)
+        if self.overrange:
+            where = format_si(self.first_overrange or float("nan"), "Hz")
+            lines.append(f"{self.overrange} point(s) overrange, the first at {where}")
+        if self.invalid:
+            lines.append(f"{self.invalid} point(s) invalid (the meter gave no reading)")
+        return lines
+
+
+def format_duration(seconds: float | None) -> str:
+    """``0.4 s``, ``12 s``, ``3 min 20 s``, ``2.0 h``, ``3.5 days``; ``—`` for None."""
+    if seconds is None:
+        return "—"
+    s = max(float(seconds), 0.0)
+    if s < 10:
+        return f"{s:.1f} s"
+    if s < 60:
+        return f"{s:.0f} s"
+    if s < 3600:
+        return f"{int(s // 60)} min {int(s % 60)} s"
+    if s < 86400 * 2:
+        return f"{s / 3600:.1f} h"
+    return f"{s / 86400:.1f} days"

@@ -1,0 +1,210 @@
+"""Running a sweep: drive the meter over a frequency plan, correct each point, stream it on.
+
+:func:`run_sweep` asks the meter for the plan's frequencies (``meter.sweep(frequencies,
+on_points=...)`` of :class:`drivers.meter.ImpedanceMeter`), corrects every chunk of points that
+arrives with the reference set in use, appends it to a :class:`acquire.progress.SweepState`
+for the live view, and hands it to the store's sweep writer. Writes are grouped: the points
+that arrived since the last write go to the store in one transaction at most every
+``flush_interval`` seconds and at the end, so a fast meter is not held up by one transaction
+per point while a crash loses at most that interval.
+
+Ctrl-C and meter faults end the sweep the same way: the points completed so far are written,
+the sweep is marked ``interrupted`` with the reason, and the outcome says so. Any other error
+(a bug, a store that cannot be written) also marks the sweep interrupted, then propagates.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any, Protocol
+
+import numpy as np
+
+from acquire.errors import CompensationError
+from acquire.plan import FrequencyPlan, check_range
+from acquire.progress import SweepState
+from acquire.units import format_si
+from drivers.errors import InstrumentError
+
+
+class Meter(Protocol):
+    """What a sweep needs of a meter (:class:`drivers.meter.ImpedanceMeter` provides it)."""
+
+    frequency_range: tuple[float, float]
+
+    def sweep(self, frequencies: np.ndarray, on_points: Callable | None = None) -> np.ndarray: ...
+
+
+class Writer(Protocol):
+    """What a sweep needs of the store's sweep writer (``store.begin_sweep(...)``)."""
+
+    id: int
+
+    def add_points(
+        self, frequency: np.ndarray, raw_z: np.ndarray, corrected_z: np.ndarray
+    ) -> None: ...
+
+    def finish(self, status: str = "complete", note: str = "") -> None: ...
+
+
+@dataclass(frozen=True, eq=False)
+class SweepOutcome:
+    """What a sweep produced: the completed points, how it ended, and where it was stored.
+
+    ``corrected`` is None when no reference set was used. ``status`` is ``"complete"`` or
+    ``"interrupted"``; ``reason`` says why it stopped early (the driver's message for a meter
+    fault); ``error`` is the exception that stopped it, if any.
+    """
+
+    frequency: np.ndarray
+    raw: np.ndarray
+    corrected: np.ndarray | None
+    status: str
+    planned: int
+    reason: str = ""
+    sweep_id: int | None = None
+    error: BaseException | None = None
+
+    @property
+    def interrupted(self) -> bool:
+        return self.status != "complete"
+
+    @property
+    def shown(self) -> np.ndarray:
+        """Corrected impedance when there is one, else raw."""
+        return self.raw if self.corrected is None else self.corrected
+
+    def message(self, where: str = "") -> str:
+        """One line for the operator: how the sweep ended and where its points are."""
+        place = f" in {where}" if where else ""
+        stored = f" as sweep {self.sweep_id}{place}" if self.sweep_id is not None else ""
+        n = self.frequency.size
+        if not self.interrupted:
+            return f"sweep complete: {n} points saved{stored}"
+        return (
+            f"sweep interrupted ({self.reason}): {n} of {self.planned} points saved{stored}, "
+            "marked interrupted"
+        )
+
+
+def check_coverage(plan: FrequencyPlan, references: Any) -> None:
+    """Refuse a plan that reaches outside the reference set's grid (nothing is extrapolated)."""
+    grid = np.asarray(references.frequency, dtype=float)
+    low, high = float(grid[0]), float(grid[-1])
+    if plan.start < low * (1 - 1e-9) or plan.stop > high * (1 + 1e-9):
+        raise CompensationError(
+            f"the reference set covers {format_si(low, 'Hz')} to {format_si(high, 'Hz')} but the "
+            f"plan spans {format_si(plan.start, 'Hz')} to {format_si(plan.stop, 'Hz')}; narrow "
+            "the plan or capture references over the whole span"
+        )
+
+
+class _Sink:
+    """Receives chunks from the driver: corrects, appends to the state, writes in groups."""
+
+    def __init__(
+        self,
+        state: SweepState,
+        references: Any,
+        writer: Writer | None,
+        on_progress: Callable[[], None] | None,
+        flush_interval: float,
+    ) -> None:
+        self.state = state
+        self.references = references
+        self.writer = writer
+        self.on_progress = on_progress
+        self.flush_interval = flush_interval
+        self.written = 0
+        self.last_flush = time.monotonic()
+
+    def __call__(self, f_chunk: np.ndarray, z_chunk: np.ndarray) -> None:
+        f = np.asarray(f_chunk, dtype=float).reshape(-1)
+        z = np.asarray(z_chunk, dtype=complex).reshape(-1)
+        corrected = None
+        if self.references is not None:
+            with np.errstate(all="ignore"):
+                corrected = np.asarray(self.references.correct(f, z), dtype=complex)
+        self.state.add(f, z, corrected)
+        if self.writer is not None and time.monotonic() - self.last_flush >= self.flush_interval:
+            self.flush()
+        if self.on_progress is not None:
+            self.on_progress()
+
+    def flush(self) -> None:
+        """Write every point received since the last write, in one call (one transaction)."""
+        n = self.state.count
+        if self.writer is None or n <= self.written:
+            return
+        f, raw, corrected = self.state.points()
+        part = slice(self.written, n)
+        self.writer.add_points(
+            f[part].copy(), raw[part].copy(), (raw if corrected is None else corrected)[part].copy()
+        )
+        self.written = n
+        self.last_flush = time.monotonic()
+
+
+def run_sweep(
+    meter: Meter,
+    plan: FrequencyPlan,
+    references: Any = None,
+    writer: Writer | None = None,
+    state: SweepState | None = None,
+    on_progress: Callable[[], None] | None = None,
+    flush_interval: float = 0.25,
+    block: int | None = None,
+) -> SweepOutcome:
+    """Sweep ``meter`` over ``plan``; see the module docstring for how it streams and stops.
+
+    ``references`` is a :class:`acquire.compensation.ReferenceSet` (or None for raw readings);
+    its grid must cover the plan. ``writer`` is the store's sweep writer (or None to keep the
+    points in memory only); without a reference set its corrected column repeats the raw one.
+    ``state`` receives every point (one is made if not given); ``on_progress`` is called after
+    each chunk. ``block`` splits the plan into several ``meter.sweep`` calls of at most that
+    many points, so a meter that answers a whole list at once still streams in steps.
+    The plan is checked against ``meter.frequency_range`` before anything is sent.
+    """
+    check_range(plan, tuple(meter.frequency_range))
+    if references is not None:
+        check_coverage(plan, references)
+    if state is None:
+        state = SweepState(plan, corrected_too=references is not None)
+    sink = _Sink(state, references, writer, on_progress, flush_interval)
+    reason, error = "", None
+    state.start()
+    try:
+        for frequencies in plan.chunks(block or len(plan)):
+            meter.sweep(np.array(frequencies), on_points=sink)
+    except KeyboardInterrupt as exc:
+        reason, error = "stopped with Ctrl-C", exc
+    except InstrumentError as exc:
+        reason, error = f"meter fault: {exc}", exc
+    except BaseException as exc:
+        _close(sink, writer, state, "interrupted", f"stopped by an error: {exc}")
+        raise
+    status = "interrupted" if error is not None else "complete"
+    _close(sink, writer, state, status, reason)
+    f, raw, corrected = state.points()
+    return SweepOutcome(
+        frequency=f.copy(),
+        raw=raw.copy(),
+        corrected=None if corrected is None else corrected.copy(),
+        status=status,
+        planned=len(plan),
+        reason=reason,
+        sweep_id=getattr(writer, "id", None),
+        error=error,
+    )
+
+
+def _close(sink: _Sink, writer: Writer | None, state: SweepState, status: str, note: str) -> None:
+    """Write what is left and mark the sweep; the state is marked even if the store fails."""
+    try:
+        sink.flush()
+        if writer is not None:
+            writer.finish(status=status, note=note)
+    finally:
+        state.finish(status, note)

@@ -1,0 +1,263 @@
+"""The reference set: open, short and load readings of one fixture on one frequency grid.
+
+A :class:`ReferenceSet` is plain data (a frozen dataclass of numpy arrays and metadata) with the
+operations that belong to it: correcting readings, judging itself, saving and loading. The
+formulas are in :mod:`acquire.compensation.formulas`, the interpolation between grid points in
+:mod:`acquire.compensation.interpolation`, the checks in :mod:`acquire.compensation.checks` and
+the file format in :mod:`acquire.compensation.refs_file`.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass
+from datetime import UTC, datetime
+from functools import cached_property
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from acquire.compensation import checks, formulas, refs_file
+from acquire.compensation.interpolation import place, standards_at
+from acquire.errors import CompensationError
+
+#: The standards a fixture can be measured with, in the order methods are named.
+STANDARDS: tuple[str, ...] = ("open", "short", "load")
+#: Every complex array a reference set may hold: the standards and the load's true value.
+IMPEDANCE_FIELDS: tuple[str, ...] = (*STANDARDS, "load_true")
+
+
+@dataclass(frozen=True, eq=False, repr=False)
+class ReferenceSet:
+    """Open, short and load readings of a fixture, and what is known about their capture.
+
+    ``frequency`` (Hz, 1-D) is the grid; ``open``, ``short`` and ``load`` are the meter's complex
+    readings (ohm) on that grid with the fixture empty, shorted, and holding the load standard;
+    ``load_true`` is the load standard's true impedance (an array on the grid, or one number that
+    is broadcast). Any of them may be None. ``captured_at`` is a timezone-aware time (kept in
+    UTC), ``temperature`` the fixture temperature in degrees Celsius if known.
+
+    Arrays are copied and made read-only at construction; equality is identity (compare the
+    arrays or :meth:`to_dict` to compare contents). Construction refuses only what cannot be
+    represented (wrong shapes, non-numbers, a naive time); a grid that is not strictly
+    increasing, NaN or overrange readings and the like are reported by :meth:`check`, and
+    :meth:`correct` refuses a grid it cannot use.
+    """
+
+    frequency: np.ndarray
+    open: np.ndarray | None = None
+    short: np.ndarray | None = None
+    load: np.ndarray | None = None
+    load_true: np.ndarray | complex | None = None
+    captured_at: datetime | None = None
+    fixture: str = ""
+    meter: str = ""
+    temperature: float | None = None
+    notes: str = ""
+
+    def __post_init__(self) -> None:
+        grid = _array(self.frequency, float, "frequency")
+        if grid.ndim != 1 or grid.size == 0:
+            raise CompensationError(
+                "the frequency grid must be a non-empty list of frequencies, "
+                f"not an array of shape {grid.shape}"
+            )
+        object.__setattr__(self, "frequency", _frozen(grid))
+        for name in IMPEDANCE_FIELDS:
+            value = getattr(self, name)
+            if value is None:
+                continue
+            z = _array(value, complex, name)
+            if name == "load_true" and z.ndim == 0:
+                z = np.full(grid.shape, complex(z))
+            if z.shape != grid.shape:
+                raise CompensationError(
+                    f"{name} has {z.size} values of shape {z.shape} but the grid has {grid.size} "
+                    "frequencies; give one value per grid frequency"
+                )
+            object.__setattr__(self, name, _frozen(z))
+        object.__setattr__(self, "captured_at", _utc(self.captured_at))
+        if self.temperature is not None:
+            t = float(self.temperature)
+            if not math.isfinite(t):
+                raise CompensationError("temperature must be a finite number of °C, or None")
+            object.__setattr__(self, "temperature", t)
+        for name in ("fixture", "meter", "notes"):
+            if not isinstance(getattr(self, name), str):
+                raise CompensationError(f"{name} must be text")
+
+    def __repr__(self) -> str:
+        grid = self.frequency
+        return (
+            f"ReferenceSet(method={self.method!r}, points={grid.size}, "
+            f"from {grid[0]:g} Hz to {grid[-1]:g} Hz, fixture={self.fixture!r})"
+        )
+
+    @property
+    def method(self) -> str:
+        """The correction the standards give: ``"open-short-load"``, ``"short"``, ... ``"none"``."""
+        return formulas.method_name(*(getattr(self, name) is not None for name in STANDARDS))
+
+    @property
+    def standards(self) -> tuple[str, ...]:
+        """Names of the standards measured, in the order ``open``, ``short``, ``load``."""
+        return tuple(name for name in STANDARDS if getattr(self, name) is not None)
+
+    @property
+    def points(self) -> int:
+        """Number of grid frequencies."""
+        return int(self.frequency.size)
+
+    def correct(self, f, z) -> np.ndarray:
+        """The DUT's impedance from readings ``z`` (complex ohm) taken at frequencies ``f`` (Hz).
+
+        ``f`` and ``z`` have one shape (1-D, or scalars for a spot reading). The method follows
+        from the standards present (:attr:`method`; formulas in
+        :mod:`acquire.compensation.formulas`). Frequencies on the grid use the readings as
+        captured (no interpolation); others inside the grid use the references interpolated as
+        in :mod:`acquire.compensation.interpolation`; any outside the grid raise
+        :class:`~acquire.errors.CompensationError`, as do a set without standards, a load without
+        its true value and a grid that is not strictly increasing. A reading that is not finite
+        gives a result that is not finite.
+        """
+        f, z, shape = self._points(f, z)
+        return self._correction_at(f).apply(z).reshape(shape)
+
+    def expected_reading(self, f, z_dut) -> np.ndarray:
+        """What the meter would read through this fixture for a DUT of impedance ``z_dut``.
+
+        The inverse of :meth:`correct` (the fixture model the standards imply), under the same
+        rules for frequencies.
+        """
+        f, z, shape = self._points(f, z_dut)
+        return self._correction_at(f).reading(z).reshape(shape)
+
+    def at(self, f) -> ReferenceSet:
+        """This set carried to the 1-D grid ``f`` (inside the grid), metadata unchanged."""
+        f = _array(f, float, "frequency")
+        at = place(self._grid, np.atleast_1d(f))
+        moved = dict(
+            zip(IMPEDANCE_FIELDS, standards_at(self._grid, at, *self._impedances), strict=True)
+        )
+        return dataclasses.replace(self, frequency=at.f, **moved)
+
+    def check(self, dut=None, f=None) -> list[checks.Finding]:
+        """Findings a user can act on, about these references and, if given, a DUT's readings.
+
+        ``dut`` are complex readings at ``f`` (default: the grid). The rules are listed in
+        :mod:`acquire.compensation.checks`. An empty list means nothing was found.
+        """
+        return checks.check(self, dut, f)
+
+    def with_standard(self, name: str, z) -> ReferenceSet:
+        """A copy with ``name`` (``open``, ``short``, ``load`` or ``load_true``) set to ``z``."""
+        if name not in IMPEDANCE_FIELDS:
+            raise CompensationError(
+                f"unknown standard {name!r}; use one of {', '.join(IMPEDANCE_FIELDS)}"
+            )
+        return dataclasses.replace(self, **{name: z})
+
+    def to_dict(self) -> dict[str, Any]:
+        """A JSON-ready dict that :meth:`from_dict` turns back into an identical set."""
+        return refs_file.to_dict(self)
+
+    @classmethod
+    def from_dict(cls, d: dict[str, Any]) -> ReferenceSet:
+        """The set described by ``d`` (from :meth:`to_dict`); refuses a malformed or unknown one."""
+        return cls(**refs_file.fields_from_dict(d))
+
+    def save(self, path: str | Path) -> None:
+        """Write the set to ``path`` in the self-describing JSON of :mod:`.refs_file`.
+
+        Read it back with ``ReferenceSet.load(path)`` (a classmethod, called on the class).
+        """
+        refs_file.write(Path(path), self.to_dict())
+
+    @property
+    def _impedances(self) -> tuple[np.ndarray | None, ...]:
+        return tuple(getattr(self, name) for name in IMPEDANCE_FIELDS)
+
+    @cached_property
+    def _grid(self) -> np.ndarray:
+        grid = self.frequency
+        if not np.all(np.isfinite(grid)) or grid[0] <= 0 or np.any(np.diff(grid) <= 0):
+            raise CompensationError(
+                "the reference grid is not finite, positive and strictly increasing; "
+                "run check() on the set for details and capture the references again"
+            )
+        return grid
+
+    @cached_property
+    def _grid_correction(self) -> formulas.Correction:
+        self._grid  # noqa: B018 - validates the grid once
+        return self._build(self.open, self.short, self.load, self.load_true)
+
+    def _build(self, zo, zs, zl, zt) -> formulas.Correction:
+        if self.method == "none":
+            raise CompensationError(
+                "this reference set holds no open, short or load reading; capture at least a short"
+            )
+        if zl is not None and zt is None:
+            raise CompensationError(
+                "the load reading cannot be used without the load's true impedance (load_true)"
+            )
+        return formulas.correction(zo, zs, zl, zt)
+
+    def _correction_at(self, f: np.ndarray) -> formulas.Correction:
+        grid = self._grid
+        if f is grid or (f.shape == grid.shape and np.array_equal(f, grid)):
+            return self._grid_correction
+        at = place(grid, f)
+        if at.on_grid:
+            return self._grid_correction.take(at.index)
+        return self._build(*standards_at(grid, at, *self._impedances))
+
+    def _points(self, f, z) -> tuple[np.ndarray, np.ndarray, tuple[int, ...]]:
+        f = np.asarray(f, dtype=float)
+        z = np.asarray(z, dtype=complex)
+        if f.shape != z.shape or f.ndim > 1:
+            raise CompensationError(
+                f"give one frequency per reading: {f.size} frequencies of shape {f.shape}, "
+                f"{z.size} readings of shape {z.shape}"
+            )
+        return f.reshape(-1), z.reshape(-1), z.shape
+
+
+def _load(cls: type[ReferenceSet], path: str | Path) -> ReferenceSet:
+    """Read a set written by :meth:`ReferenceSet.save`; refuse a damaged file or unknown version.
+
+    Call it on the class: ``ReferenceSet.load(path)``. (On an instance, ``refs.load`` is the load
+    standard's readings: a classmethod is a non-data descriptor, so the instance's own attribute
+    wins. It is attached after the class is built so that the dataclass field ``load`` keeps its
+    default of None.)
+    """
+    return cls.from_dict(refs_file.read(Path(path)))
+
+
+ReferenceSet.load = classmethod(_load)  # type: ignore[assignment]
+
+
+def _array(value, dtype, name: str) -> np.ndarray:
+    try:
+        return np.array(value, dtype=dtype)
+    except (TypeError, ValueError) as exc:
+        raise CompensationError(f"{name} must be numbers ({exc})") from exc
+
+
+def _frozen(a: np.ndarray) -> np.ndarray:
+    a.setflags(write=False)
+    return a
+
+
+def _utc(when: datetime | None) -> datetime | None:
+    if when is None:
+        return None
+    if not isinstance(when, datetime):
+        raise CompensationError(f"captured_at must be a datetime, not {type(when).__name__}")
+    if when.tzinfo is None or when.utcoffset() is None:
+        raise CompensationError(
+            "captured_at must carry a time zone (for example datetime.now(timezone.utc))"
+        )
+    return when.astimezone(UTC)

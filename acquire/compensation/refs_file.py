@@ -1,0 +1,240 @@
+"""The reference-set file: self-describing JSON that round-trips exactly.
+
+Layout (format version 1), one JSON object::
+
+    {
+      "format": "coil-acquire reference set",
+      "format_version": 1,
+      "about": "<one sentence saying what the fields mean>",
+      "captured_at": "2024-05-02T09:30:00+00:00" | null,
+      "fixture": "...", "meter": "...", "temperature_c": 23.0 | null, "notes": "...",
+      "frequency_hz": [100.0, 125.89254117941675, ...],
+      "impedance_ohm": {
+        "open":  {"real": [...], "imag": [...]},
+        "short": {...}, "load": {...}, "load_true": {...}      (only those present)
+      },
+      "sha256": "<hex digest>"                                  (in files only)
+    }
+
+Numbers are JSON numbers written with Python's shortest round-tripping ``repr``, so every float
+reads back bit for bit; values that are not finite (a meter's overrange or invalid reading) are
+the strings ``"inf"``, ``"-inf"`` and ``"nan"``, which keeps the file strict JSON. ``sha256`` is
+the digest of the canonical form of everything else (keys sorted, no spaces, UTF-8), so a
+damaged or hand-edited file is refused rather than read with a changed number.
+
+:func:`to_dict` and :func:`fields_from_dict` give the same object without the digest, for
+anything that stores a reference set somewhere other than a file.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+import tempfile
+from datetime import UTC, datetime
+from pathlib import Path
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+
+from acquire.errors import CompensationError
+
+if TYPE_CHECKING:
+    from acquire.compensation.reference_set import ReferenceSet
+
+FORMAT = "coil-acquire reference set"
+FORMAT_VERSION = 1
+ABOUT = (
+    "Readings of a test fixture taken open, shorted and with a load standard, for removing the "
+    "fixture from later readings. frequency_hz lists the grid in hertz; impedance_ohm holds, per "
+    "standard, the real and imaginary parts in ohm, one per frequency; load_true is the load "
+    "standard's true impedance; non-finite values are the strings inf, -inf and nan; "
+    "temperature_c is in degrees Celsius; sha256 is the digest of the canonical JSON of all "
+    "other fields."
+)
+_NAMES = ("open", "short", "load", "load_true")
+_KEYS = {"format", "format_version", "about", "captured_at", "fixture", "meter",
+         "temperature_c", "notes", "frequency_hz", "impedance_ohm"}  # fmt: skip
+_SPECIAL = {"inf": math.inf, "-inf": -math.inf, "nan": math.nan}
+
+
+def to_dict(refs: ReferenceSet) -> dict[str, Any]:
+    """The JSON-ready object for ``refs`` (the file's content without ``sha256``)."""
+    standards = {
+        name: {"real": _encode(z.real), "imag": _encode(z.imag)}
+        for name in _NAMES
+        if (z := getattr(refs, name)) is not None
+    }
+    return {
+        "format": FORMAT,
+        "format_version": FORMAT_VERSION,
+        "about": ABOUT,
+        "captured_at": None if refs.captured_at is None else refs.captured_at.isoformat(),
+        "fixture": refs.fixture,
+        "meter": refs.meter,
+        "temperature_c": refs.temperature,
+        "notes": refs.notes,
+        "frequency_hz": _encode(refs.frequency),
+        "impedance_ohm": standards,
+    }
+
+
+def fields_from_dict(d: Any) -> dict[str, Any]:
+    """Keyword arguments for :class:`ReferenceSet` from an object made by :func:`to_dict`.
+
+    Raises :class:`~acquire.errors.CompensationError` for an object that is not a reference set,
+    of an unknown format version, or malformed in any field.
+    """
+    if not isinstance(d, dict) or d.get("format") != FORMAT:
+        raise CompensationError(f'this is not a reference set: it lacks "format": "{FORMAT}"')
+    version = d.get("format_version")
+    if type(version) is not int:
+        raise _damaged("format_version is not a whole number")
+    if version > FORMAT_VERSION:
+        raise CompensationError(
+            f"this reference set has format version {version}, newer than this tool reads "
+            f"(up to {FORMAT_VERSION}); update coil-acquire to read it"
+        )
+    if version < 1:
+        raise CompensationError(f"unknown reference-set format version {version}")
+    d = {k: v for k, v in d.items() if k != "sha256"}
+    missing, extra = _KEYS - d.keys(), d.keys() - _KEYS
+    if missing or extra:
+        raise _damaged(f"fields missing {sorted(missing)} / unexpected {sorted(extra)}")
+    for key in ("about", "fixture", "meter", "notes"):
+        if not isinstance(d[key], str):
+            raise _damaged(f"{key} is not text")
+    temperature = d["temperature_c"]
+    if temperature is not None and type(temperature) not in (int, float):
+        raise _damaged("temperature_c is not a number")
+    frequency = _decode(d["frequency_hz"], "frequency_hz")
+    standards = d["impedance_ohm"]
+    if not isinstance(standards, dict) or not set(standards) <= set(_NAMES):
+        raise _damaged(f"impedance_ohm must map some of {', '.join(_NAMES)} to values")
+    fields: dict[str, Any] = {
+        "frequency": frequency,
+        "captured_at": _time(d["captured_at"]),
+        "fixture": d["fixture"],
+        "meter": d["meter"],
+        "temperature": temperature,
+        "notes": d["notes"],
+    }
+    for name, parts in standards.items():
+        if not isinstance(parts, dict) or set(parts) != {"real", "imag"}:
+            raise _damaged(f"impedance_ohm.{name} must hold exactly real and imag")
+        real = _decode(parts["real"], f"{name}.real")
+        imag = _decode(parts["imag"], f"{name}.imag")
+        if real.shape != frequency.shape or imag.shape != frequency.shape:
+            raise _damaged(f"{name} does not have one value per frequency")
+        z = np.empty(frequency.shape, dtype=complex)
+        z.real, z.imag = real, imag
+        fields[name] = z
+    return fields
+
+
+def write(path: Path, payload: dict[str, Any]) -> None:
+    """Write ``payload`` and its digest to ``path`` atomically (never a half-written file)."""
+    lines = [f"  {json.dumps(k)}: {_dumps(v)}" for k, v in payload.items() if k != "impedance_ohm"]
+    inner = ",\n".join(
+        f"    {json.dumps(k)}: {_dumps(v)}" for k, v in payload["impedance_ohm"].items()
+    )
+    lines.append(f'  "impedance_ohm": {{\n{inner}\n  }}' if inner else '  "impedance_ohm": {}')
+    lines.append(f'  "sha256": "{_digest(payload)}"')
+    text = "{\n" + ",\n".join(lines) + "\n}\n"
+    temp = None
+    try:
+        handle, temp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
+        with os.fdopen(handle, "w", encoding="utf-8") as out:
+            out.write(text)
+        os.replace(temp, path)
+    except OSError as exc:
+        if temp is not None and os.path.exists(temp):
+            os.unlink(temp)
+        raise CompensationError(
+            f"cannot write the reference set to {path}: {exc.strerror}"
+        ) from exc
+
+
+def read(path: Path) -> dict[str, Any]:
+    """The checked object in the file at ``path``, ready for :func:`fields_from_dict`."""
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError as exc:
+        raise CompensationError(f"no reference-set file at {path}") from exc
+    except UnicodeDecodeError as exc:
+        raise CompensationError(f"{path} is not a reference-set file (not UTF-8 text)") from exc
+    except OSError as exc:
+        raise CompensationError(f"cannot read {path}: {exc.strerror}") from exc
+    try:
+        d = json.loads(text, parse_constant=_refuse_constant)
+    except (json.JSONDecodeError, ValueError) as exc:
+        raise CompensationError(
+            f"{path} is damaged or not a reference-set file ({exc}); restore a copy or capture "
+            "the references again"
+        ) from exc
+    if not isinstance(d, dict) or d.get("format") != FORMAT:
+        raise CompensationError(f"{path} is not a reference-set file")
+    fields_from_dict(d)
+    digest = d.get("sha256")
+    if digest != _digest({k: v for k, v in d.items() if k != "sha256"}):
+        raise CompensationError(
+            f"{path} does not match its checksum: it was damaged or edited by hand; restore a "
+            "copy or capture the references again"
+        )
+    return d
+
+
+def _digest(payload: dict[str, Any]) -> str:
+    canonical = json.dumps(
+        payload, sort_keys=True, separators=(",", ":"), ensure_ascii=False, allow_nan=False
+    )
+    return hashlib.sha256(canonical.encode("utf-8")).hexdigest()
+
+
+def _dumps(value: Any) -> str:
+    return json.dumps(value, ensure_ascii=False, allow_nan=False)
+
+
+def _encode(a: np.ndarray) -> list[float | str]:
+    values = a.tolist()
+    if np.all(np.isfinite(a)):
+        return values
+    return [v if math.isfinite(v) else ("nan" if math.isnan(v) else repr(v)) for v in values]
+
+
+def _decode(values: Any, what: str) -> np.ndarray:
+    if not isinstance(values, list):
+        raise _damaged(f"{what} is not a list of numbers")
+    kinds = set(map(type, values))
+    if not kinds <= {float, int, str}:
+        raise _damaged(f"{what} holds something other than numbers")
+    if str in kinds:
+        try:
+            values = [_SPECIAL[v] if type(v) is str else v for v in values]
+        except KeyError as exc:
+            raise _damaged(f"{what} holds the text {exc.args[0]!r} instead of a number") from exc
+    return np.array(values, dtype=float).reshape(-1)
+
+
+def _time(text: Any) -> datetime | None:
+    if text is None:
+        return None
+    try:
+        when = datetime.fromisoformat(text)
+    except (TypeError, ValueError) as exc:
+        raise _damaged("captured_at is not an ISO 8601 time") from exc
+    if when.tzinfo is None:
+        raise _damaged("captured_at has no time zone")
+    return when.astimezone(UTC)
+
+
+def _refuse_constant(name: str) -> float:
+    raise ValueError(f"bare {name} is not allowed; non-finite values are written as strings")
+
+
+def _damaged(what: str) -> CompensationError:
+    return CompensationError(
+        f"the reference set is damaged: {what}; restore a copy or capture the references again"
+    )

@@ -1,0 +1,58 @@
+"""The results store: every reference set, sweep and production unit, in one database.
+
+An SQLite file on one bench (the default), or a PostgreSQL database that a line of stations
+writes to at once; one schema and one code path (SQLAlchemy Core) serve both::
+
+    from acquire.store import open_store, UnitRecord, MeasurementRecord
+
+    with open_store("sqlite:///results.db") as store:
+        unit = UnitRecord(serial="A1", lot="L7", outcome="pass",
+                          measurements=[MeasurementRecord("Ls", 3.4e-4, "H", 1e3, verdict="pass")])
+        store.save_unit(unit)
+        print(store.lot_summary("L7"))
+
+Modules: :mod:`~acquire.store.url` (store URLs), :mod:`~acquire.store.engine` (connections,
+transactions, SQLite durability settings), :mod:`~acquire.store.schema` (tables and versions),
+:mod:`~acquire.store.migrate`, :mod:`~acquire.store.records` (dataclasses),
+:mod:`~acquire.store.catalog` (meters, fixtures, plans, lots), :mod:`~acquire.store.references`,
+:mod:`~acquire.store.sweeps`, :mod:`~acquire.store.production` (units, lot statistics),
+:mod:`~acquire.store.legacy` (stores of older versions, for tests) and
+:mod:`~acquire.store.testing` (helpers for tests and benchmarks).
+"""
+
+from acquire.store.catalog import plan_hash
+from acquire.store.core import Store, open_store
+from acquire.store.records import (
+    PASS,
+    FixtureInfo,
+    LotInfo,
+    LotYield,
+    MeasurementRecord,
+    MeterInfo,
+    PlanInfo,
+    ReferenceSetInfo,
+    SweepInfo,
+    UnitRecord,
+    new_attempt_id,
+)
+from acquire.store.schema import SCHEMA_VERSION
+from acquire.store.sweeps import SweepWriter
+
+__all__ = [
+    "PASS",
+    "SCHEMA_VERSION",
+    "FixtureInfo",
+    "LotInfo",
+    "LotYield",
+    "MeasurementRecord",
+    "MeterInfo",
+    "PlanInfo",
+    "ReferenceSetInfo",
+    "Store",
+    "SweepInfo",
+    "SweepWriter",
+    "UnitRecord",
+    "new_attempt_id",
+    "open_store",
+    "plan_hash",
+]

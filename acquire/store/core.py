@@ -1,0 +1,224 @@
+"""The results store: one object in front of an SQLite file or a PostgreSQL database."""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from pathlib import Path
+from types import TracebackType
+from typing import TYPE_CHECKING, Any
+
+from sqlalchemy import Engine
+
+from acquire.errors import StoreError
+from acquire.store import catalog, production, references, sweeps
+from acquire.store.engine import Database
+from acquire.store.migrate import ensure_schema
+from acquire.store.records import (
+    FixtureInfo,
+    LotInfo,
+    LotYield,
+    MeterInfo,
+    PlanInfo,
+    ReferenceSetInfo,
+    SweepInfo,
+    UnitRecord,
+)
+from acquire.store.schema import SCHEMA_VERSION
+from acquire.store.sweeps import STALE_AFTER_S, SweepWriter
+from acquire.store.url import parse_store_url
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+    from acquire.compensation import ReferenceSet
+
+
+def open_store(url: str, *, schema: str | None = None, stale_after: float = STALE_AFTER_S) -> Store:
+    """Open (creating or migrating as needed) the results store at ``url``.
+
+    ``url`` is ``sqlite:///path/file.db`` (or a bare file path) or ``postgresql://user@host/db``
+    (see :mod:`acquire.store.url`); ``schema`` puts a PostgreSQL store's tables in that schema;
+    ``stale_after`` is how many seconds without a write make a running sweep count as abandoned.
+    Raises :class:`~acquire.errors.StoreError` when the store cannot be reached, is not a store,
+    or was written by a newer release.
+    """
+    location = parse_store_url(url, schema)
+    if location.path is not None and not location.path.parent.is_dir():
+        raise StoreError(
+            f"cannot create store {location.path}: the folder {location.path.parent} does not "
+            "exist (create it, or choose another path)"
+        )
+    db = Database(location)
+    try:
+        created, found = ensure_schema(db)
+    except BaseException:
+        db.dispose()
+        raise
+    return Store(db, created, found, stale_after)
+
+
+class Store:
+    """Meters, fixtures, reference sets, sweeps, plans, lots and units in one database.
+
+    Make one with :func:`open_store`. Every method is one transaction (a sweep's points, one per
+    ``add_points`` batch). A store may be shared by threads; a process that forks should open its
+    own store rather than use its parent's.
+    """
+
+    def __init__(self, db: Database, created: bool, found_version: int, stale_after: float):
+        self._db = db
+        self._created = created
+        self._found_version = found_version
+        self._stale_after = stale_after
+        self._lots: dict[str, int] = {}
+
+    @property
+    def url(self) -> str:
+        """The store's URL, any password hidden."""
+        return self._db.location.shown
+
+    @property
+    def path(self) -> Path | None:
+        """The SQLite file, or None for PostgreSQL and in-memory stores."""
+        return self._db.location.path
+
+    @property
+    def engine_name(self) -> str:
+        """``"sqlite"`` or ``"postgresql"``."""
+        return self._db.location.engine
+
+    @property
+    def created(self) -> bool:
+        """True if opening made a new, empty store (callers print its location then)."""
+        return self._created
+
+    @property
+    def migrated_from(self) -> int | None:
+        """The older schema version this store was migrated from when opened, else None."""
+        return (
+            None if self._created or self._found_version == SCHEMA_VERSION else self._found_version
+        )
+
+    @property
+    def schema_version(self) -> int:
+        return SCHEMA_VERSION
+
+    @property
+    def engine(self) -> Engine:
+        """The SQLAlchemy engine, for read-only queries of your own (``sqlalchemy.text``)."""
+        return self._db.engine
+
+    # meters, fixtures, plans, lots
+    def record_meter(
+        self, manufacturer: str, model: str, serial: str, firmware: str, dialect: str = ""
+    ) -> int:
+        return catalog.record_meter(self._db, manufacturer, model, serial, firmware, dialect)
+
+    def record_fixture(self, name: str, notes: str = "") -> int:
+        return catalog.record_fixture(self._db, name, notes)
+
+    def record_plan(self, text: str, name: str = "") -> int:
+        return catalog.record_plan(self._db, text, name)
+
+    def record_lot(self, name: str, notes: str = "") -> int:
+        lot_id = catalog.record_lot(self._db, name, notes)
+        self._lots[name] = lot_id
+        return lot_id
+
+    def meter(self, meter_id: int) -> MeterInfo:
+        return catalog.meter(self._db, meter_id)
+
+    def fixture(self, fixture_id: int) -> FixtureInfo:
+        return catalog.fixture(self._db, fixture_id)
+
+    def plan(self, plan_id: int | None = None, hash: str | None = None) -> PlanInfo:
+        return catalog.plan(self._db, plan_id, hash)
+
+    def lot(self, name: str) -> LotInfo:
+        return catalog.lot(self._db, name)
+
+    def list_lots(self) -> list[LotInfo]:
+        return catalog.list_lots(self._db)
+
+    # reference sets
+    def save_reference_set(
+        self,
+        refs: ReferenceSet,
+        name: str | None = None,
+        meter_id: int | None = None,
+        fixture_id: int | None = None,
+    ) -> int:
+        return references.save_reference_set(self._db, refs, name, meter_id, fixture_id)
+
+    def load_reference_set(self, ref_id: int) -> ReferenceSet:
+        return references.load_reference_set(self._db, ref_id)
+
+    def reference_set_info(self, ref_id: int) -> ReferenceSetInfo:
+        return references.reference_set_info(self._db, ref_id)
+
+    def list_reference_sets(self) -> list[ReferenceSetInfo]:
+        return references.list_reference_sets(self._db)
+
+    # sweeps
+    def begin_sweep(
+        self,
+        dut: str = "",
+        meter_id: int | None = None,
+        fixture_id: int | None = None,
+        reference_set_id: int | None = None,
+        settings: dict[str, Any] | None = None,
+    ) -> SweepWriter:
+        return sweeps.begin_sweep(self._db, dut, meter_id, fixture_id, reference_set_id, settings)
+
+    def sweep_info(self, sweep_id: int) -> SweepInfo:
+        return sweeps.sweep_info(self._db, sweep_id, self._stale_after)
+
+    def list_sweeps(self) -> list[SweepInfo]:
+        return sweeps.list_sweeps(self._db, self._stale_after)
+
+    def sweep_points(self, sweep_id: int) -> pd.DataFrame:
+        return sweeps.sweep_points(self._db, sweep_id)
+
+    def close_abandoned_sweeps(self) -> list[int]:
+        return sweeps.close_abandoned_sweeps(self._db, self._stale_after)
+
+    # production
+    def save_unit(self, unit: UnitRecord) -> bool:
+        return production.save_unit(self._db, unit, self._lots)
+
+    def save_units(self, units: Iterable[UnitRecord], batch: int = 1000) -> int:
+        return production.save_units(self._db, units, self._lots, batch)
+
+    def load_unit(self, attempt_id: str) -> UnitRecord:
+        return production.load_unit(self._db, attempt_id)
+
+    def unit_attempts(self, serial: str) -> list[UnitRecord]:
+        return production.unit_attempts(self._db, serial)
+
+    def lot_units(self, lot: str) -> pd.DataFrame:
+        return production.lot_units(self._db, lot)
+
+    def lot_summary(self, lot: str) -> pd.DataFrame:
+        return production.lot_summary(self._db, lot)
+
+    def lot_yield(self, lot: str) -> LotYield:
+        return production.lot_yield(self._db, lot)
+
+    # lifetime
+    def close(self) -> None:
+        """Release the store's connections (the store cannot be used afterwards)."""
+        self._db.dispose()
+
+    def __enter__(self) -> Store:
+        return self
+
+    def __exit__(
+        self,
+        kind: type[BaseException] | None,
+        exc: BaseException | None,
+        tb: TracebackType | None,
+    ) -> None:
+        self.close()
+
+    def __repr__(self) -> str:
+        return f"Store({self.url!r})"

@@ -1,0 +1,293 @@
+"""Production units and their measurements, and the lot statistics computed from them in SQL.
+
+``save_unit`` writes a unit and all its measurements in one transaction, keyed by its attempt
+id: a second write of the same attempt (a retry after a lost connection, a replay after a
+restart) stores nothing and returns False. ``save_units`` does the same for many units at once,
+a batch per transaction (for imports).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+from typing import TYPE_CHECKING, Any
+
+from sqlalchemy import Connection, and_, case, func, select
+
+from acquire.errors import StoreError
+from acquire.store.catalog import get_or_create, lot_row
+from acquire.store.engine import Database, finite_or_none, insert_ignoring_duplicates
+from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
+from acquire.store.schema import TABLES, identity_key, utc_now
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+_UNIT_FIELDS = (
+    "serial",
+    "attempt",
+    "station",
+    "operator",
+    "plan_id",
+    "reference_set_id",
+    "meter_id",
+    "fixture_id",
+    "started_at",
+    "finished_at",
+    "outcome",
+    "bin",
+    "notes",
+    "attempt_id",
+)
+
+
+def _unit_row(unit: UnitRecord, lot_id: int | None) -> dict[str, Any]:
+    row = {name: getattr(unit, name) for name in _UNIT_FIELDS}
+    row.update(serial_key=identity_key(unit.serial), lot_id=lot_id, saved_at=utc_now())
+    return row
+
+
+def _measurement_rows(unit_id: int, unit: UnitRecord) -> list[dict[str, Any]]:
+    return [
+        {
+            "unit_id": unit_id,
+            "seq": seq,
+            "parameter": m.parameter,
+            "frequency": finite_or_none(m.frequency),
+            "value": finite_or_none(m.value),
+            "si_unit": m.unit,
+            "low_limit": finite_or_none(m.low),
+            "high_limit": finite_or_none(m.high),
+            "verdict": m.verdict,
+        }
+        for seq, m in enumerate(unit.measurements)
+    ]
+
+
+def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> dict[str, int]:
+    found = {}
+    for name in set(names) - {""}:
+        found[name] = cache.get(name) or get_or_create(conn, TABLES["lots"], "key", lot_row(name))
+    return found
+
+
+def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool:
+    """Store ``unit`` with its measurements in one transaction; False if already stored."""
+    units, measurements = TABLES["units"], TABLES["measurements"]
+
+    def work(conn: Connection) -> tuple[bool, dict[str, int]]:
+        lots = _lot_ids(conn, [unit.lot], lot_cache)
+        insert = insert_ignoring_duplicates(conn, units, ["attempt_id"]).returning(units.c.id)
+        unit_id = conn.execute(insert, _unit_row(unit, lots.get(unit.lot))).scalar()
+        if unit_id is None:
+            return False, lots
+        if unit.measurements:
+            conn.execute(measurements.insert(), _measurement_rows(unit_id, unit))
+        return True, lots
+
+    stored, lots = db.write("saving a unit", work, idempotent=True)
+    lot_cache.update(lots)
+    return stored
+
+
+def save_units(
+    db: Database, records: Iterable[UnitRecord], lot_cache: dict[str, int], batch: int = 1000
+) -> int:
+    """Store many units, ``batch`` per transaction; return how many were new."""
+    units, measurements = TABLES["units"], TABLES["measurements"]
+
+    def work(conn: Connection, chunk: list[UnitRecord]) -> tuple[int, dict[str, int]]:
+        lots = _lot_ids(conn, (u.lot for u in chunk), lot_cache)
+        insert = insert_ignoring_duplicates(conn, units, ["attempt_id"])
+        insert = insert.returning(units.c.id, units.c.attempt_id)
+        rows = [_unit_row(u, lots.get(u.lot)) for u in chunk]
+        new = dict((a, i) for i, a in conn.execute(insert, rows).all())
+        values = [
+            r for u in chunk if u.attempt_id in new for r in _measurement_rows(new[u.attempt_id], u)
+        ]
+        if values:
+            conn.execute(measurements.insert(), values)
+        return len(new), lots
+
+    stored = 0
+    chunk: dict[str, UnitRecord] = {}
+    pending = iter(records)
+    while True:
+        for unit in pending:
+            chunk.setdefault(unit.attempt_id, unit)
+            if len(chunk) >= batch:
+                break
+        if not chunk:
+            return stored
+        part = list(chunk.values())
+        n, lots = db.write("saving units", lambda c, b=part: work(c, b), idempotent=True)
+        stored += n
+        lot_cache.update(lots)
+        chunk = {}
+
+
+def _records(conn: Connection, where: Any) -> list[UnitRecord]:
+    units, lots, ms = TABLES["units"], TABLES["lots"], TABLES["measurements"]
+    query = (
+        select(units, func.coalesce(lots.c.name, "").label("lot_name"))
+        .outerjoin(lots, lots.c.id == units.c.lot_id)
+        .where(where)
+        .order_by(units.c.attempt, units.c.id)
+    )
+    heads = conn.execute(query).all()
+    ids = [h.id for h in heads]
+    found: dict[int, list[MeasurementRecord]] = {i: [] for i in ids}
+    for start in range(0, len(ids), 500):
+        part = ids[start : start + 500]
+        rows = conn.execute(
+            select(ms).where(ms.c.unit_id.in_(part)).order_by(ms.c.unit_id, ms.c.seq)
+        )
+        for m in rows:
+            value = float("nan") if m.value is None else m.value
+            record = MeasurementRecord(
+                m.parameter, value, m.si_unit, m.frequency, m.low_limit, m.high_limit, m.verdict
+            )
+            found[m.unit_id].append(record)
+    return [
+        UnitRecord(
+            **{name: getattr(h, name) for name in _UNIT_FIELDS},
+            lot=h.lot_name,
+            measurements=tuple(found[h.id]),
+        )
+        for h in heads
+    ]
+
+
+def load_unit(db: Database, attempt_id: str) -> UnitRecord:
+    """The unit attempt ``attempt_id`` with its measurements."""
+    units = TABLES["units"]
+    found = db.read("reading a unit", lambda c: _records(c, units.c.attempt_id == str(attempt_id)))
+    if not found:
+        raise StoreError(f"there is no unit attempt {attempt_id} in the store")
+    return found[0]
+
+
+def unit_attempts(db: Database, serial: str) -> list[UnitRecord]:
+    """Every stored attempt on the unit ``serial``, in attempt order."""
+    units = TABLES["units"]
+    where = units.c.serial_key == identity_key(serial)
+    return db.read("reading a unit's attempts", lambda c: _records(c, where))
+
+
+def _lot_id(conn: Connection, lot: str) -> int:
+    lots = TABLES["lots"]
+    found = conn.execute(select(lots.c.id).where(lots.c.key == identity_key(lot))).scalar()
+    if found is None:
+        raise StoreError(f"there is no lot {lot!r} in the store")
+    return found
+
+
+def lot_units(db: Database, lot: str) -> pd.DataFrame:
+    """One row per stored attempt of lot ``lot`` (no measurements), in attempt order."""
+    import pandas as pd
+
+    units = TABLES["units"]
+    names = ["attempt_id", "serial", "attempt", "station", "operator", "outcome", "bin"]
+    names += ["started_at", "finished_at"]
+
+    def work(conn: Connection) -> list:
+        query = select(*(units.c[n] for n in names)).where(units.c.lot_id == _lot_id(conn, lot))
+        return conn.execute(query.order_by(units.c.id)).all()
+
+    rows = db.read("reading a lot", work)
+    return pd.DataFrame([tuple(r) for r in rows], columns=names)
+
+
+SUMMARY_COLUMNS = ("parameter", "frequency", "unit", "count", "valid", "passed", "yield")
+SUMMARY_COLUMNS += ("mean", "std", "min", "max")
+
+
+def lot_summary(db: Database, lot: str) -> pd.DataFrame:
+    """Statistics of every measured parameter of lot ``lot``, computed by the database.
+
+    One row per (parameter, frequency, unit): ``count`` measurements, ``valid`` of them finite,
+    ``passed`` with verdict "pass", ``yield`` = passed / count, and ``mean``, ``std`` (sample
+    standard deviation, two-pass for accuracy), ``min``, ``max`` over the finite values. Every
+    stored attempt counts (retests included); see ``lot_yield`` for yields per serial.
+    """
+    import numpy as np
+    import pandas as pd
+
+    m, u = TABLES["measurements"], TABLES["units"]
+    inf = float("inf")
+    finite = case((and_(m.c.value > -inf, m.c.value < inf), m.c.value), else_=None)
+    freq = func.coalesce(m.c.frequency, -1.0)
+
+    def work(conn: Connection) -> list:
+        lot_id = _lot_id(conn, lot)
+        joined = m.join(u, u.c.id == m.c.unit_id)
+        g = (
+            select(
+                m.c.parameter.label("parameter"),
+                freq.label("f"),
+                m.c.si_unit.label("unit"),
+                func.count().label("count"),
+                func.count(finite).label("valid"),
+                func.sum(case((m.c.verdict == PASS, 1), else_=0)).label("passed"),
+                func.avg(finite).label("mean"),
+                func.min(finite).label("min"),
+                func.max(finite).label("max"),
+            )
+            .select_from(joined)
+            .where(u.c.lot_id == lot_id)
+            .group_by(m.c.parameter, freq, m.c.si_unit)
+            .cte("g")
+        )
+        match = and_(g.c.parameter == m.c.parameter, g.c.f == freq, g.c.unit == m.c.si_unit)
+        deviation = finite - g.c.mean
+        stats = [g.c[n] for n in ("parameter", "f", "unit", "count", "valid", "passed", "mean")]
+        stats += [g.c["min"], g.c["max"]]
+        query = (
+            select(*stats, func.sum(deviation * deviation).label("ss"))
+            .select_from(joined.join(g, match))
+            .where(u.c.lot_id == lot_id)
+            .group_by(*stats)
+            .order_by(g.c.parameter, g.c.f, g.c.unit)
+        )
+        return conn.execute(query).all()
+
+    rows = db.read("summarising a lot", work)
+    out = []
+    for r in rows:
+        std = np.sqrt(r.ss / (r.valid - 1)) if r.valid > 1 and r.ss is not None else np.nan
+        freq_hz = np.nan if r.f < 0 else r.f
+        passed = int(r.passed)
+        out.append(
+            (r.parameter, freq_hz, r.unit, r.count, r.valid, passed, passed / r.count)
+            + tuple(np.nan if v is None else float(v) for v in (r.mean, std, r.min, r.max))
+        )
+    return pd.DataFrame(out, columns=list(SUMMARY_COLUMNS))
+
+
+def lot_yield(db: Database, lot: str) -> LotYield:
+    """First-pass and final yield of lot ``lot``, counted per serial number by the database."""
+    u = TABLES["units"]
+
+    def work(conn: Connection) -> Any:
+        order = func.row_number().over(partition_by=u.c.serial_key, order_by=(u.c.attempt, u.c.id))
+        latest = func.row_number().over(
+            partition_by=u.c.serial_key, order_by=(u.c.attempt.desc(), u.c.id.desc())
+        )
+        ranked = (
+            select(u.c.outcome, order.label("first"), latest.label("last"))
+            .where(u.c.lot_id == _lot_id(conn, lot))
+            .subquery()
+        )
+        passing = ranked.c.outcome == PASS
+        one = func.sum
+        query = select(
+            func.count().label("attempts"),
+            one(case((ranked.c.first == 1, 1), else_=0)).label("serials"),
+            one(case((and_(ranked.c.first == 1, passing), 1), else_=0)).label("first_pass"),
+            one(case((and_(ranked.c.last == 1, passing), 1), else_=0)).label("final_pass"),
+        )
+        return conn.execute(query).one()
+
+    r = db.read("working out a lot's yield", work)
+    return LotYield(
+        lot, int(r.attempts), int(r.serials or 0), int(r.first_pass or 0), int(r.final_pass or 0)
+    )

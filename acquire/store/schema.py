@@ -1,0 +1,259 @@
+"""The tables of a results store, for every schema version this program can create.
+
+The store's layout is an interface in its own right: points and measurements are plain rows, so
+a query tool or a spreadsheet connected to the database can answer questions directly
+("all units of lot X whose Q at 100 kHz was below 40")::
+
+    SELECT u.serial, m.value FROM units u
+      JOIN lots l ON l.id = u.lot_id
+      JOIN measurements m ON m.unit_id = u.id
+     WHERE l.name = 'X' AND m.parameter = 'Q' AND m.frequency = 100000 AND m.value < 40
+
+Values are in SI units (hertz, ohm, henry, ...; ``measurements.si_unit`` names the unit of each
+value). Times are UTC. An invalid reading (NaN) is stored as NULL; an overrange one as infinity.
+Names that identify a record (a meter's identity, a fixture's or lot's name, a serial number)
+may be of any length; their uniqueness and look-ups go through a SHA-256 ``key`` column.
+
+Versions: 1 kept a unit's lot as free text on the unit and knew nothing of who was writing a
+sweep. 2 (this release) adds the ``lots`` table (units point to it by ``lot_id``) and records
+the writing process and its last write on each sweep, so a sweep whose writer died can be told
+from one still running.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+from datetime import UTC, datetime
+
+from sqlalchemy import (
+    JSON,
+    CheckConstraint,
+    Column,
+    DateTime,
+    Double,
+    ForeignKey,
+    Index,
+    Integer,
+    MetaData,
+    String,
+    Table,
+    Text,
+    TypeDecorator,
+)
+
+#: The schema version this program writes.
+SCHEMA_VERSION = 2
+#: Sweep states as stored.
+SWEEP_STATES = ("running", "complete", "interrupted")
+
+
+class UtcDateTime(TypeDecorator):
+    """A timezone-aware datetime stored as UTC (naive UTC text on SQLite, timestamptz on PG)."""
+
+    impl = DateTime(timezone=True)
+    cache_ok = True
+
+    def process_bind_param(self, value, dialect):
+        if value is None:
+            return None
+        if value.tzinfo is None:
+            raise ValueError("times given to the store must be timezone-aware (use UTC)")
+        value = value.astimezone(UTC)
+        return value.replace(tzinfo=None) if dialect.name == "sqlite" else value
+
+    def process_result_value(self, value, dialect):
+        if value is None:
+            return None
+        if value.tzinfo is None:
+            return value.replace(tzinfo=UTC)
+        return value.astimezone(UTC)
+
+
+def utc_now() -> datetime:
+    """The current time, timezone-aware, in UTC."""
+    return datetime.now(UTC)
+
+
+def identity_key(*parts: str) -> str:
+    """The SHA-256 key of an identity made of several strings (unambiguous for any content)."""
+    return hashlib.sha256(json.dumps(list(parts), ensure_ascii=False).encode()).hexdigest()
+
+
+def _id() -> Column:
+    return Column("id", Integer, primary_key=True, autoincrement=True)
+
+
+def _ref(name: str, table: str, index: bool = False) -> Column:
+    return Column(name, Integer, ForeignKey(f"{table}.id"), nullable=True, index=index)
+
+
+def _text(name: str) -> Column:
+    return Column(name, Text, nullable=False, default="")
+
+
+def _real(name: str) -> Column:
+    return Column(name, Double, nullable=True)
+
+
+def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
+    """The tables of schema ``version`` (1 or 2), for creating a store of that version."""
+    if version not in (1, 2):
+        raise ValueError(f"no schema version {version}")
+    md = MetaData()
+    Table(
+        "schema_version",
+        md,
+        Column("version", Integer, primary_key=True, autoincrement=False),
+        Column("applied_at", UtcDateTime, nullable=False),
+        _text("note"),
+    )
+    Table(
+        "meters",
+        md,
+        _id(),
+        Column("key", String(64), nullable=False, unique=True),
+        _text("manufacturer"),
+        _text("model"),
+        _text("serial"),
+        _text("firmware"),
+        _text("dialect"),
+        Column("first_seen", UtcDateTime, nullable=False),
+    )
+    Table(
+        "fixtures",
+        md,
+        _id(),
+        Column("key", String(64), nullable=False, unique=True),
+        _text("name"),
+        _text("notes"),
+        Column("created_at", UtcDateTime, nullable=False),
+    )
+    Table(
+        "reference_sets",
+        md,
+        _id(),
+        _text("name"),
+        _ref("fixture_id", "fixtures"),
+        _ref("meter_id", "meters"),
+        _text("fixture"),
+        _text("meter"),
+        Column("captured_at", UtcDateTime, nullable=True),
+        _real("temperature"),
+        _text("notes"),
+        _text("method"),
+        _text("standards"),
+        Column("points", Integer, nullable=False),
+        Column("saved_at", UtcDateTime, nullable=False),
+    )
+    Table(
+        "reference_points",
+        md,
+        Column("reference_set_id", Integer, ForeignKey("reference_sets.id"), primary_key=True),
+        Column("idx", Integer, primary_key=True, autoincrement=False),
+        Column("frequency", Double, nullable=False),
+        *(
+            _real(f"{std}_{part}")
+            for std in ("open", "short", "load", "load_true")
+            for part in "rx"
+        ),
+    )
+    sweep_extra = []
+    if version >= 2:
+        sweep_extra = [
+            Column("last_write_at", UtcDateTime, nullable=True),
+            Column("writer_host", Text, nullable=True),
+            Column("writer_pid", Integer, nullable=True),
+        ]
+    Table(
+        "sweeps",
+        md,
+        _id(),
+        _text("dut"),
+        _ref("meter_id", "meters"),
+        _ref("fixture_id", "fixtures"),
+        _ref("reference_set_id", "reference_sets"),
+        Column("settings", JSON, nullable=True),
+        Column("status", String(16), nullable=False),
+        _text("note"),
+        Column("points", Integer, nullable=False, default=0),
+        Column("started_at", UtcDateTime, nullable=False),
+        Column("finished_at", UtcDateTime, nullable=True),
+        *sweep_extra,
+        CheckConstraint(
+            "status IN ('running', 'complete', 'interrupted')", name="ck_sweeps_status"
+        ),
+    )
+    Table(
+        "sweep_points",
+        md,
+        Column("sweep_id", Integer, ForeignKey("sweeps.id"), primary_key=True),
+        Column("idx", Integer, primary_key=True, autoincrement=False),
+        Column("frequency", Double, nullable=False),
+        *(_real(name) for name in ("raw_r", "raw_x", "corrected_r", "corrected_x")),
+    )
+    Table(
+        "plans",
+        md,
+        _id(),
+        Column("hash", String(64), nullable=False, unique=True),
+        _text("name"),
+        Column("text", Text, nullable=False),
+        Column("created_at", UtcDateTime, nullable=False),
+    )
+    if version >= 2:
+        Table(
+            "lots",
+            md,
+            _id(),
+            Column("key", String(64), nullable=False, unique=True),
+            _text("name"),
+            _text("notes"),
+            Column("created_at", UtcDateTime, nullable=False),
+        )
+        lot_column = _ref("lot_id", "lots")
+        lot_index = Index("ix_units_lot_id", "lot_id")
+    else:
+        lot_column = _text("lot")
+        lot_index = Index("ix_units_lot", "lot")
+    Table(
+        "units",
+        md,
+        _id(),
+        Column("attempt_id", String(36), nullable=False, unique=True),
+        _text("serial"),
+        Column("serial_key", String(64), nullable=False, index=True),
+        Column("attempt", Integer, nullable=False, default=1),
+        _text("station"),
+        _text("operator"),
+        _ref("plan_id", "plans"),
+        _ref("reference_set_id", "reference_sets"),
+        _ref("meter_id", "meters"),
+        _ref("fixture_id", "fixtures"),
+        Column("started_at", UtcDateTime, nullable=True),
+        Column("finished_at", UtcDateTime, nullable=True),
+        _text("outcome"),
+        _text("bin"),
+        _text("notes"),
+        Column("saved_at", UtcDateTime, nullable=False),
+        lot_column,
+        lot_index,
+    )
+    Table(
+        "measurements",
+        md,
+        Column("unit_id", Integer, ForeignKey("units.id"), primary_key=True),
+        Column("seq", Integer, primary_key=True, autoincrement=False),
+        _text("parameter"),
+        _real("frequency"),
+        _real("value"),
+        _text("si_unit"),
+        _real("low_limit"),
+        _real("high_limit"),
+        _text("verdict"),
+    )
+    return md
+
+
+#: The tables of the current schema version.
+TABLES = build_metadata(SCHEMA_VERSION).tables

@@ -1,0 +1,295 @@
+"""Sweeps in the store: a header row and one row per point, streamed in batches as they arrive.
+
+A :class:`SweepWriter` is made by ``Store.begin_sweep``; each ``add_points`` call is one
+transaction, so a crash loses at most the batch being written and never leaves half a batch.
+``finish`` marks the sweep ``complete`` or ``interrupted``.
+
+A sweep whose writing process died keeps ``running`` in its row (nothing could mark it). The
+store *reports* it as ``interrupted`` (``SweepInfo.abandoned`` is True, ``recorded_status``
+stays ``running``) as soon as it can tell the writer is gone: the process that began it (host
+name and process id are recorded) no longer exists on this host, or no batch has arrived for
+``stale_after`` seconds (default one hour; this is the only test across hosts, and on Windows).
+``Store.close_abandoned_sweeps`` writes that conclusion into the rows.
+"""
+
+from __future__ import annotations
+
+import os
+import socket
+from datetime import datetime, timedelta
+from types import TracebackType
+from typing import TYPE_CHECKING, Any
+
+import numpy as np
+from sqlalchemy import Connection, func, select, update
+
+from acquire.errors import StoreError
+from acquire.store.engine import Database, float_column
+from acquire.store.records import SweepInfo
+from acquire.store.schema import SWEEP_STATES, TABLES, utc_now
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+#: Seconds without a write after which a running sweep is taken as abandoned.
+STALE_AFTER_S = 3600.0
+POINT_COLUMNS = ("frequency", "raw_r", "raw_x", "corrected_r", "corrected_x")
+
+
+def _process_exists(pid: int) -> bool:
+    if pid == os.getpid():
+        return True
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def writer_gone(
+    host: str | None,
+    pid: int | None,
+    last_write: datetime | None,
+    now: datetime,
+    stale_after: float,
+) -> bool:
+    """True if the process writing a running sweep is known to have ended (see module doc)."""
+    if last_write is None or now - last_write > timedelta(seconds=stale_after):
+        return True
+    if os.name == "posix" and host == socket.gethostname() and pid is not None:
+        return not _process_exists(pid)
+    return False
+
+
+def begin_sweep(
+    db: Database,
+    dut: str = "",
+    meter_id: int | None = None,
+    fixture_id: int | None = None,
+    reference_set_id: int | None = None,
+    settings: dict[str, Any] | None = None,
+) -> SweepWriter:
+    """Record a new running sweep and return the writer for its points."""
+    sweeps = TABLES["sweeps"]
+    now = utc_now()
+    row = {
+        "dut": dut,
+        "meter_id": meter_id,
+        "fixture_id": fixture_id,
+        "reference_set_id": reference_set_id,
+        "settings": settings,
+        "status": "running",
+        "note": "",
+        "points": 0,
+        "started_at": now,
+        "last_write_at": now,
+        "writer_host": socket.gethostname(),
+        "writer_pid": os.getpid(),
+    }
+    sweep_id = db.write(
+        "starting a sweep",
+        lambda c: c.execute(sweeps.insert().returning(sweeps.c.id), row).scalar_one(),
+    )
+    return SweepWriter(db, sweep_id)
+
+
+class SweepWriter:
+    """Streams the points of one sweep into the store; finish it, or use it as a context manager
+    (a normal exit finishes it ``complete``, an exception ``interrupted``)."""
+
+    def __init__(self, db: Database, sweep_id: int) -> None:
+        self._db = db
+        self._id = sweep_id
+        self._points = 0
+        self._finished: str | None = None
+
+    @property
+    def id(self) -> int:
+        """The sweep's id in the store."""
+        return self._id
+
+    @property
+    def points(self) -> int:
+        """How many points this writer has stored."""
+        return self._points
+
+    @property
+    def finished(self) -> str | None:
+        """The status the sweep was finished with, or None while it runs."""
+        return self._finished
+
+    def add_points(
+        self, frequency: np.ndarray, raw_z: np.ndarray, corrected_z: np.ndarray | None = None
+    ) -> None:
+        """Store a batch of points (Hz, complex ohm) in one transaction.
+
+        ``corrected_z`` may be None when no reference set is applied; NaN readings are stored as
+        NULL, overrange (infinite) ones as infinity.
+        """
+        if self._finished is not None:
+            raise StoreError(f"sweep {self._id} is already {self._finished}: begin a new sweep")
+        f = np.atleast_1d(np.asarray(frequency, dtype=float))
+        raw = np.atleast_1d(np.asarray(raw_z, dtype=complex))
+        cor = (
+            raw * np.nan if corrected_z is None else np.atleast_1d(np.asarray(corrected_z, complex))
+        )
+        if f.ndim != 1 or raw.shape != f.shape or cor.shape != f.shape:
+            raise StoreError(
+                f"sweep points need matching 1-D arrays, got frequency {f.shape}, "
+                f"raw {raw.shape}, corrected {cor.shape}"
+            )
+        if f.size == 0:
+            return
+        columns = (
+            f.tolist(),
+            float_column(raw.real),
+            float_column(raw.imag),
+            float_column(cor.real),
+            float_column(cor.imag),
+        )
+        start = self._points
+        rows = [
+            {"sweep_id": self._id, "idx": start + i, **dict(zip(POINT_COLUMNS, v, strict=True))}
+            for i, v in enumerate(zip(*columns, strict=True))
+        ]
+        sweeps, points = TABLES["sweeps"], TABLES["sweep_points"]
+        bump = (
+            update(sweeps)
+            .where(sweeps.c.id == self._id, sweeps.c.status == "running")
+            .values(points=sweeps.c.points + len(rows), last_write_at=utc_now())
+        )
+
+        def work(conn: Connection) -> None:
+            if conn.execute(bump).rowcount != 1:
+                raise StoreError(
+                    f"sweep {self._id} is no longer running in the store (it was finished or "
+                    "closed as abandoned): begin a new sweep"
+                )
+            conn.execute(points.insert(), rows)
+
+        self._db.write("storing sweep points", work)
+        self._points += len(rows)
+
+    def finish(self, status: str = "complete", note: str = "") -> None:
+        """Mark the sweep ``complete`` or ``interrupted`` (with an optional note)."""
+        if status not in SWEEP_STATES[1:]:
+            raise StoreError(f"a sweep finishes as 'complete' or 'interrupted', not {status!r}")
+        if self._finished is not None:
+            raise StoreError(f"sweep {self._id} is already {self._finished}")
+        sweeps = TABLES["sweeps"]
+        done = (
+            update(sweeps)
+            .where(sweeps.c.id == self._id, sweeps.c.status == "running")
+            .values(status=status, note=note, finished_at=utc_now(), last_write_at=utc_now())
+        )
+        changed = self._db.write("finishing a sweep", lambda c: c.execute(done).rowcount)
+        if changed != 1:
+            raise StoreError(f"sweep {self._id} was no longer running in the store")
+        self._finished = status
+
+    def __enter__(self) -> SweepWriter:
+        return self
+
+    def __exit__(
+        self,
+        kind: type[BaseException] | None,
+        exc: BaseException | None,
+        tb: TracebackType | None,
+    ) -> None:
+        if self._finished is not None:
+            return
+        if exc is None:
+            self.finish("complete")
+        else:
+            reason = f"{kind.__name__}: {exc}" if str(exc) else kind.__name__
+            self.finish("interrupted", note=f"stopped by {reason}")
+
+
+def _sweep_info(row: Any, now: datetime, stale_after: float) -> SweepInfo:
+    status, note = row.status, row.note
+    if status == "running" and writer_gone(
+        row.writer_host, row.writer_pid, row.last_write_at, now, stale_after
+    ):
+        status = "interrupted"
+        note = note or "the writing process ended without finishing the sweep"
+    writer = f"{row.writer_host}:{row.writer_pid}" if row.writer_host is not None else ""
+    return SweepInfo(
+        id=row.id,
+        dut=row.dut,
+        status=status,
+        points=row.points,
+        started_at=row.started_at,
+        finished_at=row.finished_at,
+        meter_id=row.meter_id,
+        fixture_id=row.fixture_id,
+        reference_set_id=row.reference_set_id,
+        settings=row.settings,
+        note=note,
+        recorded_status=row.status,
+        last_write_at=row.last_write_at,
+        writer=writer,
+    )
+
+
+def list_sweeps(
+    db: Database, stale_after: float = STALE_AFTER_S, sweep_id: int | None = None
+) -> list[SweepInfo]:
+    """Every stored sweep (or only ``sweep_id``), oldest first."""
+    sweeps = TABLES["sweeps"]
+    query = select(sweeps).order_by(sweeps.c.id)
+    if sweep_id is not None:
+        query = query.where(sweeps.c.id == sweep_id)
+    rows = db.read("listing sweeps", lambda c: c.execute(query).all())
+    now = utc_now()
+    return [_sweep_info(r, now, stale_after) for r in rows]
+
+
+def sweep_info(db: Database, sweep_id: int, stale_after: float = STALE_AFTER_S) -> SweepInfo:
+    """The header of sweep ``sweep_id``."""
+    found = list_sweeps(db, stale_after, sweep_id)
+    if not found:
+        raise StoreError(f"there is no sweep {sweep_id} in the store")
+    return found[0]
+
+
+def sweep_points(db: Database, sweep_id: int) -> pd.DataFrame:
+    """The points of a sweep in order, columns ``frequency, raw_r, raw_x, corrected_r,
+    corrected_x`` (float; NaN where a reading was invalid or no correction was applied)."""
+    import pandas as pd
+
+    sweeps, points = TABLES["sweeps"], TABLES["sweep_points"]
+    query = (
+        select(*(points.c[n] for n in POINT_COLUMNS))
+        .where(points.c.sweep_id == sweep_id)
+        .order_by(points.c.idx)
+    )
+
+    def work(conn: Connection) -> tuple[int, list]:
+        known = conn.execute(select(func.count()).where(sweeps.c.id == sweep_id)).scalar_one()
+        return known, conn.execute(query).all()
+
+    known, rows = db.read("reading sweep points", work)
+    if not known:
+        raise StoreError(f"there is no sweep {sweep_id} in the store")
+    table = np.array([tuple(r) for r in rows], dtype=float).reshape(len(rows), len(POINT_COLUMNS))
+    return pd.DataFrame(table, columns=list(POINT_COLUMNS))
+
+
+def close_abandoned_sweeps(db: Database, stale_after: float = STALE_AFTER_S) -> list[int]:
+    """Mark as interrupted every running sweep whose writer is gone; return their ids."""
+    sweeps = TABLES["sweeps"]
+    closed = []
+    for info in list_sweeps(db, stale_after):
+        if not info.abandoned:
+            continue
+        mark = (
+            update(sweeps)
+            .where(sweeps.c.id == info.id, sweeps.c.status == "running")
+            .where(sweeps.c.last_write_at == info.last_write_at)
+            .values(status="interrupted", note=info.note, finished_at=utc_now())
+        )
+        if db.write("closing an abandoned sweep", lambda c, m=mark: c.execute(m).rowcount):
+            closed.append(info.id)
+    return closed

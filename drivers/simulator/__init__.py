@@ -1,0 +1,14 @@
+"""A simulated impedance meter with real physics, speaking SCPI over a loopback TCP socket.
+
+The driver talks to it through pyvisa exactly as to a bench meter. Start it from Python with
+:func:`running` (a background thread, an ephemeral port) or from the shell with ``acquire sim``.
+Its command set is in ``COMMANDS.md`` beside this file; the physics in :mod:`.physics`; the
+profiles (what is in the fixture, the fixture, the meter) in :mod:`.profiles`; faults in
+:mod:`.faults`.
+"""
+
+from __future__ import annotations
+
+from drivers.simulator.handle import SimulatorHandle, running
+
+__all__ = ["SimulatorHandle", "running"]

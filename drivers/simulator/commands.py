@@ -1,0 +1,444 @@
+"""The simulated meter's command table (documented in ``COMMANDS.md``) and message execution.
+
+Each handler takes the client's :class:`~drivers.simulator.instrument.Session` and the raw
+parameters, and returns the query's reply (``str`` or block ``bytes``) or ``None``.
+"""
+
+from __future__ import annotations
+
+import asyncio
+
+import numpy as np
+
+from drivers.errors import ProfileError
+from drivers.simulator import state
+from drivers.simulator.faults import FaultSpec
+from drivers.simulator.instrument import Instrument, Session
+from drivers.simulator.measurement import Reading, encode, reading_values
+from drivers.simulator.scpi_parser import (
+    CommandTree,
+    ScpiError,
+    boolean,
+    expect,
+    format_number,
+    integer,
+    keyword,
+    number,
+    parse_command,
+    quote,
+    split_message,
+    string,
+)
+
+_FAULT_WORDS = ("DROP", "STALl", "GARBle", "TRUNcate", "COUNt", "ERRor", "OVERrange")
+_FAULT_KINDS = dict(zip(("DROP", "STAL", "GARB", "TRUN", "COUN", "ERR", "OVER"),
+                        ("drop", "stall", "garble", "truncate", "count", "error", "overrange"),
+                        strict=True))  # fmt: skip
+
+
+class Commands:
+    """Binds the command table to one :class:`Instrument`."""
+
+    def __init__(self, instrument: Instrument) -> None:
+        self.instrument = instrument
+        self.tree = CommandTree()
+        s = self
+        for pattern, write, read in (
+            ("*IDN", None, s.idn),
+            ("*RST", s.rst, None),
+            ("*CLS", s.cls, None),
+            ("*OPC", s.opc, s.opc_query),
+            ("*WAI", s.wai, None),
+            ("*ESR", None, s.esr),
+            ("*ESE", s.ese, s.ese_query),
+            ("*STB", None, s.stb),
+            ("*TST", None, s.tst),
+            ("*TRG", s.trg, None),
+            ("[SOURce:]FREQuency[:CW]", s.frequency, s.frequency_query),
+            ("[SOURce:]FREQuency:MODE", s.mode, s.mode_query),
+            ("[SOURce:]LIST:FREQuency", s.list_set, s.list_query),
+            ("[SOURce:]LIST:FREQuency:POINts", None, s.list_points),
+            ("[SOURce:]LIST:FREQuency:LOG", s.list_log, None),
+            ("[SOURce:]VOLTage[:LEVel]", s.level, s.level_query),
+            ("[SENSe:]SPEed", s.speed, s.speed_query),
+            ("[SENSe:]AVERage:COUNt", s.averaging, s.averaging_query),
+            ("TRIGger:SOURce", s.trigger_source, s.trigger_source_query),
+            ("INITiate[:IMMediate]", s.initiate, None),
+            ("FETCh", None, s.fetch),
+            ("READ", None, s.read),
+            ("MEASure:RDC", None, s.rdc),
+            ("FORMat[:DATA]", s.data_format, s.data_format_query),
+            ("FORMat:BORDer", s.byte_order, s.byte_order_query),
+            ("FORMat:PAIR", s.pair, s.pair_query),
+            ("SYSTem:ERRor[:NEXT]", None, s.error_next),
+            ("SYSTem:ERRor:COUNt", None, s.error_count),
+            ("SYSTem:VERSion", None, s.version),
+            ("SIMulate:DUT", s.sim_dut, s.sim_dut_query),
+            ("SIMulate:UNIT:NEXT", s.sim_unit_next, None),
+            ("SIMulate:UNIT", None, s.sim_unit_query),
+            ("SIMulate:FIXTure", s.sim_fixture, s.sim_fixture_query),
+            ("SIMulate:NOISe", s.sim_noise, s.sim_noise_query),
+            ("SIMulate:TIME", s.sim_time, s.sim_time_query),
+            ("SIMulate:SEED", s.sim_seed, s.sim_seed_query),
+            ("SIMulate:FAULt", s.sim_fault, None),
+            ("SIMulate:FAULt:RATE", s.sim_fault_rate, None),
+            ("SIMulate:FAULt:CLEar", s.sim_fault_clear, None),
+        ):
+            self.tree.add(pattern, write, read)
+
+    async def execute(self, session: Session, text: str) -> bytes | None:
+        """Run every command of one message; the queries' replies joined by ``;``, or None.
+
+        A failing command puts its error on the client's queue and the next command runs; a query
+        interrupted by a new message (-410) abandons the rest of the message and its replies.
+        """
+        replies: list[bytes] = []
+        try:
+            commands = split_message(text)
+        except ScpiError as exc:
+            session.status.push(exc.code, exc.text)
+            return None
+        for item in commands:
+            try:
+                command = parse_command(item)
+                handler = self.tree.find(command)
+                reply = await handler(session, command.params)
+            except ScpiError as exc:
+                session.status.push(exc.code, exc.text)
+                if exc.code == -410:
+                    return None
+                continue
+            if reply is not None:
+                replies.append(reply if isinstance(reply, bytes) else reply.encode("ascii"))
+        return b";".join(replies) if replies else None
+
+    # IEEE 488.2 common commands
+
+    async def idn(self, session: Session, params) -> str:
+        expect(params, 0)
+        m = self.instrument.meter
+        return f"{m.manufacturer},{m.model},{m.serial},{m.firmware}"
+
+    async def rst(self, session: Session, params) -> None:
+        expect(params, 0)
+        self.instrument.reset()
+
+    async def cls(self, session: Session, params) -> None:
+        expect(params, 0)
+        session.status.clear()
+
+    async def opc(self, session: Session, params) -> None:
+        expect(params, 0)
+        status, task = session.status, self.instrument.task
+        if task is None or task.done():
+            status.event_status |= state.ESR_OPC
+        else:
+            task.add_done_callback(
+                lambda _: setattr(status, "event_status", status.event_status | state.ESR_OPC)
+            )
+
+    async def opc_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        if self.instrument.task is not None:
+            await session.wait_for(self.instrument.task)
+        return "1"
+
+    async def wai(self, session: Session, params) -> None:
+        expect(params, 0)
+        task = self.instrument.task
+        if task is not None and not task.done():
+            await asyncio.wait({task})
+
+    async def esr(self, session: Session, params) -> str:
+        expect(params, 0)
+        return str(session.status.read_event_status())
+
+    async def ese(self, session: Session, params) -> None:
+        expect(params, 1)
+        session.status.event_enable = integer(params[0], 0, 255)
+
+    async def ese_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return str(session.status.event_enable)
+
+    async def stb(self, session: Session, params) -> str:
+        expect(params, 0)
+        return str(session.status.status_byte)
+
+    async def tst(self, session: Session, params) -> str:
+        expect(params, 0)
+        return "0"
+
+    async def trg(self, session: Session, params) -> None:
+        expect(params, 0)
+        self.instrument.trigger()
+
+    # Source: frequency, list, level
+
+    def _frequency(self, text: str) -> float:
+        return number(text, "HZ", state.FREQUENCY_MIN, state.FREQUENCY_MAX, state.FREQUENCY_DEFAULT)
+
+    def _limit_query(self, params, low: float, high: float, default: float, value: float) -> str:
+        expect(params, 0, 1)
+        if params:
+            value = {"MIN": low, "MAX": high, "DEF": default}[
+                keyword(params[0], ("MINimum", "MAXimum", "DEFault"))
+            ]
+        return format_number(value)
+
+    async def frequency(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.settings.frequency = self._frequency(params[0])
+
+    async def frequency_query(self, session: Session, params) -> str:
+        s = self.instrument.settings
+        low, high, default = state.FREQUENCY_MIN, state.FREQUENCY_MAX, state.FREQUENCY_DEFAULT
+        return self._limit_query(params, low, high, default, s.frequency)
+
+    async def mode(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.settings.mode = keyword(params[0], ("FIXed", "LIST"))
+
+    async def mode_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return self.instrument.settings.mode
+
+    async def list_set(self, session: Session, params) -> None:
+        expect(params, 1, state.LIST_MAX)
+        self.instrument.settings.frequency_list = tuple(self._frequency(p) for p in params)
+
+    async def list_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return ",".join(format_number(f) for f in self.instrument.settings.frequency_list)
+
+    async def list_points(self, session: Session, params) -> str:
+        expect(params, 0)
+        return str(len(self.instrument.settings.frequency_list))
+
+    async def list_log(self, session: Session, params) -> None:
+        expect(params, 3)
+        start, stop = self._frequency(params[0]), self._frequency(params[1])
+        points = integer(params[2], 2, state.LIST_MAX)
+        if start == stop:
+            raise ScpiError(-222, "start and stop must differ")
+        self.instrument.settings.frequency_list = tuple(np.geomspace(start, stop, points).tolist())
+
+    async def level(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.settings.level = number(
+            params[0], "V", state.LEVEL_MIN, state.LEVEL_MAX, state.LEVEL_DEFAULT
+        )
+
+    async def level_query(self, session: Session, params) -> str:
+        return self._limit_query(params, state.LEVEL_MIN, state.LEVEL_MAX, state.LEVEL_DEFAULT,
+                                 self.instrument.settings.level)  # fmt: skip
+
+    # Sense: speed and averaging
+
+    async def speed(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.settings.speed = keyword(params[0], ("FAST", "MEDium", "SLOW"))
+
+    async def speed_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return self.instrument.settings.speed
+
+    async def averaging(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.settings.averaging = integer(params[0], 1, state.AVERAGING_MAX, 1)
+
+    async def averaging_query(self, session: Session, params) -> str:
+        expect(params, 0, 1)
+        if params:
+            word = keyword(params[0], ("MINimum", "MAXimum", "DEFault"))
+            return str(state.AVERAGING_MAX if word == "MAX" else 1)
+        return str(self.instrument.settings.averaging)
+
+    # Trigger and measurement
+
+    async def trigger_source(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.settings.trigger_source = keyword(params[0], ("IMMediate", "BUS"))
+
+    async def trigger_source_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return self.instrument.settings.trigger_source
+
+    async def initiate(self, session: Session, params) -> None:
+        expect(params, 0)
+        self.instrument.initiate()
+
+    def _reply(self, reading: Reading) -> bytes:
+        s = self.instrument.settings
+        values = reading_values(reading, s.pair)
+        if self.instrument.faults.short_reading():
+            values = values[:-1]
+        return encode(values, s.data_format, s.byte_order)
+
+    async def fetch(self, session: Session, params) -> bytes:
+        expect(params, 0)
+        instrument = self.instrument
+        if instrument.armed:
+            raise ScpiError(-230, "measurement armed, waiting for *TRG")
+        if instrument.busy:
+            await session.wait_for(instrument.task)  # type: ignore[arg-type]
+        if instrument.last is None:
+            raise ScpiError(-230, "no completed measurement")
+        return self._reply(instrument.last)
+
+    async def _own_task(self, session: Session, start) -> object:
+        instrument = self.instrument
+        while instrument.busy:
+            await session.wait_for(instrument.task)  # type: ignore[arg-type]
+        task = start()
+        await session.wait_for(task)
+        if task.cancelled():
+            raise ScpiError(-230, "measurement aborted")
+        return task.result()
+
+    async def read(self, session: Session, params) -> bytes:
+        expect(params, 0)
+        if self.instrument.settings.trigger_source == "BUS":
+            raise ScpiError(
+                -221, "READ? needs TRIGger:SOURce IMMediate; use INITiate, *TRG, FETCh?"
+            )
+        reading = await self._own_task(session, self.instrument.initiate)
+        return self._reply(reading)  # type: ignore[arg-type]
+
+    async def rdc(self, session: Session, params) -> str:
+        expect(params, 0)
+        if self.instrument.armed:
+            raise ScpiError(-213, "a measurement is armed, waiting for *TRG")
+        value = await self._own_task(session, self.instrument.start_dc)
+        return format_number(value)  # type: ignore[arg-type]
+
+    # Format
+
+    async def data_format(self, session: Session, params) -> None:
+        expect(params, 1, 2)
+        kind = keyword(params[0], ("ASCii", "REAL"))
+        if kind == "ASC" and len(params) == 2:
+            raise ScpiError(-108, "ASCii takes no length")
+        if kind == "REAL" and len(params) == 2 and integer(params[1], 0, 1000) != 64:
+            raise ScpiError(-222, "only REAL,64 is supported")
+        self.instrument.settings.data_format = kind
+
+    async def data_format_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return "REAL,64" if self.instrument.settings.data_format == "REAL" else "ASC"
+
+    async def byte_order(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.settings.byte_order = keyword(params[0], ("NORMal", "SWAPped"))
+
+    async def byte_order_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return self.instrument.settings.byte_order
+
+    async def pair(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.settings.pair = keyword(params[0], state.PAIRS)
+
+    async def pair_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return self.instrument.settings.pair
+
+    # System
+
+    async def error_next(self, session: Session, params) -> str:
+        expect(params, 0)
+        code, message = session.status.pop()
+        return f"{code},{quote(message)}"
+
+    async def error_count(self, session: Session, params) -> str:
+        expect(params, 0)
+        return str(len(session.status.errors))
+
+    async def version(self, session: Session, params) -> str:
+        expect(params, 0)
+        return "1999.0"
+
+    # Simulator only
+
+    def _profile(self, load, text: str):
+        try:
+            return load(string(text))
+        except ProfileError as exc:
+            raise ScpiError(-224, str(exc)) from exc
+
+    async def sim_dut(self, session: Session, params) -> None:
+        expect(params, 1)
+        self._profile(self.instrument.insert, params[0])
+
+    async def sim_dut_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return quote(self.instrument.dut.name)
+
+    async def sim_unit_next(self, session: Session, params) -> None:
+        expect(params, 0)
+        self.instrument.next_unit()
+
+    async def sim_unit_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return str(self.instrument.unit)
+
+    async def sim_fixture(self, session: Session, params) -> None:
+        expect(params, 1)
+        self._profile(self.instrument.set_fixture, params[0])
+
+    async def sim_fixture_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return quote(self.instrument.fixture.name)
+
+    async def sim_noise(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.noise = boolean(params[0])
+
+    async def sim_noise_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return "1" if self.instrument.noise else "0"
+
+    async def sim_time(self, session: Session, params) -> None:
+        expect(params, 1)
+        if params[0].strip().upper() == "AUTO":
+            self.instrument.time_override = None
+        else:
+            self.instrument.time_override = number(params[0], "S", 0.0, state.TIME_MAX)
+
+    async def sim_time_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return format_number(self.instrument.point_time())
+
+    async def sim_seed(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.reseed(integer(params[0], 0, 2**63 - 1))
+
+    async def sim_seed_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return str(self.instrument.seed)
+
+    async def sim_fault(self, session: Session, params) -> None:
+        expect(params, 1, 2)
+        kind = _FAULT_KINDS[keyword(params[0], _FAULT_WORDS)]
+        value: float | None = None
+        if len(params) == 2:
+            if kind == "overrange":
+                value = number(params[1], "HZ", 0.0)
+            else:
+                value = integer(params[1], -(2**31), 2**31 - 1)
+        try:
+            self.instrument.arm_fault(FaultSpec.build(kind, value))
+        except ValueError as exc:
+            raise ScpiError(-224 if len(params) == 2 else -109, str(exc)) from exc
+
+    async def sim_fault_rate(self, session: Session, params) -> None:
+        expect(params, 2)
+        kind = _FAULT_KINDS[keyword(params[0], _FAULT_WORDS)]
+        try:
+            self.instrument.arm_fault(FaultSpec.build(kind, rate=number(params[1], "", 0.0, 1.0)))
+        except ValueError as exc:
+            raise ScpiError(-224, str(exc)) from exc
+
+    async def sim_fault_clear(self, session: Session, params) -> None:
+        expect(params, 0)
+        self.instrument.faults.clear()

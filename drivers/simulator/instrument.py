@@ -1,0 +1,197 @@
+"""The simulated meter's shared state: what is in the fixture, settings, faults, the measurement.
+
+One :class:`Instrument` stands for one physical meter: every client sees the same settings, DUT
+and measurement, as on a bench. Each connected client has a :class:`Session` with its own error
+queue and status registers. Everything here runs on the server's event loop; a measurement is an
+asyncio task that sleeps for its duration, so other clients are served meanwhile.
+"""
+
+from __future__ import annotations
+
+import asyncio
+from pathlib import Path
+
+import numpy as np
+
+from drivers.simulator import measurement
+from drivers.simulator.faults import Faults, FaultSpec
+from drivers.simulator.measurement import Conditions, Reading
+from drivers.simulator.profiles import (
+    STANDARD_KINDS,
+    DutProfile,
+    FixtureProfile,
+    MeterProfile,
+    draw_unit,
+    load_dut,
+    load_fixture,
+    load_meter,
+)
+from drivers.simulator.scpi_parser import ScpiError
+from drivers.simulator.state import SPEEDS, ClientStatus, Settings
+
+
+class Session:
+    """One client's view: its status registers, and whether a new message is waiting.
+
+    ``waiting`` is set while the client has sent a message that has not been taken up yet; a
+    query that must wait (``FETCh?`` during a measurement) is interrupted by it (-410).
+    """
+
+    def __init__(self, peer: str = "") -> None:
+        self.peer = peer
+        self.status = ClientStatus()
+        self.waiting = asyncio.Event()
+
+    async def wait_for(self, task: asyncio.Task) -> None:
+        """Wait for ``task`` to end; -410 Query INTERRUPTED if a new message arrives first."""
+        if task.done():
+            return
+        if self.waiting.is_set():
+            raise ScpiError(-410, "a new message arrived before the reply was read")
+        interrupt = asyncio.ensure_future(self.waiting.wait())
+        try:
+            await asyncio.wait({task, interrupt}, return_when=asyncio.FIRST_COMPLETED)
+        finally:
+            interrupt.cancel()
+        if not task.done():
+            raise ScpiError(-410, "a new message arrived before the reply was read")
+
+
+class Instrument:
+    """The meter: profiles, settings, random generators, faults and the running measurement."""
+
+    def __init__(
+        self,
+        dut: str | Path | DutProfile = "air-core-coil",
+        fixture: str | Path | FixtureProfile = "bench-leads",
+        meter: str | Path | MeterProfile = "simulated-meter",
+        seed: int = 0,
+        measure_time: float | None = None,
+        noise: bool = True,
+    ) -> None:
+        self.meter = load_meter(meter)
+        self.fixture = load_fixture(fixture)
+        self.settings = Settings()
+        self.noise = noise
+        self.time_override = measure_time
+        self.faults = Faults(np.random.default_rng(0))
+        self.reseed(seed)
+        self.dut = self.nominal = load_dut(dut)
+        self.unit = 0
+        self.last: Reading | None = None
+        self.task: asyncio.Task | None = None
+        self.armed = False
+        self.insert(self.dut)
+
+    def reseed(self, seed: int) -> None:
+        """Restart the noise, production spread and fault generators from ``seed``."""
+        self.seed = seed
+        noise, spread, fault = np.random.SeedSequence(seed).spawn(3)
+        self.noise_rng = np.random.default_rng(noise)
+        self.spread_rng = np.random.default_rng(spread)
+        self.faults.reseed(np.random.default_rng(fault))
+
+    def insert(self, name_or_profile: str | Path | DutProfile) -> DutProfile:
+        """Put a DUT or standard in the fixture and arm its profile's faults."""
+        dut = load_dut(name_or_profile)
+        self.dut = dut
+        if dut.kind not in STANDARD_KINDS and dut.kind != "none":
+            self.nominal = dut
+            self.unit = 0
+        for spec in dut.faults:
+            self.faults.arm(spec)
+        return dut
+
+    def next_unit(self) -> DutProfile:
+        """Put the next production unit in: the last inserted DUT's values drawn from its spread."""
+        self.unit += 1
+        self.dut = draw_unit(self.nominal, self.spread_rng)
+        return self.dut
+
+    def set_fixture(self, name_or_profile: str | Path | FixtureProfile) -> FixtureProfile:
+        """Change the fixture."""
+        self.fixture = load_fixture(name_or_profile)
+        return self.fixture
+
+    def arm_fault(self, spec: FaultSpec) -> None:
+        """Arm one fault (see :mod:`drivers.simulator.faults`)."""
+        self.faults.arm(spec)
+
+    def reset(self) -> None:
+        """``*RST``: default settings, running measurement aborted, data cleared."""
+        self.abort()
+        self.settings = Settings()
+
+    def abort(self) -> None:
+        """Stop any measurement and forget the last one."""
+        if self.task is not None and not self.task.done():
+            self.task.cancel()
+        self.task = None
+        self.armed = False
+        self.last = None
+
+    def conditions(self, frequencies: tuple[float, ...] | None = None) -> Conditions:
+        """What a measurement started now would use; the present frequency or list by default."""
+        s = self.settings
+        if frequencies is None:
+            frequencies = s.frequency_list if s.mode == "LIST" else (s.frequency,)
+        return Conditions(
+            frequency=frequencies,
+            level=s.level,
+            speed=SPEEDS[s.speed],
+            averaging=s.averaging,
+            noise=self.noise,
+            dut=self.dut,
+            fixture=self.fixture,
+            meter=self.meter,
+            time_override=self.time_override,
+        )
+
+    @property
+    def busy(self) -> bool:
+        """A measurement is running."""
+        return self.task is not None and not self.task.done()
+
+    def initiate(self) -> asyncio.Task | None:
+        """``INITiate``: start a measurement now, or arm it for ``*TRG`` (then returns None)."""
+        if self.busy or self.armed:
+            raise ScpiError(-213, "a measurement is already running or armed")
+        if self.settings.mode == "LIST" and not self.settings.frequency_list:
+            raise ScpiError(-221, "FREQuency:MODE LIST with an empty frequency list")
+        if self.settings.trigger_source == "BUS":
+            self.armed = True
+            return None
+        return self._start(self.conditions())
+
+    def trigger(self) -> asyncio.Task:
+        """``*TRG``: start the armed measurement."""
+        if not self.armed:
+            raise ScpiError(-211, "no measurement armed (TRIGger:SOURce BUS, then INITiate)")
+        self.armed = False
+        return self._start(self.conditions())
+
+    def _start(self, conditions: Conditions) -> asyncio.Task:
+        self.task = asyncio.get_running_loop().create_task(self._measure(conditions))
+        return self.task
+
+    async def _measure(self, conditions: Conditions) -> Reading:
+        await asyncio.sleep(measurement.duration(conditions))
+        forced = self.faults.overrange(np.asarray(conditions.frequency, dtype=float))
+        reading = measurement.read_impedance(conditions, self.noise_rng, forced)
+        self.last = reading
+        return reading
+
+    def start_dc(self) -> asyncio.Task:
+        """Start a DC resistance measurement (the hardware is busy until it ends)."""
+        if self.busy or self.armed:
+            raise ScpiError(-213, "a measurement is already running or armed")
+        self.task = asyncio.get_running_loop().create_task(self._measure_dc(self.conditions(())))
+        return self.task
+
+    async def _measure_dc(self, conditions: Conditions) -> float:
+        await asyncio.sleep(measurement.dc_time(conditions))
+        return measurement.read_dc_resistance(conditions, self.noise_rng)
+
+    def point_time(self) -> float:
+        """Seconds per point at the present frequency and settings."""
+        return measurement.point_time(self.conditions(), self.settings.frequency)

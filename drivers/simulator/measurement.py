@@ -1,0 +1,152 @@
+"""One measurement of the simulated meter: how long it takes, what it reads, how it is sent.
+
+A reading is the DUT seen through the fixture (:mod:`drivers.simulator.physics`), plus seeded
+noise, with overrange (``|Z|`` above the meter's limit, or an armed overrange fault) and invalid
+(nothing in the fixture) points flagged. It is encoded as pairs of values named by
+``FORMat:PAIR``, in ASCII or as a block of IEEE 754 float64.
+"""
+
+from __future__ import annotations
+
+import struct
+from dataclasses import dataclass
+
+import numpy as np
+
+from drivers.simulator import physics
+from drivers.simulator.profiles import DutProfile, FixtureProfile, MeterProfile
+from drivers.simulator.scpi_parser import block, format_number
+
+OVERRANGE = 9.9e37
+INVALID = 9.91e37
+
+
+@dataclass(frozen=True, eq=False)
+class Reading:
+    """Complex impedance per frequency, with overrange and invalid points flagged."""
+
+    frequency: np.ndarray
+    z: np.ndarray
+    overrange: np.ndarray
+    invalid: np.ndarray
+
+
+@dataclass(frozen=True)
+class Conditions:
+    """Everything a measurement depends on, captured when it starts."""
+
+    frequency: tuple[float, ...]
+    level: float
+    speed: str
+    averaging: int
+    noise: bool
+    dut: DutProfile
+    fixture: FixtureProfile
+    meter: MeterProfile
+    time_override: float | None
+
+
+def point_time(conditions: Conditions, f: float) -> float:
+    """Seconds one point takes: the override, or ``n_avg · max(t_reading, periods/f)``."""
+    if conditions.time_override is not None:
+        return conditions.time_override
+    speed = conditions.meter.speeds[conditions.speed]
+    return conditions.averaging * max(speed.reading_time, speed.periods / f)
+
+
+def dc_time(conditions: Conditions) -> float:
+    """Seconds a DC resistance reading takes: the override, or ``n_avg · t_reading``."""
+    if conditions.time_override is not None:
+        return conditions.time_override
+    return conditions.averaging * conditions.meter.speeds[conditions.speed].reading_time
+
+
+def duration(conditions: Conditions) -> float:
+    """Seconds the whole measurement takes."""
+    return sum(point_time(conditions, f) for f in conditions.frequency)
+
+
+def noise_deviation(conditions: Conditions, magnitude: np.ndarray, f: np.ndarray) -> np.ndarray:
+    """One-sigma noise in ohm for readings of ``magnitude`` at ``f`` under ``conditions``."""
+    meter = conditions.meter
+    return physics.noise_deviation(
+        magnitude,
+        f,
+        meter.accuracy_class,
+        meter.low_impedance_corner,
+        meter.high_impedance_corner,
+        meter.frequency_corner,
+        level_ratio=meter.reference_level / conditions.level,
+        speed_factor=meter.speeds[conditions.speed].noise_factor,
+        averaging=conditions.averaging,
+    )
+
+
+def read_impedance(
+    conditions: Conditions, rng: np.random.Generator, forced_overrange: np.ndarray
+) -> Reading:
+    """The reading at ``conditions.frequency``: DUT through fixture, plus noise, flags."""
+    f = np.asarray(conditions.frequency, dtype=float)
+    seen = conditions.fixture.seen(f, conditions.dut.impedance(f))
+    invalid = np.isnan(seen)
+    magnitude = np.abs(seen)
+    overrange = ~invalid & (~np.isfinite(seen) | (magnitude > conditions.meter.max_impedance))
+    overrange |= forced_overrange & ~invalid
+    z = np.where(invalid | overrange, 0.0, seen)
+    if conditions.noise:
+        deviation = noise_deviation(conditions, np.abs(z), f)
+        z = physics.add_noise(z, deviation, rng)
+    return Reading(frequency=f, z=z, overrange=overrange, invalid=invalid)
+
+
+def read_dc_resistance(conditions: Conditions, rng: np.random.Generator) -> float:
+    """DC resistance seen through the fixture, with noise (at ``f = 0``), or a flag value."""
+    value = conditions.fixture.seen_dc(conditions.dut.dc_value)
+    if np.isnan(value):
+        return INVALID
+    if not np.isfinite(value) or value > conditions.meter.max_impedance:
+        return OVERRANGE
+    if conditions.noise:
+        deviation = float(noise_deviation(conditions, np.array([value]), np.array([0.0]))[0])
+        value += deviation * float(rng.standard_normal())
+    return float(value)
+
+
+def pair_values(pair: str, f: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The two quantities ``pair`` names, per point (SI units; Q = X/R and D = R/X, signed)."""
+    w = 2.0 * np.pi * f
+    r, x = z.real, z.imag
+    with np.errstate(divide="ignore", invalid="ignore"):
+        y = 1.0 / z
+        g, b = y.real, y.imag
+        table = {
+            "RX": (r, x),
+            "ZDEG": (np.abs(z), np.degrees(np.angle(z))),
+            "ZRAD": (np.abs(z), np.angle(z)),
+            "GB": (g, b),
+            "LSRS": (x / w, r),
+            "LPRP": (-1.0 / (w * b), 1.0 / g),
+            "CSRS": (-1.0 / (w * x), r),
+            "CPD": (b / w, r / x),
+            "LSQ": (x / w, x / r),
+        }
+    return table[pair]
+
+
+def reading_values(reading: Reading, pair: str) -> np.ndarray:
+    """Flat array ``a1, b1, a2, b2, ...`` with 9.9E37 for overrange and 9.91E37 for invalid."""
+    a, b = pair_values(pair, reading.frequency, reading.z)
+    values = np.column_stack([a, b])
+    values = np.where(np.isnan(values), INVALID, values)
+    values = np.where(np.isinf(values), np.sign(values) * OVERRANGE, values)
+    values[reading.overrange] = OVERRANGE
+    values[reading.invalid] = INVALID
+    return values.ravel()
+
+
+def encode(values: np.ndarray, data_format: str, byte_order: str) -> bytes:
+    """ASCII (``a,b,...`` with 17 digits) or a definite-length block of float64."""
+    if data_format == "ASC":
+        return ",".join(format_number(float(v)) for v in values).encode("ascii")
+    endian = ">" if byte_order == "NORM" else "<"
+    return block(struct.pack(f"{endian}{len(values)}d", *values))

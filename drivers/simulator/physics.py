@@ -1,0 +1,228 @@
+"""The simulated meter's physics: a DUT's impedance, the fixture between it and the meter, noise.
+
+Pure functions of numpy arrays in SI units (hertz, henry, ohm, farad, siemens, metre, volt).
+Nothing here knows about SCPI, profiles or sockets.
+
+The coil model is the usual lumped equivalent circuit: a series branch ``R_ac(f) + jωL`` (with an
+optional core loss) in parallel with the winding's self-capacitance ``C``. Its self-resonance is
+near ``1/(2π√(LC))``.
+
+The AC resistance follows a growth law with a corner frequency ``f_c`` and an exponent ``n``::
+
+    R_ac(f) = R_dc · (1 + (f/f_c)²)^(n/2)
+
+Well below ``f_c`` it is ``R_dc``; well above it grows as ``(f/f_c)^n``. With ``n = 0.5`` (the
+default) that is the skin-effect asymptote ``R ∝ √f``; a larger ``n`` stands for proximity effect in
+a tightly wound coil. ``f_c`` is roughly where the skin depth falls to the wire's radius.
+
+Core loss is a constant loss tangent ``tan δ = μ''/μ'`` of the core's complex permeability, so the
+inductive branch is ``jωL(1 - j tan δ) = ωL tan δ + jωL``.
+
+The fixture is a linear two-port between the meter's terminals and the DUT, built from (meter side
+first) an optional lossless transmission line, the leads' series residual ``R_s + jωL_s`` and the
+stray shunt ``G_p + jωC_p`` across the DUT's terminals. The meter sees
+``Z_in = (A·Z + B)/(C·Z + D)`` of the cascaded ABCD matrix loaded by the DUT.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+#: Speed of light in vacuum, m/s (exact, SI definition).
+SPEED_OF_LIGHT = 299_792_458.0
+
+
+def omega(f: np.ndarray | float) -> np.ndarray:
+    """Angular frequency ``2πf`` in rad/s."""
+    return 2.0 * np.pi * np.asarray(f, dtype=float)
+
+
+def ac_resistance(
+    f: np.ndarray | float,
+    dc_resistance: float,
+    corner_frequency: float | None = None,
+    exponent: float = 0.5,
+) -> np.ndarray:
+    """Winding resistance at ``f``: ``R_dc·(1 + (f/f_c)²)^(n/2)``, or ``R_dc`` without a corner."""
+    f = np.asarray(f, dtype=float)
+    if corner_frequency is None:
+        return np.full_like(f, dc_resistance)
+    return dc_resistance * (1.0 + (f / corner_frequency) ** 2) ** (exponent / 2.0)
+
+
+def coil_impedance(
+    f: np.ndarray | float,
+    inductance: float,
+    dc_resistance: float,
+    capacitance: float = 0.0,
+    corner_frequency: float | None = None,
+    exponent: float = 0.5,
+    core_loss_tangent: float = 0.0,
+) -> np.ndarray:
+    """Impedance of a coil: ``(R_ac(f) + ωL·tanδ + jωL) ∥ 1/(jωC)``."""
+    w = omega(f)
+    series = (
+        ac_resistance(f, dc_resistance, corner_frequency, exponent)
+        + w * inductance * core_loss_tangent
+        + 1j * w * inductance
+    )
+    return series / (1.0 + 1j * w * capacitance * series)
+
+
+def resistor_impedance(
+    f: np.ndarray | float,
+    resistance: float,
+    series_inductance: float = 0.0,
+    parallel_capacitance: float = 0.0,
+) -> np.ndarray:
+    """Impedance of a resistor with a series inductance, both shunted by a capacitance."""
+    w = omega(f)
+    series = resistance + 1j * w * series_inductance
+    return series / (1.0 + 1j * w * parallel_capacitance * series)
+
+
+def capacitor_impedance(
+    f: np.ndarray | float,
+    capacitance: float,
+    series_resistance: float = 0.0,
+    series_inductance: float = 0.0,
+) -> np.ndarray:
+    """Impedance of a capacitor with its series resistance (ESR) and series inductance (ESL)."""
+    w = omega(f)
+    return series_resistance + 1j * w * series_inductance + 1.0 / (1j * w * capacitance)
+
+
+def open_impedance(f: np.ndarray | float) -> np.ndarray:
+    """An ideal open: infinite impedance at every frequency."""
+    return np.full(np.shape(f), complex(np.inf, 0.0))
+
+
+def short_impedance(f: np.ndarray | float) -> np.ndarray:
+    """An ideal short: zero impedance at every frequency."""
+    return np.zeros(np.shape(f), dtype=complex)
+
+
+def series_abcd(z: np.ndarray) -> np.ndarray:
+    """ABCD matrices (shape ``(N, 2, 2)``) of a series impedance ``z``."""
+    z = np.asarray(z, dtype=complex)
+    m = np.zeros(z.shape + (2, 2), dtype=complex)
+    m[..., 0, 0] = 1.0
+    m[..., 0, 1] = z
+    m[..., 1, 1] = 1.0
+    return m
+
+
+def shunt_abcd(y: np.ndarray) -> np.ndarray:
+    """ABCD matrices of a shunt admittance ``y``."""
+    y = np.asarray(y, dtype=complex)
+    m = np.zeros(y.shape + (2, 2), dtype=complex)
+    m[..., 0, 0] = 1.0
+    m[..., 1, 0] = y
+    m[..., 1, 1] = 1.0
+    return m
+
+
+def line_abcd(
+    f: np.ndarray | float, impedance: float, length: float, velocity_factor: float
+) -> np.ndarray:
+    """ABCD matrices of a lossless line: ``[[cos βl, jZ0 sin βl], [j sin βl / Z0, cos βl]]``."""
+    beta_l = omega(f) * length / (velocity_factor * SPEED_OF_LIGHT)
+    m = np.empty(beta_l.shape + (2, 2), dtype=complex)
+    m[..., 0, 0] = np.cos(beta_l)
+    m[..., 0, 1] = 1j * impedance * np.sin(beta_l)
+    m[..., 1, 0] = 1j * np.sin(beta_l) / impedance
+    m[..., 1, 1] = np.cos(beta_l)
+    return m
+
+
+def fixture_abcd(
+    f: np.ndarray | float,
+    series_resistance: float = 0.0,
+    series_inductance: float = 0.0,
+    shunt_capacitance: float = 0.0,
+    shunt_conductance: float = 0.0,
+    line: tuple[float, float, float] | None = None,
+) -> np.ndarray:
+    """The fixture's two-port, meter side first: line, series residual, shunt stray.
+
+    ``line`` is ``(Z0, length, velocity factor)`` or None.
+    """
+    f = np.atleast_1d(np.asarray(f, dtype=float))
+    w = omega(f)
+    m = series_abcd(series_resistance + 1j * w * series_inductance) @ shunt_abcd(
+        shunt_conductance + 1j * w * shunt_capacitance
+    )
+    if line is not None:
+        m = line_abcd(f, *line) @ m
+    return m
+
+
+def input_impedance(abcd: np.ndarray, z_load: np.ndarray) -> np.ndarray:
+    """Impedance seen at port 1 of ``abcd`` loaded by ``z_load`` (which may be ``inf`` or 0).
+
+    ``(A·Z + B)/(C·Z + D)``; for an infinite load the limit ``A/C``. Where the result has no
+    finite value (an open seen through a fixture with no shunt path) it is ``inf``.
+    """
+    a, b, c, d = abcd[..., 0, 0], abcd[..., 0, 1], abcd[..., 1, 0], abcd[..., 1, 1]
+    z = np.broadcast_to(np.asarray(z_load, dtype=complex), a.shape)
+    is_open = np.isinf(z)
+    finite = np.where(is_open, 0.0, z)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        loaded = (a * finite + b) / (c * finite + d)
+        opened = a / c
+    out = np.where(is_open, opened, loaded)
+    return np.where(np.isfinite(out), out, complex(np.inf, np.inf))
+
+
+def dc_resistance_seen(
+    dut_dc_resistance: float, series_resistance: float, shunt_conductance: float
+) -> float:
+    """DC resistance at the meter: leads in series with the DUT, shunted by the stray conductance.
+
+    The fixture's line is lossless, so at DC it is a plain wire. ``inf`` for an open DUT with no
+    shunt conductance.
+    """
+    if np.isinf(dut_dc_resistance):
+        return np.inf if shunt_conductance == 0.0 else series_resistance + 1.0 / shunt_conductance
+    return series_resistance + dut_dc_resistance / (1.0 + shunt_conductance * dut_dc_resistance)
+
+
+def noise_deviation(
+    magnitude: np.ndarray,
+    f: np.ndarray | float,
+    accuracy_class: float,
+    low_impedance_corner: float,
+    high_impedance_corner: float,
+    frequency_corner: float,
+    level_ratio: float = 1.0,
+    speed_factor: float = 1.0,
+    averaging: int = 1,
+) -> np.ndarray:
+    """One-sigma noise, in ohm, of a reading of impedance magnitude ``magnitude``.
+
+    The model (our own; the shape is common practice for such meters, no published source) has a
+    relative part equal to the accuracy class ``a``, an absolute impedance floor ``a·Z_low`` that
+    dominates at small ``|Z|`` and an admittance floor ``a/Z_high`` that dominates at large ``|Z|``,
+    so the relative noise grows at both extremes of ``|Z|``::
+
+        σ = a · k_f · (s/√n) · (√r·|Z| + r·(Z_low + |Z|²/Z_high))
+
+    with ``k_f = 1 + f/f_corner`` (noise grows at high frequency), ``s`` the speed's noise factor,
+    ``n`` the averaging count and ``r = V_ref/V`` the reference test level over the one in use
+    (a lower level reads noisier: the floors scale as ``r``, the relative part as ``√r``).
+    """
+    magnitude = np.asarray(magnitude, dtype=float)
+    k_f = 1.0 + np.asarray(f, dtype=float) / frequency_corner
+    spread = np.sqrt(level_ratio) * magnitude + level_ratio * (
+        low_impedance_corner + magnitude**2 / high_impedance_corner
+    )
+    return accuracy_class * k_f * (speed_factor / np.sqrt(averaging)) * spread
+
+
+def add_noise(z: np.ndarray, deviation: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+    """``z`` with independent normal errors of standard deviation ``deviation`` (ohm) added to
+    its real and imaginary parts."""
+    z = np.asarray(z, dtype=complex)
+    real = rng.standard_normal(z.shape)
+    imag = rng.standard_normal(z.shape)
+    return z + np.asarray(deviation, dtype=float) * (real + 1j * imag)

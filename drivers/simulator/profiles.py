@@ -1,0 +1,523 @@
+"""Simulator profiles: what is in the fixture (a DUT or a standard), the fixture, and the meter.
+
+Profiles are TOML files (``sim_profiles/<name>.toml`` for the shipped ones) with a ``kind`` key;
+every value is a plain number in SI units (henry, ohm, farad, hertz, metre, second, volt). They
+are validated on load: an unknown key, a missing value or an impossible one (a negative
+inductance) raises :class:`~drivers.errors.ProfileError` naming the file and the key.
+
+Kinds and their keys (``?`` marks an optional key, with its default):
+
+- ``coil``: ``inductance`` H, ``dc_resistance`` ohm, ``capacitance?`` F = 0 (parallel
+  self-capacitance), ``ac_corner_frequency?`` Hz (none: R stays at its DC value),
+  ``ac_exponent?`` = 0.5, ``core_loss_tangent?`` = 0 (see :mod:`drivers.simulator.physics`).
+- ``resistor`` and ``load`` (a load standard): ``resistance`` ohm, ``series_inductance?`` H = 0,
+  ``parallel_capacitance?`` F = 0.
+- ``capacitor``: ``capacitance`` F, ``series_resistance?`` ohm = 0, ``series_inductance?`` H = 0.
+- ``open``, ``short``: ideal standards, no values.
+- ``fixture``: ``series_resistance`` ohm, ``series_inductance`` H, ``shunt_capacitance`` F,
+  ``shunt_conductance`` S, and an optional ``[line]`` table with ``impedance`` ohm, ``length`` m,
+  ``velocity_factor?`` = 0.66 (a lossless line between the meter and the leads).
+- ``meter``: identity and noise of the simulated meter (see :class:`MeterProfile`).
+
+DUT and standard profiles may have a ``[spread]`` table (one-sigma relative spread of any of their
+values, for production units drawn by :func:`draw_unit`) and ``[[faults]]`` entries (armed when the
+profile is put in the fixture; see :mod:`drivers.simulator.faults`). Every profile may have a
+``description``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import tomllib
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+import sim_profiles
+from drivers.errors import ProfileError
+from drivers.simulator import physics
+from drivers.simulator.faults import FAULT_KINDS, FaultSpec
+
+DUT_KINDS = ("coil", "resistor", "capacitor")
+STANDARD_KINDS = ("open", "short", "load")
+GROUPS = {
+    "dut": DUT_KINDS,
+    "standard": STANDARD_KINDS,
+    "fixture": ("fixture",),
+    "meter": ("meter",),
+}
+
+
+@dataclass(frozen=True)
+class _Key:
+    unit: str
+    default: float | None | str = "required"
+    positive: bool = False
+
+    @property
+    def required(self) -> bool:
+        return self.default == "required"
+
+
+_DUT_SCHEMA: dict[str, dict[str, _Key]] = {
+    "coil": {
+        "inductance": _Key("H", positive=True),
+        "dc_resistance": _Key("ohm"),
+        "capacitance": _Key("F", 0.0),
+        "ac_corner_frequency": _Key("Hz", None, positive=True),
+        "ac_exponent": _Key("", 0.5),
+        "core_loss_tangent": _Key("", 0.0),
+    },
+    "resistor": {
+        "resistance": _Key("ohm"),
+        "series_inductance": _Key("H", 0.0),
+        "parallel_capacitance": _Key("F", 0.0),
+    },
+    "capacitor": {
+        "capacitance": _Key("F", positive=True),
+        "series_resistance": _Key("ohm", 0.0),
+        "series_inductance": _Key("H", 0.0),
+    },
+    "open": {},
+    "short": {},
+}
+_DUT_SCHEMA["load"] = _DUT_SCHEMA["resistor"]
+
+_FIXTURE_SCHEMA = {
+    "series_resistance": _Key("ohm"),
+    "series_inductance": _Key("H"),
+    "shunt_capacitance": _Key("F"),
+    "shunt_conductance": _Key("S"),
+}
+_LINE_SCHEMA = {
+    "impedance": _Key("ohm", positive=True),
+    "length": _Key("m"),
+    "velocity_factor": _Key("", 0.66, positive=True),
+}
+_SPEEDS = ("fast", "medium", "slow")
+_METER_SCHEMA = {
+    "accuracy_class": _Key("", positive=True),
+    "low_impedance_corner": _Key("ohm", positive=True),
+    "high_impedance_corner": _Key("ohm", positive=True),
+    "frequency_corner": _Key("Hz", positive=True),
+    "max_impedance": _Key("ohm", positive=True),
+    "reference_level": _Key("V", positive=True),
+}
+_SPEED_SCHEMA = {
+    "reading_time": _Key("s"),
+    "periods": _Key("", positive=True),
+    "noise_factor": _Key("", positive=True),
+}
+_METER_TEXT = ("manufacturer", "model", "serial", "firmware")
+
+
+@dataclass(frozen=True, kw_only=True)
+class DutProfile:
+    """What sits in the fixture: a coil, resistor, capacitor or a standard, or nothing (``none``).
+
+    ``values`` holds the kind's numeric keys (SI units, defaults filled in); ``spread`` the
+    one-sigma relative spread per key; ``faults`` the faults armed when it is inserted.
+    """
+
+    name: str
+    kind: str
+    values: Mapping[str, float | None]
+    description: str = ""
+    spread: Mapping[str, float] = field(default_factory=dict)
+    faults: tuple[FaultSpec, ...] = ()
+    path: Path | None = None
+
+    def __getattr__(self, key: str) -> Any:
+        values = self.__dict__.get("values", {})
+        if key in values:
+            return values[key]
+        raise AttributeError(
+            f"{type(self).__name__} of kind {self.__dict__.get('kind')!r} has no {key!r}"
+        )
+
+    def impedance(self, f: np.ndarray | float) -> np.ndarray:
+        """Exact impedance (complex ohm) at ``f``; ``inf`` for an open, ``nan`` for ``none``."""
+        f = np.atleast_1d(np.asarray(f, dtype=float))
+        v = self.values
+        if self.kind == "coil":
+            return physics.coil_impedance(
+                f,
+                v["inductance"],
+                v["dc_resistance"],
+                v["capacitance"],
+                v["ac_corner_frequency"],
+                v["ac_exponent"],
+                v["core_loss_tangent"],
+            )
+        if self.kind in ("resistor", "load"):
+            return physics.resistor_impedance(
+                f, v["resistance"], v["series_inductance"], v["parallel_capacitance"]
+            )
+        if self.kind == "capacitor":
+            return physics.capacitor_impedance(
+                f, v["capacitance"], v["series_resistance"], v["series_inductance"]
+            )
+        if self.kind == "open":
+            return physics.open_impedance(f)
+        if self.kind == "short":
+            return physics.short_impedance(f)
+        return np.full(f.shape, complex(np.nan, np.nan))
+
+    @property
+    def dc_value(self) -> float:
+        """Resistance at DC in ohm (``inf`` for an open or a capacitor, ``nan`` for ``none``)."""
+        v = self.values
+        if self.kind == "coil":
+            return float(v["dc_resistance"])
+        if self.kind in ("resistor", "load"):
+            return float(v["resistance"])
+        if self.kind in ("open", "capacitor"):
+            return math.inf
+        if self.kind == "short":
+            return 0.0
+        return math.nan
+
+
+#: Nothing in the fixture: the meter's readings are invalid.
+NOTHING = DutProfile(name="none", kind="none", values={}, description="nothing in the fixture")
+
+
+@dataclass(frozen=True, kw_only=True)
+class LineSpec:
+    """A lossless transmission line: characteristic impedance (ohm), length (m), velocity factor."""
+
+    impedance: float
+    length: float
+    velocity_factor: float = 0.66
+
+
+@dataclass(frozen=True, kw_only=True)
+class FixtureProfile:
+    """The fixture between meter and DUT: leads' series residual, stray shunt, optional line."""
+
+    name: str
+    series_resistance: float
+    series_inductance: float
+    shunt_capacitance: float
+    shunt_conductance: float
+    line: LineSpec | None = None
+    description: str = ""
+    path: Path | None = None
+
+    def abcd(self, f: np.ndarray | float) -> np.ndarray:
+        """The fixture's ABCD matrices, shape ``(N, 2, 2)``."""
+        line = None
+        if self.line is not None:
+            line = (self.line.impedance, self.line.length, self.line.velocity_factor)
+        return physics.fixture_abcd(
+            f,
+            self.series_resistance,
+            self.series_inductance,
+            self.shunt_capacitance,
+            self.shunt_conductance,
+            line,
+        )
+
+    def seen(self, f: np.ndarray | float, z_dut: np.ndarray) -> np.ndarray:
+        """What the meter sees of ``z_dut`` through this fixture."""
+        return physics.input_impedance(self.abcd(f), z_dut)
+
+    def seen_dc(self, dut_dc_resistance: float) -> float:
+        """DC resistance the meter sees of a DUT of ``dut_dc_resistance``."""
+        return physics.dc_resistance_seen(
+            dut_dc_resistance, self.series_resistance, self.shunt_conductance
+        )
+
+
+@dataclass(frozen=True, kw_only=True)
+class SpeedSetting:
+    """One measurement speed: seconds per reading, minimum signal periods, noise multiplier."""
+
+    reading_time: float
+    periods: float
+    noise_factor: float
+
+
+@dataclass(frozen=True, kw_only=True)
+class MeterProfile:
+    """The simulated meter: identity, noise model (``physics.noise_deviation``), timing."""
+
+    name: str
+    manufacturer: str
+    model: str
+    serial: str
+    firmware: str
+    accuracy_class: float
+    low_impedance_corner: float
+    high_impedance_corner: float
+    frequency_corner: float
+    max_impedance: float
+    reference_level: float
+    speeds: Mapping[str, SpeedSetting]
+    description: str = ""
+    path: Path | None = None
+
+
+def _shipped(name: str) -> Path:
+    return sim_profiles.path(f"{name}.toml")
+
+
+def _resolve(name_or_path: str | Path) -> Path:
+    text = str(name_or_path)
+    path = Path(text)
+    if text.endswith(".toml") or path.parent != Path(".") or path.is_file():
+        if not path.is_file():
+            raise ProfileError(f"{path}: no such profile file")
+        return path
+    shipped = _shipped(text.lower())
+    if not shipped.is_file():
+        names = ", ".join(list_profiles())
+        raise ProfileError(f"no shipped profile named {text!r} (shipped: {names}; or give a path)")
+    return shipped
+
+
+def _read(path: Path) -> dict[str, Any]:
+    try:
+        with path.open("rb") as fh:
+            return tomllib.load(fh)
+    except tomllib.TOMLDecodeError as exc:
+        raise ProfileError(f"{path}: not valid TOML: {exc}") from exc
+    except OSError as exc:
+        raise ProfileError(f"{path}: cannot read: {exc}") from exc
+
+
+def _number(path: Path, where: str, key: str, value: Any, spec: _Key) -> float:
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        raise ProfileError(
+            f"{path}: {where}{key!r} must be a number in {spec.unit or 'SI units'}, got {value!r}"
+        )
+    value = float(value)
+    if not math.isfinite(value):
+        raise ProfileError(f"{path}: {where}{key!r} must be finite, got {value!r}")
+    if spec.positive and value <= 0:
+        raise ProfileError(f"{path}: {where}{key!r} must be greater than 0, got {value!r}")
+    if value < 0:
+        raise ProfileError(f"{path}: {where}{key!r} must not be negative, got {value!r}")
+    return value
+
+
+def _values(
+    path: Path,
+    table: Mapping[str, Any],
+    schema: Mapping[str, _Key],
+    where: str = "",
+    extra: tuple[str, ...] = (),
+) -> dict[str, float | None]:
+    unknown = sorted(set(table) - set(schema) - set(extra))
+    if unknown:
+        allowed = ", ".join(sorted(set(schema) | set(extra)))
+        raise ProfileError(f"{path}: unknown key {where}{unknown[0]!r} (allowed: {allowed})")
+    out: dict[str, float | None] = {}
+    for key, spec in schema.items():
+        if key in table:
+            out[key] = _number(path, where, key, table[key], spec)
+        elif spec.required:
+            unit = f" ({spec.unit})" if spec.unit else ""
+            raise ProfileError(f"{path}: missing key {where}{key!r}{unit}")
+        else:
+            out[key] = spec.default  # type: ignore[assignment]
+    return out
+
+
+def _text(path: Path, data: Mapping[str, Any], key: str, default: str | None = None) -> str:
+    value = data.get(key, default)
+    if value is None:
+        raise ProfileError(f"{path}: missing key {key!r} (text)")
+    if not isinstance(value, str):
+        raise ProfileError(f"{path}: {key!r} must be text, got {value!r}")
+    return value
+
+
+def _kind(path: Path, data: Mapping[str, Any], allowed: tuple[str, ...]) -> str:
+    kind = _text(path, data, "kind")
+    if kind not in allowed:
+        raise ProfileError(f"{path}: kind {kind!r} is not one of {', '.join(allowed)} here")
+    return kind
+
+
+def dut_from_dict(data: Mapping[str, Any], name: str, path: Path | None = None) -> DutProfile:
+    """Build and validate a DUT or standard profile from parsed TOML ``data``."""
+    where_path = path or Path(f"<{name}>")
+    kind = _kind(where_path, data, DUT_KINDS + STANDARD_KINDS)
+    schema = _DUT_SCHEMA[kind]
+    values = _values(where_path, data, schema, extra=("kind", "description", "spread", "faults"))
+    spread_table = data.get("spread", {})
+    if not isinstance(spread_table, dict):
+        raise ProfileError(f"{where_path}: 'spread' must be a table of relative spreads")
+    spread_schema = {key: _Key("") for key in schema if values[key] is not None}
+    spread = {}
+    for key, value in spread_table.items():
+        if key not in spread_schema:
+            _unknown(where_path, "spread.", key, spread_schema)
+        spread[key] = _number(where_path, "spread.", key, value, spread_schema[key])
+    faults = _faults(where_path, data.get("faults", []))
+    return DutProfile(
+        name=name,
+        kind=kind,
+        values=values,
+        description=_text(where_path, data, "description", ""),
+        spread=spread,
+        faults=faults,
+        path=path,
+    )
+
+
+def _unknown(path: Path, where: str, key: str, schema: Mapping[str, Any]) -> None:
+    allowed = ", ".join(schema) or "nothing"
+    raise ProfileError(f"{path}: unknown key {where}{key!r} (allowed: {allowed})")
+
+
+def _faults(path: Path, entries: Any) -> tuple[FaultSpec, ...]:
+    if not isinstance(entries, list):
+        raise ProfileError(f"{path}: 'faults' must be an array of tables ([[faults]])")
+    out = []
+    for i, entry in enumerate(entries):
+        where = f"faults[{i}]."
+        if not isinstance(entry, dict):
+            raise ProfileError(f"{path}: {where[:-1]} must be a table")
+        allowed = {"kind", "n", "rate", "code", "frequency"}
+        for key in entry:
+            if key not in allowed:
+                _unknown(path, where, key, dict.fromkeys(sorted(allowed)))
+        kind = entry.get("kind")
+        if kind not in FAULT_KINDS:
+            raise ProfileError(
+                f"{path}: {where}'kind' must be one of {', '.join(FAULT_KINDS)}, got {kind!r}"
+            )
+        try:
+            out.append(FaultSpec.build(kind, **{k: v for k, v in entry.items() if k != "kind"}))
+        except ValueError as exc:
+            raise ProfileError(f"{path}: {where[:-1]}: {exc}") from exc
+    return tuple(out)
+
+
+def fixture_from_dict(
+    data: Mapping[str, Any], name: str, path: Path | None = None
+) -> FixtureProfile:
+    """Build and validate a fixture profile from parsed TOML ``data``."""
+    where_path = path or Path(f"<{name}>")
+    _kind(where_path, data, ("fixture",))
+    values = _values(where_path, data, _FIXTURE_SCHEMA, extra=("kind", "description", "line"))
+    line = None
+    if "line" in data:
+        if not isinstance(data["line"], dict):
+            raise ProfileError(f"{where_path}: 'line' must be a table")
+        line = LineSpec(**_values(where_path, data["line"], _LINE_SCHEMA, where="line."))
+    return FixtureProfile(
+        name=name,
+        line=line,
+        description=_text(where_path, data, "description", ""),
+        path=path,
+        **values,  # type: ignore[arg-type]
+    )
+
+
+def meter_from_dict(data: Mapping[str, Any], name: str, path: Path | None = None) -> MeterProfile:
+    """Build and validate a meter profile from parsed TOML ``data``."""
+    where_path = path or Path(f"<{name}>")
+    _kind(where_path, data, ("meter",))
+    extra = ("kind", "description", "speed", *_METER_TEXT)
+    values = _values(where_path, data, _METER_SCHEMA, extra=extra)
+    speeds_table = data.get("speed")
+    if not isinstance(speeds_table, dict):
+        raise ProfileError(f"{where_path}: missing table 'speed' with {', '.join(_SPEEDS)}")
+    speeds = {}
+    for speed in _SPEEDS:
+        table = speeds_table.get(speed)
+        if not isinstance(table, dict):
+            raise ProfileError(f"{where_path}: missing table 'speed.{speed}'")
+        speeds[speed] = SpeedSetting(**_values(where_path, table, _SPEED_SCHEMA, f"speed.{speed}."))
+    for key in speeds_table:
+        if key not in _SPEEDS:
+            _unknown(where_path, "speed.", key, dict.fromkeys(_SPEEDS))
+    identity = {key: _text(where_path, data, key) for key in _METER_TEXT}
+    for key, value in identity.items():
+        if any(c in value for c in ',;"\n'):
+            raise ProfileError(f'{where_path}: {key!r} must not contain , ; " or a line break')
+    return MeterProfile(
+        name=name,
+        speeds=speeds,
+        description=_text(where_path, data, "description", ""),
+        path=path,
+        **identity,
+        **values,  # type: ignore[arg-type]
+    )
+
+
+def _load(name_or_path: str | Path, build):
+    path = _resolve(name_or_path)
+    return build(_read(path), path.stem, path)
+
+
+def load_dut(name_or_path: str | Path | DutProfile) -> DutProfile:
+    """A DUT or standard profile by shipped name (``air-core-coil``, ``open``), path, or as is.
+
+    ``"none"`` is the empty fixture.
+    """
+    if isinstance(name_or_path, DutProfile):
+        return name_or_path
+    if str(name_or_path).lower() == "none":
+        return NOTHING
+    return _load(name_or_path, dut_from_dict)
+
+
+def load_fixture(name_or_path: str | Path | FixtureProfile) -> FixtureProfile:
+    """A fixture profile by shipped name (``bench-leads``), path, or as is."""
+    if isinstance(name_or_path, FixtureProfile):
+        return name_or_path
+    return _load(name_or_path, fixture_from_dict)
+
+
+def load_meter(name_or_path: str | Path | MeterProfile = "simulated-meter") -> MeterProfile:
+    """A meter profile by shipped name (``simulated-meter``), path, or as is."""
+    if isinstance(name_or_path, MeterProfile):
+        return name_or_path
+    return _load(name_or_path, meter_from_dict)
+
+
+def list_profiles(group: str | None = None) -> list[str]:
+    """Names of the shipped profiles, sorted; ``group`` is one of dut, standard, fixture, meter."""
+    if group is not None and group not in GROUPS:
+        raise ProfileError(f"unknown profile group {group!r} (one of {', '.join(GROUPS)})")
+    kinds = GROUPS[group] if group else sum(GROUPS.values(), ())
+    names = []
+    for path in sorted(sim_profiles.DIRECTORY.glob("*.toml")):
+        try:
+            kind = _read(path).get("kind")
+        except ProfileError:
+            continue
+        if kind in kinds:
+            names.append(path.stem)
+    return names
+
+
+def draw_unit(profile: DutProfile, rng: np.random.Generator) -> DutProfile:
+    """A production unit: each value with a spread multiplied by ``1 + σ·N(0, 1)``.
+
+    Values are drawn in the order of the profile's keys; a draw that would make a value negative
+    (possible only for spreads near or above 100 %) is drawn again, at most 100 times.
+    """
+    values = dict(profile.values)
+    for key in values:
+        sigma = profile.spread.get(key, 0.0)
+        if sigma == 0.0 or values[key] is None:
+            continue
+        for _ in range(100):
+            candidate = values[key] * (1.0 + sigma * rng.standard_normal())
+            if candidate > 0:
+                values[key] = candidate
+                break
+        else:
+            raise ProfileError(
+                f"{profile.name}: spread of {key!r} ({sigma}) keeps drawing negative values"
+            )
+    return dataclasses.replace(profile, values=values)

@@ -1,0 +1,149 @@
+"""The simulated meter's TCP server: line-terminated SCPI over a socket, several clients at once.
+
+Each connection gets a :class:`~drivers.simulator.instrument.Session`; its messages (ending in LF,
+CR LF accepted) run one after another, while other connections are served meanwhile. Replies end
+in LF. Sockets have TCP_NODELAY set so short replies leave at once.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import contextlib
+import logging
+import socket
+from collections.abc import Callable
+
+from drivers.simulator.commands import Commands
+from drivers.simulator.instrument import Instrument, Session
+
+LOG = logging.getLogger("drivers.simulator")
+#: Longest message accepted (a full 1601-point list fits with room to spare).
+MESSAGE_LIMIT = 1 << 20
+LOOPBACK = ("127.0.0.1", "::1", "localhost")
+
+
+def resource_string(host: str, port: int) -> str:
+    """The VISA resource of a raw-socket instrument at ``host:port``."""
+    return f"TCPIP0::{host}::{port}::SOCKET"
+
+
+class SimulatorServer:
+    """Serves one :class:`Instrument` on ``host:port`` (port 0 picks a free one)."""
+
+    def __init__(self, instrument: Instrument, host: str = "127.0.0.1", port: int = 0) -> None:
+        self.instrument = instrument
+        self.commands = Commands(instrument)
+        self.host = host
+        self.port = port
+        self._server: asyncio.Server | None = None
+        self._clients: set[asyncio.Task] = set()
+
+    @property
+    def resource(self) -> str:
+        """The VISA resource string clients open."""
+        return resource_string(self.host, self.port)
+
+    async def start(self) -> None:
+        """Start listening; afterwards ``port`` is the port actually bound."""
+        self._server = await asyncio.start_server(
+            self._client, self.host, self.port, limit=MESSAGE_LIMIT
+        )
+        self.port = self._server.sockets[0].getsockname()[1]
+
+    async def close(self) -> None:
+        """Stop listening and close every connection."""
+        if self._server is not None:
+            self._server.close()
+        for task in list(self._clients):
+            task.cancel()
+        if self._clients:
+            await asyncio.wait(self._clients)
+        if self._server is not None:
+            await self._server.wait_closed()
+
+    async def serve_forever(
+        self, on_ready: Callable[[SimulatorServer], None] | None = None
+    ) -> None:
+        """Start, call ``on_ready(self)``, and serve until cancelled."""
+        await self.start()
+        if on_ready is not None:
+            on_ready(self)
+        try:
+            await asyncio.Event().wait()
+        finally:
+            await self.close()
+
+    async def _client(self, reader: asyncio.StreamReader, writer: asyncio.StreamWriter) -> None:
+        task = asyncio.current_task()
+        assert task is not None
+        self._clients.add(task)
+        sock = writer.get_extra_info("socket")
+        if sock is not None:
+            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+        host, port = writer.get_extra_info("peername")[:2]
+        peer = f"{host}:{port}"
+        session = Session(peer)
+        lines: asyncio.Queue[bytes | None] = asyncio.Queue()
+        pump = asyncio.ensure_future(_pump(reader, lines, session))
+        LOG.info("client %s connected", peer)
+        try:
+            await self._serve(session, lines, writer)
+        except (ConnectionError, asyncio.CancelledError):
+            pass
+        finally:
+            pump.cancel()
+            writer.close()
+            with contextlib.suppress(ConnectionError, asyncio.CancelledError):
+                await writer.wait_closed()
+            self._clients.discard(task)
+            LOG.info("client %s disconnected", peer)
+
+    async def _serve(
+        self, session: Session, lines: asyncio.Queue[bytes | None], writer: asyncio.StreamWriter
+    ) -> None:
+        faults = self.instrument.faults
+        while True:
+            line = await lines.get()
+            if lines.empty():
+                session.waiting.clear()
+            if line is None:
+                return
+            drop, errors = faults.message_arrived()
+            if drop:
+                LOG.info("client %s: dropping the connection (fault)", session.peer)
+                return
+            for code in errors:
+                session.status.push(code)
+            text = line.rstrip(b"\n").rstrip(b"\r").decode("latin-1")
+            try:
+                reply = await self.commands.execute(session, text)
+            except Exception as exc:  # noqa: BLE001 - a simulator bug must not kill the session
+                LOG.exception("client %s: internal error on %r", session.peer, text)
+                session.status.push(-200, f"Execution error; internal simulator error: {exc}")
+                continue
+            if reply is None:
+                continue
+            out = faults.reply(reply)
+            if out is None:
+                LOG.info("client %s: withholding a reply (fault)", session.peer)
+                continue
+            writer.write(out + b"\n")
+            await writer.drain()
+
+
+async def _pump(
+    reader: asyncio.StreamReader, lines: asyncio.Queue[bytes | None], session: Session
+) -> None:
+    """Read messages as they arrive (so a waiting query can see a new one and be interrupted)."""
+    try:
+        while True:
+            line = await reader.readline()
+            if not line:
+                break
+            lines.put_nowait(line)
+            session.waiting.set()
+    except (ConnectionError, ValueError) as exc:
+        LOG.info("client %s: connection closed (%s)", session.peer, exc)
+    finally:
+        lines.put_nowait(None)
+        session.waiting.set()

@@ -1,0 +1,208 @@
+"""IEEE 488.2 and SCPI-99 helpers: identity, the error queue, numbers and definite-length blocks.
+
+Nothing here talks to a meter by itself; each function takes text or bytes already read (or a
+callable that asks the meter once), so the same helpers serve every backend and every dialect.
+"""
+
+from __future__ import annotations
+
+import re
+import warnings
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass
+
+import numpy as np
+from pyvisa import util as visa_util
+
+from drivers.errors import ReplyError, SettingRefused
+from drivers.readings import markers
+
+#: The longest error queue drained in one go; a meter that never answers "0" is broken.
+MAX_QUEUE = 100
+
+
+class MeterWarning(UserWarning):
+    """An entry of the meter's error queue that reports an event rather than a failure."""
+
+
+@dataclass(frozen=True)
+class Identity:
+    """The four fields of an IEEE 488.2 ``*IDN?`` reply."""
+
+    manufacturer: str
+    model: str
+    serial: str
+    firmware: str
+
+    def __str__(self) -> str:
+        return (
+            f"{self.manufacturer} {self.model}, serial {self.serial or '-'}, "
+            f"firmware {self.firmware or '-'}"
+        )
+
+
+@dataclass(frozen=True)
+class ErrorEntry:
+    """One entry of the SCPI error queue: code, message and how serious it is."""
+
+    code: int
+    message: str
+    severity: str
+
+    def __str__(self) -> str:
+        return f'{self.code},"{self.message}"'
+
+
+def parse_identity(text: str) -> Identity:
+    """Split an ``*IDN?`` reply into manufacturer, model, serial and firmware.
+
+    IEEE 488.2 (clause 10.14) defines four comma-separated fields; a reply with fewer is refused,
+    and any commas past the third are kept inside the firmware field.
+    """
+    fields = [part.strip() for part in text.strip().split(",", 3)]
+    if len(fields) != 4 or not fields[0]:
+        raise ReplyError(
+            f"the identity reply {text.strip()!r} does not have the four IEEE 488.2 fields "
+            "manufacturer,model,serial,firmware; is the resource a SCPI meter?"
+        )
+    return Identity(*fields)
+
+
+_ERROR = re.compile(r'^\s*([+-]?\d+)\s*(?:,\s*"?(.*?)"?)?\s*$', re.DOTALL)
+
+
+def severity(code: int, warning_codes: Iterable[int] = ()) -> str:
+    """How serious a SCPI error code is: ``"none"``, ``"warning"`` or ``"error"``.
+
+    SCPI-99 (volume 2, chapter 21): 0 is no error; -100..-499 are command, execution,
+    device-specific and query errors; -500..-899 report events (power on, user request, request
+    control, operation complete), which we treat as warnings. Positive codes are the meter's own
+    and count as errors unless the dialect lists them in ``warning_codes``.
+    """
+    if code == 0:
+        return "none"
+    if -899 <= code <= -500 or code in set(warning_codes):
+        return "warning"
+    return "error"
+
+
+def parse_error(text: str, warning_codes: Iterable[int] = ()) -> ErrorEntry:
+    """Parse one error-queue reply such as ``-222,"Data out of range"``."""
+    match = _ERROR.match(text)
+    if not match:
+        raise ReplyError(
+            f"the error-queue reply {text.strip()!r} is not '<code>,\"<message>\"' as SCPI-99 "
+            "requires; check the dialect's next_error command"
+        )
+    code = int(match.group(1))
+    message = (match.group(2) or "").strip()
+    return ErrorEntry(code, message, severity(code, warning_codes))
+
+
+def drain_errors(
+    ask: Callable[[], str], warning_codes: Iterable[int] = (), limit: int = MAX_QUEUE
+) -> list[ErrorEntry]:
+    """Read the error queue until it reports code 0; return the entries, oldest first.
+
+    ``ask`` sends the dialect's error query once and returns the reply text.
+    """
+    codes = tuple(warning_codes)
+    entries: list[ErrorEntry] = []
+    for _ in range(limit):
+        entry = parse_error(ask(), codes)
+        if entry.code == 0:
+            return entries
+        entries.append(entry)
+    raise ReplyError(
+        f"the error queue still had entries after {limit} reads ({entries[-1]}); "
+        "the meter may be repeating one error: clear it at the meter and try again"
+    )
+
+
+def raise_for_errors(
+    entries: Iterable[ErrorEntry],
+    context: str,
+    error: type[Exception] = SettingRefused,
+) -> None:
+    """Warn for every warning entry; raise ``error`` listing every error entry (if any)."""
+    failures = []
+    for entry in entries:
+        if entry.severity == "warning":
+            warnings.warn(f"{context}: the meter reported {entry}", MeterWarning, stacklevel=2)
+        elif entry.severity == "error":
+            failures.append(entry)
+    if failures:
+        listed = "; ".join(str(e) for e in failures)
+        raise error(
+            f"{context}: the meter refused it and reported {listed}. Check the value against "
+            "the meter's limits and the dialect's command for it"
+        )
+
+
+def special_values(values: np.ndarray) -> np.ndarray:
+    """Replace SCPI-99 markers: 9.9E37 by inf (sign kept), 9.91E37 by nan (as floats)."""
+    v = np.array(values, dtype=float)
+    over, bad = markers(v)
+    v[over] = np.copysign(np.inf, v[over])
+    v[bad] = np.nan
+    return v
+
+
+def parse_number(text: str) -> float:
+    """One SCPI decimal number; 9.9E37 becomes +-inf and 9.91E37 nan."""
+    try:
+        value = float(text.strip())
+    except ValueError:
+        raise ReplyError(f"expected a number from the meter, got {text.strip()[:40]!r}") from None
+    return float(special_values(np.array([value]))[0])
+
+
+def parse_numbers(text: str, expected: int | None = None) -> np.ndarray:
+    """A comma-separated list of SCPI numbers as a float array (markers left as sent).
+
+    Raises :class:`ReplyError` if a field is not a number or (with ``expected``) if the count
+    differs, so a garbled, truncated or stale reply is never taken for a reading.
+    """
+    fields = text.strip().split(",")
+    if expected is not None and len(fields) != expected:
+        raise ReplyError(
+            f"expected {expected} numbers in the reply, got {len(fields)} "
+            f"(starting {text.strip()[:40]!r})"
+        )
+    try:
+        return np.array(fields, dtype=float)
+    except ValueError:
+        raise ReplyError(
+            f"the reply is not a list of numbers (starting {text.strip()[:40]!r})"
+        ) from None
+
+
+def find_block(raw: bytes | bytearray) -> tuple[int, int, int]:
+    """Locate an IEEE 488.2 definite-length block in ``raw``.
+
+    Returns ``(begin, offset, length)``: where ``#`` is, where the data starts and how many
+    bytes it holds. Header parsing is pyvisa's own (:func:`pyvisa.util.parse_ieee_block_header`).
+    An indefinite-length block (``#0``) has length -1.
+    """
+    begin = raw.find(b"#")
+    if begin < 0:
+        raise ReplyError(f"expected a binary block starting with '#', got {bytes(raw[:25])!r}")
+    try:
+        offset, length = visa_util.parse_ieee_block_header(raw[begin:], 0, True)
+    except (ValueError, RuntimeError) as exc:
+        raise ReplyError(f"malformed binary block header {bytes(raw[:25])!r}: {exc}") from None
+    return begin, begin + offset, length
+
+
+def block_values(
+    raw: bytes | bytearray, offset: int, length: int, datatype: str = "d", big_endian: bool = True
+) -> np.ndarray:
+    """The numbers held in a block's data (pyvisa's :func:`pyvisa.util.from_binary_block`)."""
+    size = np.dtype(datatype).itemsize
+    if length % size or len(raw) < offset + length:
+        raise ReplyError(
+            f"binary block of {length} bytes does not hold whole {size}-byte values "
+            f"or was cut short ({len(raw) - offset} bytes received)"
+        )
+    values = visa_util.from_binary_block(raw, offset, length, datatype, big_endian, np.array)
+    return np.array(values, dtype=float)

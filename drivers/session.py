@@ -1,0 +1,366 @@
+"""A VISA session to one meter: terminations, timeouts, no TCP stalls, bounded reconnect.
+
+:class:`Session` wraps one pyvisa resource opened with the backend the user chose (``@py`` for
+pyvisa-py, ``path.yaml@sim`` for pyvisa-sim, or the path of a system VISA library).
+
+Two things matter on a LAN socket. First, a small message written right after another one waits
+for the peer's delayed ACK (about 40 ms per point with pyvisa-py), so the session switches
+Nagle's algorithm off on the underlying socket (pyvisa-py does not honour the VISA attribute for
+it) and the driver sends each point as one compound message. Second, a connection can drop or
+a reply can fail to come: :meth:`Session.call` then closes, waits, reopens, lets the owner
+re-apply its configuration (``on_reopen``) and repeats the operation if it is safe to repeat,
+a bounded number of times, before raising :class:`ConnectionLost` naming the resource and what
+was tried. After a timeout the old connection is closed (and the device cleared where the
+backend cannot reconnect), and before every query any bytes already waiting are discarded, so
+a late reply is never taken as the answer to a later query.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import logging
+import select
+import socket
+import time
+from collections.abc import Callable
+from typing import TypeVar
+
+import pyvisa
+from pyvisa import constants
+from pyvisa.errors import VisaIOError
+
+from drivers import scpi
+from drivers.errors import ConnectionLost, InstrumentError, MeterTimeout, ReplyError
+
+T = TypeVar("T")
+log = logging.getLogger(__name__)
+
+#: Failures after which reconnecting and repeating may help.
+TRANSIENT = (ConnectionLost, MeterTimeout, ReplyError)
+
+
+class Session:
+    """One connection to a meter through pyvisa.
+
+    Times are in seconds. ``on_reopen`` is called after every successful reconnect, before the
+    failed operation is repeated; it should restore the meter's configuration with plain
+    :meth:`write`/:meth:`query` calls (not :meth:`call`).
+    """
+
+    def __init__(
+        self,
+        resource: str,
+        backend: str = "@py",
+        *,
+        write_termination: str = "\n",
+        read_termination: str = "\n",
+        encoding: str = "ascii",
+        timeout: float = 5.0,
+        open_timeout: float = 5.0,
+        retries: int = 2,
+        retry_wait: float = 0.2,
+        on_reopen: Callable[[], None] | None = None,
+    ) -> None:
+        self.resource_name = resource
+        self.backend = backend
+        self.write_termination = write_termination
+        self.read_termination = read_termination
+        self.encoding = encoding
+        self.timeout = timeout
+        self.open_timeout = open_timeout
+        self.retries = retries
+        self.retry_wait = retry_wait
+        self.on_reopen = on_reopen
+        self.reconnects = 0
+        self._manager: pyvisa.ResourceManager | None = None
+        self._resource = None
+        self._socket: socket.socket | None = None
+        self._raw_session = None
+        self._visa_timeout: float | None = None
+        self._term = read_termination.encode(encoding)
+
+    # -- opening and closing -------------------------------------------------------------------
+
+    def open(self) -> Session:
+        """Open the resource (raises :class:`ConnectionLost` if it cannot be reached)."""
+        try:
+            if self._manager is None:
+                self._manager = pyvisa.ResourceManager(self.backend)
+            self._resource = self._manager.open_resource(
+                self.resource_name,
+                read_termination=self.read_termination,
+                write_termination=self.write_termination,
+                encoding=self.encoding,
+                open_timeout=int(self.open_timeout * 1000),
+            )
+        except (VisaIOError, OSError, ValueError) as exc:
+            self._resource = None
+            raise ConnectionLost(
+                f"cannot open {self.resource_name} with backend {self.backend}: {exc}. Check "
+                "that the meter is on and reachable and that the resource string is right"
+            ) from exc
+        except Exception as exc:  # noqa: BLE001 - pyvisa-py raises bare Exception on refusal
+            self._resource = None
+            raise ConnectionLost(f"cannot open {self.resource_name}: {exc}") from exc
+        self._visa_timeout = None
+        self._find_socket()
+        return self
+
+    def close(self) -> None:
+        """Close the resource (and its resource manager); safe to call twice."""
+        self._drop_resource()
+        if self._manager is not None:
+            with contextlib.suppress(VisaIOError, OSError):
+                self._manager.close()
+            self._manager = None
+
+    @property
+    def is_open(self) -> bool:
+        return self._resource is not None
+
+    def _drop_resource(self) -> None:
+        if self._resource is not None:
+            with contextlib.suppress(VisaIOError, OSError, AttributeError):
+                self._resource.close()
+        self._resource = None
+        self._socket = None
+        self._raw_session = None
+
+    def _find_socket(self) -> None:
+        """Switch Nagle off on the TCP socket under a pyvisa-py SOCKET session, if there is one.
+
+        pyvisa-py keeps the socket as ``interface`` of its session object; other backends have
+        no such socket, and system VISA libraries get the standard VISA attribute instead.
+        """
+        self._socket = None
+        self._raw_session = None
+        resource = self._resource
+        if resource is None or not self.resource_name.upper().endswith("SOCKET"):
+            return
+        raw = getattr(getattr(resource, "visalib", None), "sessions", {}).get(resource.session)
+        sock = getattr(raw, "interface", None)
+        if isinstance(sock, socket.socket) and isinstance(
+            getattr(raw, "_pending_buffer", None), bytearray
+        ):
+            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+            self._socket, self._raw_session = sock, raw
+            return
+        try:
+            resource.set_visa_attribute(constants.ResourceAttribute.tcpip_nodelay, True)
+        except (VisaIOError, NotImplementedError, KeyError, AttributeError) as exc:
+            log.debug("could not set TCP_NODELAY on %s: %s", self.resource_name, exc)
+
+    # -- talking ---------------------------------------------------------------------------------
+
+    def write(self, message: str) -> None:
+        """Send one message (the write termination is added)."""
+        resource = self._require()
+        self._discard_stale()
+        try:
+            resource.write(message)
+        except VisaIOError as exc:
+            raise self._visa_failure(exc, message) from exc
+        except OSError as exc:
+            raise ConnectionLost(
+                f"{self.resource_name}: sending {message[:40]!r} failed: {exc}"
+            ) from exc
+
+    def query(self, message: str, timeout: float | None = None) -> str:
+        """Send ``message`` and return the reply text without its termination."""
+        raw = self._ask(message, timeout)
+        return self._decode(raw[: len(raw) - len(self._term)] if raw.endswith(self._term) else raw)
+
+    def query_block(
+        self, message: str, timeout: float | None = None
+    ) -> tuple[str, bytes, int, int]:
+        """Send ``message`` and read a reply holding one IEEE 488.2 definite-length block.
+
+        Returns ``(prefix, raw, offset, length)``: the text before the block (other queries'
+        replies in a compound message), the raw reply and where the block's data lies in it.
+        """
+        raw = bytearray(self._ask(message, timeout))
+        begin, offset, length = scpi.find_block(raw)
+        if length < 0:
+            raise ReplyError(
+                f"{self.resource_name}: indefinite-length blocks (#0) are not supported"
+            )
+        need = offset + length + len(self._term)
+        if len(raw) < need:
+            raw += self._read_bytes(need - len(raw))
+        if bytes(raw[offset + length :]) != self._term:
+            raise ReplyError(
+                f"{self.resource_name}: the binary block is followed by "
+                f"{bytes(raw[offset + length : offset + length + 20])!r} instead of the termination"
+            )
+        return self._decode(bytes(raw[:begin])), bytes(raw), offset, length
+
+    def clear(self) -> None:
+        """Discard whatever the meter has sent that nobody asked for (device clear if possible)."""
+        if self._resource is None:
+            return
+        with contextlib.suppress(VisaIOError, OSError, NotImplementedError):
+            self._resource.clear()
+        self._discard_stale()
+
+    # -- reconnecting ----------------------------------------------------------------------------
+
+    def call(self, what: str, action: Callable[[], T], idempotent: bool = True) -> T:
+        """Run ``action``; after a drop, timeout or garbled reply reconnect and repeat it.
+
+        ``what`` names the operation in messages. An action that is not idempotent is not
+        repeated: the session reconnects (so it stays usable) and the failure is raised.
+        """
+        failures: list[str] = []
+        attempts = 0
+        while True:
+            try:
+                return action()
+            except TRANSIENT as exc:
+                failures.append(f"{type(exc).__name__}: {exc}")
+                last = exc
+            attempts += 1
+            if not idempotent:
+                self._try_reconnect(failures)
+                raise type(last)(
+                    f"{what} on {self.resource_name} failed ({failures[-1]}); it was not "
+                    "repeated because repeating it is not safe; the connection was reopened"
+                ) from last
+            if attempts > self.retries:
+                raise self._gave_up(what, attempts, failures, last) from last
+            self._try_reconnect(failures)
+
+    def reconnect(self, attempt: int = 1) -> None:
+        """Close, wait ``retry_wait * attempt`` seconds, reopen and call ``on_reopen``."""
+        if self._resource is not None:
+            self.clear_after_failure()
+        self._drop_resource()
+        time.sleep(self.retry_wait * attempt)
+        self.open()
+        self.reconnects += 1
+        if self.on_reopen is not None:
+            self.on_reopen()
+
+    def clear_after_failure(self) -> None:
+        """On backends without a socket, ask for a device clear before letting go."""
+        if self._socket is None and self._resource is not None:
+            with contextlib.suppress(VisaIOError, OSError, NotImplementedError):
+                self._resource.clear()
+
+    def _try_reconnect(self, failures: list[str]) -> None:
+        for attempt in range(1, self.retries + 2):
+            try:
+                self.reconnect(attempt)
+                return
+            except InstrumentError as exc:
+                failures.append(f"reconnect {attempt}: {type(exc).__name__}: {exc}")
+        raise ConnectionLost(
+            f"lost {self.resource_name} and could not reopen it; tried: " + " | ".join(failures)
+        )
+
+    def _gave_up(
+        self, what: str, attempts: int, failures: list[str], last: Exception
+    ) -> InstrumentError:
+        tried = f"tried {attempts} times, reconnecting in between"
+        listed = " | ".join(failures)
+        if isinstance(last, ReplyError):
+            return ReplyError(
+                f"{what} on {self.resource_name}: every reply was malformed ({tried}): {listed}. "
+                "If this repeats, the dialect's reading pair or commands may not match the meter"
+            )
+        return ConnectionLost(
+            f"{what} on {self.resource_name} failed ({tried}): {listed}. "
+            "Check the cable/network and that the meter is not busy, then try again"
+        )
+
+    # -- internals -----------------------------------------------------------------------------
+
+    def _require(self):
+        if self._resource is None:
+            raise ConnectionLost(f"{self.resource_name} is not open")
+        return self._resource
+
+    def _set_timeout(self, seconds: float) -> None:
+        seconds = max(seconds, 0.001)
+        if self._visa_timeout != seconds:
+            self._resource.timeout = seconds * 1000.0
+            self._visa_timeout = seconds
+
+    def _ask(self, message: str, timeout: float | None) -> bytes:
+        seconds = self.timeout if timeout is None else timeout
+        deadline = time.monotonic() + seconds
+        self.write(message)
+        self._wait_readable(deadline, message, seconds)
+        self._set_timeout(deadline - time.monotonic())
+        try:
+            return self._resource.read_raw()
+        except VisaIOError as exc:
+            raise self._visa_failure(exc, message, seconds) from exc
+        except OSError as exc:
+            raise ConnectionLost(f"{self.resource_name}: reading the reply failed: {exc}") from exc
+
+    def _read_bytes(self, count: int) -> bytes:
+        try:
+            return self._resource.read_bytes(count)
+        except VisaIOError as exc:
+            raise self._visa_failure(exc, "(rest of a binary block)") from exc
+        except OSError as exc:
+            raise ConnectionLost(f"{self.resource_name}: reading the reply failed: {exc}") from exc
+
+    def _wait_readable(self, deadline: float, message: str, seconds: float) -> None:
+        """On a raw socket, wait for the reply; notice a closed connection at once."""
+        sock = self._socket
+        if sock is None or self._raw_session._pending_buffer:
+            return
+        remaining = deadline - time.monotonic()
+        while remaining > 0:
+            if select.select([sock], [], [], remaining)[0]:
+                if self._peek(sock) == b"":
+                    raise ConnectionLost(
+                        f"{self.resource_name}: the meter closed the connection "
+                        f"while answering {message[:40]!r}"
+                    )
+                return
+            remaining = deadline - time.monotonic()
+        raise MeterTimeout(
+            f"{self.resource_name}: no reply to {message[:40]!r} within {seconds:g} s"
+        )
+
+    def _peek(self, sock: socket.socket) -> bytes:
+        """One byte of what is waiting on a readable socket, without consuming it."""
+        try:
+            return sock.recv(1, socket.MSG_PEEK)
+        except OSError as exc:
+            raise ConnectionLost(f"{self.resource_name}: connection failed: {exc}") from exc
+
+    def _discard_stale(self) -> None:
+        """Throw away bytes that arrived unasked (a late reply); notice a closed connection."""
+        sock = self._socket
+        if sock is None:
+            return
+        stale = len(self._raw_session._pending_buffer)
+        self._raw_session._pending_buffer.clear()
+        while select.select([sock], [], [], 0)[0]:
+            try:
+                chunk = sock.recv(65536)
+            except OSError as exc:
+                raise ConnectionLost(f"{self.resource_name}: connection failed: {exc}") from exc
+            if not chunk:
+                raise ConnectionLost(f"{self.resource_name}: the meter closed the connection")
+            stale += len(chunk)
+        if stale:
+            log.warning("%s: discarded %d bytes nobody asked for", self.resource_name, stale)
+
+    def _visa_failure(self, exc: VisaIOError, message: str, seconds: float | None = None):
+        if exc.error_code == constants.StatusCode.error_timeout:
+            waited = f" within {seconds:g} s" if seconds is not None else ""
+            return MeterTimeout(f"{self.resource_name}: no reply to {message[:40]!r}{waited}")
+        return ConnectionLost(f"{self.resource_name}: {exc}")
+
+    def _decode(self, raw: bytes) -> str:
+        try:
+            return raw.decode(self.encoding)
+        except UnicodeDecodeError:
+            raise ReplyError(
+                f"{self.resource_name}: the reply is not {self.encoding} text "
+                f"(starting {raw[:25]!r})"
+            ) from None

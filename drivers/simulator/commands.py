@@ -89,8 +89,7 @@ class Commands:
     async def execute(self, session: Session, text: str) -> bytes | None:
         """Run every command of one message; the queries' replies joined by ``;``, or None.
 
-        A failing command puts its error on the client's queue and the next command runs; a query
-        interrupted by a new message (-410) abandons the rest of the message and its replies.
+        A failing command puts its error on the client's queue and the next command runs.
         """
         replies: list[bytes] = []
         try:
@@ -105,8 +104,6 @@ class Commands:
                 reply = await handler(session, command.params)
             except ScpiError as exc:
                 session.status.push(exc.code, exc.text)
-                if exc.code == -410:
-                    return None
                 continue
             if reply is not None:
                 replies.append(reply if isinstance(reply, bytes) else reply.encode("ascii"))

@@ -31,30 +31,16 @@ from drivers.simulator.state import SPEEDS, ClientStatus, Settings
 
 
 class Session:
-    """One client's view: its status registers, and whether a new message is waiting.
-
-    ``waiting`` is set while the client has sent a message that has not been taken up yet; a
-    query that must wait (``FETCh?`` during a measurement) is interrupted by it (-410).
-    """
+    """One client's view of the meter: its own error queue and status registers."""
 
     def __init__(self, peer: str = "") -> None:
         self.peer = peer
         self.status = ClientStatus()
-        self.waiting = asyncio.Event()
 
     async def wait_for(self, task: asyncio.Task) -> None:
-        """Wait for ``task`` to end; -410 Query INTERRUPTED if a new message arrives first."""
-        if task.done():
-            return
-        if self.waiting.is_set():
-            raise ScpiError(-410, "a new message arrived before the reply was read")
-        interrupt = asyncio.ensure_future(self.waiting.wait())
-        try:
-            await asyncio.wait({task, interrupt}, return_when=asyncio.FIRST_COMPLETED)
-        finally:
-            interrupt.cancel()
+        """Wait for ``task`` to end (without ending it if this client goes away)."""
         if not task.done():
-            raise ScpiError(-410, "a new message arrived before the reply was read")
+            await asyncio.wait({task})
 
 
 class Instrument:

@@ -34,7 +34,6 @@ ERROR_MESSAGES: dict[int, str] = {
     -224: "Illegal parameter value",
     -230: "Data corrupt or stale",
     -350: "Queue overflow",
-    -410: "Query INTERRUPTED",
 }
 
 #: IEEE 488.2 suffix multipliers.

@@ -83,15 +83,12 @@ class SimulatorServer:
         host, port = writer.get_extra_info("peername")[:2]
         peer = f"{host}:{port}"
         session = Session(peer)
-        lines: asyncio.Queue[bytes | None] = asyncio.Queue()
-        pump = asyncio.ensure_future(_pump(reader, lines, session))
         LOG.info("client %s connected", peer)
         try:
-            await self._serve(session, lines, writer)
-        except (ConnectionError, asyncio.CancelledError):
-            pass
+            await self._serve(session, reader, writer)
+        except (ConnectionError, ValueError, asyncio.CancelledError) as exc:
+            LOG.info("client %s: connection ended (%s)", peer, type(exc).__name__)
         finally:
-            pump.cancel()
             writer.close()
             with contextlib.suppress(ConnectionError, asyncio.CancelledError):
                 await writer.wait_closed()
@@ -99,14 +96,18 @@ class SimulatorServer:
             LOG.info("client %s disconnected", peer)
 
     async def _serve(
-        self, session: Session, lines: asyncio.Queue[bytes | None], writer: asyncio.StreamWriter
+        self, session: Session, reader: asyncio.StreamReader, writer: asyncio.StreamWriter
     ) -> None:
+        """Run the client's messages in order until it closes (or a fault drops it).
+
+        A client may send several messages before reading any reply: they wait in the socket
+        and their replies come back in order. An overlong message (``ValueError``) ends the
+        connection.
+        """
         faults = self.instrument.faults
         while True:
-            line = await lines.get()
-            if lines.empty():
-                session.waiting.clear()
-            if line is None:
+            line = await reader.readline()
+            if not line:
                 return
             drop, errors = faults.message_arrived()
             if drop:
@@ -129,21 +130,3 @@ class SimulatorServer:
                 continue
             writer.write(out + b"\n")
             await writer.drain()
-
-
-async def _pump(
-    reader: asyncio.StreamReader, lines: asyncio.Queue[bytes | None], session: Session
-) -> None:
-    """Read messages as they arrive (so a waiting query can see a new one and be interrupted)."""
-    try:
-        while True:
-            line = await reader.readline()
-            if not line:
-                break
-            lines.put_nowait(line)
-            session.waiting.set()
-    except (ConnectionError, ValueError) as exc:
-        LOG.info("client %s: connection closed (%s)", session.peer, exc)
-    finally:
-        lines.put_nowait(None)
-        session.waiting.set()

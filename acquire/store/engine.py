@@ -28,7 +28,7 @@ from typing import Any, TypeVar
 
 import numpy as np
 from sqlalchemy import Connection, Engine, Table, create_engine, event
-from sqlalchemy.exc import DBAPIError, IntegrityError, OperationalError, SQLAlchemyError
+from sqlalchemy.exc import DataError, DBAPIError, IntegrityError, OperationalError, SQLAlchemyError
 from sqlalchemy.pool import StaticPool
 
 from acquire.errors import StoreError
@@ -170,6 +170,8 @@ class Database:
         detail = str(detail).strip().splitlines()[0] if str(detail).strip() else repr(exc)
         if isinstance(exc, IntegrityError):
             hint = "the record refers to something that is not in the store, or clashes with one"
+        elif isinstance(exc, DataError):
+            hint = "a value cannot be held by this database (PostgreSQL text cannot hold NUL)"
         elif isinstance(exc, OperationalError) and "locked" in detail:
             hint = (
                 f"another program kept the store busy for more than {BUSY_TIMEOUT_S:.0f} s; "

@@ -153,7 +153,12 @@ def load_reference_set(db: Database, ref_id: int) -> ReferenceSet:
     held = set(head.standards.split(","))
     arrays: dict[str, np.ndarray | None] = {}
     for k, std in enumerate(_ARRAYS):
-        arrays[std] = table[:, 1 + 2 * k] + 1j * table[:, 2 + 2 * k] if std in held else None
+        if std in held:
+            z = np.empty(len(rows), dtype=complex)
+            z.real, z.imag = table[:, 1 + 2 * k], table[:, 2 + 2 * k]
+            arrays[std] = z
+        else:
+            arrays[std] = None
     return ReferenceSet(
         table[:, 0].copy(),
         **arrays,

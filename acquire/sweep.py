@@ -16,7 +16,7 @@ the sweep is marked ``interrupted`` with the reason, and the outcome says so. An
 from __future__ import annotations
 
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterator
 from dataclasses import dataclass
 from typing import Any, Protocol
 
@@ -43,7 +43,7 @@ class Writer(Protocol):
     id: int
 
     def add_points(
-        self, frequency: np.ndarray, raw_z: np.ndarray, corrected_z: np.ndarray
+        self, frequency: np.ndarray, raw_z: np.ndarray, corrected_z: np.ndarray | None
     ) -> None: ...
 
     def finish(self, status: str = "complete", note: str = "") -> None: ...
@@ -141,7 +141,7 @@ class _Sink:
         f, raw, corrected = self.state.points()
         part = slice(self.written, n)
         self.writer.add_points(
-            f[part].copy(), raw[part].copy(), (raw if corrected is None else corrected)[part].copy()
+            f[part].copy(), raw[part].copy(), None if corrected is None else corrected[part].copy()
         )
         self.written = n
         self.last_flush = time.monotonic()
@@ -155,16 +155,19 @@ def run_sweep(
     state: SweepState | None = None,
     on_progress: Callable[[], None] | None = None,
     flush_interval: float = 0.25,
-    block: int | None = None,
+    block: int | str | None = "auto",
+    block_seconds: float = 0.25,
 ) -> SweepOutcome:
     """Sweep ``meter`` over ``plan``; see the module docstring for how it streams and stops.
 
     ``references`` is a :class:`acquire.compensation.ReferenceSet` (or None for raw readings);
     its grid must cover the plan. ``writer`` is the store's sweep writer (or None to keep the
-    points in memory only); without a reference set its corrected column repeats the raw one.
+    points in memory only); without a reference set it is given no corrected values.
     ``state`` receives every point (one is made if not given); ``on_progress`` is called after
-    each chunk. ``block`` splits the plan into several ``meter.sweep`` calls of at most that
-    many points, so a meter that answers a whole list at once still streams in steps.
+    each chunk. ``block`` splits the plan into several ``meter.sweep`` calls of that many
+    points, so a meter that answers a whole list at once still streams in steps; ``"auto"``
+    (the default) sizes the blocks from the time per point seen so far to take about
+    ``block_seconds`` each, and None sends the whole plan in one call.
     The plan is checked against ``meter.frequency_range`` before anything is sent.
     """
     check_range(plan, tuple(meter.frequency_range))
@@ -176,7 +179,7 @@ def run_sweep(
     reason, error = "", None
     state.start()
     try:
-        for frequencies in plan.chunks(block or len(plan)):
+        for frequencies in _blocks(plan, block, block_seconds):
             meter.sweep(np.array(frequencies), on_points=sink)
     except KeyboardInterrupt as exc:
         reason, error = "stopped with Ctrl-C", exc
@@ -198,6 +201,30 @@ def run_sweep(
         sweep_id=getattr(writer, "id", None),
         error=error,
     )
+
+
+#: Bounds of the automatic block size (points per ``meter.sweep`` call).
+FIRST_BLOCK, LARGEST_BLOCK = 8, 4096
+
+
+def _blocks(plan: FrequencyPlan, block: int | str | None, seconds: float) -> Iterator[np.ndarray]:
+    """The plan's frequencies in blocks; ``"auto"`` adapts the size to the time per point."""
+    f = plan.frequencies
+    if block is None:
+        yield f
+        return
+    if block != "auto":
+        yield from plan.chunks(int(block))
+        return
+    i, size = 0, FIRST_BLOCK
+    while i < f.size:
+        began = time.monotonic()
+        part = f[i : i + size]
+        yield part
+        i += part.size
+        per_point = (time.monotonic() - began) / part.size
+        wanted = int(seconds / per_point) if per_point > 0 else LARGEST_BLOCK
+        size = max(FIRST_BLOCK, min(wanted, LARGEST_BLOCK))
 
 
 def _close(sink: _Sink, writer: Writer | None, state: SweepState, status: str, note: str) -> None:

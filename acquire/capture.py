@@ -1,0 +1,241 @@
+"""Guided capture of open, short and load references on a fixture, and the checks on using them.
+
+For each standard the operator is told what to do to the fixture and asked to confirm; the
+meter then sweeps the plan, the new reading is added to the set and the set is judged with
+:meth:`ReferenceSet.check`. A reading that brings a new error (a "short" that reads like an
+open fixture, a load far from its standard) is refused and the operator is offered another try;
+warnings are shown and the reading is kept. The operator is an object with three methods, so a
+terminal (:class:`ConsoleOperator`), a test or the demo can answer the prompts.
+
+:func:`reference_warnings` says what to beware of when a stored set is used for a sweep: its age,
+and whether it was captured on another meter or fixture.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from collections.abc import Callable, Sequence
+from datetime import UTC, datetime
+from typing import Any, Protocol
+
+import numpy as np
+
+from acquire.compensation import STANDARDS, ReferenceSet
+from acquire.errors import CompensationError
+from acquire.plan import FrequencyPlan, check_range
+from acquire.progress import format_duration
+
+INSTRUCTIONS = {
+    "open": (
+        "OPEN: leave the fixture empty, its contacts apart by about the width of a part, and "
+        "keep hands and tools clear of it."
+    ),
+    "short": (
+        "SHORT: close the fixture with its shorting bar, or clip the contacts together, right "
+        "where the part sits."
+    ),
+    "load": "LOAD: put the load standard{value} in the fixture where the part sits.",
+}
+
+SAFETY = (
+    "Safety: measure only parts that are discharged and not connected to any supply; a coil that "
+    "carried DC bias stores energy and can give a sharp kick when the current is broken. A "
+    "mains-powered fixture or bias supply must be installed and checked as local codes, the meter "
+    "maker's instructions and licensed practice require."
+)
+
+
+class Operator(Protocol):
+    """Whoever handles the fixture during a capture."""
+
+    def tell(self, text: str) -> None:
+        """Show a line of information."""
+
+    def ready(self, standard: str, instruction: str) -> bool:
+        """Show ``instruction``; True once the fixture is set up, False to stop the capture."""
+
+    def retry(self, standard: str, problems: list[str]) -> bool:
+        """Show why the reading was refused; True to measure the standard again."""
+
+
+class ConsoleOperator:
+    """An operator at a terminal: prompts through ``ask`` (default :func:`input`), tells through
+    ``say`` (default :func:`print`). Typing ``q`` stops the capture."""
+
+    def __init__(
+        self,
+        ask: Callable[[str], str] | None = None,
+        say: Callable[[str], None] | None = None,
+    ) -> None:
+        self.ask = ask or (lambda prompt: input(prompt))
+        self.say = say or print
+
+    def tell(self, text: str) -> None:
+        self.say(text)
+
+    def ready(self, standard: str, instruction: str) -> bool:
+        self.say(instruction)
+        return self._go(f"Press Enter to measure the {standard}, or type q to stop: ")
+
+    def retry(self, standard: str, problems: list[str]) -> bool:
+        self.say(f"The {standard} reading was refused:")
+        for p in problems:
+            self.say(f"  - {p}")
+        return self._go(
+            f"Fix the fixture, then press Enter to measure the {standard} again, or q: "
+        )
+
+    def _go(self, prompt: str) -> bool:
+        try:
+            answer = self.ask(prompt)
+        except EOFError:
+            return False
+        return answer.strip().lower() not in ("q", "quit", "stop", "n", "no")
+
+
+def _new_findings(before: ReferenceSet | None, after: ReferenceSet, severity: str) -> list[str]:
+    """Findings of ``severity`` on ``after`` that ``before`` did not have (messages)."""
+    old = Counter()
+    if before is not None:
+        old = Counter((f.standard, f.message) for f in before.check() if f.severity == severity)
+    out = []
+    for f in after.check():
+        key = (f.standard, f.message)
+        if f.severity != severity:
+            continue
+        if old[key]:
+            old[key] -= 1
+            continue
+        out.append(f"{f.standard}: {f.message}")
+    return out
+
+
+def _load_values(load_true: Any, f: np.ndarray) -> np.ndarray:
+    if load_true is None:
+        raise CompensationError(
+            "a load reference needs the load standard's true impedance; give its value "
+            "(for example --load-value 100ohm)"
+        )
+    values = load_true(f) if callable(load_true) else load_true
+    z = np.broadcast_to(np.asarray(values, dtype=complex), f.shape).copy()
+    if not np.all(np.isfinite(z)) or np.any(z == 0):
+        raise CompensationError("the load standard's true impedance must be finite and non-zero")
+    return z
+
+
+def capture_references(
+    meter: Any,
+    plan: FrequencyPlan,
+    operator: Operator,
+    standards: Sequence[str] = STANDARDS,
+    load_true: Any = None,
+    fixture: str = "",
+    meter_name: str = "",
+    temperature: float | None = None,
+    notes: str = "",
+    attempts: int = 3,
+    on_points: Callable | None = None,
+) -> ReferenceSet:
+    """Capture ``standards`` over ``plan`` with the operator's help; returns the reference set.
+
+    ``load_true`` is the load standard's true impedance: one complex number, an array on the
+    plan, or a function of frequency. Each standard gets at most ``attempts`` readings; after
+    that, or when the operator stops, :class:`CompensationError` is raised and nothing is kept.
+    Meter faults propagate as the driver's errors. The plan is checked against the meter's range
+    before anything is sent.
+    """
+    order = [s for s in STANDARDS if s in standards]
+    unknown = [s for s in standards if s not in STANDARDS]
+    if unknown or not order:
+        raise CompensationError(
+            f"unknown standard {(unknown or [''])[0]!r}; choose from {', '.join(STANDARDS)}"
+        )
+    check_range(plan, tuple(meter.frequency_range))
+    f = np.array(plan.frequencies)
+    truth = _load_values(load_true, f) if "load" in order else None
+    refs: ReferenceSet | None = None
+    operator.tell(
+        f"Capturing {', '.join(order)} on fixture {fixture or '(unnamed)'} over {plan.describe()}."
+    )
+    for standard in order:
+        refs = _capture_one(meter, f, operator, standard, refs, truth, attempts, on_points)
+    assert refs is not None
+    return ReferenceSet(
+        frequency=f,
+        open=refs.open,
+        short=refs.short,
+        load=refs.load,
+        load_true=refs.load_true,
+        captured_at=datetime.now(UTC),
+        fixture=fixture,
+        meter=meter_name,
+        temperature=temperature,
+        notes=notes,
+    )
+
+
+def _capture_one(
+    meter: Any,
+    f: np.ndarray,
+    operator: Operator,
+    standard: str,
+    before: ReferenceSet | None,
+    truth: np.ndarray | None,
+    attempts: int,
+    on_points: Callable | None,
+) -> ReferenceSet:
+    value = ""
+    if standard == "load" and truth is not None:
+        from acquire.units import format_si
+
+        value = f" ({format_si(float(np.median(truth.real)), 'Ω')})"
+    if not operator.ready(standard, INSTRUCTIONS[standard].format(value=value)):
+        raise CompensationError(f"capture stopped before the {standard}; nothing was saved")
+    for attempt in range(1, attempts + 1):
+        z = np.asarray(meter.sweep(f, on_points=on_points), dtype=complex)
+        base = before if before is not None else ReferenceSet(frequency=f)
+        after = base.with_standard(standard, z)
+        if standard == "load":
+            after = after.with_standard("load_true", truth)
+        problems = _new_findings(before, after, "error") if before else _first_errors(after)
+        if not problems:
+            for w in _new_findings(before, after, "warning"):
+                operator.tell(f"warning: {w}")
+            operator.tell(f"{standard} accepted ({f.size} points).")
+            return after
+        if attempt == attempts or not operator.retry(standard, problems):
+            raise CompensationError(
+                f"the {standard} reference was refused ({problems[0]}); nothing was saved"
+            )
+    raise AssertionError("unreachable")
+
+
+def _first_errors(refs: ReferenceSet) -> list[str]:
+    return [f"{f.standard}: {f.message}" for f in refs.check() if f.severity == "error"]
+
+
+def reference_warnings(
+    refs: ReferenceSet,
+    meter_name: str = "",
+    fixture: str = "",
+    max_age: float | None = 8 * 3600.0,
+    now: datetime | None = None,
+) -> list[str]:
+    """What to beware of when ``refs`` corrects a sweep on ``meter_name`` and ``fixture``.
+
+    ``max_age`` is in seconds (None: no limit). The set's own check findings are included.
+    """
+    out = []
+    if refs.captured_at is not None and max_age is not None:
+        age = ((now or datetime.now(UTC)) - refs.captured_at).total_seconds()
+        if age > max_age:
+            out.append(
+                f"the reference set is {format_duration(age)} old (limit "
+                f"{format_duration(max_age)}); capture a fresh one if the fixture may have moved"
+            )
+    if meter_name and refs.meter and refs.meter != meter_name:
+        out.append(f"the reference set was captured on another meter ({refs.meter})")
+    if fixture and refs.fixture and refs.fixture != fixture:
+        out.append(f"the reference set was captured on another fixture ({refs.fixture})")
+    out += [f"reference {f.standard}: {f.message}" for f in refs.check()]
+    return out

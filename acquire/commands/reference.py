@@ -1,0 +1,254 @@
+"""Capture, list, show and check reference sets: the fixture's open, short and load readings.
+
+A fixture's leads and clips add series resistance and inductance and a stray capacitance and
+conductance across the part. Measuring the fixture three ways removes them from later readings:
+OPEN (fixture empty: gives the stray admittance), SHORT (fixture shorted where the part sits:
+gives the series residual) and, for the best accuracy, LOAD (a standard of known impedance,
+such as a 100 ohm resistor, in the fixture: corrects what the first two leave). The set is
+captured over a frequency plan; sweeps then correct each reading with it (`acquire sweep
+--reference ID`).
+
+  capture   guided capture on a named fixture: for each standard you are told what to do, press
+            Enter, the meter measures, and a reading that does not look like its standard (a
+            "short" that reads like an open fixture) is refused with a chance to retry
+  list      the stored sets with their age, fixture and meter
+  show      one set: its metadata and readings at a few frequencies
+  check     judge a stored set again; exit code 1 when it has errors
+
+Safety: measure only discharged parts that are not connected to any supply; an inductor that
+carried DC bias stores energy and can kick when its current is broken. Mains-powered fixtures
+must be set up as local codes, the meter maker's instructions and licensed practice require.
+"""
+
+from __future__ import annotations
+
+import argparse
+
+from acquire.commands.options import add_dialect, add_resource, add_store
+
+HELP = "capture, list, show and check fixture reference sets (open, short, load)"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    from acquire.commands.sweep import add_plan_arguments
+
+    actions = parser.add_subparsers(dest="action", metavar="ACTION", required=True)
+    cap = actions.add_parser(
+        "capture",
+        help="guided capture of open/short/load on a fixture",
+        description="Guided capture of open, short and load references on a fixture, saved in "
+        "the store. Safety: discharge parts before handling; an inductor under DC bias stores "
+        "energy; follow local codes, the meter maker's instructions and licensed practice for "
+        "mains-powered fixtures.",
+    )
+    add_resource(cap)
+    add_dialect(cap)
+    add_store(cap)
+    add_plan_arguments(cap)
+    cap.add_argument("--fixture", required=True, help="name of the fixture (e.g. bench-clips)")
+    cap.add_argument(
+        "--standards",
+        default="open,short",
+        help="standards to capture, comma-separated, among open, short, load (default "
+        "open,short; add load with --load-value for the three-standard correction)",
+    )
+    cap.add_argument(
+        "--load-value",
+        help="the load standard's true resistance, e.g. 100ohm (needed for load)",
+    )
+    cap.add_argument(
+        "--load-reactance",
+        default="0",
+        help="the load standard's true reactance in ohm (default 0)",
+    )
+    cap.add_argument("--name", help="a name for the set (default: fixture and date)")
+    cap.add_argument("--temperature", type=float, help="fixture temperature in °C, if known")
+    cap.add_argument("--notes", default="", help="free text kept with the set")
+    cap.add_argument("--attempts", type=int, default=3, help="readings allowed per standard")
+    lst = actions.add_parser("list", help="list the stored reference sets")
+    add_store(lst)
+    show = actions.add_parser("show", help="show one stored reference set")
+    add_store(show)
+    show.add_argument("set", metavar="ID", help="id or name of the set, or 'latest'")
+    chk = actions.add_parser("check", help="judge a stored reference set")
+    add_store(chk)
+    chk.add_argument("set", metavar="ID", help="id or name of the set, or 'latest'")
+
+
+def run(args: argparse.Namespace) -> int:
+    return {"capture": _capture, "list": _list, "show": _show, "check": _check}[args.action](args)
+
+
+def find_reference_set(store, key: str):
+    """The (id, ReferenceSet) a user named: an id, a name (the newest of that name) or 'latest'."""
+    from acquire.errors import InputError
+
+    infos = store.list_reference_sets()
+    text = str(key).strip()
+    if text.isdigit():
+        ids = {info.id for info in infos}
+        if int(text) not in ids:
+            raise InputError(
+                f"no reference set {text} in {store.url}; `acquire reference list` shows them"
+            )
+        return int(text), store.load_reference_set(int(text))
+    latest = text.lower() == "latest"
+    pool = infos if latest else [info for info in infos if info.name == text]
+    if not pool:
+        what = (
+            "no reference sets" if text.lower() == "latest" else f"no reference set named {text!r}"
+        )
+        raise InputError(f"{what} in {store.url}; capture one with `acquire reference capture`")
+    newest = max(pool, key=lambda info: (info.saved_at or info.captured_at or 0, info.id))
+    return newest.id, store.load_reference_set(newest.id)
+
+
+def _capture(args: argparse.Namespace) -> int:
+    from rich.console import Console
+
+    from acquire.capture import SAFETY, ConsoleOperator, capture_references
+    from acquire.commands.sweep import plan_from_args
+    from acquire.errors import InputError
+    from acquire.store import open_store
+    from acquire.units import parse_quantity
+    from drivers.meter import ImpedanceMeter
+
+    plan = plan_from_args(args)
+    standards = [s.strip().lower() for s in args.standards.split(",") if s.strip()]
+    load_true = None
+    if "load" in standards:
+        if not args.load_value:
+            raise InputError("capturing a load needs --load-value (the standard's true resistance)")
+        load_true = complex(
+            parse_quantity(args.load_value, "ohm"), parse_quantity(args.load_reactance, "ohm")
+        )
+    console = Console()
+    console.print(SAFETY, style="yellow")
+    with open_store(args.store) as store:
+        with ImpedanceMeter.open(
+            args.resource, dialect=args.dialect, backend=args.backend
+        ) as meter:
+            identity = meter.identify()
+            console.print(f"meter: {identity}")
+            refs = capture_references(
+                meter,
+                plan,
+                ConsoleOperator(say=console.print),
+                standards=standards,
+                load_true=load_true,
+                fixture=args.fixture,
+                meter_name=str(identity),
+                temperature=args.temperature,
+                notes=args.notes,
+                attempts=args.attempts,
+            )
+            meter_id = store.record_meter(
+                identity.manufacturer,
+                identity.model,
+                identity.serial,
+                identity.firmware,
+                dialect=meter.dialect.name,
+            )
+        fixture_id = store.record_fixture(args.fixture)
+        name = args.name or f"{args.fixture} {refs.captured_at:%Y-%m-%d %H:%M}"
+        ref_id = store.save_reference_set(refs, name=name, meter_id=meter_id, fixture_id=fixture_id)
+        console.print(
+            f"saved reference set {ref_id} ({name!r}, {refs.method}, {refs.frequency.size} "
+            f"points) in {store.url}"
+        )
+    return 0
+
+
+def _list(args: argparse.Namespace) -> int:
+    from datetime import UTC, datetime
+
+    from rich.console import Console
+    from rich.table import Table
+
+    from acquire.progress import format_duration
+    from acquire.store import open_store
+
+    console = Console()
+    with open_store(args.store) as store:
+        infos = store.list_reference_sets()
+        if not infos:
+            console.print(f"no reference sets in {store.url}")
+            return 0
+        table = Table(title=f"reference sets in {store.url}", title_justify="left")
+        for col in ("id", "name", "fixture", "standards", "points", "captured", "age", "meter"):
+            table.add_column(col, justify="right" if col in ("id", "points") else "left")
+        now = datetime.now(UTC)
+        for info in infos:
+            when = info.captured_at
+            table.add_row(
+                str(info.id),
+                info.name,
+                info.fixture,
+                ", ".join(info.standards),
+                str(info.points),
+                f"{when:%Y-%m-%d %H:%M}" if when else "—",
+                format_duration((now - when).total_seconds()) if when else "—",
+                info.meter,
+            )
+        console.print(table)
+    return 0
+
+
+def _show(args: argparse.Namespace) -> int:
+    from rich.console import Console
+    from rich.table import Table
+
+    from acquire.dashboard import summary_frequencies
+    from acquire.impedance import quantities
+    from acquire.store import open_store
+    from acquire.units import format_si
+
+    console = Console()
+    with open_store(args.store) as store:
+        ref_id, refs = find_reference_set(store, args.set)
+    f = refs.frequency
+    console.print(
+        f"reference set {ref_id}: {refs.method} on fixture {refs.fixture or '(unnamed)'}, "
+        f"{f.size} points from {format_si(f[0], 'Hz')} to {format_si(f[-1], 'Hz')}"
+    )
+    when = f"{refs.captured_at:%Y-%m-%d %H:%M:%S} UTC" if refs.captured_at else "unknown"
+    console.print(f"captured {when} on {refs.meter or 'an unrecorded meter'}")
+    if refs.temperature is not None:
+        console.print(f"temperature {refs.temperature:g} °C")
+    if refs.notes:
+        console.print(f"notes: {refs.notes}")
+    picks = summary_frequencies(f)
+    table = Table(title="readings (|Z| and phase)", title_justify="left")
+    table.add_column("f", justify="right")
+    present = [s for s in ("open", "short", "load") if getattr(refs, s) is not None]
+    for s in present:
+        table.add_column(f"{s} |Z|", justify="right")
+        table.add_column(f"{s} θ", justify="right")
+    for i in picks:
+        row = [format_si(float(f[i]), "Hz")]
+        for s in present:
+            q = quantities(f[i : i + 1], getattr(refs, s)[i : i + 1])
+            row += [format_si(float(q["Z"][0]), "Ω"), f"{float(q['theta'][0]):.2f}°"]
+        table.add_row(*row)
+    console.print(table)
+    return 0
+
+
+def _check(args: argparse.Namespace) -> int:
+    from rich.console import Console
+
+    from acquire.store import open_store
+
+    console = Console()
+    with open_store(args.store) as store:
+        ref_id, refs = find_reference_set(store, args.set)
+    findings = refs.check()
+    if not findings:
+        console.print(f"reference set {ref_id} ({refs.method}): no problems found")
+        return 0
+    for finding in findings:
+        style = "red" if finding.severity == "error" else "yellow"
+        console.print(f"{finding.severity}: {finding.standard}: {finding.message}", style=style)
+    errors = sum(1 for finding in findings if finding.severity == "error")
+    console.print(f"reference set {ref_id}: {errors} error(s), {len(findings) - errors} warning(s)")
+    return 1 if errors else 0

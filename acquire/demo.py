@@ -1,0 +1,217 @@
+"""The demo: the tool's main job end to end on the built-in simulated meter, no hardware needed.
+
+It starts the simulated meter on an ephemeral loopback port, captures open, short and load
+references on a simulated fixture (the demo plays the operator and puts each standard in the
+fixture itself), sweeps the demo coil from 100 Hz to 10 MHz with the live view, shows raw
+against corrected values and how far each is from the simulated coil's true impedance, and
+leaves everything in an SQLite store whose path it prints.
+
+The run is a list of steps, :data:`STEPS`, each a function of one :class:`DemoRun` that holds
+what the earlier steps produced. A later step (a coil model's predicted and fitted values, a
+production lot, a report) is added by writing one more function and putting it in the list.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+from rich.console import Console
+from rich.table import Table
+
+from acquire.capture import SAFETY, capture_references
+from acquire.dashboard import open_view, summary
+from acquire.plan import FrequencyPlan, log_plan
+from acquire.progress import SweepState
+from acquire.sweep import SweepOutcome, run_sweep
+from acquire.units import format_si
+
+#: What the demo measures: a coil and a fixture of our own invention (sim_profiles/).
+DUT = "demo-coil"
+FIXTURE = "bench-leads"
+#: Seconds per point the simulated meter takes during the demo (the live view gets to show).
+MEASURE_TIME = 0.01
+#: Frequencies at which the demo compares raw and corrected Ls with the simulated coil's own.
+CHECK_FREQUENCIES = (1e3, 1e5, 1e6, 2e6)
+
+
+class SimulatedOperator:
+    """The demo's operator: puts each standard in the simulated fixture and says so."""
+
+    def __init__(self, sim: Any, console: Console) -> None:
+        self.sim = sim
+        self.console = console
+
+    def tell(self, text: str) -> None:
+        self.console.print(text)
+
+    def ready(self, standard: str, instruction: str) -> bool:
+        self.console.print(instruction)
+        self.sim.insert(standard)
+        self.console.print(f"[dim](demo) the {standard} standard is in the simulated fixture[/]")
+        return True
+
+    def retry(self, standard: str, problems: list[str]) -> bool:
+        for p in problems:
+            self.console.print(f"refused: {p}")
+        return False
+
+
+@dataclass
+class DemoRun:
+    """What the demo's steps share: settings, the simulator, the meter, the store, results."""
+
+    console: Console
+    store_url: str
+    live: bool = True
+    points: int = 201
+    dut: str = DUT
+    fixture: str = FIXTURE
+    sim: Any = None
+    meter: Any = None
+    store: Any = None
+    identity: Any = None
+    plan: FrequencyPlan | None = None
+    references: Any = None
+    reference_id: int | None = None
+    state: SweepState | None = None
+    outcome: SweepOutcome | None = None
+    notes: list[str] = field(default_factory=list)
+
+
+def introduce(run: DemoRun) -> None:
+    """Say what the demo does, with the bench safety cautions."""
+    run.console.print(
+        "[bold]Demo[/]: a simulated impedance meter, a simulated fixture and the demo coil "
+        f"({run.dut}); no hardware is touched.\nResults go to {run.store_url}"
+    )
+    run.console.print(SAFETY, style="dim")
+    run.identity = run.meter.identify()
+    run.console.print(f"meter: {run.identity} at {run.sim.resource}")
+    run.plan = log_plan("100Hz", "10MHz", run.points)
+
+
+def capture(run: DemoRun) -> None:
+    """Capture open, short and load on the fixture and save the set in the store."""
+    refs = capture_references(
+        run.meter,
+        run.plan,
+        SimulatedOperator(run.sim, run.console),
+        load_true=run.sim.load_true,
+        fixture=run.fixture,
+        meter_name=str(run.identity),
+        notes="captured by acquire demo",
+    )
+    ident = run.identity
+    meter_id = run.store.record_meter(
+        ident.manufacturer,
+        ident.model,
+        ident.serial,
+        ident.firmware,
+        dialect=run.meter.dialect.name,
+    )
+    fixture_id = run.store.record_fixture(run.fixture, notes="simulated fixture")
+    run.references = refs
+    run.reference_id = run.store.save_reference_set(
+        refs, name=f"demo {run.fixture}", meter_id=meter_id, fixture_id=fixture_id
+    )
+    run.console.print(f"saved reference set {run.reference_id} ({refs.method}) in the store")
+
+
+def sweep(run: DemoRun) -> None:
+    """Put the demo coil in the fixture and sweep it with the live view."""
+    from acquire.commands.sweep import begin, prepare_state
+
+    run.sim.insert(run.dut)
+    run.console.print(f"\n[bold]Sweeping {run.dut}[/] through the fixture, corrected live")
+    state = prepare_state(
+        run.plan, run.identity, run.references, run.reference_id, run.fixture, run.dut,
+        ("Ls", "Rs", "Q"),
+    )  # fmt: skip
+    writer = begin(run.store, run.meter, run.identity, run.fixture, run.dut, run.reference_id,
+                   run.plan, state.quantities)  # fmt: skip
+    state.destination = f"sweep {writer.id} in {run.store.url}"
+    with open_view(state, live=run.live, console=run.console) as view:
+        run.outcome = run_sweep(run.meter, run.plan, run.references, writer, state, view.update)
+    run.state = state
+    run.console.print(summary(state))
+
+
+def compare_with_truth(run: DemoRun) -> None:
+    """How far raw and corrected Ls are from the simulated coil's own, at a few frequencies."""
+    from acquire.impedance import quantities
+
+    out = run.outcome
+    if out is None or out.corrected is None or out.frequency.size == 0:
+        return
+    table = Table(
+        title="what the fixture does to Ls, against the simulated coil's true value",
+        title_justify="left",
+    )
+    for col in ("f", "true Ls", "raw Ls", "raw error", "corrected Ls", "corrected error"):
+        table.add_column(col, justify="right")
+    for target in CHECK_FREQUENCIES:
+        i = int(np.argmin(np.abs(np.log(out.frequency / target))))
+        f = out.frequency[i : i + 1]
+        true = quantities(f, run.sim.dut_impedance(f))["Ls"][0]
+        raw = quantities(f, out.raw[i : i + 1])["Ls"][0]
+        cor = quantities(f, out.corrected[i : i + 1])["Ls"][0]
+        table.add_row(
+            format_si(float(f[0]), "Hz"),
+            format_si(true, "H"),
+            format_si(raw, "H"),
+            f"{(raw - true) / true:+.2%}",
+            format_si(cor, "H"),
+            f"{(cor - true) / true:+.2%}",
+        )
+    run.console.print(table)
+
+
+def finish(run: DemoRun) -> None:
+    """Say where everything is."""
+    path = getattr(run.store, "path", None)
+    where = str(path) if path else run.store.url
+    run.console.print(
+        f"\n{run.outcome.message(run.store.url) if run.outcome else 'no sweep was made'}\n"
+        f"store: {where}\n"
+        f"look again with: acquire reference list --store {run.store_url}"
+    )
+
+
+#: The demo's steps, in order. Add a step (e.g. predicted vs fitted coil values) here.
+STEPS: list[Callable[[DemoRun], None]] = [introduce, capture, sweep, compare_with_truth, finish]
+
+
+def run_demo(
+    store_url: str,
+    live: bool = True,
+    console: Console | None = None,
+    points: int = 201,
+    measure_time: float | None = None,
+    seed: int = 0,
+) -> DemoRun:
+    """Run every step of :data:`STEPS` against a simulator started for the occasion.
+
+    ``measure_time`` is the simulated seconds per point; by default :data:`MEASURE_TIME` with the
+    live view (so there is something to watch) and 0 without it (scripts want it quick).
+    """
+    if measure_time is None:
+        measure_time = MEASURE_TIME if live else 0.0
+    from acquire.store import open_store
+    from drivers.meter import ImpedanceMeter
+    from drivers.simulator import running
+
+    run = DemoRun(console=console or Console(), store_url=store_url, live=live, points=points)
+    with (
+        running(dut="open", fixture=run.fixture, seed=seed, measure_time=measure_time) as sim,
+        ImpedanceMeter.open(sim.resource, dialect="simulated") as meter,
+        open_store(store_url) as store,
+    ):
+        run.sim, run.meter, run.store = sim, meter, store
+        for step in STEPS:
+            stopped = run.outcome is not None and run.outcome.interrupted
+            if not stopped or step is finish:
+                step(run)
+    return run

@@ -3,20 +3,27 @@
 Form of the interpolation
 -------------------------
 Between two neighbouring grid frequencies each standard is interpolated linearly in
-``log(f)``, not as the raw complex value but in the form in which a fixture's standard is
-nearly constant:
+``log(f)``, not as the raw complex value but in a form in which a fixture's standard is nearly
+constant, each with the fixture effects of the standards before it taken off:
 
-- the short and the load in impedance, as ``R`` and ``X/f``: a shorted fixture is a series
-  resistance and inductance, ``Z = R + j*2*pi*f*L``, so ``R`` and ``X/f = 2*pi*L`` barely move;
+- the short in impedance, as ``R`` and ``X/f``: a shorted fixture is a series resistance and
+  inductance, ``Z = R + j*2*pi*f*L``, so ``R`` and ``X/f = 2*pi*L`` barely move;
 - the open in admittance, as ``G`` and ``B/f``: an open fixture is a shunt conductance and
-  capacitance, ``Y = G + j*2*pi*f*C``, so ``G`` and ``B/f = 2*pi*C`` barely move. When a short
-  was taken, the open is read through the same series residual, so the admittance interpolated
-  is that of ``Zo - Zs`` (the shunt part alone), and the interpolated short is added back.
+  capacitance, ``Y = G + j*2*pi*f*C``, so ``G`` and ``B/f = 2*pi*C`` barely move. The open is
+  read through the same series residual as the short, so when a short was taken the admittance
+  interpolated is that of ``Zo - Zs`` (the shunt part alone) and the interpolated short is
+  added back;
+- the load, after open-short correction with the references on the grid, in impedance (``R``,
+  ``X/f``): what is left is the load standard itself plus what the L-section model misses, and
+  it is put back through the interpolated open and short; without an open or short, the raw load
+  in impedance;
+- the load's true value in impedance (``R``, ``X/f``).
 
-For a fixture that really is lumped R, L, G and C this is exact at every frequency; for
-frequency-dependent elements (skin effect, dielectric loss) the error is second order in the
-grid step. Linear pieces cannot overshoot, so noise in the references is never amplified, and at
-a grid frequency the stored reading is returned unchanged (bit for bit).
+For a fixture that really is lumped R, L, G and C (an L section) this is exact at every
+frequency, with or without the load; for frequency-dependent elements (skin effect, dielectric
+loss, lines) the error is second order in the grid step. Linear pieces cannot overshoot, so
+noise in the references is never amplified, and at a grid frequency the stored reading is
+returned unchanged (bit for bit).
 
 Frequencies outside ``[grid[0], grid[-1]]`` are refused with
 :class:`~acquire.errors.CompensationError`: the references say nothing there. A frequency within
@@ -29,6 +36,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from acquire.compensation import formulas
 from acquire.errors import CompensationError
 from acquire.units import format_si
 
@@ -125,13 +133,23 @@ def interpolate(
 def standards_at(grid: np.ndarray, at: Placement, zo, zs, zl, zt) -> tuple[np.ndarray | None, ...]:
     """Open, short, load and load's true value (each None or on ``grid``) at the placed frequencies.
 
-    The short, the load and its true value are interpolated in impedance; the open in
-    admittance, after the short (if present) is taken off it.
+    Each standard is interpolated with the fixture effects the ones before it describe taken
+    off: the short as it is (impedance); the open in admittance, less the short; the load after
+    open-short correction (what is left is the load standard itself, seen through whatever the
+    L-section model misses), in impedance, then put back through the interpolated open and
+    short. The load's true value is interpolated in impedance.
     """
     zs_at = None if zs is None else interpolate(grid, zs, at, admittance=False)
     series = None if zs is None else (zs, zs_at)
     zo_at = None if zo is None else interpolate(grid, zo, at, admittance=True, series=series)
-    zl_at, zt_at = (None if z is None else interpolate(grid, z, at, False) for z in (zl, zt))
+    zt_at = None if zt is None else interpolate(grid, zt, at, admittance=False)
+    if zl is None or (zo is None and zs is None) or at.on_grid:
+        zl_at = None if zl is None else interpolate(grid, zl, at, admittance=False)
+    else:
+        seen = formulas.correction(zo, zs, None, None)
+        bare_at = interpolate(grid, seen.apply(zl), at, admittance=False)
+        zl_at = formulas.correction(zo_at, zs_at, None, None).reading(bare_at)
+        zl_at = np.where(at.exact, zl[at.index], zl_at)
     return zo_at, zs_at, zl_at, zt_at
 
 

@@ -12,11 +12,13 @@ from acquire.coil.capacitance import (
     medhurst_factor,
     self_resonant_frequency,
 )
+from acquire.coil.circuit import coil_impedance, series_resistance
 from acquire.coil.constants import (
     COPPER_RESISTIVITY_20C,
     COPPER_TEMPERATURE_COEFFICIENT,
     MU0,
 )
+from acquire.coil.fit import CoilFit, FittedValue, fit_sweep
 from acquire.coil.multilayer import (
     coaxial_mutual_inductance,
     layered_turns,
@@ -24,6 +26,8 @@ from acquire.coil.multilayer import (
     wheeler_multilayer_inductance,
 )
 from acquire.coil.nagaoka import nagaoka, nagaoka_lundin, nagaoka_wheeler
+from acquire.coil.predict import DEMO_COIL, CoilGeometry, Estimate, Prediction, predict, wire_length
+from acquire.coil.report import compare, compare_text
 from acquire.coil.solenoid import (
     current_sheet_inductance,
     long_solenoid_inductance,
@@ -43,15 +47,25 @@ from acquire.coil.wire import (
 __all__ = [
     "COPPER_RESISTIVITY_20C",
     "COPPER_TEMPERATURE_COEFFICIENT",
+    "DEMO_COIL",
     "MEDHURST_TABLE",
     "MU0",
+    "CoilFit",
+    "CoilGeometry",
+    "Estimate",
+    "FittedValue",
+    "Prediction",
     "ac_resistance",
     "ac_resistance_ratio",
     "awg_diameter",
     "coaxial_mutual_inductance",
+    "coil_impedance",
+    "compare",
+    "compare_text",
     "copper_resistivity",
     "current_sheet_inductance",
     "dc_resistance",
+    "fit_sweep",
     "layered_turns",
     "long_solenoid_inductance",
     "loop_sum_inductance",
@@ -60,10 +74,13 @@ __all__ = [
     "nagaoka",
     "nagaoka_lundin",
     "nagaoka_wheeler",
+    "predict",
     "rosa_km",
     "rosa_ks",
     "self_resonant_frequency",
+    "series_resistance",
     "skin_depth",
     "solenoid_inductance",
     "wheeler_multilayer_inductance",
+    "wire_length",
 ]

@@ -1,0 +1,53 @@
+"""The coil's equivalent circuit used by the fit, and its resistance law.
+
+A winding of inductance ``L`` in series with a resistance that grows with frequency, the whole
+shunted by the self-capacitance ``Cp`` and, optionally, by a core-loss resistance ``Rcore``::
+
+    Z(f) = 1 / ( 1/(R(f) + jωL) + jωCp + 1/Rcore )
+
+Resistance law: ``R(f) = Rdc · (1 + (f/fc)²)^(n/2)``. It is flat below the corner frequency
+``fc`` and grows as ``f^n`` above it; ``n = 1/2`` is the high-frequency behaviour of skin effect in
+a round wire (``R ∝ √f``), larger exponents appear where the proximity of other turns adds loss.
+Below the corner it rises as ``f²``, as the exact round-wire solution does. With no corner
+(``fc = None``) the resistance is constant.
+
+``Rcore`` is a constant equivalent parallel resistance standing for core (and dielectric) loss.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+SKIN_EXPONENT = 0.5
+
+
+def series_resistance(
+    frequency: ArrayLike, rdc: float, corner: float | None = None, exponent: float = SKIN_EXPONENT
+) -> np.ndarray:
+    """``R(f)`` of the resistance law (ohm)."""
+    f = np.asarray(frequency, dtype=float)
+    if corner is None:
+        return np.full_like(f, rdc)
+    return rdc * (1.0 + (f / corner) ** 2) ** (exponent / 2.0)
+
+
+def coil_impedance(
+    frequency: ArrayLike,
+    inductance: float,
+    rdc: float,
+    capacitance: float = 0.0,
+    corner: float | None = None,
+    exponent: float = SKIN_EXPONENT,
+    core_resistance: float | None = None,
+) -> np.ndarray:
+    """Complex impedance (ohm) of the equivalent circuit at ``frequency`` (hertz)."""
+    f = np.asarray(frequency, dtype=float)
+    omega = 2.0 * math.pi * f
+    series = series_resistance(f, rdc, corner, exponent) + 1j * omega * inductance
+    admittance = 1.0 / series + 1j * omega * capacitance
+    if core_resistance is not None:
+        admittance = admittance + 1.0 / core_resistance
+    return 1.0 / admittance

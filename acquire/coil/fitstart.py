@@ -1,0 +1,105 @@
+"""Starting values for the equivalent-circuit fit, read straight off a sweep.
+
+- ``Rdc``: the median resistance of the lowest-frequency points;
+- ``L``: the slope of reactance against ω (through the origin) well below any resonance;
+- the self-resonance: where the phase crosses zero from inductive to capacitive at the peak of
+  ``|Z|``, which also gives ``Cp = 1/((2π f0)² L)``;
+- the resistance law's corner: where the resistance first doubles below the resonance.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from acquire.errors import ModelError
+
+MIN_POINTS = 8
+
+
+@dataclass(frozen=True)
+class StartValues:
+    """What the data says before any fitting; ``resonance`` is None when none is in range."""
+
+    inductance: float
+    rdc: float
+    resonance: float | None
+    capacitance: float | None
+    corner: float
+
+
+def clean_sweep(frequency, impedance) -> tuple[np.ndarray, np.ndarray, int]:
+    """Sorted finite points of a sweep and how many non-finite (overrange, invalid) were dropped."""
+    f = np.asarray(frequency, dtype=float).ravel()
+    z = np.asarray(impedance, dtype=complex).ravel()
+    if f.shape != z.shape:
+        raise ModelError(f"{f.size} frequencies but {z.size} impedances: the sweep is malformed")
+    keep = np.isfinite(f) & np.isfinite(z.real) & np.isfinite(z.imag) & (f > 0)
+    dropped = int(f.size - np.count_nonzero(keep))
+    f, z = f[keep], z[keep]
+    order = np.argsort(f)
+    f, z = f[order], z[order]
+    if f.size < MIN_POINTS:
+        raise ModelError(
+            f"only {f.size} usable points: the fit needs at least {MIN_POINTS}; "
+            "sweep more frequencies"
+        )
+    if np.any(np.diff(f) <= 0):
+        raise ModelError("the sweep repeats a frequency: give each frequency once")
+    return f, z, dropped
+
+
+def find_resonance(f: np.ndarray, z: np.ndarray) -> float | None:
+    """The frequency where the reactance changes from inductive to capacitive at the |Z| peak.
+
+    Interpolated linearly in susceptance (which passes smoothly through zero there, unlike the
+    reactance) against ln f between the bracketing points; None when the peak of |Z| sits at the
+    top of the sweep or there is no sign change beside it.
+    """
+    peak = int(np.argmax(np.abs(z)))
+    if peak >= f.size - 1:
+        return None
+    lo = max(peak - 2, 0)
+    hi = min(peak + 2, f.size - 1)
+    x = z.imag
+    for i in range(lo, hi):
+        if x[i] > 0 >= x[i + 1]:
+            above_negative = np.mean(x[i + 1 : min(i + 6, f.size)] < 0)
+            below_positive = np.mean(x[max(i - 4, 0) : i + 1] > 0)
+            if above_negative < 0.5 or below_positive < 0.5:
+                continue
+            b = (1.0 / z[i : i + 2]).imag
+            t = -b[0] / (b[1] - b[0])
+            return float(math.exp(math.log(f[i]) + t * (math.log(f[i + 1]) - math.log(f[i]))))
+    return None
+
+
+def start_values(f: np.ndarray, z: np.ndarray) -> StartValues:
+    """Read the starting values off a cleaned sweep (see the module docstring)."""
+    x, r = z.imag, z.real
+    if not np.any(x > 0):
+        raise ModelError(
+            "the sweep is never inductive (reactance ≤ 0 everywhere): is a coil connected, "
+            "and were the references captured on this fixture?"
+        )
+    n_low = max(3, f.size * 15 // 100)
+    rdc = float(np.median(r[:n_low]))
+    if not rdc > 0:
+        rdc = 1e-6 * float(np.median(np.abs(z[:n_low])))
+    resonance = find_resonance(f, z)
+    span = math.log(f[-1] / f[0])
+    limit = resonance / 5.0 if resonance else f[0] * math.exp(0.4 * span)
+    low = (f <= limit) & (x > 0)
+    if np.count_nonzero(low) < 2:
+        low = np.flatnonzero(x > 0)[:3]
+    omega = 2.0 * math.pi * f[low]
+    inductance = float(np.sum(x[low] * omega) / np.sum(omega**2))
+    capacitance = None
+    if resonance is not None:
+        capacitance = 1.0 / ((2.0 * math.pi * resonance) ** 2 * inductance)
+    below = f < (resonance / 2.0 if resonance else f[-1])
+    risen = np.flatnonzero(below & (r > 2.0 * rdc))
+    corner = float(f[risen[0]]) if risen.size else float(f[below][-1] if below.any() else f[-1])
+    return StartValues(inductance, rdc, resonance, capacitance, corner)

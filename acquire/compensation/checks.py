@@ -168,7 +168,7 @@ def _open_short_findings(zo, zs, grid) -> list[Finding]:
     with np.errstate(divide="ignore", invalid="ignore"):
         if zo is not None and zs is not None:
             ratio = np.abs(zo) / np.abs(zs)
-            low = ratio < ACCURACY_RATIO
+            low = (ratio < ACCURACY_RATIO) & np.isfinite(zo) & np.isfinite(zs)
             if np.any(low):
                 worst = _worst(low, ratio)
                 where, freq = _where(low, grid, worst)
@@ -184,9 +184,8 @@ def _open_short_findings(zo, zs, grid) -> list[Finding]:
             if np.any(like_open):
                 where, freq = _where(like_open, grid)
                 text = (
-                    f"looks like an open fixture {where} (capacitive, above "
-                    f"{SHORT_OPEN_BOUNDARY:g} ohm): close the fixture with its shorting bar and "
-                    "capture the short again"
+                    f"looks like an open fixture (capacitive, above {SHORT_OPEN_BOUNDARY:g} ohm) "
+                    f"{where}: close the fixture with its shorting bar and capture the short again"
                 )
                 found.append(Finding("error", "short", text, freq))
         if zo is not None:
@@ -194,8 +193,9 @@ def _open_short_findings(zo, zs, grid) -> list[Finding]:
             if np.any(like_short):
                 where, freq = _where(like_short, grid)
                 text = (
-                    f"looks like a shorted fixture {where} (not capacitive, below "
-                    f"{SHORT_OPEN_BOUNDARY:g} ohm): empty the fixture and capture the open again"
+                    f"looks like a shorted fixture (not capacitive, below "
+                    f"{SHORT_OPEN_BOUNDARY:g} ohm) {where}: empty the fixture and capture the open "
+                    "again"
                 )
                 found.append(Finding("error", "open", text, freq))
     return found
@@ -210,7 +210,7 @@ def _load_findings(refs: ReferenceSet, grid) -> list[Finding]:
     with np.errstate(divide="ignore", invalid="ignore"):
         off = np.abs(load - refs.load_true) / np.abs(refs.load_true)
     for severity, limit in (("error", LOAD_ERROR), ("warning", LOAD_WARNING)):
-        far = off > limit
+        far = (off > limit) & np.isfinite(off)
         if np.any(far):
             worst = _worst(far, off, largest=True)
             where, freq = _where(far, grid, worst)

@@ -424,7 +424,7 @@ class Commands:
             else:
                 value = integer(params[1], -(2**31), 2**31 - 1)
         try:
-            self.instrument.arm_fault(FaultSpec.build(kind, value))
+            self.instrument.arm_fault(FaultSpec.build(kind, value), deferred=True)
         except ValueError as exc:
             raise ScpiError(-224 if len(params) == 2 else -109, str(exc)) from exc
 
@@ -432,7 +432,8 @@ class Commands:
         expect(params, 2)
         kind = _FAULT_KINDS[keyword(params[0], _FAULT_WORDS)]
         try:
-            self.instrument.arm_fault(FaultSpec.build(kind, rate=number(params[1], "", 0.0, 1.0)))
+            spec = FaultSpec.build(kind, rate=number(params[1], "", 0.0, 1.0))
+            self.instrument.arm_fault(spec, deferred=True)
         except ValueError as exc:
             raise ScpiError(-224, str(exc)) from exc
 

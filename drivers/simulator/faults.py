@@ -104,19 +104,30 @@ class Faults:
     def __init__(self, rng: np.random.Generator) -> None:
         self._rng = rng
         self._armed: list[_Armed] = []
+        self._deferred: list[_Armed] = []
 
     @property
     def armed(self) -> tuple[FaultSpec, ...]:
         """What is armed now, in arming order."""
-        return tuple(a.spec for a in self._armed)
+        return tuple(a.spec for a in self._armed + self._deferred)
 
-    def arm(self, spec: FaultSpec) -> None:
-        """Arm ``spec``, counting its events from now."""
-        self._armed.append(_Armed(spec))
+    def arm(self, spec: FaultSpec, deferred: bool = False) -> None:
+        """Arm ``spec``, counting its events from now, or (``deferred``) from :meth:`settle`.
+
+        A fault armed by a SCPI command is deferred, so the arming message's own reply is not
+        one of the events it counts.
+        """
+        (self._deferred if deferred else self._armed).append(_Armed(spec))
+
+    def settle(self) -> None:
+        """Start counting for the faults armed by the message that has just finished."""
+        self._armed.extend(self._deferred)
+        self._deferred.clear()
 
     def clear(self) -> None:
         """Disarm every fault."""
         self._armed.clear()
+        self._deferred.clear()
 
     def reseed(self, rng: np.random.Generator) -> None:
         """Draw rates and garbling from ``rng`` from now on."""

@@ -99,9 +99,9 @@ class Instrument:
         self.fixture = load_fixture(name_or_profile)
         return self.fixture
 
-    def arm_fault(self, spec: FaultSpec) -> None:
+    def arm_fault(self, spec: FaultSpec, deferred: bool = False) -> None:
         """Arm one fault (see :mod:`drivers.simulator.faults`)."""
-        self.faults.arm(spec)
+        self.faults.arm(spec, deferred)
 
     def reset(self) -> None:
         """``*RST``: default settings, running measurement aborted, data cleared."""

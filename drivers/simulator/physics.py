@@ -161,7 +161,8 @@ def input_impedance(abcd: np.ndarray, z_load: np.ndarray) -> np.ndarray:
     """Impedance seen at port 1 of ``abcd`` loaded by ``z_load`` (which may be ``inf`` or 0).
 
     ``(A·Z + B)/(C·Z + D)``; for an infinite load the limit ``A/C``. Where the result has no
-    finite value (an open seen through a fixture with no shunt path) it is ``inf``.
+    finite value (an open seen through a fixture with no shunt path) it is ``inf``; a ``nan``
+    load (nothing connected) stays ``nan``.
     """
     a, b, c, d = abcd[..., 0, 0], abcd[..., 0, 1], abcd[..., 1, 0], abcd[..., 1, 1]
     z = np.broadcast_to(np.asarray(z_load, dtype=complex), a.shape)
@@ -171,7 +172,7 @@ def input_impedance(abcd: np.ndarray, z_load: np.ndarray) -> np.ndarray:
         loaded = (a * finite + b) / (c * finite + d)
         opened = a / c
     out = np.where(is_open, opened, loaded)
-    return np.where(np.isfinite(out), out, complex(np.inf, np.inf))
+    return np.where(np.isfinite(out) | np.isnan(z), out, complex(np.inf, np.inf))
 
 
 def dc_resistance_seen(

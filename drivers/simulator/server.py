@@ -121,10 +121,11 @@ class SimulatorServer:
             except Exception as exc:  # noqa: BLE001 - a simulator bug must not kill the session
                 LOG.exception("client %s: internal error on %r", session.peer, text)
                 session.status.push(-200, f"Execution error; internal simulator error: {exc}")
-                continue
+                reply = None
+            out = None if reply is None else faults.reply(reply)
+            faults.settle()
             if reply is None:
                 continue
-            out = faults.reply(reply)
             if out is None:
                 LOG.info("client %s: withholding a reply (fault)", session.peer)
                 continue

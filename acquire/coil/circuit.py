@@ -1,9 +1,11 @@
 """The coil's equivalent circuit used by the fit, and its resistance law.
 
 A winding of inductance ``L`` in series with a resistance that grows with frequency, the whole
-shunted by the self-capacitance ``Cp`` and, optionally, by a core-loss resistance ``Rcore``::
+shunted by the self-capacitance ``Cp``; optionally a magnetic core whose loss is a constant loss
+tangent ``tan δ = µ''/µ'`` of its complex permeability, which turns ``jωL`` into
+``jωL (1 − j tan δ)``::
 
-    Z(f) = 1 / ( 1/(R(f) + jωL) + jωCp + 1/Rcore )
+    Z(f) = 1 / ( 1/(R(f) + ωL tan δ + jωL) + jωCp )
 
 Resistance law: ``R(f) = Rdc · (1 + (f/fc)²)^(n/2)``. It is flat below the corner frequency
 ``fc`` and grows as ``f^n`` above it; ``n = 1/2`` is the high-frequency behaviour of skin effect in
@@ -11,7 +13,8 @@ a round wire (``R ∝ √f``), larger exponents appear where the proximity of ot
 Below the corner it rises as ``f²``, as the exact round-wire solution does. With no corner
 (``fc = None``) the resistance is constant.
 
-``Rcore`` is a constant equivalent parallel resistance standing for core (and dielectric) loss.
+The loss tangent adds a series resistance growing in proportion to frequency; a constant tangent is
+the usual first description of a ferrite or powder core over a decade or two.
 """
 
 from __future__ import annotations
@@ -41,13 +44,10 @@ def coil_impedance(
     capacitance: float = 0.0,
     corner: float | None = None,
     exponent: float = SKIN_EXPONENT,
-    core_resistance: float | None = None,
+    loss_tangent: float = 0.0,
 ) -> np.ndarray:
     """Complex impedance (ohm) of the equivalent circuit at ``frequency`` (hertz)."""
     f = np.asarray(frequency, dtype=float)
     omega = 2.0 * math.pi * f
-    series = series_resistance(f, rdc, corner, exponent) + 1j * omega * inductance
-    admittance = 1.0 / series + 1j * omega * capacitance
-    if core_resistance is not None:
-        admittance = admittance + 1.0 / core_resistance
-    return 1.0 / admittance
+    series = series_resistance(f, rdc, corner, exponent) + omega * inductance * (loss_tangent + 1j)
+    return series / (1.0 + 1j * omega * capacitance * series)

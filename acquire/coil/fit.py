@@ -2,15 +2,15 @@
 
 :func:`fit_sweep` takes frequencies (hertz) and complex impedances (ohm), already corrected for
 the fixture, and returns a :class:`CoilFit`: L, Rdc, the resistance law's corner and exponent,
-Cp, the self-resonant frequency, the maximum Q and where it occurs, the fit's residual and every
-parameter's 1σ uncertainty.
+Cp, the core's loss tangent when one is needed, the self-resonant frequency, the maximum Q and
+where it occurs, the fit's residual and every parameter's 1σ uncertainty.
 
 How it fits: :func:`scipy.optimize.least_squares` on the real and imaginary parts of the relative
 error ``(Z_model − Z)/|Z|`` (a meter's error is a fraction of ``|Z|``), with the positive
 parameters as logarithms so that henry, ohm and farad are equally well scaled. Start values come
 from the data (:mod:`acquire.coil.fitstart`). Several nested models are fitted (constant
-resistance, skin-effect law with ``n = 1/2``, free exponent; with or without a core-loss
-resistance) and the one with the lowest Bayesian information criterion is kept. Uncertainties come
+resistance, skin-effect law with ``n = 1/2``, free exponent; with or without a core loss
+tangent) and the one with the lowest Bayesian information criterion is kept. Uncertainties come
 from the Jacobian at the solution, scaled by the residual: ``cov = (JᵀJ)⁻¹ · SSR/(m − k)``.
 
 What it refuses: Cp and the self-resonance are reported only when the resonance (the phase
@@ -37,7 +37,7 @@ from acquire.units import format_si
 
 LAWS = ("constant", "skin", "power")
 _LINEAR = {"n"}
-_LIMITS = {"L": 0.2, "Rdc": 0.25, "Cp": 0.2, "fc": 0.5, "n": 0.5, "Rcore": 0.5}
+_LIMITS = {"L": 0.2, "Rdc": 0.25, "Cp": 0.2, "fc": 0.5, "n": 0.5, "tand": 0.5}
 _GRID = 4000
 
 
@@ -81,7 +81,7 @@ class CoilFit:
     notes: tuple[str, ...] = field(default_factory=tuple)
 
     def get(self, key: str) -> FittedValue:
-        """The result named ``key``: L, Rdc, fc, n, Cp, Rcore, SRF, Qmax, fQmax."""
+        """The result named ``key``: L, Rdc, fc, n, Cp, tand, SRF, Qmax, fQmax."""
         for value in self.values:
             if value.key == key:
                 return value
@@ -141,7 +141,7 @@ class _Candidate:
         if self.law == "power":
             names.append("n")
         if self.core_loss:
-            names.append("Rcore")
+            names.append("tand")
         return tuple(names)
 
 
@@ -152,6 +152,7 @@ class _Solution:
     jacobian: np.ndarray
     ssr: float
     bic: float
+    at_limit: np.ndarray
 
 
 def _impedance(f: np.ndarray, p: dict[str, float]) -> np.ndarray:
@@ -162,7 +163,7 @@ def _impedance(f: np.ndarray, p: dict[str, float]) -> np.ndarray:
         p.get("Cp", 0.0),
         p.get("fc"),
         p.get("n", SKIN_EXPONENT),
-        p.get("Rcore"),
+        p.get("tand", 0.0),
     )
 
 
@@ -176,7 +177,6 @@ def _residuals(theta, names, f, z, scale) -> np.ndarray:
 
 
 def _initial(names: tuple[str, ...], s: StartValues, f: np.ndarray, z: np.ndarray):
-    zmax = float(np.max(np.abs(z)))
     cp = s.capacitance or 1.0 / ((2.0 * math.pi * 3.0 * f[-1]) ** 2 * s.inductance)
     guess = {
         "L": (s.inductance, s.inductance / 100, s.inductance * 100),
@@ -184,7 +184,7 @@ def _initial(names: tuple[str, ...], s: StartValues, f: np.ndarray, z: np.ndarra
         "Cp": (cp, 1e-18, 1e-3),
         "fc": (s.corner, f[0] / 100, f[-1] * 100),
         "n": (SKIN_EXPONENT, 0.05, 3.0),
-        "Rcore": (100.0 * zmax, 1e-3 * zmax, 1e9 * zmax),
+        "tand": (1e-3, 1e-7, 1.0),
     }
     x0, lo, hi = [], [], []
     for n in names:
@@ -209,12 +209,17 @@ def _solve(candidate: _Candidate, s: StartValues, f, z) -> _Solution | None:
     )
     ssr = float(np.sum(result.fun**2))
     bic = m * math.log(max(ssr, 1e-300) / m) + len(names) * math.log(m)
-    return _Solution(candidate, result.x, result.jac, ssr, bic)
+    return _Solution(candidate, result.x, result.jac, ssr, bic, result.active_mask != 0)
 
 
 def _covariance(sol: _Solution, m: int) -> np.ndarray:
-    dof = max(m - len(sol.theta), 1)
-    return np.linalg.pinv(sol.jacobian.T @ sol.jacobian) * (sol.ssr / dof)
+    """Covariance of the parameters; one held at a limit counts as fixed (zero variance)."""
+    free = ~sol.at_limit
+    dof = max(m - int(np.count_nonzero(free)), 1)
+    cov = np.zeros((sol.theta.size, sol.theta.size))
+    jac = sol.jacobian[:, free]
+    cov[np.ix_(free, free)] = np.linalg.pinv(jac.T @ jac) * (sol.ssr / dof)
+    return cov
 
 
 def _propagate(func, theta: np.ndarray, cov: np.ndarray) -> float | None:
@@ -260,7 +265,7 @@ def fit_sweep(
 ) -> CoilFit:
     """Fit the coil model to a sweep (hertz, complex ohm).
 
-    ``core_loss``: True forces the parallel core-loss resistance in, False leaves it out, None
+    ``core_loss``: True forces the core loss tangent in, False leaves it out, None
     lets the information criterion decide. ``resistance_law``: ``"constant"``, ``"skin"``,
     ``"power"`` or None (decided by the data). Raises :class:`ModelError` when the sweep cannot
     support a coil model at all.
@@ -296,6 +301,10 @@ def _report(sol: _Solution, s: StartValues, f, z, dropped: int) -> CoilFit:
 
     def value(key, label, unit, note=""):
         i = names.index(key)
+        if sol.at_limit[i]:
+            return FittedValue(
+                key, label, None, None, unit, "not determined: the fit ran to the edge of its range"
+            )
         sig = sigma_log[i] if key in _LINEAR else p[key] * sigma_log[i]
         rel = sig / abs(p[key]) if p[key] else math.inf
         if rel > _LIMITS[key]:
@@ -343,7 +352,7 @@ def _report(sol: _Solution, s: StartValues, f, z, dropped: int) -> CoilFit:
         )  # fmt: skip
     values.append(cp)
     if sol.candidate.core_loss:
-        values.append(value("Rcore", "core-loss resistance (parallel)", "Ω"))
+        values.append(value("tand", "core loss tangent", ""))
     srf = _phase_zero(names, theta, f_lo, f_hi) if cp.determined else None
     if srf is None:
         values.append(

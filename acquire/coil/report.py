@@ -88,7 +88,7 @@ def fit_summary(fit: CoilFit) -> str:
         "skin": "R = Rdc·(1+(f/fc)²)^(n/2), n = 1/2",
         "power": "R = Rdc·(1+(f/fc)²)^(n/2), n free",
     }[fit.resistance_law]
-    core = "with core-loss Rcore" if fit.core_loss else "no core-loss term"
+    core = "with a core loss tangent" if fit.core_loss else "no core-loss term"
     return (
         f"{fit.points} points, {format_si(lo, 'Hz')} to {format_si(hi, 'Hz')}; {law}; {core}; "
         f"residual {_percent(fit.residual)} rms of |Z|"

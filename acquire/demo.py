@@ -176,7 +176,8 @@ def finish(run: DemoRun) -> None:
     run.console.print(
         f"\n{run.outcome.message(run.store.url) if run.outcome else 'no sweep was made'}\n"
         f"store: {where}\n"
-        f"look again with: acquire reference list --store {run.store_url}"
+        f"look again with: acquire reference list --store {run.store_url}",
+        soft_wrap=True,
     )
 
 

@@ -28,6 +28,17 @@ from acquire.commands.options import add_dialect, add_resource, add_store
 
 HELP = "capture, list, show and check fixture reference sets (open, short, load)"
 
+CAPTURE_DESCRIPTION = """\
+Guided capture of open, short and (with --load-value) load references on a fixture, over a
+frequency plan, saved in the store. For each standard you are told what to do to the fixture;
+press Enter to measure. A reading that does not look like its standard is refused, with a
+chance to measure again.
+
+Safety: discharge parts before handling them; an inductor that carried DC bias stores energy.
+Mains-powered fixtures and bias supplies: follow local codes, the meter maker's instructions
+and licensed practice.
+"""
+
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     from acquire.commands.sweep import add_plan_arguments
@@ -36,10 +47,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     cap = actions.add_parser(
         "capture",
         help="guided capture of open/short/load on a fixture",
-        description="Guided capture of open, short and load references on a fixture, saved in "
-        "the store. Safety: discharge parts before handling; an inductor under DC bias stores "
-        "energy; follow local codes, the meter maker's instructions and licensed practice for "
-        "mains-powered fixtures.",
+        description=CAPTURE_DESCRIPTION,
+        formatter_class=argparse.RawDescriptionHelpFormatter,
     )
     add_resource(cap)
     add_dialect(cap)
@@ -154,7 +163,8 @@ def _capture(args: argparse.Namespace) -> int:
         ref_id = store.save_reference_set(refs, name=name, meter_id=meter_id, fixture_id=fixture_id)
         console.print(
             f"saved reference set {ref_id} ({name!r}, {refs.method}, {refs.frequency.size} "
-            f"points) in {store.url}"
+            f"points) in {store.url}",
+            soft_wrap=True,
         )
     return 0
 
@@ -174,9 +184,10 @@ def _list(args: argparse.Namespace) -> int:
         if not infos:
             console.print(f"no reference sets in {store.url}")
             return 0
-        table = Table(title=f"reference sets in {store.url}", title_justify="left")
-        for col in ("id", "name", "fixture", "standards", "points", "captured", "age", "meter"):
-            table.add_column(col, justify="right" if col in ("id", "points") else "left")
+        console.print(f"reference sets in {store.url}", soft_wrap=True)
+        table = Table()
+        for col in ("id", "name", "fixture", "standards", "captured (UTC)", "age"):
+            table.add_column(col, justify="right" if col in ("id", "age") else "left")
         now = datetime.now(UTC)
         for info in infos:
             when = info.captured_at
@@ -184,11 +195,9 @@ def _list(args: argparse.Namespace) -> int:
                 str(info.id),
                 info.name,
                 info.fixture,
-                ", ".join(info.standards),
-                str(info.points),
+                "-".join(info.standards),
                 f"{when:%Y-%m-%d %H:%M}" if when else "—",
                 format_duration((now - when).total_seconds()) if when else "—",
-                info.meter,
             )
         console.print(table)
     return 0

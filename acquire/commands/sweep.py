@@ -147,10 +147,10 @@ def run(args: argparse.Namespace) -> int:
             path = write_sweep_csv(
                 args.csv, outcome.frequency, outcome.raw, outcome.corrected, show
             )
-            console.print(f"CSV written to {path}")
+            console.print(f"CSV written to {path}", soft_wrap=True)
         line = outcome.message(store.url)
     if not outcome.interrupted:
-        console.print(line)
+        console.print(line, soft_wrap=True)
         return 0
     print(f"acquire sweep: {line}", file=sys.stderr)
     return 130 if isinstance(outcome.error, KeyboardInterrupt) else 2

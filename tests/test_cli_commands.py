@@ -1,0 +1,183 @@
+"""The sweep and reference commands as a user runs them, and their one-line errors."""
+
+from __future__ import annotations
+
+import os
+import signal
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from acquire.cli import main
+from acquire.store import open_store
+from drivers.simulator import running
+
+ROOT = Path(__file__).resolve().parents[1]
+
+
+def acquire(*args: str, timeout: float = 60, **kw) -> subprocess.CompletedProcess:
+    env = {k: v for k, v in os.environ.items() if not k.startswith("ACQUIRE_")}
+    return subprocess.run(
+        [sys.executable, "-m", "acquire", *args],
+        capture_output=True,
+        text=True,
+        timeout=timeout,
+        cwd=ROOT,
+        env=env,
+        **kw,
+    )
+
+
+@pytest.fixture(autouse=True)
+def _no_bench_environment(monkeypatch):
+    for name in list(os.environ):
+        if name.startswith("ACQUIRE_"):
+            monkeypatch.delenv(name)
+
+
+def test_capture_then_sweep_with_the_stored_reference_and_csv(tmp_path, monkeypatch, capsys):
+    url = f"sqlite:///{tmp_path / 'bench.db'}"
+    csv_path = tmp_path / "coil.csv"
+    with running(dut="open", fixture="long-leads", seed=21, measure_time=0) as sim:
+        prompts: list[str] = []
+
+        def operator_at_the_keyboard(prompt: str) -> str:
+            prompts.append(prompt)
+            for standard in ("open", "short", "load"):
+                if f"measure the {standard}" in prompt:
+                    sim.insert(standard)
+            return ""
+
+        monkeypatch.setattr("builtins.input", operator_at_the_keyboard)
+        common = ["--resource", sim.resource, "--store", url]
+        plan = ["--start", "1kHz", "--stop", "1MHz", "--points", "31"]
+        code = main(
+            ["reference", "capture", *common, *plan, "--fixture", "long-leads",
+             "--standards", "open,short,load", "--load-value", "100ohm", "--name", "leads A"]
+        )  # fmt: skip
+        out = capsys.readouterr().out
+        assert code == 0
+        assert len(prompts) == 3
+        assert "discharged" in out and "licensed practice" in out  # the safety caution
+        assert "saved reference set 1 ('leads A', open-short-load, 31 points)" in out
+
+        sim.insert("air-core-coil")
+        code = main(
+            ["sweep", *common, "--start", "1kHz", "--stop", "100kHz", "--points", "11",
+             "--reference", "leads A", "--fixture", "long-leads", "--dut", "coil 7",
+             "--no-live", "--csv", str(csv_path)]
+        )  # fmt: skip
+        captured = capsys.readouterr()
+        assert code == 0, captured.err
+    out = captured.out
+    assert "sweep: 11 points, log, 1.000 kHz to 100.0 kHz" in out
+    assert "raw vs corrected" in out
+    assert f"sweep complete: 11 points saved as sweep 1 in {url}" in " ".join(out.split())
+    table = pd.read_csv(csv_path)
+    assert list(table.columns)[:5] == [
+        "frequency [Hz]",
+        "raw R [ohm]",
+        "raw X [ohm]",
+        "corrected R [ohm]",
+        "corrected X [ohm]",
+    ]
+    # 10 uH coil (the profile's value) after correction; within 1 % at every point.
+    assert np.allclose(table["Ls [H]"], 10e-6, rtol=0.01)
+    with open_store(url) as store:
+        info = store.sweep_info(1)
+        assert info.status == "complete" and info.points == 11
+        assert info.reference_set_id == 1 and info.dut == "coil 7"
+
+    assert main(["reference", "list", "--store", url]) == 0
+    listed = capsys.readouterr().out
+    assert "leads A" in listed and "long-leads" in listed
+    assert main(["reference", "show", "latest", "--store", url]) == 0
+    shown = capsys.readouterr().out
+    assert "reference set 1: open-short-load on fixture long-leads, 31 points" in shown
+    assert main(["reference", "check", "1", "--store", url]) == 0
+
+
+def test_sweep_without_reference_stores_raw_readings(tmp_path, capsys):
+    url = f"sqlite:///{tmp_path / 'raw.db'}"
+    with running(dut="demo-coil", fixture="bench-leads", seed=22, measure_time=0) as sim:
+        code = main(
+            ["sweep", "--resource", sim.resource, "--store", url, "--list", "1k, 10k, 100k",
+             "--no-live", "--show", "ls,Q,theta"]
+        )  # fmt: skip
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "selected points (raw)" in out and "theta" in out
+    with open_store(url) as store:
+        points = store.sweep_points(1)
+    assert points["frequency"].tolist() == [1e3, 1e4, 1e5]
+    assert points["corrected_r"].isna().all()
+
+
+@pytest.mark.parametrize(
+    "args, fragment",
+    [
+        (["sweep", "--resource", "TCPIP0::127.0.0.1::9::SOCKET"], "could not reopen"),
+        (["sweep", "--resource", "X", "--start", "10MHz", "--stop", "1kHz"], "must be above"),
+        (["sweep", "--resource", "X", "--show", "Lx"], "unknown quantity 'Lx'"),
+        (["sweep", "--resource", "X", "--list", "1k", "--points", "5"], "--points goes with"),
+        (["reference", "show", "42"], "no reference set 42"),
+        (["reference", "check", "latest"], "no reference sets"),
+        (["reference", "capture", "--resource", "X", "--fixture", "A", "--standards", "load"],
+         "--load-value"),
+    ],
+)  # fmt: skip
+def test_errors_end_in_one_line_without_a_traceback(tmp_path, args, fragment):
+    store = ["--store", f"sqlite:///{tmp_path / 'e.db'}"]
+    result = acquire(*args, *store)
+    assert result.returncode == 2
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1, result.stderr
+    assert "Traceback" not in result.stderr
+    assert lines[0].startswith(f"acquire {args[0]}: error: ")
+    assert fragment in lines[0]
+
+
+def test_ctrl_c_during_a_sweep_saves_the_points_and_says_where(tmp_path):
+    url = f"sqlite:///{tmp_path / 'stop.db'}"
+    with running(dut="demo-coil", fixture="bench-leads", seed=23, measure_time=0.005) as sim:
+        env = {k: v for k, v in os.environ.items() if not k.startswith("ACQUIRE_")}
+        proc = subprocess.Popen(
+            [sys.executable, "-m", "acquire", "sweep", "--resource", sim.resource, "--store", url,
+             "--points", "401", "--no-live"],
+            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, cwd=ROOT, env=env,
+        )  # fmt: skip
+        first = proc.stdout.readline()  # "sweep: 401 points, ..." once the sweep has begun
+        assert first.startswith("sweep: 401 points"), first + proc.stderr.read()
+        time.sleep(0.6)
+        proc.send_signal(signal.SIGINT)
+        out, err = proc.communicate(timeout=30)
+    assert proc.returncode == 130, err
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and "Traceback" not in err
+    assert lines[0].startswith("acquire sweep: sweep interrupted (stopped with Ctrl-C): ")
+    assert f"of 401 points saved as sweep 1 in {url}, marked interrupted" in lines[0]
+    n = int(lines[0].split("): ")[1].split(" of ")[0])
+    assert 0 < n < 401
+    with open_store(url) as store:
+        info = store.sweep_info(1)
+        assert info.status == "interrupted" and info.points == n
+        assert len(store.sweep_points(1)) == n
+    assert "Sweep interrupted" in out
+
+
+def test_help_explains_trade_terms_and_safety():
+    top = acquire("--help")
+    assert top.returncode == 0
+    for name in ("demo", "sweep", "reference"):
+        assert name in top.stdout
+    sweep = acquire("sweep", "--help").stdout
+    assert "Q = X/R" in sweep and "self-resonance" in sweep and "licensed practice" in sweep
+    ref = acquire("reference", "--help").stdout
+    assert "OPEN" in ref and "SHORT" in ref and "LOAD" in ref and "DC bias" in ref
+    capture = acquire("reference", "capture", "--help").stdout
+    assert "DC bias" in capture and "licensed practice" in capture

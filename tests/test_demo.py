@@ -1,0 +1,57 @@
+"""`acquire demo`: the whole job on the built-in simulator, as a script and with the live view."""
+
+from __future__ import annotations
+
+import io
+
+import numpy as np
+from rich.console import Console
+
+from acquire.cli import main
+from acquire.demo import STEPS, run_demo
+from acquire.impedance import quantities
+from acquire.store import open_store
+from drivers.simulator.profiles import load_dut
+
+
+def test_demo_no_live_exits_0_and_leaves_a_complete_sweep(tmp_path, capsys):
+    db = tmp_path / "demo.db"
+    url = f"sqlite:///{db}"
+    assert main(["demo", "--no-live", "--store", url]) == 0
+    out = capsys.readouterr().out
+    assert f"store: {db}" in out
+    assert "saved reference set 1 (open-short-load)" in out
+    assert "raw vs corrected" in out
+    assert "against the simulated coil's true value" in out
+    with open_store(url) as store:
+        sweeps = store.list_sweeps()
+        assert [s.status for s in sweeps] == ["complete"]
+        info = sweeps[0]
+        assert info.points == 201 and info.reference_set_id == 1 and info.dut == "demo-coil"
+        points = store.sweep_points(info.id)
+        assert store.list_reference_sets()[0].standards == ("open", "short", "load")
+    f = points["frequency"].to_numpy()
+    assert f[0] == 100.0 and f[-1] == 10e6
+    corrected = points["corrected_r"].to_numpy() + 1j * points["corrected_x"].to_numpy()
+    band = (f >= 1e3) & (f <= 1e5)
+    ls = quantities(f[band], corrected[band])["Ls"]
+    nominal = load_dut("demo-coil").values["inductance"]  # the profile's own value
+    assert np.allclose(ls, nominal, rtol=0.01)
+
+
+def test_demo_live_view_draws_plots_and_the_resonance(tmp_path):
+    buffer = io.StringIO()
+    console = Console(file=buffer, record=True, force_terminal=True, width=150, height=50)
+    run = run_demo(f"sqlite:///{tmp_path / 'live.db'}", console=console, points=101, measure_time=0)
+    assert run.outcome is not None and run.outcome.status == "complete"
+    text = console.export_text()
+    assert "Ls (corrected)" in text and "Q (corrected)" in text
+    assert "latest point" in text
+    assert "self-resonance: raw" in text
+    assert "DC bias" in text  # the safety caution is shown
+
+
+def test_demo_steps_are_one_list_to_extend():
+    names = [step.__name__ for step in STEPS]
+    assert names[0] == "introduce" and names[-1] == "finish"
+    assert names.index("capture") < names.index("sweep") < names.index("compare_with_truth")

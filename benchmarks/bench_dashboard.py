@@ -1,0 +1,144 @@
+"""Does the live view slow acquisition? Ratios measured in one run against the simulated meter.
+
+The simulated meter runs in its own process (``acquire sim``), as a bench meter would be its own
+box, and the sweep runs exactly as ``acquire sweep`` runs it: points corrected with nothing,
+streamed into an SQLite store, with or without the live view redrawing on its timer thread into
+a terminal-sized console (written to the null device).
+
+Goals (issue 6): with 5 ms per point, a 401-point sweep with the live view takes at most 5 %
+longer than without; with 0 ms per point, throughput with the live view stays at or above 1,000
+points per second. Also printed: the cost of drawing one frame of 401 points.
+
+Run: ``python benchmarks/bench_dashboard.py`` (about half a minute).
+"""
+
+from __future__ import annotations
+
+import os
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+from rich.console import Console
+
+from acquire.dashboard import DashboardView, LiveDashboard
+from acquire.plan import log_plan
+from acquire.progress import SweepState
+from acquire.store import open_store
+from acquire.sweep import run_sweep
+from drivers.meter import ImpedanceMeter
+
+POINTS = 401
+REPEATS = 3
+
+
+def start_simulator() -> tuple[subprocess.Popen, str]:
+    proc = subprocess.Popen(
+        [sys.executable, "-m", "acquire", "sim", "--profile", "demo-coil", "--port", "0",
+         "--measure-time", "0", "--quiet"],
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+    )  # fmt: skip
+    resource = proc.stdout.readline().strip()
+    if not resource.startswith("TCPIP"):
+        proc.kill()
+        raise SystemExit(f"simulator did not start: {resource} {proc.stderr.read()}")
+    return proc, resource
+
+
+def terminal() -> Console:
+    return Console(
+        file=open(os.devnull, "w", encoding="utf-8"), force_terminal=True, width=160, height=50
+    )
+
+
+def one_sweep(meter, store, live: bool) -> float:
+    plan = log_plan("100Hz", "10MHz", POINTS)
+    state = SweepState(plan, dut="demo-coil", meter="simulated", quantities=("Ls", "Rs", "Q"))
+    writer = store.begin_sweep(dut="demo-coil", settings={"benchmark": True})
+    began = time.perf_counter()
+    if live:
+        with LiveDashboard(state, terminal(), rate=4.0) as view:
+            outcome = run_sweep(meter, plan, writer=writer, state=state, on_progress=view.update)
+    else:
+        outcome = run_sweep(meter, plan, writer=writer, state=state)
+    elapsed = time.perf_counter() - began
+    assert outcome.status == "complete" and outcome.frequency.size == POINTS
+    return elapsed
+
+
+def compare(meter, store, per_point: float) -> tuple[float, float]:
+    meter.session.write(f"SIMulate:TIME {per_point}")
+    one_sweep(meter, store, live=False)  # warm up both paths
+    one_sweep(meter, store, live=True)
+    plain, live = [], []
+    for _ in range(REPEATS):
+        plain.append(one_sweep(meter, store, live=False))
+        live.append(one_sweep(meter, store, live=True))
+    return statistics.median(plain), statistics.median(live)
+
+
+def frame_cost() -> float:
+    import numpy as np
+
+    plan = log_plan("100Hz", "10MHz", POINTS)
+    state = SweepState(plan, dut="demo-coil", corrected_too=True)
+    f = plan.frequencies
+    w = 2 * np.pi * f
+    z = 1 / (1 / (4.8 + 1j * w * 340e-6) + 1j * w * 1.5e-12)
+    state.start()
+    state.add(f, z, z)
+    console = terminal()
+    view = DashboardView(state)
+    console.print(view)
+    n = 20
+    began = time.perf_counter()
+    for _ in range(n):
+        console.print(view)
+    return (time.perf_counter() - began) / n
+
+
+def main() -> int:
+    proc, resource = start_simulator()
+    try:
+        with (
+            tempfile.TemporaryDirectory() as tmp,
+            open_store(f"sqlite:///{Path(tmp) / 'bench.db'}") as store,
+            ImpedanceMeter.open(resource, dialect="simulated") as meter,
+        ):
+            slow_plain, slow_live = compare(meter, store, 0.005)
+            fast_plain, fast_live = compare(meter, store, 0.0)
+    finally:
+        proc.terminate()
+        proc.wait(timeout=10)
+    frame = frame_cost()
+    slow_ratio = slow_live / slow_plain
+    fast_rate = POINTS / fast_live
+    print(
+        f"live view benchmark: {POINTS}-point log sweep, median of {REPEATS}, "
+        "simulator in its own process"
+    )
+    print(f"{'case':<34}{'no view':>12}{'live view':>12}{'ratio':>9}")
+    print(f"{'5 ms per point (s)':<34}{slow_plain:>12.3f}{slow_live:>12.3f}{slow_ratio:>9.3f}")
+    print(
+        f"{'0 ms per point (s)':<34}{fast_plain:>12.3f}{fast_live:>12.3f}"
+        f"{fast_live / fast_plain:>9.3f}"
+    )
+    print(f"{'0 ms per point (points/s)':<34}{POINTS / fast_plain:>12.0f}{fast_rate:>12.0f}")
+    print(
+        f"one frame of {POINTS} points, 160x50: {frame * 1e3:.1f} ms "
+        "(drawn at most 4 times a second)"
+    )
+    ok_slow = slow_ratio <= 1.05
+    ok_fast = fast_rate >= 1000
+    print(f"goal: 5 ms case at most 1.05x: {'met' if ok_slow else 'NOT met'}")
+    print(
+        f"goal: 0 ms case at least 1000 points/s with the view: {'met' if ok_fast else 'NOT met'}"
+    )
+    return 0 if ok_slow and ok_fast else 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -365,7 +365,7 @@ class Commands:
 
     async def sim_dut(self, session: Session, params) -> None:
         expect(params, 1)
-        self._profile(self.instrument.insert, params[0])
+        self._profile(lambda name: self.instrument.insert(name, deferred=True), params[0])
 
     async def sim_dut_query(self, session: Session, params) -> str:
         expect(params, 0)

@@ -65,6 +65,11 @@ class SimulatorHandle:
         return self._instrument.meter
 
     @property
+    def faults(self) -> tuple[FaultSpec, ...]:
+        """The faults armed now, in arming order."""
+        return self._instrument.faults.armed
+
+    @property
     def unit(self) -> int:
         """How many production units have been drawn since the DUT was inserted."""
         return self._instrument.unit

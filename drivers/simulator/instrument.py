@@ -77,15 +77,20 @@ class Instrument:
         self.spread_rng = np.random.default_rng(spread)
         self.faults.reseed(np.random.default_rng(fault))
 
-    def insert(self, name_or_profile: str | Path | DutProfile) -> DutProfile:
-        """Put a DUT or standard in the fixture and arm its profile's faults."""
+    def insert(
+        self, name_or_profile: str | Path | DutProfile, deferred: bool = False
+    ) -> DutProfile:
+        """Put a DUT or standard in the fixture and arm its profile's faults.
+
+        ``deferred`` (inserting by a SCPI command) starts the faults' count after that message.
+        """
         dut = load_dut(name_or_profile)
         self.dut = dut
         if dut.kind not in STANDARD_KINDS and dut.kind != "none":
             self.nominal = dut
             self.unit = 0
         for spec in dut.faults:
-            self.faults.arm(spec)
+            self.faults.arm(spec, deferred)
         return dut
 
     def next_unit(self) -> DutProfile:

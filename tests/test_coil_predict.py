@@ -55,7 +55,7 @@ def test_ac_resistance_is_a_lower_bound_from_the_kelvin_solution():
     assert low.bound == high.bound == "at least"
     assert low.value == pytest.approx(p.dc_resistance, rel=1e-4)  # r/δ ≪ 1: R ≈ Rdc
     assert high.value > 1.2 * p.dc_resistance
-    assert "skin depth" in high.label
+    assert "δ =" in high.method
 
 
 def test_multilayer_uses_turn_sum_and_wheeler_and_predicts_no_capacitance():

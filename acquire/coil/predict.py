@@ -201,18 +201,17 @@ def _inductance_estimates(g: CoilGeometry) -> list[Estimate]:
                 "inductance (low frequency)",
                 value,
                 "H",
-                "current sheet with Nagaoka's coefficient (exact, elliptic integrals) minus "
-                "Rosa's round-wire corrections ks, km (Grover 1946)",
+                "current sheet, Nagaoka's K exact, minus Rosa's ks + km (Grover 1946)",
                 SINGLE_LAYER_L_ACCURACY,
-                "allowance for the winding's diameter and pitch tolerances (common practice)",
+                "allowance for winding tolerances (common practice)",
             )
         ]
     balance = wheeler_balance(g.mean_diameter, g.length, g.depth)
     wheeler = wheeler_multilayer_inductance(g.turns, g.mean_diameter, g.length, g.depth)
     wheeler_note = (
-        "its denominator terms are balanced within 2:1, where Wheeler states about 1 %"
+        "6a, 9l, 10c balanced within 2:1, where Wheeler states about 1 %"
         if balance <= 2.0
-        else f"its denominator terms are {balance:.1f}:1 out of balance: expect worse than 1 %"
+        else f"6a, 9l, 10c are {balance:.1f}:1 out of balance: worse than 1 %"
     )
     estimates = []
     if g.turns <= LOOP_SUM_MAX_TURNS:
@@ -225,18 +224,18 @@ def _inductance_estimates(g: CoilGeometry) -> list[Estimate]:
                 "inductance (low frequency)",
                 loop_sum_inductance(radii, positions, g.wire_diameter),
                 "H",
-                "turn-by-turn sum of Maxwell's coaxial-circle mutual inductances, neat layers",
+                "turn-by-turn sum, Maxwell's coaxial circles, neat layers",
                 MULTILAYER_PACKING_ACCURACY,
-                "exact for neat layers; allowance for a real winding's packing (common practice)",
+                "allowance for a real winding's packing (common practice)",
             )
         )
     estimates.append(
         Estimate(
             "L" if not estimates else "L_wheeler",
-            "inductance, Wheeler's multilayer formula",
+            "inductance, Wheeler's formula",
             wheeler,
             "H",
-            "Wheeler 1928: 0.8 a²N²/(6a + 9l + 10c) µH, inches",
+            "Wheeler 1928 multilayer formula",
             WHEELER_MULTILAYER_ACCURACY if balance <= 2.0 else None,
             wheeler_note,
         )
@@ -246,7 +245,7 @@ def _inductance_estimates(g: CoilGeometry) -> list[Estimate]:
 
 def _capacitance_estimates(g: CoilGeometry, inductance: float) -> list[Estimate]:
     if g.layers > 1:
-        reason = "no published method is used here for multilayer self-capacitance"
+        reason = "no published method used here for multilayer windings"
         return [
             Estimate("C", "self-capacitance", None, "F", "not predicted", None, reason),
             Estimate("SRF", "self-resonant frequency", None, "Hz", "not predicted", None, reason),
@@ -267,19 +266,18 @@ def _capacitance_estimates(g: CoilGeometry, inductance: float) -> list[Estimate]
             "self-capacitance",
             c,
             "F",
-            f"Medhurst 1947: C = H·D, H = {c / (diameter * 100) * 1e12:.3f} pF/cm at "
+            f"Medhurst 1947 table, H = {c / (diameter * 100) * 1e12:.3f} pF/cm at "
             f"l/D = {g.length / diameter:.3g}",
             MEDHURST_ACCURACY,
-            "the coil alone: leads, a solid former and nearby metal add to it",
+            "the coil alone: leads and nearby metal add to it",
         ),
         Estimate(
             "SRF",
             "self-resonant frequency",
             srf,
             "Hz",
-            "1/(2π√(L·C)) with the L and C above",
+            "1/(2π√(LC)) from the L and C above",
             srf_accuracy,
-            "half the relative error of L·C",
         ),
     ]
 
@@ -294,7 +292,7 @@ def _wire_estimates(g: CoilGeometry, frequencies: tuple[float, ...]) -> list[Est
             "wire length (turns and leads)",
             length,
             "m",
-            "helix length of every turn at its own diameter, plus the leads",
+            "every turn's helix, plus the leads",
             bound="geometry",
         ),
         Estimate(
@@ -302,9 +300,9 @@ def _wire_estimates(g: CoilGeometry, frequencies: tuple[float, ...]) -> list[Est
             f"DC resistance at {g.temperature:g} °C",
             rdc,
             "Ω",
-            "IACS copper 1/58 Ω·mm²/m at 20 °C, 0.00393 /K (IEC 60028)",
+            "IACS copper (IEC 60028), 0.00393 /K",
             RDC_ACCURACY,
-            "allowance for the bare-wire diameter tolerance (common practice)",
+            "allowance for wire-diameter tolerance (common practice)",
         ),
     ]
     for f in frequencies:
@@ -313,12 +311,12 @@ def _wire_estimates(g: CoilGeometry, frequencies: tuple[float, ...]) -> list[Est
         estimates.append(
             Estimate(
                 f"Rac@{f:g}",
-                f"AC resistance at {format_si(f, 'Hz', 3)} (skin depth {format_si(delta, 'm', 3)})",
+                f"AC resistance at {format_si(f, 'Hz', 3)}",
                 rdc * ratio,
                 "Ω",
-                "exact round-wire solution (Kelvin functions), isolated wire",
+                f"skin effect, exact (Kelvin functions); δ = {format_si(delta, 'm', 3)}",
                 None,
-                "proximity of the other turns raises it further",
+                "isolated wire: the other turns add proximity loss",
                 bound="at least",
             )
         )

@@ -151,10 +151,11 @@ def fit_text(fit: CoilFit) -> str:
 
 
 _PAIRS = (("L", "L"), ("Rdc", "Rdc"), ("C", "Cp"), ("SRF", "SRF"))
+_AGREEMENT = "agrees: |difference| ≤ √(accuracy² + (2σ)²); differs: by that many times"
 
 
 def comparison_rows(prediction: Prediction, fit: CoilFit) -> list[tuple[str, ...]]:
-    """Rows of (quantity, predicted ± accuracy, fitted ± 1σ, difference, verdict)."""
+    """Rows of (quantity, predicted ± accuracy, fitted ± 1σ, difference, agreement)."""
     rows = []
     for pkey, fkey in _PAIRS:
         e, v = prediction.get(pkey), fit.get(fkey)
@@ -166,17 +167,17 @@ def comparison_rows(prediction: Prediction, fit: CoilFit) -> list[tuple[str, ...
             fitted += f" ± {_percent(v.relative_sigma)}"
         if e.value is None or v.value is None:
             reason = "not predicted" if e.value is None else "not determined by the fit"
-            rows.append((e.label, predicted, fitted, "", reason))
+            rows.append((fkey, predicted, fitted, "", reason))
             continue
         diff = v.value / e.value - 1.0
         tolerance = math.hypot(e.accuracy or 0.0, _SIGMA_FACTOR * (v.relative_sigma or 0.0))
         if e.accuracy is None:
-            verdict = "no stated accuracy to judge by"
+            verdict = "no accuracy stated"
         elif abs(diff) <= tolerance:
-            verdict = "agrees within the stated accuracy"
+            verdict = "agrees"
         else:
-            verdict = f"differs by {abs(diff) / tolerance:.1f}× the stated accuracy"
-        rows.append((e.label, predicted, fitted, f"{diff * 100:+.2f} %", verdict))
+            verdict = f"differs: {abs(diff) / tolerance:.1f}×"
+        rows.append((fkey, predicted, fitted, f"{diff * 100:+.2f} %", verdict))
     return rows
 
 
@@ -184,18 +185,11 @@ def compare(prediction: Prediction, fit: CoilFit):
     """A rich table of predicted beside fitted values for L, Rdc, C and the self-resonance."""
     from rich.table import Table
 
-    table = Table(
-        title="Predicted from geometry beside fitted from the sweep",
-        caption="agreement: |difference| within √(accuracy² + (2σ)²)",
-    )
-    for name, justify in (
-        ("quantity", "left"),
-        ("predicted", "right"),
-        ("fitted", "right"),
-        ("difference", "right"),
-        ("agreement", "left"),
-    ):
-        table.add_column(name, justify=justify)
+    table = Table(title="Predicted from geometry beside fitted from the sweep", caption=_AGREEMENT)
+    table.add_column("quantity")
+    for name in ("predicted", "fitted", "difference"):
+        table.add_column(name, justify="right", no_wrap=True)
+    table.add_column("agreement")
     for row in comparison_rows(prediction, fit):
         table.add_row(*row)
     return table
@@ -216,5 +210,5 @@ def compare_text(prediction: Prediction, fit: CoilFit) -> str:
             row[4],
         ]
         lines.append("  " + "  ".join(cells).rstrip())
-    lines.append("  agreement: |difference| within √(accuracy² + (2σ)²)")
+    lines.append(f"  {_AGREEMENT}")
     return "\n".join(lines)

@@ -1,0 +1,119 @@
+"""`acquire predict` and `acquire fit` from the command line: options in, readable output out."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from acquire.cli import main
+from acquire.coil import DEMO_COIL, fit_sweep, predict
+from acquire.csvout import write_sweep_csv
+from acquire.units import format_si
+
+DEMO_ARGS = [
+    "--turns", "150", "--diameter", "30mm", "--length", "45mm", "--awg", "30",
+    "--layers", "1", "--leads", "100mm", "--temperature", "23",
+]  # fmt: skip
+
+
+def _sweep(points: int = 121):
+    # A coil near the demo's (demo data): R + jωL with a √f rise, in parallel with C, 0.1 % noise.
+    f = np.geomspace(100.0, 10e6, points)
+    w = 2 * math.pi * f
+    r = 4.8 * (1 + (f / 100e3) ** 2) ** 0.25
+    z = 1 / (1 / (r + 1j * w * 340e-6) + 1j * w * 1.5e-12)
+    rng = np.random.default_rng(0)
+    return f, z * (1 + 1e-3 * rng.standard_normal(points))
+
+
+def test_predict_prints_the_demo_coil_with_methods(capsys):
+    assert main(["predict", *DEMO_ARGS, "--plain"]) == 0
+    out = capsys.readouterr().out
+    expected = predict(DEMO_COIL)
+    assert format_si(expected.inductance, "H") in out
+    assert format_si(expected.dc_resistance, "Ω") in out
+    assert format_si(expected.capacitance, "F") in out
+    assert "Nagaoka" in out and "Medhurst" in out and "Kelvin" in out
+    assert "± 0.50 %" in out and "lower bound" in out
+
+
+def test_predict_table_and_wire_diameter_option(capsys, monkeypatch):
+    monkeypatch.setenv("COLUMNS", "160")
+    args = [a if a != "--awg" else "--wire" for a in DEMO_ARGS]
+    args[args.index("--wire") + 1] = "0.2546mm"
+    assert main(["predict", *args, "--frequency", "10k, 2MHz"]) == 0
+    out = capsys.readouterr().out
+    assert "accuracy" in out and "method" in out
+    assert "AC resistance at 2.00 MHz" in out
+
+
+def test_predict_refuses_a_winding_that_does_not_fit(capsys):
+    args = list(DEMO_ARGS)
+    args[args.index("--length") + 1] = "30mm"
+    assert main(["predict", *args]) == 2
+    err = capsys.readouterr().err
+    assert "lengthen the winding or add layers" in err
+
+
+def test_predict_help_explains_the_trade_terms(capsys):
+    with pytest.raises(SystemExit):
+        main(["predict", "--help"])
+    out = capsys.readouterr().out
+    for term in ("self-resonant", "skin", "Nagaoka", "Medhurst", "Pitch", "proximity"):
+        assert term in out
+
+
+def test_fit_reads_a_csv_written_by_the_sweep_writer(tmp_path, capsys):
+    f, z = _sweep()
+    path = write_sweep_csv(tmp_path / "sweep.csv", f, z * 1.01, corrected=z)
+    assert main(["fit", str(path), "--plain"]) == 0
+    out = capsys.readouterr().out
+    fit = fit_sweep(f, z)
+    assert "corrected readings" in out
+    assert format_si(fit.inductance, "H") in out
+    assert format_si(fit.capacitance, "F") in out
+
+
+def test_fit_of_raw_only_csv_needs_the_raw_option(tmp_path, capsys):
+    f, z = _sweep()
+    path = write_sweep_csv(tmp_path / "raw.csv", f, z)
+    assert main(["fit", str(path)]) == 2
+    assert "--raw" in capsys.readouterr().err
+    assert main(["fit", str(path), "--raw", "--plain"]) == 0
+    assert "raw readings" in capsys.readouterr().out
+
+
+def test_fit_reads_a_stored_sweep_and_compares_with_the_geometry(tmp_path, capsys):
+    from acquire.store import open_store
+
+    f, z = _sweep()
+    url = f"sqlite:///{tmp_path / 'fit.db'}"
+    with open_store(url) as store:
+        writer = store.begin_sweep(dut="demo-coil")
+        writer.add_points(f[:60], z[:60] * 1.01, z[:60])
+        writer.add_points(f[60:], z[60:] * 1.01, z[60:])
+        writer.finish()
+        sweep_id = writer.id
+    assert main(["fit", str(sweep_id), "--store", url, *DEMO_ARGS, "--plain"]) == 0
+    out = capsys.readouterr().out
+    assert f"sweep {sweep_id} of demo-coil" in out
+    assert "Predicted from geometry beside fitted from the sweep" in out
+    assert format_si(predict(DEMO_COIL).inductance, "H") in out
+
+
+def test_fit_refuses_a_missing_file_and_a_missing_sweep(tmp_path, capsys):
+    assert main(["fit", str(tmp_path / "none.csv")]) == 2
+    assert "is not a file" in capsys.readouterr().err
+    url = f"sqlite:///{tmp_path / 'empty.db'}"
+    assert main(["fit", "7", "--store", url]) == 2
+    assert "no sweep 7" in capsys.readouterr().err
+
+
+def test_fit_options_force_the_model(tmp_path, capsys):
+    f, z = _sweep()
+    path = write_sweep_csv(tmp_path / "sweep.csv", f, z, corrected=z)
+    assert main(["fit", str(path), "--law", "constant", "--core-loss", "no", "--plain"]) == 0
+    out = capsys.readouterr().out
+    assert "constant R" in out and "no core-loss term" in out

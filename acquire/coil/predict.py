@@ -247,8 +247,8 @@ def _capacitance_estimates(g: CoilGeometry, inductance: float) -> list[Estimate]
     if g.layers > 1:
         reason = "no published method used here for multilayer windings"
         return [
-            Estimate("C", "self-capacitance", None, "F", "not predicted", None, reason),
-            Estimate("SRF", "self-resonant frequency", None, "Hz", "not predicted", None, reason),
+            Estimate("C", "self-capacitance", None, "F", "", None, reason),
+            Estimate("SRF", "self-resonant frequency", None, "Hz", "", None, reason),
         ]
     diameter = g.former_diameter + g.outer_wire
     try:
@@ -256,7 +256,7 @@ def _capacitance_estimates(g: CoilGeometry, inductance: float) -> list[Estimate]
     except ModelError as exc:
         return [
             Estimate("C", "self-capacitance", None, "F", "Medhurst 1947", None, str(exc)),
-            Estimate("SRF", "self-resonant frequency", None, "Hz", "not predicted", None, str(exc)),
+            Estimate("SRF", "self-resonant frequency", None, "Hz", "", None, str(exc)),
         ]
     srf = float(self_resonant_frequency(inductance, c))
     srf_accuracy = 0.5 * math.hypot(MEDHURST_ACCURACY, SINGLE_LAYER_L_ACCURACY)

@@ -105,7 +105,7 @@ def prediction_table(prediction: Prediction):
     table.add_column("accuracy", justify="right")
     table.add_column("method")
     for e in prediction.estimates:
-        method = e.method + (f"\n[dim]{e.note}[/dim]" if e.note else "")
+        method = "\n".join(filter(None, (e.method, f"[dim]{e.note}[/dim]" if e.note else "")))
         table.add_row(e.label, estimate_value(e), estimate_accuracy(e), method)
     return table
 
@@ -116,7 +116,8 @@ def prediction_text(prediction: Prediction) -> str:
     width = max(len(e.label) for e in prediction.estimates)
     for e in prediction.estimates:
         lines.append(f"  {e.label:<{width}}  {estimate_value(e):>14}  {estimate_accuracy(e)}")
-        lines.append(f"  {'':<{width}}  method: {e.method}")
+        if e.method:
+            lines.append(f"  {'':<{width}}  method: {e.method}")
         if e.note:
             lines.append(f"  {'':<{width}}  note:   {e.note}")
     return "\n".join(lines)

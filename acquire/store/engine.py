@@ -23,7 +23,9 @@ from __future__ import annotations
 
 import json
 import math
+import threading
 from collections.abc import Callable
+from functools import cache
 from typing import Any, TypeVar
 
 import numpy as np
@@ -62,7 +64,6 @@ def make_engine(location: StoreLocation) -> Engine:
         extra: dict[str, Any] = {"poolclass": StaticPool} if location.path is None else {}
         engine = create_engine(location.url, connect_args=args, json_serializer=to_json, **extra)
         event.listen(engine, "connect", _sqlite_connect)
-        event.listen(engine, "begin", _sqlite_begin)
         return engine
     args = {}
     if "connect_timeout" not in location.url.query:
@@ -82,18 +83,18 @@ def _sqlite_connect(dbapi_connection: Any, _record: Any) -> None:
     cursor.close()
 
 
-def _sqlite_begin(conn: Connection) -> None:
-    immediate = conn.get_execution_options().get("acquire_write", False)
-    conn.exec_driver_sql("BEGIN IMMEDIATE" if immediate else "BEGIN")
-
-
 def insert_ignoring_duplicates(conn: Connection, table: Table, index_elements: list[str]):
     """An INSERT into ``table`` that silently skips rows clashing on ``index_elements``."""
-    if conn.dialect.name == "postgresql":
+    return insert_ignoring(conn.dialect.name, table, tuple(index_elements))
+
+
+@cache
+def insert_ignoring(dialect: str, table: Table, index_elements: tuple[str, ...]):
+    if dialect == "postgresql":
         from sqlalchemy.dialects.postgresql import insert
     else:
         from sqlalchemy.dialects.sqlite import insert
-    return insert(table).on_conflict_do_nothing(index_elements=index_elements)
+    return insert(table).on_conflict_do_nothing(index_elements=list(index_elements))
 
 
 def finite_or_none(value: float | None) -> float | None:
@@ -118,12 +119,21 @@ class _StaleConnection(Exception):
 
 
 class Database:
-    """An engine plus the rules for running one transaction against it."""
+    """An engine plus the rules for running one transaction against it.
+
+    Each thread keeps one connection open for the life of the store (opening and returning a
+    pooled connection for every unit would cost more than writing the unit).
+    """
 
     def __init__(self, location: StoreLocation) -> None:
         self.location = location
         self.engine = make_engine(location)
         self.is_postgres = location.engine == "postgresql"
+        self._local = threading.local()
+        self._lock = threading.Lock()
+        self._connections: list[Connection] = []
+        if not self.is_postgres:
+            event.listen(self.engine, "begin", self._sqlite_begin)
 
     def read(self, action: str, work: Callable[[Connection], T]) -> T:
         """Run ``work(conn)`` in a read transaction (retried once after a lost connection)."""
@@ -149,19 +159,34 @@ class Database:
                 raise self.error(action, exc) from exc
         raise AssertionError("unreachable")  # pragma: no cover
 
+    def _connection(self) -> Connection:
+        conn = getattr(self._local, "conn", None)
+        if conn is not None and not conn.closed and not conn.invalidated:
+            return conn
+        if conn is not None:
+            conn.close()
+        conn = self.engine.connect()
+        with self._lock:
+            self._connections = [c for c in self._connections if not c.closed] + [conn]
+        self._local.conn = conn
+        return conn
+
+    def _sqlite_begin(self, conn: Connection) -> None:
+        immediate = getattr(self._local, "write", False)
+        conn.connection.driver_connection.execute("BEGIN IMMEDIATE" if immediate else "BEGIN")
+
     def _once(self, work: Callable[[Connection], T], write: bool, check: bool) -> T:
-        with self.engine.connect() as conn:
-            if write:
-                conn.execution_options(acquire_write=True)
-            with conn.begin():
-                if check:
-                    try:
-                        conn.exec_driver_sql("SELECT 1")
-                    except DBAPIError as exc:
-                        if exc.connection_invalidated:
-                            raise _StaleConnection() from exc
-                        raise
-                return work(conn)
+        conn = self._connection()
+        self._local.write = write
+        with conn.begin():
+            if check:
+                try:
+                    conn.exec_driver_sql("SELECT 1")
+                except DBAPIError as exc:
+                    if exc.connection_invalidated:
+                        raise _StaleConnection() from exc
+                    raise
+            return work(conn)
 
     def error(self, action: str, exc: BaseException | None) -> StoreError:
         """A StoreError for a failed ``action`` that says what to check."""
@@ -184,5 +209,9 @@ class Database:
         return StoreError(f"{action} failed in store {where}: {detail} ({hint})")
 
     def dispose(self) -> None:
-        """Close every pooled connection."""
+        """Close every connection of every thread, and the pool."""
+        with self._lock:
+            for conn in self._connections:
+                conn.close()
+            self._connections = []
         self.engine.dispose()

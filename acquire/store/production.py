@@ -15,7 +15,13 @@ from sqlalchemy import Connection, and_, case, func, select
 
 from acquire.errors import StoreError
 from acquire.store.catalog import get_or_create, lot_row
-from acquire.store.engine import Database, finite_or_none, insert_ignoring_duplicates
+from acquire.store.driver_insert import DriverInsert
+from acquire.store.engine import (
+    Database,
+    finite_or_none,
+    insert_ignoring,
+    insert_ignoring_duplicates,
+)
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
 from acquire.store.schema import TABLES, identity_key, utc_now
 
@@ -70,18 +76,35 @@ def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> d
     return found
 
 
+_UNIT_COLUMNS = (*_UNIT_FIELDS, "serial_key", "lot_id", "saved_at")
+_MEASUREMENT_COLUMNS = ("unit_id", "seq", "parameter", "frequency", "value", "si_unit")
+_MEASUREMENT_COLUMNS += ("low_limit", "high_limit", "verdict")
+
+
+def _unit_inserts() -> dict[str, DriverInsert]:
+    units, measurements = TABLES["units"], TABLES["measurements"]
+    found = {}
+    for dialect in ("sqlite", "postgresql"):
+        ignoring = insert_ignoring(dialect, units, ("attempt_id",)).returning(units.c.id)
+        found[dialect] = DriverInsert(ignoring, units, _UNIT_COLUMNS)
+    found["measurements"] = DriverInsert(measurements.insert(), measurements, _MEASUREMENT_COLUMNS)
+    return found
+
+
+_INSERTS = _unit_inserts()
+
+
 def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool:
     """Store ``unit`` with its measurements in one transaction; False if already stored."""
-    units, measurements = TABLES["units"], TABLES["measurements"]
 
     def work(conn: Connection) -> tuple[bool, dict[str, int]]:
         lots = _lot_ids(conn, [unit.lot], lot_cache)
-        insert = insert_ignoring_duplicates(conn, units, ["attempt_id"]).returning(units.c.id)
-        unit_id = conn.execute(insert, _unit_row(unit, lots.get(unit.lot))).scalar()
+        row = _unit_row(unit, lots.get(unit.lot))
+        unit_id = _INSERTS[conn.dialect.name].returning_one(conn, row)
         if unit_id is None:
             return False, lots
         if unit.measurements:
-            conn.execute(measurements.insert(), _measurement_rows(unit_id, unit))
+            _INSERTS["measurements"].many(conn, _measurement_rows(unit_id, unit))
         return True, lots
 
     stored, lots = db.write("saving a unit", work, idempotent=True)

@@ -154,16 +154,19 @@ def _main(argv: list[str] | None = None) -> int:
     args = p.parse_args(argv)
     stored = replayed_new = 0
     with open_store(args.url, schema=args.schema) as store:
-        units = [
+        units = (
             synthetic_unit(i, args.lot, args.worker, args.measurements) for i in range(args.count)
-        ]
+        )
         if args.start_at is not None:
+            units = list(units)
             time.sleep(max(0.0, args.start_at - time.time()))
         began = time.perf_counter()
+        recent: list[UnitRecord] = []
         for i, unit in enumerate(units):
             stored += store.save_unit(unit)
+            recent = [*recent[-5:], unit]
             if i % 10 == 9:
-                store.save_unit(units[i - 5])
+                store.save_unit(recent[0])
         if args.replay_worker is not None:
             for i in range(args.replay):
                 unit = synthetic_unit(i, args.lot, args.replay_worker, args.measurements)

@@ -18,7 +18,8 @@ from acquire.coil.constants import (
     COPPER_TEMPERATURE_COEFFICIENT,
     MU0,
 )
-from acquire.coil.fit import CoilFit, FittedValue, fit_sweep
+from acquire.coil.fit import fit_sweep
+from acquire.coil.fitresult import CoilFit, FittedValue
 from acquire.coil.multilayer import (
     coaxial_mutual_inductance,
     layered_turns,

@@ -51,3 +51,16 @@ def coil_impedance(
     omega = 2.0 * math.pi * f
     series = series_resistance(f, rdc, corner, exponent) + omega * inductance * (loss_tangent + 1j)
     return series / (1.0 + 1j * omega * capacitance * series)
+
+
+def impedance_from_parameters(frequency: ArrayLike, p: dict[str, float]) -> np.ndarray:
+    """:func:`coil_impedance` from a dict with keys L, Rdc and optionally Cp, fc, n, tand."""
+    return coil_impedance(
+        frequency,
+        p["L"],
+        p["Rdc"],
+        p.get("Cp", 0.0),
+        p.get("fc"),
+        p.get("n", SKIN_EXPONENT),
+        p.get("tand", 0.0),
+    )

@@ -23,14 +23,15 @@ not determined with the reason.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from itertools import product
 
 import numpy as np
 from numpy.typing import ArrayLike
 from scipy.optimize import brentq, least_squares
 
-from acquire.coil.circuit import SKIN_EXPONENT, coil_impedance
+from acquire.coil.circuit import SKIN_EXPONENT, impedance_from_parameters
+from acquire.coil.fitresult import CoilFit, FittedValue
 from acquire.coil.fitstart import StartValues, clean_sweep, start_values
 from acquire.errors import ModelError
 from acquire.units import format_si
@@ -39,90 +40,6 @@ LAWS = ("constant", "skin", "power")
 _LINEAR = {"n"}
 _LIMITS = {"L": 0.2, "Rdc": 0.25, "Cp": 0.2, "fc": 0.5, "n": 0.5, "tand": 0.5}
 _GRID = 4000
-
-
-@dataclass(frozen=True)
-class FittedValue:
-    """One reported result; ``value`` None means not determined (``note`` says why)."""
-
-    key: str
-    label: str
-    value: float | None
-    sigma: float | None
-    unit: str
-    note: str = ""
-
-    @property
-    def determined(self) -> bool:
-        """True when the data supports a value."""
-        return self.value is not None
-
-    @property
-    def relative_sigma(self) -> float | None:
-        """1σ uncertainty as a fraction of the value."""
-        if self.value is None or self.sigma is None or self.value == 0:
-            return None
-        return abs(self.sigma / self.value)
-
-
-@dataclass(frozen=True)
-class CoilFit:
-    """The fitted equivalent circuit of one sweep."""
-
-    frequency_range: tuple[float, float]
-    points: int
-    dropped: int
-    resistance_law: str
-    core_loss: bool
-    values: tuple[FittedValue, ...]
-    residual: float
-    parameters: tuple[tuple[str, float], ...]
-    start: StartValues
-    notes: tuple[str, ...] = field(default_factory=tuple)
-
-    def get(self, key: str) -> FittedValue:
-        """The result named ``key``: L, Rdc, fc, n, Cp, tand, SRF, Qmax, fQmax."""
-        for value in self.values:
-            if value.key == key:
-                return value
-        raise KeyError(key)
-
-    @property
-    def inductance(self) -> float:
-        """Fitted L (henry)."""
-        value = self.get("L").value
-        return float("nan") if value is None else value
-
-    @property
-    def rdc(self) -> float | None:
-        """Fitted Rdc (ohm), None if not determined."""
-        return self.get("Rdc").value
-
-    @property
-    def capacitance(self) -> float | None:
-        """Fitted Cp (farad), None if not determined."""
-        return self.get("Cp").value
-
-    @property
-    def self_resonance(self) -> float | None:
-        """Self-resonant frequency (hertz), None if not in the sweep."""
-        return self.get("SRF").value
-
-    def impedance(self, frequency: ArrayLike) -> np.ndarray:
-        """The fitted circuit's impedance (ohm) at ``frequency`` (hertz)."""
-        return _impedance(np.asarray(frequency, dtype=float), dict(self.parameters))
-
-    def table(self):
-        """A :class:`rich.table.Table` of the results."""
-        from acquire.coil.report import fit_table
-
-        return fit_table(self)
-
-    def text(self) -> str:
-        """The results as aligned plain text."""
-        from acquire.coil.report import fit_text
-
-        return fit_text(self)
 
 
 @dataclass(frozen=True)
@@ -155,24 +72,12 @@ class _Solution:
     at_limit: np.ndarray
 
 
-def _impedance(f: np.ndarray, p: dict[str, float]) -> np.ndarray:
-    return coil_impedance(
-        f,
-        p["L"],
-        p["Rdc"],
-        p.get("Cp", 0.0),
-        p.get("fc"),
-        p.get("n", SKIN_EXPONENT),
-        p.get("tand", 0.0),
-    )
-
-
 def _unpack(names: tuple[str, ...], theta: np.ndarray) -> dict[str, float]:
     return {n: float(t if n in _LINEAR else math.exp(t)) for n, t in zip(names, theta, strict=True)}
 
 
 def _residuals(theta, names, f, z, scale) -> np.ndarray:
-    err = (_impedance(f, _unpack(names, theta)) - z) / scale
+    err = (impedance_from_parameters(f, _unpack(names, theta)) - z) / scale
     return np.concatenate([err.real, err.imag])
 
 
@@ -240,17 +145,19 @@ def _propagate(func, theta: np.ndarray, cov: np.ndarray) -> float | None:
 def _phase_zero(names, theta, f_lo: float, f_hi: float) -> float | None:
     p = _unpack(names, theta)
     grid = np.geomspace(f_lo, f_hi, _GRID)
-    x = _impedance(grid, p).imag
+    x = impedance_from_parameters(grid, p).imag
     change = np.flatnonzero((x[:-1] > 0) & (x[1:] <= 0))
     if change.size == 0:
         return None
     i = int(change[0])
-    return float(brentq(lambda v: _impedance(np.array([v]), p).imag[0], grid[i], grid[i + 1]))
+    return float(
+        brentq(lambda v: impedance_from_parameters(np.array([v]), p).imag[0], grid[i], grid[i + 1])
+    )
 
 
 def _q_peak(names, theta, f_lo: float, f_hi: float) -> tuple[float, float, bool]:
     grid = np.geomspace(f_lo, f_hi, _GRID)
-    z = _impedance(grid, _unpack(names, theta))
+    z = impedance_from_parameters(grid, _unpack(names, theta))
     q = np.where(z.imag > 0, z.imag / np.maximum(z.real, 1e-300), -np.inf)
     i = int(np.argmax(q))
     return float(q[i]), float(grid[i]), i in (0, grid.size - 1)
@@ -379,7 +286,7 @@ def _report(sol: _Solution, s: StartValues, f, z, dropped: int) -> CoilFit:
     q_sig = _propagate(lambda t: _q_peak(names, t, f_lo, f_hi)[0], theta, cov)
     values.append(FittedValue("Qmax", "maximum Q", q, q_sig, "", q_note))
     values.append(FittedValue("fQmax", "frequency of maximum Q", fq, None, "Hz", q_note))
-    model = _impedance(f, p)
+    model = impedance_from_parameters(f, p)
     residual = float(np.sqrt(np.mean(np.abs((model - z) / np.abs(z)) ** 2)))
     if s.resonance is None and sol.candidate.capacitance:
         notes.append(

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import math
 
-from acquire.coil.fit import CoilFit, FittedValue
+from acquire.coil.fitresult import CoilFit, FittedValue
 from acquire.coil.predict import CoilGeometry, Estimate, Prediction
 from acquire.units import format_si
 

@@ -172,7 +172,7 @@ def compare_with_truth(run: DemoRun) -> None:
 def finish(run: DemoRun) -> None:
     """Say where everything is."""
     path = getattr(run.store, "path", None)
-    where = str(path) if path else run.store.url
+    where = str(path.resolve()) if path else run.store.url
     run.console.print(
         f"\n{run.outcome.message(run.store.url) if run.outcome else 'no sweep was made'}\n"
         f"store: {where}\n"

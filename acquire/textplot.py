@@ -53,7 +53,8 @@ def y_limits(y: np.ndarray, log: bool) -> tuple[float, float] | None:
         pad = abs(lo) * 0.01 or 1.0
         return lo - pad, hi + pad
     pad = 0.05 * (hi - lo)
-    return lo - pad, hi + pad
+    low = lo - pad if lo - pad >= 0 or float(v.min()) < 0 else 0.0
+    return low, hi + pad
 
 
 def wants_log(y: np.ndarray) -> bool:
@@ -156,7 +157,11 @@ def x_axis(x_range: tuple[float, float], width: int, unit: str = "Hz") -> str:
 
 
 def y_labels(plot: Plot, unit: str, digits: int = 3) -> list[str]:
-    """Labels for the top, middle and bottom rows of ``plot`` (others blank), right-aligned."""
+    """Labels for the top, middle and bottom rows of ``plot`` (others blank), right-aligned.
+
+    ``digits`` significant digits, or up to three more where fewer would print the same label
+    twice (a narrow range).
+    """
     lo, hi = plot.y_range
     n = len(plot.rows)
     share = (4 * (n // 2) + 1.5) / max(4 * n - 1, 1)
@@ -164,10 +169,14 @@ def y_labels(plot: Plot, unit: str, digits: int = 3) -> list[str]:
         mid = 10 ** (math.log10(hi) - share * (math.log10(hi) - math.log10(lo)))
     else:
         mid = hi - share * (hi - lo)
-    labels = [""] * n
-    labels[0] = format_si(hi, unit, digits)
-    labels[-1] = format_si(lo, unit, digits)
-    if n >= 5:
-        labels[n // 2] = format_si(mid, unit, digits)
+    for d in range(digits, digits + 4):
+        labels = [""] * n
+        labels[0] = format_si(hi, unit, d)
+        labels[-1] = format_si(lo, unit, d)
+        if n >= 5:
+            labels[n // 2] = format_si(mid, unit, d)
+        shown = [s for s in labels if s]
+        if len(set(shown)) == len(shown):
+            break
     size = max(len(s) for s in labels)
     return [s.rjust(size) for s in labels]

@@ -121,7 +121,7 @@ def test_sweep_without_reference_stores_raw_readings(tmp_path, capsys):
 @pytest.mark.parametrize(
     "args, fragment",
     [
-        (["sweep", "--resource", "TCPIP0::127.0.0.1::9::SOCKET"], "could not reopen"),
+        (["sweep", "--resource", "TCPIP0::127.0.0.1::9::SOCKET"], "127.0.0.1::9::SOCKET"),
         (["sweep", "--resource", "X", "--start", "10MHz", "--stop", "1kHz"], "must be above"),
         (["sweep", "--resource", "X", "--show", "Lx"], "unknown quantity 'Lx'"),
         (["sweep", "--resource", "X", "--list", "1k", "--points", "5"], "--points goes with"),

@@ -62,7 +62,7 @@ def test_drop_closes_the_connection_at_the_nth_message(rm, sim, meter):
 
 def test_stall_withholds_one_reply_and_the_session_goes_on(meter):
     assert meter.query("SIM:FAUL STAL,2;*IDN?").startswith(IDN_PREFIX)
-    assert meter.query("FREQ?") == "+1.0000000000000000E+03"
+    assert meter.query("FREQ?") == "+1E+03"
     assert times_out(meter, "*IDN?")
     assert meter.query("*IDN?").startswith(IDN_PREFIX)
 

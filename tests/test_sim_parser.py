@@ -149,6 +149,14 @@ def test_block_format():
     assert block(b"x" * 1234) == b"#41234" + b"x" * 1234
 
 
+def test_number_replies_are_short_nr3():
+    assert format_number(1000.0) == "+1E+03"
+    assert format_number(9.9e37) == "+9.9E+37"
+    assert format_number(9.91e37) == "+9.91E+37"
+    assert format_number(-0.0706461267411556) == "-7.06461267411556E-02"
+    assert format_number(0.0) == "+0E+00"
+
+
 @given(st.floats(allow_nan=False, allow_infinity=False))
 def test_numbers_round_trip_exactly(value):
     assert float(format_number(value)) == value

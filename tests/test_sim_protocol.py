@@ -116,8 +116,8 @@ def test_rst_restores_defaults(meter):
         "FREQ:MODE?;LIST:FREQ:POIN?"
     )
     assert reply.split(";") == [
-        "+1.0000000000000000E+03",
-        "+1.0000000000000000E+00",
+        "+1E+03",
+        "+1E+00",
         "MED",
         "1",
         "IMM",

@@ -264,8 +264,14 @@ def string(text: str) -> str:
 
 
 def format_number(value: float) -> str:
-    """A float with 17 significant digits (round-trips float64): ``+1.0000000000000000E+03``."""
-    return f"{value:+.16E}"
+    """A float in NR3 form with the fewest digits that read back as the same float64.
+
+    ``+1E+03``, ``+9.9E+37``, ``-3.4339163793418222E-04`` (at most 17 significant digits).
+    """
+    text = repr(abs(float(value)))
+    digits = len(text.split("e")[0].replace(".", "").strip("0")) or 1
+    out = f"{value:+.{digits - 1}E}"
+    return out if float(out) == value else f"{value:+.16E}"
 
 
 def quote(text: str) -> str:

@@ -8,7 +8,8 @@ warnings are shown and the reading is kept. The operator is an object with three
 terminal (:class:`ConsoleOperator`), a test or the demo can answer the prompts.
 
 :func:`reference_warnings` says what to beware of when a stored set is used for a sweep: its age,
-and whether it was captured on another meter or fixture.
+and whether it was captured on another meter or fixture; :func:`dut_warnings` what the set's
+checks say about the part measured through it.
 """
 
 from __future__ import annotations
@@ -238,4 +239,21 @@ def reference_warnings(
     if fixture and refs.fixture and refs.fixture != fixture:
         out.append(f"the reference set was captured on another fixture ({refs.fixture})")
     out += [f"reference {f.standard}: {f.message}" for f in refs.check()]
+    return out
+
+
+def dut_warnings(refs: ReferenceSet, f: np.ndarray, z: np.ndarray) -> list[str]:
+    """What :meth:`ReferenceSet.check` says about a DUT measured through ``refs`` (readings
+    ``z`` at ``f``), beyond what it says about the references alone: where the fixture limits
+    accuracy (the DUT within 10x of the short residual, or the open within 10x of the DUT)."""
+    if np.asarray(f).size == 0:
+        return []
+    known = Counter((x.standard, x.message) for x in refs.check())
+    out = []
+    for finding in refs.check(dut=z, f=f):
+        key = (finding.standard, finding.message)
+        if known[key]:
+            known[key] -= 1
+            continue
+        out.append(finding.message)
     return out

@@ -21,7 +21,7 @@ import numpy as np
 from rich.console import Console
 from rich.table import Table
 
-from acquire.capture import SAFETY, capture_references
+from acquire.capture import SAFETY, capture_references, dut_warnings
 from acquire.dashboard import open_view, summary
 from acquire.plan import FrequencyPlan, log_plan
 from acquire.progress import SweepState
@@ -135,6 +135,8 @@ def sweep(run: DemoRun) -> None:
     state.destination = f"sweep {writer.id} in {run.store.url}"
     with open_view(state, live=run.live, console=run.console) as view:
         run.outcome = run_sweep(run.meter, run.plan, run.references, writer, state, view.update)
+    for w in dut_warnings(run.references, run.outcome.frequency, run.outcome.raw):
+        state.warn(w)
     run.state = state
     run.console.print(summary(state))
 

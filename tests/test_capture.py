@@ -7,7 +7,7 @@ from datetime import UTC, datetime, timedelta
 import numpy as np
 import pytest
 
-from acquire.capture import ConsoleOperator, capture_references, reference_warnings
+from acquire.capture import ConsoleOperator, capture_references, dut_warnings, reference_warnings
 from acquire.compensation import ReferenceSet
 from acquire.errors import CompensationError
 from acquire.plan import log_plan
@@ -163,3 +163,19 @@ def test_reference_warnings_name_age_meter_and_fixture():
     assert "captured on another meter (meter one)" in found[1]
     assert "captured on another fixture (clips A)" in found[2]
     assert reference_warnings(refs, "meter one", "clips A", max_age=None, now=now) == []
+
+
+def test_dut_warnings_apply_the_ten_times_rule_to_the_part():
+    # The 10x rule of thumb (common practice, no published source): a DUT within 10x of the
+    # short residual is measured with reduced accuracy.
+    f = np.array([1e3, 1e4, 1e5])
+    refs = ReferenceSet(
+        frequency=f,
+        open=-1j / (2 * np.pi * f * 5e-12),
+        short=0.05 + 2j * np.pi * f * 1e-6,
+    )
+    small = np.full(3, 0.2 + 0.0j)  # 0.2 ohm against a 0.05 ohm short
+    found = dut_warnings(refs, f, small)
+    assert len(found) == 1 and "within 10x of the short residual" in found[0]
+    assert dut_warnings(refs, f, np.full(3, 100.0 + 0j)) == []
+    assert dut_warnings(refs, f[:0], small[:0]) == []

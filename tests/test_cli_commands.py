@@ -77,6 +77,8 @@ def test_capture_then_sweep_with_the_stored_reference_and_csv(tmp_path, monkeypa
     out = captured.out
     assert "sweep: 11 points, log, 1.000 kHz to 100.0 kHz" in out
     assert "raw vs corrected" in out
+    # A 10 uH coil at 1 kHz is about 0.08 ohm, as small as the long leads' short residual.
+    assert "warning: the DUT's |Z| is within 10x of the short residual" in " ".join(out.split())
     assert f"sweep complete: 11 points saved as sweep 1 in {url}" in " ".join(out.split())
     table = pd.read_csv(csv_path)
     assert list(table.columns)[:5] == [

@@ -114,6 +114,7 @@ def parse_show(text: str) -> tuple[str, ...]:
 def run(args: argparse.Namespace) -> int:
     from rich.console import Console
 
+    from acquire.capture import dut_warnings
     from acquire.commands.reference import find_reference_set
     from acquire.csvout import write_sweep_csv
     from acquire.dashboard import open_view, summary
@@ -142,6 +143,9 @@ def run(args: argparse.Namespace) -> int:
             state.destination = f"sweep {writer.id} in {store.url}"
             with open_view(state, live=not args.no_live, console=console) as view:
                 outcome = run_sweep(meter, plan, refs, writer, state, on_progress=view.update)
+        if refs is not None:
+            for w in dut_warnings(refs, outcome.frequency, outcome.raw):
+                state.warn(w)
         console.print(summary(state))
         if args.csv:
             path = write_sweep_csv(

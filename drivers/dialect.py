@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from drivers.errors import DialectError
-from drivers.readings import QUANTITIES, is_supported, supported_pairs
+from drivers.readings import QD_SIGNS, QUANTITIES, is_supported, supported_pairs
 
 DIRECTORY = Path(__file__).resolve().parent / "dialects"
 SCHEMA = 1
@@ -100,6 +100,7 @@ class Dialect:
     description: str
     operations: dict[str, Operation] = field(repr=False)
     pair: tuple[str, str]
+    qd_sign: str
     frequency_min: float
     frequency_max: float
     point_sequence: tuple[str, ...]
@@ -248,7 +249,7 @@ class _Checker:
         operations = self.operations()
         conn = self.connection()
         fmin, fmax = self.frequency()
-        pair = self.reading()
+        pair, qd_sign = self.reading()
         transfer = self.transfer(operations)
         list_max, list_min = self.list_limits()
         point, lst, settle = self.sequences(operations, list_max > 0)
@@ -263,6 +264,7 @@ class _Checker:
             description=self.get(top, "description", str, ""),
             operations=operations,
             pair=pair,
+            qd_sign=qd_sign,
             frequency_min=fmin,
             frequency_max=fmax,
             point_sequence=point,
@@ -315,9 +317,9 @@ class _Checker:
             raise self.fail("frequency.max", f"must be above frequency.min ({fmin} Hz)")
         return fmin, fmax
 
-    def reading(self) -> tuple[str, str]:
+    def reading(self) -> tuple[tuple[str, str], str]:
         t = self.table("reading", required=True)
-        self.unknown(t, "reading.", {"pair"})
+        self.unknown(t, "reading.", {"pair", "qd_sign"})
         pair = self.get(t, "reading.pair", list)
         if len(pair) != 2 or not all(isinstance(p, str) for p in pair):
             raise self.fail("reading.pair", "must be a list of two quantity names")
@@ -329,7 +331,10 @@ class _Checker:
         if not is_supported((pair[0], pair[1])):
             pairs = ", ".join(f"{a},{b}" for a, b in supported_pairs())
             raise self.fail("reading.pair", f"{pair} cannot be turned into impedance; use {pairs}")
-        return pair[0], pair[1]
+        qd_sign = self.get(t, "reading.qd_sign", str, "signed")
+        if qd_sign not in QD_SIGNS:
+            raise self.fail("reading.qd_sign", f"must be one of {', '.join(QD_SIGNS)}")
+        return (pair[0], pair[1]), qd_sign
 
     def transfer(self, operations: dict[str, Operation]) -> dict[str, Any]:
         t = self.table("transfer")
@@ -404,11 +409,11 @@ class _Checker:
         for step in steps:
             if step not in ops:
                 raise self.fail(key, f"names {step!r}, which has no [operations.{step}] table")
-        queries = [s for s in steps if ops[s].query]
-        if not queries or ops[queries[-1]].reply != "readings":
-            raise self.fail(key, "must end its queries with one returning readings (read/fetch)")
-        if any(ops[s].reply != "ack" for s in queries[:-1]):
-            raise self.fail(key, "queries before the reading must be acknowledgements (wait)")
+        replies = [ops[s].reply for s in steps if ops[s].query]
+        if replies.count("readings") != 1:
+            raise self.fail(key, "must hold exactly one query returning readings (read/fetch)")
+        if any(r not in ("readings", "ack") for r in replies):
+            raise self.fail(key, "its other queries may only be acknowledgements (wait)")
         context = SEQUENCE_PLACEHOLDERS[which]
         seen: set[str] = set()
         for step in steps:

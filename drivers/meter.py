@@ -304,8 +304,10 @@ class ImpedanceMeter:
             )
             values[2 * i : 2 * i + 2] = chunk
             if on_points is not None:
-                on_points(f[i : i + 1].copy(), readings.from_flat(d.pair, f[i : i + 1], chunk))
-        return readings.from_flat(d.pair, f, values)
+                on_points(
+                    f[i : i + 1].copy(), readings.from_flat(d.pair, f[i : i + 1], chunk, d.qd_sign)
+                )
+        return readings.from_flat(d.pair, f, values, d.qd_sign)
 
     def _sweep_list(self, f: np.ndarray, on_points: OnPoints | None) -> np.ndarray:
         d = self._dialect
@@ -321,7 +323,7 @@ class ImpedanceMeter:
                     [(op, c) for op in steps], n, t
                 ),
             )
-            z = readings.from_flat(d.pair, part, values)
+            z = readings.from_flat(d.pair, part, values, d.qd_sign)
             out[start:stop] = z
             if on_points is not None:
                 on_points(part.copy(), z)
@@ -371,7 +373,9 @@ class ImpedanceMeter:
             time.sleep(d.settle)
             steps = steps[cut:]
         binary = self._transfer == "binary"
-        reply = self._exchange(steps, timeout=timeout, binary=binary)[-1]
+        replies = self._exchange(steps, timeout=timeout, binary=binary)
+        queries = [op for op, _ in steps if op.query]
+        reply = next(r for r, op in zip(replies, queries, strict=True) if op.reply == "readings")
         if binary:
             raw, offset, length = reply
             values = scpi.block_values(raw, offset, length, d.datatype, d.big_endian)
@@ -389,43 +393,54 @@ class ImpedanceMeter:
         binary: bool = False,
     ) -> list:
         """Send the steps (as one compound message when the dialect allows) and return the
-        replies of the queries, acknowledgements checked. With ``binary`` the last query's
-        reply is ``(raw, offset, length)`` of its block."""
+        replies of the queries in order, acknowledgements checked. With ``binary`` the reply
+        of the readings query is ``(raw, offset, length)`` of its block."""
         d = self._dialect
         texts = [op.format(**values) for op, values in steps]
         queries = [op for op, _ in steps if op.query]
+        blocks = binary and any(op.reply == "readings" for op in queries)
         if not d.compound:
             replies: list = []
             for (op, _), text in zip(steps, texts, strict=True):
                 if not op.query:
                     self._session.write(text)
-                elif binary and op is queries[-1]:
-                    _, raw, offset, length = self._session.query_block(text, timeout)
-                    replies.append((raw, offset, length))
+                elif blocks and op.reply == "readings":
+                    replies.append(self._block(text, timeout, 1, 1))
                 else:
                     replies.append(self._session.query(text, timeout))
-            return self._acknowledged(replies, queries, binary)
+            return self._acknowledged(replies, queries)
         message = d.separator.join(texts)
         if not queries:
             self._session.write(message)
             return []
-        if binary:
-            prefix, raw, offset, length = self._session.query_block(message, timeout)
-            parts = prefix.split(d.reply_separator) if prefix else [""]
-            if parts[-1] != "" or len(parts) != len(queries):
-                raise ReplyError(f"unexpected text {prefix[:40]!r} before the binary block")
-            return self._acknowledged(parts[:-1] + [(raw, offset, length)], queries, binary)
-        reply = self._session.query(message, timeout)
-        parts = reply.split(d.reply_separator) if len(queries) > 1 else [reply]
+        if blocks:
+            at = [op.reply for op in queries].index("readings")
+            parts = self._block(message, timeout, at + 1, len(queries) - at)
+        else:
+            reply = self._session.query(message, timeout)
+            parts = reply.split(d.reply_separator) if len(queries) > 1 else [reply]
         if len(parts) != len(queries):
             raise ReplyError(
                 f"expected {len(queries)} replies joined by {d.reply_separator!r}, "
-                f"got {len(parts)} (starting {reply[:40]!r})"
+                f"got {len(parts)} (starting {str(parts[0])[:40]!r})"
             )
-        return self._acknowledged(parts, queries, binary)
+        return self._acknowledged(parts, queries)
+
+    def _block(self, message: str, timeout: float | None, before: int, after: int) -> list:
+        """The replies around a binary block: ``before - 1`` texts, the block, ``after - 1``."""
+        sep = self._dialect.reply_separator
+        prefix, raw, offset, length, suffix = self._session.query_block(message, timeout)
+        head = prefix.split(sep) if before > 1 else [prefix]
+        tail = suffix.split(sep) if after > 1 else [suffix]
+        if len(head) != before or head[-1] != "" or len(tail) != after or tail[0] != "":
+            raise ReplyError(
+                f"unexpected text around the binary block: {prefix[:30]!r} before, "
+                f"{suffix[:30]!r} after"
+            )
+        return head[:-1] + [(raw, offset, length)] + tail[1:]
 
     @staticmethod
-    def _acknowledged(replies: list, queries: list[Operation], binary: bool) -> list:
+    def _acknowledged(replies: list, queries: list[Operation]) -> list:
         for reply, op in zip(replies, queries, strict=True):
             if op.reply == "ack":
                 try:

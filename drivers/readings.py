@@ -11,10 +11,13 @@ Conventions (series quantities carry an ``s``, parallel ones a ``p``; omega = 2 
 - R, X: Z = R + jX.  Z, theta_deg / theta_rad: Z = |Z| exp(j theta).  G, B: Y = G + jB = 1/Z.
 - Ls: X = omega Ls.  Cs: X = -1/(omega Cs).  Rs: the series resistance R.
 - Lp: B = -1/(omega Lp).  Cp: B = omega Cp.  Rp: G = 1/Rp.
-- Q and D (= 1/Q) are those of the named equivalent: for a series inductance Q = omega Ls / Rs,
-  for a series capacitance D = omega Cs Rs, for a parallel inductance Q = Rp / (omega Lp),
-  for a parallel capacitance D = G / (omega Cp). Each is positive for a lossy part of the kind
-  the mode assumes.
+- Q and D = 1/Q, with the sign convention the dialect names (``qd_sign``):
+
+  ``"signed"``: Q = X/R and D = R/X for every pair (negative for a capacitive reading); for the
+  parallel pairs this is the same number as -B/G (the ratio |X|/R equals |B|/G).
+  ``"by_mode"``: Q and D are positive for a lossy part of the kind the pair names, so with Cs
+  or Cp they are the negatives of the signed values (D = omega Cs Rs, D = G/(omega Cp)); with
+  Ls or Lp the two conventions agree (Q = omega Ls/Rs = Rp/(omega Lp)).
 
 SCPI-99 reports an overrange value as 9.9E37 and an invalid one as 9.91E37; a point where
 either number of its pair is overrange becomes ``complex(inf, inf)``, and one where either is
@@ -110,12 +113,12 @@ def _cs_rs(cs, rs, f):
 
 def _cs_d(cs, d, f):
     x = _series_c(cs, _omega(f))
-    return _from_rx(-d * x, x)
+    return _from_rx(d * x, x)
 
 
 def _cs_q(cs, q, f):
     x = _series_c(cs, _omega(f))
-    return _from_rx(-x / q, x)
+    return _from_rx(x / q, x)
 
 
 def _lp_rp(lp, rp, f):
@@ -138,15 +141,19 @@ def _cp_rp(cp, rp, f):
 
 def _cp_d(cp, d, f):
     b = _parallel_c(cp, _omega(f))
-    return _from_gb(d * b, b)
+    return _from_gb(-d * b, b)
 
 
 def _cp_q(cp, q, f):
     b = _parallel_c(cp, _omega(f))
-    return _from_gb(b / q, b)
+    return _from_gb(-b / q, b)
 
 
-#: Every supported pair, in its canonical order, and how it becomes Z(first, second, f).
+#: Sign conventions for Q and D (see the module docstring).
+QD_SIGNS = ("signed", "by_mode")
+
+#: Every supported pair, in its canonical order, and how it becomes Z(first, second, f),
+#: with Q and D signed (Q = X/R, D = R/X).
 CONVERTERS: dict[tuple[str, str], _Converter] = {
     ("R", "X"): lambda r, x, f: _from_rx(r, x),
     ("Z", "theta_deg"): _z_deg,
@@ -195,24 +202,31 @@ def _plain(values: np.ndarray) -> bool:
     return bool(np.all(np.abs(values) < 1e37))
 
 
-def to_impedance(pair: tuple[str, str], frequency, first, second) -> np.ndarray:
+def to_impedance(
+    pair: tuple[str, str], frequency, first, second, qd_sign: str = "signed"
+) -> np.ndarray:
     """Complex impedance (ohm) from a reading pair at ``frequency`` (Hz).
 
     ``pair`` names the quantities in the order the meter sends them, e.g. ``("Cp", "D")``;
-    ``first`` and ``second`` are arrays of the two numbers (broadcast with ``frequency``).
+    ``first`` and ``second`` are arrays of the two numbers (broadcast with ``frequency``);
+    ``qd_sign`` is ``"signed"`` or ``"by_mode"`` (how the meter signs Q and D).
     Markers for overrange/invalid become ``inf+infj`` / ``nan+nanj`` (see the module docstring).
     """
     f = np.asarray(frequency, dtype=float)
     a = np.asarray(first, dtype=float)
     b = np.asarray(second, dtype=float)
     key = (pair[0], pair[1])
-    convert = CONVERTERS.get(key)
-    if convert is not None:
+    if key in CONVERTERS:
         u, v = a, b
-    elif (key[1], key[0]) in CONVERTERS:
-        convert, u, v = CONVERTERS[(key[1], key[0])], b, a
+    elif key[::-1] in CONVERTERS:
+        key, u, v = key[::-1], b, a
     else:
         raise ValueError(f"unsupported reading pair {pair!r}; supported: {supported_pairs()}")
+    if qd_sign not in QD_SIGNS:
+        raise ValueError(f"qd_sign must be one of {QD_SIGNS}, not {qd_sign!r}")
+    if qd_sign == "by_mode" and key[0] in ("Cs", "Cp") and key[1] in ("Q", "D"):
+        v = -v
+    convert = CONVERTERS[key]
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         z = np.asarray(convert(u, v, f), dtype=complex)
     if _plain(a) and _plain(b):
@@ -226,10 +240,10 @@ def to_impedance(pair: tuple[str, str], frequency, first, second) -> np.ndarray:
     return z
 
 
-def from_flat(pair: tuple[str, str], frequency, values) -> np.ndarray:
+def from_flat(pair: tuple[str, str], frequency, values, qd_sign: str = "signed") -> np.ndarray:
     """Complex impedance from a flat reply ``a1, b1, a2, b2, ...`` (one pair per frequency)."""
     v = np.asarray(values, dtype=float)
     f = np.atleast_1d(np.asarray(frequency, dtype=float))
     if v.shape != (2 * f.size,):
         raise ValueError(f"expected {2 * f.size} numbers for {f.size} points, got {v.size}")
-    return to_impedance(pair, f, v[0::2], v[1::2])
+    return to_impedance(pair, f, v[0::2], v[1::2], qd_sign)

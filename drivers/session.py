@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import contextlib
 import logging
+import os
 import select
 import socket
 import time
@@ -77,6 +78,7 @@ class Session:
         self._socket: socket.socket | None = None
         self._raw_session = None
         self._visa_timeout: float | None = None
+        self._suspect = False
         self._term = read_termination.encode(encoding)
 
     # -- opening and closing -------------------------------------------------------------------
@@ -103,8 +105,25 @@ class Session:
             self._resource = None
             raise ConnectionLost(f"cannot open {self.resource_name}: {exc}") from exc
         self._visa_timeout = None
+        self._suspect = False
         self._find_socket()
+        if self._socket is not None:
+            self._check_connected()
         return self
+
+    def _check_connected(self) -> None:
+        """pyvisa-py reports success on a refused connection; ask the socket itself."""
+        code = self._socket.getsockopt(socket.SOL_SOCKET, socket.SO_ERROR)
+        try:
+            if code:
+                raise OSError(code, os.strerror(code))
+            self._socket.getpeername()
+        except OSError as exc:
+            self._drop_resource()
+            raise ConnectionLost(
+                f"cannot open {self.resource_name}: {exc.strerror or exc}. Check that the meter "
+                "is on and reachable and that the resource string (address, port) is right"
+            ) from exc
 
     def close(self) -> None:
         """Close the resource (and its resource manager); safe to call twice."""
@@ -118,6 +137,13 @@ class Session:
     def is_open(self) -> bool:
         return self._resource is not None
 
+    @property
+    def nodelay(self) -> bool | None:
+        """Whether Nagle's algorithm is off on the underlying socket (None: no socket seen)."""
+        if self._socket is None:
+            return None
+        return bool(self._socket.getsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY))
+
     def _drop_resource(self) -> None:
         if self._resource is not None:
             with contextlib.suppress(VisaIOError, OSError, AttributeError):
@@ -125,6 +151,7 @@ class Session:
         self._resource = None
         self._socket = None
         self._raw_session = None
+        self._suspect = False
 
     def _find_socket(self) -> None:
         """Switch Nagle off on the TCP socket under a pyvisa-py SOCKET session, if there is one.
@@ -154,6 +181,8 @@ class Session:
 
     def write(self, message: str) -> None:
         """Send one message (the write termination is added)."""
+        if self._suspect:
+            self.reconnect(attempt=0)
         resource = self._require()
         self._discard_stale()
         try:
@@ -172,11 +201,12 @@ class Session:
 
     def query_block(
         self, message: str, timeout: float | None = None
-    ) -> tuple[str, bytes, int, int]:
+    ) -> tuple[str, bytes, int, int, str]:
         """Send ``message`` and read a reply holding one IEEE 488.2 definite-length block.
 
-        Returns ``(prefix, raw, offset, length)``: the text before the block (other queries'
-        replies in a compound message), the raw reply and where the block's data lies in it.
+        Returns ``(prefix, raw, offset, length, suffix)``: the text before and after the block
+        (other queries' replies in a compound message), the raw reply and where the block's
+        data lies in it. The block's length, not a line feed, says where its data ends.
         """
         raw = bytearray(self._ask(message, timeout))
         begin, offset, length = scpi.find_block(raw)
@@ -184,15 +214,18 @@ class Session:
             raise ReplyError(
                 f"{self.resource_name}: indefinite-length blocks (#0) are not supported"
             )
-        need = offset + length + len(self._term)
-        if len(raw) < need:
-            raw += self._read_bytes(need - len(raw))
-        if bytes(raw[offset + length :]) != self._term:
-            raise ReplyError(
-                f"{self.resource_name}: the binary block is followed by "
-                f"{bytes(raw[offset + length : offset + length + 20])!r} instead of the termination"
-            )
-        return self._decode(bytes(raw[:begin])), bytes(raw), offset, length
+        end = offset + length
+        if len(raw) < end + len(self._term):
+            raw += self._read_bytes(end + len(self._term) - len(raw))
+        while not raw.endswith(self._term):
+            raw += self._read_rest()
+        return (
+            self._decode(bytes(raw[:begin])),
+            bytes(raw),
+            offset,
+            length,
+            self._decode(bytes(raw[end : len(raw) - len(self._term)])),
+        )
 
     def clear(self) -> None:
         """Discard whatever the meter has sent that nobody asked for (device clear if possible)."""
@@ -230,7 +263,12 @@ class Session:
             self._try_reconnect(failures)
 
     def reconnect(self, attempt: int = 1) -> None:
-        """Close, wait ``retry_wait * attempt`` seconds, reopen and call ``on_reopen``."""
+        """Close, wait ``retry_wait * attempt`` seconds, reopen and call ``on_reopen``.
+
+        Also done, without waiting, before the next message after a timeout or a reply cut
+        short, even when the caller did not retry: a reply still on its way belongs to the old
+        connection and is never read as the answer to a later query.
+        """
         if self._resource is not None:
             self.clear_after_failure()
         self._drop_resource()
@@ -294,7 +332,17 @@ class Session:
         try:
             return self._resource.read_raw()
         except VisaIOError as exc:
+            self._suspect = True
             raise self._visa_failure(exc, message, seconds) from exc
+        except OSError as exc:
+            raise ConnectionLost(f"{self.resource_name}: reading the reply failed: {exc}") from exc
+
+    def _read_rest(self) -> bytes:
+        try:
+            return self._resource.read_raw()
+        except VisaIOError as exc:
+            self._suspect = True
+            raise self._visa_failure(exc, "(rest of a reply)") from exc
         except OSError as exc:
             raise ConnectionLost(f"{self.resource_name}: reading the reply failed: {exc}") from exc
 
@@ -302,6 +350,7 @@ class Session:
         try:
             return self._resource.read_bytes(count)
         except VisaIOError as exc:
+            self._suspect = True
             raise self._visa_failure(exc, "(rest of a binary block)") from exc
         except OSError as exc:
             raise ConnectionLost(f"{self.resource_name}: reading the reply failed: {exc}") from exc
@@ -321,6 +370,7 @@ class Session:
                     )
                 return
             remaining = deadline - time.monotonic()
+        self._suspect = True
         raise MeterTimeout(
             f"{self.resource_name}: no reply to {message[:40]!r} within {seconds:g} s"
         )

@@ -1,0 +1,165 @@
+"""The profiles' data: what is in the fixture, the fixture, and the meter, as frozen dataclasses.
+
+Built and validated from TOML by :mod:`drivers.simulator.profiles`; each knows its impedance
+(or its two-port) through :mod:`drivers.simulator.physics`.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from drivers.simulator import physics
+from drivers.simulator.faults import FaultSpec
+
+
+@dataclass(frozen=True, kw_only=True)
+class DutProfile:
+    """What sits in the fixture: a coil, resistor, capacitor or a standard, or nothing (``none``).
+
+    ``values`` holds the kind's numeric keys (SI units, defaults filled in); ``spread`` the
+    one-sigma relative spread per key; ``faults`` the faults armed when it is inserted.
+    """
+
+    name: str
+    kind: str
+    values: Mapping[str, float | None]
+    description: str = ""
+    spread: Mapping[str, float] = field(default_factory=dict)
+    faults: tuple[FaultSpec, ...] = ()
+    path: Path | None = None
+
+    def __getattr__(self, key: str) -> Any:
+        values = self.__dict__.get("values", {})
+        if key in values:
+            return values[key]
+        raise AttributeError(
+            f"{type(self).__name__} of kind {self.__dict__.get('kind')!r} has no {key!r}"
+        )
+
+    def impedance(self, f: np.ndarray | float) -> np.ndarray:
+        """Exact impedance (complex ohm) at ``f``; ``inf`` for an open, ``nan`` for ``none``."""
+        f = np.atleast_1d(np.asarray(f, dtype=float))
+        v = self.values
+        if self.kind == "coil":
+            return physics.coil_impedance(
+                f,
+                v["inductance"],
+                v["dc_resistance"],
+                v["capacitance"],
+                v["ac_corner_frequency"],
+                v["ac_exponent"],
+                v["core_loss_tangent"],
+            )
+        if self.kind in ("resistor", "load"):
+            return physics.resistor_impedance(
+                f, v["resistance"], v["series_inductance"], v["parallel_capacitance"]
+            )
+        if self.kind == "capacitor":
+            return physics.capacitor_impedance(
+                f, v["capacitance"], v["series_resistance"], v["series_inductance"]
+            )
+        if self.kind == "open":
+            return physics.open_impedance(f)
+        if self.kind == "short":
+            return physics.short_impedance(f)
+        return np.full(f.shape, complex(np.nan, np.nan))
+
+    @property
+    def dc_value(self) -> float:
+        """Resistance at DC in ohm (``inf`` for an open or a capacitor, ``nan`` for ``none``)."""
+        v = self.values
+        if self.kind == "coil":
+            return float(v["dc_resistance"])
+        if self.kind in ("resistor", "load"):
+            return float(v["resistance"])
+        if self.kind in ("open", "capacitor"):
+            return math.inf
+        if self.kind == "short":
+            return 0.0
+        return math.nan
+
+
+#: Nothing in the fixture: the meter's readings are invalid.
+NOTHING = DutProfile(name="none", kind="none", values={}, description="nothing in the fixture")
+
+
+@dataclass(frozen=True, kw_only=True)
+class LineSpec:
+    """A lossless transmission line: characteristic impedance (ohm), length (m), velocity factor."""
+
+    impedance: float
+    length: float
+    velocity_factor: float = 0.66
+
+
+@dataclass(frozen=True, kw_only=True)
+class FixtureProfile:
+    """The fixture between meter and DUT: leads' series residual, stray shunt, optional line."""
+
+    name: str
+    series_resistance: float
+    series_inductance: float
+    shunt_capacitance: float
+    shunt_conductance: float
+    line: LineSpec | None = None
+    description: str = ""
+    path: Path | None = None
+
+    def abcd(self, f: np.ndarray | float) -> np.ndarray:
+        """The fixture's ABCD matrices, shape ``(N, 2, 2)``."""
+        line = None
+        if self.line is not None:
+            line = (self.line.impedance, self.line.length, self.line.velocity_factor)
+        return physics.fixture_abcd(
+            f,
+            self.series_resistance,
+            self.series_inductance,
+            self.shunt_capacitance,
+            self.shunt_conductance,
+            line,
+        )
+
+    def seen(self, f: np.ndarray | float, z_dut: np.ndarray) -> np.ndarray:
+        """What the meter sees of ``z_dut`` through this fixture."""
+        return physics.input_impedance(self.abcd(f), z_dut)
+
+    def seen_dc(self, dut_dc_resistance: float) -> float:
+        """DC resistance the meter sees of a DUT of ``dut_dc_resistance``."""
+        return physics.dc_resistance_seen(
+            dut_dc_resistance, self.series_resistance, self.shunt_conductance
+        )
+
+
+@dataclass(frozen=True, kw_only=True)
+class SpeedSetting:
+    """One measurement speed: seconds per reading, minimum signal periods, noise multiplier."""
+
+    reading_time: float
+    periods: float
+    noise_factor: float
+
+
+@dataclass(frozen=True, kw_only=True)
+class MeterProfile:
+    """The simulated meter: identity, noise model (``physics.noise_deviation``), timing."""
+
+    name: str
+    manufacturer: str
+    model: str
+    serial: str
+    firmware: str
+    accuracy_class: float
+    low_impedance_corner: float
+    high_impedance_corner: float
+    frequency_corner: float
+    max_impedance: float
+    reference_level: float
+    speeds: Mapping[str, SpeedSetting]
+    description: str = ""
+    path: Path | None = None

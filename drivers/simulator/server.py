@@ -51,9 +51,13 @@ class SimulatorServer:
         self.port = self._server.sockets[0].getsockname()[1]
 
     async def close(self) -> None:
-        """Stop listening and close every connection."""
+        """Stop listening, abort any measurement and close every connection."""
         if self._server is not None:
             self._server.close()
+        task = self.instrument.task
+        self.instrument.abort()
+        if task is not None:
+            await asyncio.wait({task})
         for task in list(self._clients):
             task.cancel()
         if self._clients:

@@ -171,6 +171,28 @@ def compare_with_truth(run: DemoRun) -> None:
     run.console.print(table)
 
 
+def predict_and_fit(run: DemoRun) -> None:
+    """What the demo coil's geometry predicts, beside the equivalent circuit fitted to the sweep."""
+    from acquire.coil import DEMO_COIL, compare, fit_sweep, predict
+    from acquire.errors import ModelError
+
+    out = run.outcome
+    if out is None or out.corrected is None or out.frequency.size == 0:
+        return
+    g = DEMO_COIL
+    run.console.print(
+        f"\n[bold]Design against measurement[/]: {g.turns} turns of "
+        f"{format_si(g.wire_diameter, 'm')} wire on a {format_si(g.former_diameter, 'm')} former, "
+        f"{format_si(g.length, 'm')} long"
+    )
+    try:
+        fit = fit_sweep(out.frequency, out.corrected)
+    except ModelError as exc:
+        run.console.print(f"the equivalent circuit could not be fitted: {exc}")
+        return
+    run.console.print(compare(predict(g), fit))
+
+
 def finish(run: DemoRun) -> None:
     """Say where everything is."""
     path = getattr(run.store, "path", None)
@@ -183,8 +205,15 @@ def finish(run: DemoRun) -> None:
     )
 
 
-#: The demo's steps, in order. Add a step (e.g. predicted vs fitted coil values) here.
-STEPS: list[Callable[[DemoRun], None]] = [introduce, capture, sweep, compare_with_truth, finish]
+#: The demo's steps, in order; a new step is one more function of a DemoRun, put in this list.
+STEPS: list[Callable[[DemoRun], None]] = [
+    introduce,
+    capture,
+    sweep,
+    compare_with_truth,
+    predict_and_fit,
+    finish,
+]
 
 
 def run_demo(

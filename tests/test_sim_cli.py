@@ -68,3 +68,21 @@ def test_bad_profile_is_one_line_and_exit_2():
     assert proc.returncode == 2
     assert proc.stdout == ""
     assert proc.stderr.startswith("acquire sim: error: no shipped profile named 'no-such-coil'")
+
+
+def test_busy_port_is_one_line_and_exit_2():
+    proc = start("--quiet")
+    try:
+        port = proc.stdout.readline().strip().split("::")[2]
+        busy = subprocess.run(
+            [sys.executable, "-m", "acquire", "sim", "--port", port],
+            capture_output=True,
+            text=True,
+            timeout=30,
+        )
+    finally:
+        stop(proc)
+    assert busy.returncode == 2
+    assert busy.stdout == ""
+    assert f"cannot listen on 127.0.0.1 port {port}" in busy.stderr
+    assert "--port 0 picks a free port" in busy.stderr

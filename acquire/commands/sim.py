@@ -118,4 +118,9 @@ def run(args: argparse.Namespace) -> int:
         asyncio.run(server.serve_forever(ready))
     except KeyboardInterrupt:
         print("simulated meter stopped", file=sys.stderr)
+    except OSError as exc:
+        raise InputError(
+            f"cannot listen on {args.host} port {args.port}: {exc.strerror or exc}; "
+            "is another simulator running? --port 0 picks a free port"
+        ) from exc
     return 0

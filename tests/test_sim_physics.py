@@ -196,7 +196,7 @@ def test_self_resonance_seen_through_pyvisa(meter):
 
 
 def test_demo_coil_resonates_near_7_mhz():
-    # Scenario consistency (demo data): L about 340 uH with 1.5 pF resonates near 7 MHz.
+    # Scenario consistency (demo data): L about 344 uH with 1.46 pF resonates near 7.1 MHz.
     p = toml("demo-coil")
     assert 1 / (2 * np.pi * np.sqrt(p["inductance"] * p["capacitance"])) == pytest.approx(
         7e6, rel=0.02

@@ -40,6 +40,7 @@ class ImpedanceMeter:
         self._dialect = dialect
         self._settings: dict[str, Any] = {}
         self._transfer = dialect.transfer
+        self._mode_known = False
         session.on_reopen = self._restore
 
     @classmethod
@@ -135,6 +136,7 @@ class ImpedanceMeter:
         op = self._dialect.operation("reset", "reset the meter")
 
         def action() -> None:
+            self._mode_known = False
             self._exchange([(op, {})])
             self._settings.clear()
             self._transfer = self._dialect.transfer
@@ -225,6 +227,7 @@ class ImpedanceMeter:
 
     def _restore(self) -> None:
         """After a reconnect: setup again, then the last configuration."""
+        self._mode_known = False
         self._prepare()
         steps = [self._setting_step(k, v) for k, v in self._settings.items()]
         if steps:
@@ -279,8 +282,10 @@ class ImpedanceMeter:
         bad = ~np.isfinite(f) | (f < d.frequency_min) | (f > d.frequency_max)
         if bad.any():
             first = f[bad][0]
+            count = int(bad.sum())
+            what = "1 frequency lies" if count == 1 else f"{count} frequencies lie"
             raise OutOfRange(
-                f"{int(bad.sum())} frequencies lie outside {d.frequency_min:g} Hz to "
+                f"{what} outside {d.frequency_min:g} Hz to "
                 f"{d.frequency_max:g} Hz allowed by dialect {d.name!r} (first: {first:g} Hz); "
                 "nothing was sent to the meter"
             )
@@ -290,18 +295,23 @@ class ImpedanceMeter:
         return self._session.timeout + points * self._dialect.per_point_timeout * averaging
 
     def _sweep_points(self, f: np.ndarray, on_points: OnPoints | None) -> np.ndarray:
+        """One compound query per point. The ``point_mode`` step is sent only while the meter
+        may be in list mode (at first, after a list sweep, a reset or a reconnect)."""
         d = self._dialect
-        steps = [(d.operations[name], None) for name in d.point_sequence]
+        full = [d.operations[name] for name in d.point_sequence]
+        lean = [op for op in full if op.name != "point_mode"]
         values = np.empty(2 * f.size)
         timeout = self._timeout(1)
+
+        def point(context: dict[str, str]) -> np.ndarray:
+            steps = lean if self._mode_known else full
+            values = self._readings([(op, context) for op in steps], 1, timeout, settle=True)
+            self._mode_known = True
+            return values
+
         for i, fi in enumerate(f):
             context = {"frequency": _number(fi)}
-            chunk = self._session.call(
-                f"measuring at {fi:g} Hz",
-                lambda c=context: self._readings(
-                    [(op, c) for op, _ in steps], 1, timeout, settle=True
-                ),
-            )
+            chunk = self._session.call(f"measuring at {fi:g} Hz", lambda c=context: point(c))
             values[2 * i : 2 * i + 2] = chunk
             if on_points is not None:
                 on_points(
@@ -317,6 +327,7 @@ class ImpedanceMeter:
             part = f[start:stop]
             context = {"frequencies": ",".join(map(_number, part)), "count": str(part.size)}
             timeout = self._timeout(part.size)
+            self._mode_known = False
             values = self._session.call(
                 f"list sweep of {part.size} points from {part[0]:g} Hz",
                 lambda c=context, n=part.size, t=timeout: self._readings(
@@ -422,7 +433,8 @@ class ImpedanceMeter:
         if len(parts) != len(queries):
             raise ReplyError(
                 f"expected {len(queries)} replies joined by {d.reply_separator!r}, "
-                f"got {len(parts)} (starting {str(parts[0])[:40]!r})"
+                f"got {len(parts)} (starting {str(parts[0])[:40]!r}); a meter that answers each "
+                "query of a message on a line of its own needs sequences with one query each"
             )
         return self._acknowledged(parts, queries)
 

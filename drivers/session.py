@@ -274,6 +274,8 @@ class Session:
         self._drop_resource()
         time.sleep(self.retry_wait * attempt)
         self.open()
+        if self._socket is None:
+            self._drain_queued()
         self.reconnects += 1
         if self.on_reopen is not None:
             self.on_reopen()
@@ -283,6 +285,16 @@ class Session:
         if self._socket is None and self._resource is not None:
             with contextlib.suppress(VisaIOError, OSError, NotImplementedError):
                 self._resource.clear()
+
+    def _drain_queued(self, wait: float = 0.05, limit: int = 100) -> None:
+        """Without a socket to look at, read and discard what the device still holds."""
+        self._set_timeout(wait)
+        for _ in range(limit):
+            try:
+                stale = self._resource.read_raw()
+            except (VisaIOError, OSError):
+                return
+            log.info("%s: discarded a reply nobody asked for: %r", self.resource_name, stale[:40])
 
     def _try_reconnect(self, failures: list[str]) -> None:
         for attempt in range(1, self.retries + 2):

@@ -98,6 +98,11 @@ def test_list_and_point_by_point_agree_and_are_exact(sim):
     with meter_for(sim) as meter:
         by_list = meter.sweep(f, mode="list")
         by_point = meter.sweep(f, mode="points")
+        assert meter.session.query("FREQ:MODE?") == "FIX"
+        by_list_again = meter.sweep(f[:5], mode="list")
+        assert meter.measure(f[7]) == by_list[7]
+        assert meter.session.reconnects == 0
+    np.testing.assert_array_equal(by_list_again, by_list[:5])
     np.testing.assert_array_equal(by_list, by_point)
     np.testing.assert_allclose(by_list, sim.seen_impedance(f), rtol=1e-15)
 

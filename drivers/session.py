@@ -197,6 +197,7 @@ class Session:
     def query(self, message: str, timeout: float | None = None) -> str:
         """Send ``message`` and return the reply text without its termination."""
         raw = self._ask(message, timeout)
+        self._suspect = False
         return self._decode(raw[: len(raw) - len(self._term)] if raw.endswith(self._term) else raw)
 
     def query_block(
@@ -219,6 +220,7 @@ class Session:
             raw += self._read_bytes(end + len(self._term) - len(raw))
         while not raw.endswith(self._term):
             raw += self._read_rest()
+        self._suspect = False
         return (
             self._decode(bytes(raw[:begin])),
             bytes(raw),
@@ -339,12 +341,12 @@ class Session:
         seconds = self.timeout if timeout is None else timeout
         deadline = time.monotonic() + seconds
         self.write(message)
+        self._suspect = True  # until the whole reply is read, whatever interrupts us
         self._wait_readable(deadline, message, seconds)
         self._set_timeout(deadline - time.monotonic())
         try:
             return self._resource.read_raw()
         except VisaIOError as exc:
-            self._suspect = True
             raise self._visa_failure(exc, message, seconds) from exc
         except OSError as exc:
             raise ConnectionLost(f"{self.resource_name}: reading the reply failed: {exc}") from exc
@@ -353,7 +355,6 @@ class Session:
         try:
             return self._resource.read_raw()
         except VisaIOError as exc:
-            self._suspect = True
             raise self._visa_failure(exc, "(rest of a reply)") from exc
         except OSError as exc:
             raise ConnectionLost(f"{self.resource_name}: reading the reply failed: {exc}") from exc
@@ -362,7 +363,6 @@ class Session:
         try:
             return self._resource.read_bytes(count)
         except VisaIOError as exc:
-            self._suspect = True
             raise self._visa_failure(exc, "(rest of a binary block)") from exc
         except OSError as exc:
             raise ConnectionLost(f"{self.resource_name}: reading the reply failed: {exc}") from exc
@@ -382,7 +382,6 @@ class Session:
                     )
                 return
             remaining = deadline - time.monotonic()
-        self._suspect = True
         raise MeterTimeout(
             f"{self.resource_name}: no reply to {message[:40]!r} within {seconds:g} s"
         )

@@ -230,11 +230,16 @@ FAULTS = [("drop", 1), ("drop", 2), ("stall", 1), ("garble", 1), ("truncate", 1)
 
 
 @pytest.mark.parametrize(("kind", "n"), FAULTS)
-@pytest.mark.parametrize("mode", ["points", "list"])
-def test_each_fault_ends_in_the_right_number_after_a_reconnect(sim, tmp_path, kind, n, mode):
+@pytest.mark.parametrize(
+    ("mode", "transfer"), [("points", "ascii"), ("list", "ascii"), ("list", "binary")]
+)
+def test_each_fault_ends_in_the_right_number_after_a_reconnect(
+    sim, tmp_path, kind, n, mode, transfer
+):
     path = dialect_variant(tmp_path, {r"^max_points = 1601$": "max_points = 3"})
     timeout, retries = 0.3, 2
     with meter_for(sim, path, timeout=timeout, retries=retries) as meter:
+        meter.configure(transfer=transfer)
         sim.inject(kind, n)
         start = time.monotonic()
         z = meter.sweep(F, mode=mode)
@@ -256,6 +261,7 @@ def test_repeated_random_faults_never_give_a_wrong_number(sim):
             z = meter.sweep(f, mode="points")
         except InstrumentError:
             return  # the project's error is an acceptable end, a wrong number is not
+        assert meter.session.reconnects > 3  # the faults did fire
     np.testing.assert_array_equal(z, sim.seen_impedance(f))
 
 

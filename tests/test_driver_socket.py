@@ -304,3 +304,27 @@ def test_list_timeout_grows_with_the_number_of_points(sim, tmp_path):
         sim.set_measure_time(0.003)  # 0.6 s in all: beyond the base timeout, inside the allowance
         z = meter.sweep(f, mode="list")
     np.testing.assert_array_equal(z, sim.seen_impedance(f))
+
+
+SHAPES = {
+    "settle": {r"^settle = 0.0$": "settle = 0.01"},
+    "separate messages": {r"^compound = true": "compound = false"},
+    "trigger-wait-fetch": {
+        r"^point = .*$": (
+            'point = ["point_mode", "set_frequency", "trigger", "wait", "fetch", "wait"]'
+        ),
+        r"^list = .*$": 'list = ["list_mode", "set_list", "trigger", "wait", "fetch", "wait"]',
+    },
+}
+
+
+@pytest.mark.parametrize("shape", SHAPES)
+def test_other_dialect_shapes_measure_the_same(sim, tmp_path, shape):
+    path = dialect_variant(tmp_path, SHAPES[shape])
+    f = F[:4]
+    with meter_for(sim, path) as meter:
+        by_point = meter.sweep(f, mode="points")
+        by_list = meter.sweep(f, mode="list")
+        assert meter.session.reconnects == 0
+    np.testing.assert_array_equal(by_point, sim.seen_impedance(f))
+    np.testing.assert_array_equal(by_list, by_point)

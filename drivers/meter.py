@@ -195,8 +195,11 @@ class ImpedanceMeter:
         if (op.minimum is not None and value < op.minimum) or (
             op.maximum is not None and value > op.maximum
         ):
+            unit = " V" if name == "level" else ""
+            lo = "-" if op.minimum is None else f"{op.minimum:g}{unit}"
+            hi = "-" if op.maximum is None else f"{op.maximum:g}{unit}"
             raise OutOfRange(
-                f"{name} {value:g} is outside {op.minimum:g} to {op.maximum:g} allowed by dialect "
+                f"{name} {value:g}{unit} is outside {lo} to {hi} allowed by dialect "
                 f"{self._dialect.name!r}"
             )
         return op, {name: _number(value)}

@@ -181,6 +181,16 @@ def test_refused_settings_are_reported(sim, tmp_path):
         assert float(meter.session.query("VOLT?")) == 0.5
         assert meter.settings == {"level": 0.5}
         assert meter.errors() == []
+    only_max = dialect_variant(
+        tmp_path,
+        {r"^set_averaging = .*$": 'set_averaging = { command = "AVER:COUN {averaging}", max = 8 }'},
+        name="only_max",
+    )
+    with (
+        meter_for(sim, only_max) as meter,
+        pytest.raises(OutOfRange, match="averaging 9 is outside - to 8"),
+    ):
+        meter.configure(averaging=9)
 
 
 def test_missing_optional_operation_is_a_dialect_error(sim, tmp_path):

@@ -150,7 +150,7 @@ def test_settings_outside_the_dialect_are_refused_before_sending(base, monkeypat
         sent: list[str] = []
         monkeypatch.setattr(meter.session, "write", sent.append)
         monkeypatch.setattr(meter.session, "query", lambda m, t=None: sent.append(m))
-        with pytest.raises(OutOfRange, match="level 5 is outside 0.005 to 2"):
+        with pytest.raises(OutOfRange, match="level 5 V is outside 0.005 V to 2 V"):
             meter.configure(level=5.0)
         with pytest.raises(OutOfRange, match="speed 'warp' is not one of fast, medium, slow"):
             meter.configure(speed="warp")

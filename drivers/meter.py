@@ -13,7 +13,6 @@ reply is retried after a reconnect (see :mod:`drivers.session`).
 from __future__ import annotations
 
 import logging
-import time
 from collections.abc import Callable
 from typing import Any
 
@@ -21,7 +20,8 @@ import numpy as np
 
 from drivers import readings, scpi
 from drivers.dialect import Dialect, Operation, load_dialect
-from drivers.errors import DialectError, OutOfRange, ReplyError, SettingRefused
+from drivers.errors import DialectError, OutOfRange, SettingRefused
+from drivers.exchange import Exchange
 from drivers.scpi import ErrorEntry, Identity
 from drivers.session import Session
 
@@ -41,6 +41,7 @@ class ImpedanceMeter:
         self._settings: dict[str, Any] = {}
         self._transfer = dialect.transfer
         self._mode_known = False
+        self._io = Exchange(session, dialect)
         session.on_reopen = self._restore
 
     @classmethod
@@ -115,6 +116,10 @@ class ImpedanceMeter:
         return self._transfer
 
     @property
+    def _binary(self) -> bool:
+        return self._transfer == "binary"
+
+    @property
     def settings(self) -> dict[str, Any]:
         """The settings last applied with :meth:`configure` (re-applied after a reconnect)."""
         return dict(self._settings)
@@ -137,7 +142,7 @@ class ImpedanceMeter:
 
         def action() -> None:
             self._mode_known = False
-            self._exchange([(op, {})])
+            self._io.run([(op, {})])
             self._settings.clear()
             self._transfer = self._dialect.transfer
             self._prepare()
@@ -167,7 +172,7 @@ class ImpedanceMeter:
             return
 
         def action() -> None:
-            self._exchange(steps)
+            self._io.run(steps)
             listed = ", ".join(f"{k}={v!r}" for k, v in wanted.items())
             self._check_queue(f"configure({listed})")
 
@@ -215,14 +220,14 @@ class ImpedanceMeter:
         """Clear the status, send the dialect's setup and check the meter accepted it."""
         d = self._dialect
         if d.has("clear_status"):
-            self._exchange([(d.operations["clear_status"], {})])
+            self._io.run([(d.operations["clear_status"], {})])
         old = scpi.drain_errors(self._next_error, d.warning_codes)
         if old:
             log.info("%s: discarded errors queued before this session: %s", self.resource, old)
         steps = [(d.operations["setup"], {})] if d.has("setup") else []
         steps += self._transfer_steps(self._transfer)
         if steps:
-            self._exchange(steps)
+            self._io.run(steps)
         try:
             self._check_queue("the dialect's setup commands")
         except SettingRefused as exc:
@@ -234,7 +239,7 @@ class ImpedanceMeter:
         self._prepare()
         steps = [self._setting_step(k, v) for k, v in self._settings.items()]
         if steps:
-            self._exchange(steps)
+            self._io.run(steps)
             self._check_queue("restoring the configuration after a reconnect")
 
     # -- measuring -----------------------------------------------------------------------------
@@ -308,7 +313,9 @@ class ImpedanceMeter:
 
         def point(context: dict[str, str]) -> np.ndarray:
             steps = lean if self._mode_known else full
-            values = self._readings([(op, context) for op in steps], 1, timeout, settle=True)
+            values = self._io.readings(
+                [(op, context) for op in steps], 1, timeout, self._binary, settle=True
+            )
             self._mode_known = True
             return values
 
@@ -333,8 +340,8 @@ class ImpedanceMeter:
             self._mode_known = False
             values = self._session.call(
                 f"list sweep of {part.size} points from {part[0]:g} Hz",
-                lambda c=context, n=part.size, t=timeout: self._readings(
-                    [(op, c) for op in steps], n, t
+                lambda c=context, n=part.size, t=timeout: self._io.readings(
+                    [(op, c) for op in steps], n, t, self._binary
                 ),
             )
             z = readings.from_flat(d.pair, part, values, d.qd_sign)
@@ -348,7 +355,7 @@ class ImpedanceMeter:
         op = self._dialect.operation("dc_resistance", "measure the DC resistance")
         timeout = self._timeout(1)
         reply = self._session.call(
-            "DC resistance", lambda: self._exchange([(op, {})], timeout=timeout)[-1]
+            "DC resistance", lambda: self._io.run([(op, {})], timeout=timeout)[-1]
         )
         return scpi.parse_number(reply)
 
@@ -368,105 +375,6 @@ class ImpedanceMeter:
     def _check_queue(self, context: str) -> None:
         entries = scpi.drain_errors(self._next_error, self._dialect.warning_codes)
         scpi.raise_for_errors(entries, f"{self.resource}: {context}")
-
-    def _readings(
-        self,
-        steps: list[tuple[Operation, dict]],
-        points: int,
-        timeout: float,
-        settle: bool = False,
-    ) -> np.ndarray:
-        """Run a point or list sequence; return the flat reading values (2 per point).
-
-        With ``settle`` (single points) and a dialect ``sequence.settle`` time, the steps up to
-        the frequency change are sent first and the rest after the settling time."""
-        d = self._dialect
-        if settle and d.settle > 0:
-            cut = max(i for i, (op, _) in enumerate(steps) if "frequency" in op.placeholders) + 1
-            self._exchange(steps[:cut])
-            time.sleep(d.settle)
-            steps = steps[cut:]
-        binary = self._transfer == "binary"
-        replies = self._exchange(steps, timeout=timeout, binary=binary)
-        queries = [op for op, _ in steps if op.query]
-        reply = next(r for r, op in zip(replies, queries, strict=True) if op.reply == "readings")
-        if binary:
-            raw, offset, length = reply
-            values = scpi.block_values(raw, offset, length, d.datatype, d.big_endian)
-            if values.size != 2 * points:
-                raise ReplyError(
-                    f"expected {2 * points} numbers in the binary block, got {values.size}"
-                )
-            return values
-        return scpi.parse_numbers(reply, expected=2 * points)
-
-    def _exchange(
-        self,
-        steps: list[tuple[Operation, dict]],
-        timeout: float | None = None,
-        binary: bool = False,
-    ) -> list:
-        """Send the steps (as one compound message when the dialect allows) and return the
-        replies of the queries in order, acknowledgements checked. With ``binary`` the reply
-        of the readings query is ``(raw, offset, length)`` of its block."""
-        d = self._dialect
-        texts = [op.format(**values) for op, values in steps]
-        queries = [op for op, _ in steps if op.query]
-        blocks = binary and any(op.reply == "readings" for op in queries)
-        if not d.compound:
-            replies: list = []
-            for (op, _), text in zip(steps, texts, strict=True):
-                if not op.query:
-                    self._session.write(text)
-                elif blocks and op.reply == "readings":
-                    replies.append(self._block(text, timeout, 1, 1))
-                else:
-                    replies.append(self._session.query(text, timeout))
-            return self._acknowledged(replies, queries)
-        message = d.separator.join(texts)
-        if not queries:
-            self._session.write(message)
-            return []
-        if blocks:
-            at = [op.reply for op in queries].index("readings")
-            parts = self._block(message, timeout, at + 1, len(queries) - at)
-        else:
-            reply = self._session.query(message, timeout)
-            parts = reply.split(d.reply_separator) if len(queries) > 1 else [reply]
-        if len(parts) != len(queries):
-            raise ReplyError(
-                f"expected {len(queries)} replies joined by {d.reply_separator!r}, "
-                f"got {len(parts)} (starting {str(parts[0])[:40]!r}); a meter that answers each "
-                "query of a message on a line of its own needs sequences with one query each"
-            )
-        return self._acknowledged(parts, queries)
-
-    def _block(self, message: str, timeout: float | None, before: int, after: int) -> list:
-        """The replies around a binary block: ``before - 1`` texts, the block, ``after - 1``."""
-        sep = self._dialect.reply_separator
-        prefix, raw, offset, length, suffix = self._session.query_block(message, timeout)
-        head = prefix.split(sep) if before > 1 else [prefix]
-        tail = suffix.split(sep) if after > 1 else [suffix]
-        if len(head) != before or head[-1] != "" or len(tail) != after or tail[0] != "":
-            raise ReplyError(
-                f"unexpected text around the binary block: {prefix[:30]!r} before, "
-                f"{suffix[:30]!r} after"
-            )
-        return head[:-1] + [(raw, offset, length)] + tail[1:]
-
-    @staticmethod
-    def _acknowledged(replies: list, queries: list[Operation]) -> list:
-        for reply, op in zip(replies, queries, strict=True):
-            if op.reply == "ack":
-                try:
-                    ok = float(reply.strip()) == 1.0
-                except ValueError:
-                    ok = False
-                if not ok:
-                    raise ReplyError(
-                        f"expected the acknowledgement 1 to {op.command!r}, got {reply[:40]!r}"
-                    )
-        return replies
 
 
 def _number(value: float) -> str:

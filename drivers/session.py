@@ -19,9 +19,6 @@ from __future__ import annotations
 
 import contextlib
 import logging
-import os
-import select
-import socket
 import time
 from collections.abc import Callable
 from typing import TypeVar
@@ -30,7 +27,7 @@ import pyvisa
 from pyvisa import constants
 from pyvisa.errors import VisaIOError
 
-from drivers import scpi
+from drivers import rawsocket, scpi
 from drivers.errors import ConnectionLost, InstrumentError, MeterTimeout, ReplyError
 
 T = TypeVar("T")
@@ -75,8 +72,7 @@ class Session:
         self.reconnects = 0
         self._manager: pyvisa.ResourceManager | None = None
         self._resource = None
-        self._socket: socket.socket | None = None
-        self._raw_session = None
+        self._socket: rawsocket.RawSocket | None = None
         self._visa_timeout: float | None = None
         self._suspect = False
         self._term = read_termination.encode(encoding)
@@ -113,11 +109,8 @@ class Session:
 
     def _check_connected(self) -> None:
         """pyvisa-py reports success on a refused connection; ask the socket itself."""
-        code = self._socket.getsockopt(socket.SOL_SOCKET, socket.SO_ERROR)
         try:
-            if code:
-                raise OSError(code, os.strerror(code))
-            self._socket.getpeername()
+            self._socket.check_connected()
         except OSError as exc:
             self._drop_resource()
             raise ConnectionLost(
@@ -140,9 +133,7 @@ class Session:
     @property
     def nodelay(self) -> bool | None:
         """Whether Nagle's algorithm is off on the underlying socket (None: no socket seen)."""
-        if self._socket is None:
-            return None
-        return bool(self._socket.getsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY))
+        return None if self._socket is None else self._socket.nodelay
 
     def _drop_resource(self) -> None:
         if self._resource is not None:
@@ -150,32 +141,21 @@ class Session:
                 self._resource.close()
         self._resource = None
         self._socket = None
-        self._raw_session = None
         self._suspect = False
 
     def _find_socket(self) -> None:
-        """Switch Nagle off on the TCP socket under a pyvisa-py SOCKET session, if there is one.
-
-        pyvisa-py keeps the socket as ``interface`` of its session object; other backends have
-        no such socket, and system VISA libraries get the standard VISA attribute instead.
-        """
+        """Find the raw socket under a pyvisa-py SOCKET session (Nagle off); for a system VISA
+        library set the standard VISA attribute instead."""
         self._socket = None
-        self._raw_session = None
         resource = self._resource
         if resource is None or not self.resource_name.upper().endswith("SOCKET"):
             return
-        raw = getattr(getattr(resource, "visalib", None), "sessions", {}).get(resource.session)
-        sock = getattr(raw, "interface", None)
-        if isinstance(sock, socket.socket) and isinstance(
-            getattr(raw, "_pending_buffer", None), bytearray
-        ):
-            sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
-            self._socket, self._raw_session = sock, raw
-            return
-        try:
-            resource.set_visa_attribute(constants.ResourceAttribute.tcpip_nodelay, True)
-        except (VisaIOError, NotImplementedError, KeyError, AttributeError) as exc:
-            log.debug("could not set TCP_NODELAY on %s: %s", self.resource_name, exc)
+        self._socket = rawsocket.find(resource)
+        if self._socket is None:
+            try:
+                resource.set_visa_attribute(constants.ResourceAttribute.tcpip_nodelay, True)
+            except (VisaIOError, NotImplementedError, KeyError, AttributeError) as exc:
+                log.debug("could not set TCP_NODELAY on %s: %s", self.resource_name, exc)
 
     # -- talking ---------------------------------------------------------------------------------
 
@@ -369,45 +349,27 @@ class Session:
 
     def _wait_readable(self, deadline: float, message: str, seconds: float) -> None:
         """On a raw socket, wait for the reply; notice a closed connection at once."""
-        sock = self._socket
-        if sock is None or self._raw_session._pending_buffer:
+        if self._socket is None:
             return
-        remaining = deadline - time.monotonic()
-        while remaining > 0:
-            if select.select([sock], [], [], remaining)[0]:
-                if self._peek(sock) == b"":
-                    raise ConnectionLost(
-                        f"{self.resource_name}: the meter closed the connection "
-                        f"while answering {message[:40]!r}"
-                    )
-                return
-            remaining = deadline - time.monotonic()
-        raise MeterTimeout(
-            f"{self.resource_name}: no reply to {message[:40]!r} within {seconds:g} s"
-        )
-
-    def _peek(self, sock: socket.socket) -> bytes:
-        """One byte of what is waiting on a readable socket, without consuming it."""
         try:
-            return sock.recv(1, socket.MSG_PEEK)
+            ready = self._socket.wait_readable(deadline - time.monotonic())
         except OSError as exc:
-            raise ConnectionLost(f"{self.resource_name}: connection failed: {exc}") from exc
+            raise ConnectionLost(
+                f"{self.resource_name}: {exc} while answering {message[:40]!r}"
+            ) from exc
+        if not ready:
+            raise MeterTimeout(
+                f"{self.resource_name}: no reply to {message[:40]!r} within {seconds:g} s"
+            )
 
     def _discard_stale(self) -> None:
         """Throw away bytes that arrived unasked (a late reply); notice a closed connection."""
-        sock = self._socket
-        if sock is None:
+        if self._socket is None:
             return
-        stale = len(self._raw_session._pending_buffer)
-        self._raw_session._pending_buffer.clear()
-        while select.select([sock], [], [], 0)[0]:
-            try:
-                chunk = sock.recv(65536)
-            except OSError as exc:
-                raise ConnectionLost(f"{self.resource_name}: connection failed: {exc}") from exc
-            if not chunk:
-                raise ConnectionLost(f"{self.resource_name}: the meter closed the connection")
-            stale += len(chunk)
+        try:
+            stale = self._socket.discard_pending()
+        except OSError as exc:
+            raise ConnectionLost(f"{self.resource_name}: {exc}") from exc
         if stale:
             log.warning("%s: discarded %d bytes nobody asked for", self.resource_name, stale)
 

@@ -1,0 +1,88 @@
+"""The TCP socket under a pyvisa-py SOCKET session, for what VISA does not offer.
+
+pyvisa-py keeps the socket of a ``TCPIP::...::SOCKET`` resource as ``interface`` of its session
+object and the bytes read past a termination in ``_pending_buffer``. Through them
+:class:`RawSocket` switches Nagle's algorithm off (pyvisa-py does not honour the VISA attribute
+for it, and without it a small message sent right after another waits about 40 ms for the
+peer's delayed ACK), confirms that the connection was really made (pyvisa-py reports success
+for a refused one), notices a closed connection as soon as it happens instead of after the
+timeout, and throws away bytes nobody asked for. Other backends have no such socket;
+:func:`find` returns None for them.
+"""
+
+from __future__ import annotations
+
+import os
+import select
+import socket
+
+
+class Closed(OSError):
+    """The peer closed the connection."""
+
+
+class RawSocket:
+    """The socket and read buffer of one pyvisa-py session."""
+
+    def __init__(self, sock: socket.socket, session: object) -> None:
+        self._sock = sock
+        self._session = session
+
+    @property
+    def nodelay(self) -> bool:
+        """Whether Nagle's algorithm is off."""
+        return bool(self._sock.getsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY))
+
+    def check_connected(self) -> None:
+        """Raise :class:`OSError` if the connection attempt failed."""
+        code = self._sock.getsockopt(socket.SOL_SOCKET, socket.SO_ERROR)
+        if code:
+            raise OSError(code, os.strerror(code))
+        self._sock.getpeername()
+
+    def wait_readable(self, seconds: float) -> bool:
+        """Wait up to ``seconds`` for a reply to start; False on timeout.
+
+        Raises :class:`Closed` if the peer closed the connection instead of answering.
+        """
+        if self._session._pending_buffer:
+            return True
+        if not select.select([self._sock], [], [], max(seconds, 0.0))[0]:
+            return False
+        if self._sock.recv(1, socket.MSG_PEEK) == b"":
+            raise Closed("the meter closed the connection")
+        return True
+
+    def discard_pending(self) -> int:
+        """Throw away everything already received; return how many bytes that was.
+
+        Raises :class:`Closed` if the peer has closed the connection.
+        """
+        count = len(self._session._pending_buffer)
+        self._session._pending_buffer.clear()
+        while select.select([self._sock], [], [], 0)[0]:
+            chunk = self._sock.recv(65536)
+            if not chunk:
+                raise Closed("the meter closed the connection")
+            count += len(chunk)
+        return count
+
+    # -- private -------------------------------------------------------------------------------
+
+    #: The connected TCP socket (owned by pyvisa-py; never closed here).
+    _sock: socket.socket
+    #: pyvisa-py's session object, whose ``_pending_buffer`` holds bytes read ahead.
+    _session: object
+
+
+def find(resource) -> RawSocket | None:
+    """The raw socket of a pyvisa-py SOCKET ``resource`` with Nagle switched off, or None."""
+    sessions = getattr(getattr(resource, "visalib", None), "sessions", {})
+    raw = sessions.get(getattr(resource, "session", None))
+    sock = getattr(raw, "interface", None)
+    if not isinstance(sock, socket.socket):
+        return None
+    if not isinstance(getattr(raw, "_pending_buffer", None), bytearray):
+        return None
+    sock.setsockopt(socket.IPPROTO_TCP, socket.TCP_NODELAY, 1)
+    return RawSocket(sock, raw)

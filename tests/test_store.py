@@ -307,6 +307,10 @@ def test_unit_round_trip_and_attempt_id_idempotence(store):
 
 
 def test_unit_record_checks_its_fields():
+    with pytest.raises(StoreError, match="at most 100 characters"):
+        MeasurementRecord("L" * 101, 1.0)
+    with pytest.raises(StoreError, match="unit may have at most 20"):
+        MeasurementRecord("Ls", 1.0, "H" * 21)
     with pytest.raises(StoreError, match="UUID"):
         UnitRecord(serial="A", outcome="pass", attempt_id="not-a-uuid")
     with pytest.raises(StoreError, match="timezone"):
@@ -336,7 +340,7 @@ def test_hostile_text_is_stored_verbatim(store):
             bin=s,
             outcome=s,
             attempt_id=new_attempt_id(),
-            measurements=[MeasurementRecord(s, 1.0, s, 1e3, verdict=s)],
+            measurements=[MeasurementRecord(s[:100], 1.0, s[:20], 1e3, verdict=s[:40])],
         )
         assert store.save_unit(unit)
         units.append(unit)

@@ -4,6 +4,7 @@ changes nothing."""
 
 from __future__ import annotations
 
+import math
 import shutil
 import sqlite3
 from pathlib import Path
@@ -77,7 +78,7 @@ def _check_example(store) -> None:
     plan_text, plan_name = ex["plan"]
     assert (store.plan(1).text, store.plan(1).name) == (plan_text, plan_name)
     assert {(lot.name, lot.attempts) for lot in store.list_lots()} == {("LOT-A", 3), ("LOT-B", 1)}
-    for i, (serial, lot, attempt, outcome, bin_, ls, rdc) in enumerate(ex["units"]):
+    for i, (serial, lot, attempt, outcome, bin_, ls, rdc, q) in enumerate(ex["units"]):
         unit = store.load_unit(attempt_id_of(i))
         assert (unit.serial, unit.lot, unit.attempt, unit.outcome, unit.bin) == (
             serial,
@@ -86,11 +87,15 @@ def _check_example(store) -> None:
             outcome,
             bin_,
         )
-        assert [(x.parameter, x.value, x.unit) for x in unit.measurements] == [
-            ("Ls", ls, "H"),
-            ("Rdc", rdc, "ohm"),
-        ]
+        kept = [(x.parameter, x.frequency, x.value, x.unit) for x in unit.measurements]
+        assert kept[:2] == [("Ls", 1e3, ls, "H"), ("Rdc", None, rdc, "ohm")]
+        assert kept[2][:2] == ("Q", 1e5) and (
+            kept[2][2] == q or math.isnan(q) == math.isnan(kept[2][2])
+        )
         assert (unit.plan_id, unit.meter_id, unit.fixture_id, unit.reference_set_id) == (1, 1, 1, 1)
+    summary = store.lot_summary("LOT-A").set_index("parameter")
+    assert summary.loc["Q", ["count", "valid", "mean"]].tolist() == [3, 2, (38.2 + 37.9) / 2]
+    assert math.isnan(summary.loc["Rdc", "frequency"]) and summary.loc["Rdc", "count"] == 3
     y = store.lot_yield("LOT-A")
     assert (y.attempts, y.serials, y.first_pass, y.final_pass) == (3, 2, 1, 2)
 

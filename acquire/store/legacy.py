@@ -4,12 +4,15 @@
 release did, and :func:`fill_v1_example` puts a small, fixed example into a version-1 store
 through that version's own tables (a meter, a fixture, a reference set, a finished sweep and one
 whose writer died, a plan, and units in two lots and in none). ``EXAMPLE_V1`` describes the
-example so that a test can check every value survived a migration. The example is demo data of
+example so that a test can check every value survived a migration. As version 1 did, an
+invalid reading is stored as NULL and an overrange one as infinity, a DC value with a NULL
+frequency. The example is demo data of
 our own invention.
 """
 
 from __future__ import annotations
 
+import math
 from datetime import UTC, datetime, timedelta
 
 from sqlalchemy import Connection, text
@@ -58,13 +61,13 @@ EXAMPLE_V1 = {
         "frequency": [1e2, 1e3],
         "raw": [complex(4.8, 0.21), complex(4.8, 2.14)],
     },
-    # serial, lot, attempt, outcome, bin, Ls (H), Rdc (ohm)
+    # serial, lot, attempt, outcome, bin, Ls at 1 kHz (H), Rdc (ohm), Q at 100 kHz
     "units": [
-        ("DC-0001", "LOT-A", 1, "pass", "1", 3.41e-4, 4.81),
-        ("DC-0002", "LOT-A", 1, "fail", "reject", 3.52e-4, 4.95),
-        ("DC-0002", "LOT-A", 2, "pass", "2", 3.49e-4, 4.93),
-        ("DC-0003", "LOT-B", 1, "pass", "1", 3.38e-4, 4.77),
-        ("DC-0099", "", 1, "pass", "1", 3.40e-4, 4.80),
+        ("DC-0001", "LOT-A", 1, "pass", "1", 3.41e-4, 4.81, 38.2),
+        ("DC-0002", "LOT-A", 1, "fail", "reject", 3.52e-4, 4.95, float("inf")),
+        ("DC-0002", "LOT-A", 2, "pass", "2", 3.49e-4, 4.93, 37.9),
+        ("DC-0003", "LOT-B", 1, "pass", "1", 3.38e-4, 4.77, float("nan")),
+        ("DC-0099", "", 1, "pass", "1", 3.40e-4, 4.80, 38.5),
     ],
 }
 
@@ -186,7 +189,7 @@ def fill_v1_example(url: str, schema: str | None = None) -> None:
             t["plans"].insert().returning(t["plans"].c.id),
             {"hash": plan_hash(plan_text), "name": plan_name, "text": plan_text, "created_at": _T0},
         ).scalar_one()
-        for i, (serial, lot, attempt, outcome, bin_, ls, rdc) in enumerate(ex["units"]):
+        for i, (serial, lot, attempt, outcome, bin_, ls, rdc, q) in enumerate(ex["units"]):
             began = _T0 + timedelta(days=1, minutes=i)
             unit_id = conn.execute(
                 t["units"].insert().returning(t["units"].c.id),
@@ -235,6 +238,17 @@ def fill_v1_example(url: str, schema: str | None = None) -> None:
                         "low_limit": None,
                         "high_limit": 5.5,
                         "verdict": "pass",
+                    },
+                    {
+                        "unit_id": unit_id,
+                        "seq": 2,
+                        "parameter": "Q",
+                        "frequency": 1e5,
+                        "value": None if math.isnan(q) else q,
+                        "si_unit": "",
+                        "low_limit": 30.0,
+                        "high_limit": None,
+                        "verdict": "pass" if 30.0 <= q < math.inf else "error",
                     },
                 ],
             )

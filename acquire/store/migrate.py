@@ -17,6 +17,7 @@ work once.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable
 
 from sqlalchemy import Connection, Index, inspect, text
@@ -51,7 +52,9 @@ def _add_column(conn: Connection, table: str, column_ddl: str) -> None:
 
 
 def _migrate_1_to_2(conn: Connection) -> None:
-    """Version 2: lots become records of their own; sweeps record their writer."""
+    """Version 2: lots become records of their own (units and measurements point to them);
+    DC measurements get frequency 0 instead of NULL, and a non-finite value moves from the value
+    column (NULL for NaN, or infinity) to ``value_special``; sweeps record their writer."""
     md = build_metadata(2)
     lots, units = md.tables["lots"], md.tables["units"]
     lots.create(conn)
@@ -70,6 +73,24 @@ def _migrate_1_to_2(conn: Connection) -> None:
     conn.execute(text("DROP INDEX ix_units_lot"))
     conn.execute(text("ALTER TABLE units DROP COLUMN lot"))
     Index("ix_units_lot_id", units.c.lot_id).create(conn)
+
+    _add_column(conn, "measurements", "lot_id INTEGER REFERENCES lots (id)")
+    _add_column(conn, "measurements", "value_special VARCHAR(4) NOT NULL DEFAULT ''")
+    conn.execute(
+        text(
+            "UPDATE measurements SET lot_id = "
+            "(SELECT units.lot_id FROM units WHERE units.id = measurements.unit_id)"
+        )
+    )
+    conn.execute(text("UPDATE measurements SET frequency = 0 WHERE frequency IS NULL"))
+    conn.execute(text("UPDATE measurements SET value_special = 'nan' WHERE value IS NULL"))
+    for special, value in (("inf", math.inf), ("-inf", -math.inf)):
+        conn.execute(
+            text("UPDATE measurements SET value_special = :s, value = NULL WHERE value = :v"),
+            {"s": special, "v": value},
+        )
+    for index in md.tables["measurements"].indexes:
+        index.create(conn)
 
     stamp = md.tables["sweeps"].c.last_write_at.type.compile(dialect=conn.dialect)
     _add_column(conn, "sweeps", f"last_write_at {stamp}")

@@ -8,6 +8,7 @@ a batch per transaction (for imports).
 
 from __future__ import annotations
 
+import math
 from collections.abc import Iterable
 from typing import TYPE_CHECKING, Any
 
@@ -15,18 +16,20 @@ from sqlalchemy import Connection, and_, case, func, select
 
 from acquire.errors import StoreError
 from acquire.store.catalog import get_or_create, lot_row
-from acquire.store.driver_insert import DriverInsert
+from acquire.store.driver_insert import DriverInsert, DriverRowsInsert
 from acquire.store.engine import (
     Database,
     finite_or_none,
     insert_ignoring,
-    insert_ignoring_duplicates,
 )
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
 from acquire.store.schema import TABLES, identity_key, utc_now
 
 if TYPE_CHECKING:
     import pandas as pd
+
+#: The frequency stored for a DC value (a measurement whose ``frequency`` is None).
+DC = 0.0
 
 _UNIT_FIELDS = (
     "serial",
@@ -52,21 +55,32 @@ def _unit_row(unit: UnitRecord, lot_id: int | None) -> dict[str, Any]:
     return row
 
 
-def _measurement_rows(unit_id: int, unit: UnitRecord) -> list[dict[str, Any]]:
-    return [
-        {
-            "unit_id": unit_id,
-            "seq": seq,
-            "parameter": m.parameter,
-            "frequency": finite_or_none(m.frequency),
-            "value": finite_or_none(m.value),
-            "si_unit": m.unit,
-            "low_limit": finite_or_none(m.low),
-            "high_limit": finite_or_none(m.high),
-            "verdict": m.verdict,
-        }
-        for seq, m in enumerate(unit.measurements)
-    ]
+def _split(value: float) -> tuple[float | None, str]:
+    """A measured value as (finite value or None, "" or "nan" / "inf" / "-inf")."""
+    value = float(value)
+    return (value, "") if math.isfinite(value) else (None, repr(value))
+
+
+def _measurement_rows(unit_id: int, unit: UnitRecord, lot_id: int | None) -> list[dict[str, Any]]:
+    rows = []
+    for seq, m in enumerate(unit.measurements):
+        value, special = _split(m.value)
+        rows.append(
+            {
+                "unit_id": unit_id,
+                "seq": seq,
+                "lot_id": lot_id,
+                "parameter": m.parameter,
+                "frequency": DC if m.frequency is None else finite_or_none(m.frequency),
+                "value": value,
+                "value_special": special,
+                "si_unit": m.unit,
+                "low_limit": finite_or_none(m.low),
+                "high_limit": finite_or_none(m.high),
+                "verdict": m.verdict,
+            }
+        )
+    return rows
 
 
 def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> dict[str, int]:
@@ -77,17 +91,17 @@ def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> d
 
 
 _UNIT_COLUMNS = (*_UNIT_FIELDS, "serial_key", "lot_id", "saved_at")
-_MEASUREMENT_COLUMNS = ("unit_id", "seq", "parameter", "frequency", "value", "si_unit")
-_MEASUREMENT_COLUMNS += ("low_limit", "high_limit", "verdict")
+_MEASUREMENT_COLUMNS = ("unit_id", "seq", "lot_id", "parameter", "frequency", "value")
+_MEASUREMENT_COLUMNS += ("value_special", "si_unit", "low_limit", "high_limit", "verdict")
 
 
-def _unit_inserts() -> dict[str, DriverInsert]:
+def _unit_inserts() -> dict[str, Any]:
     units, measurements = TABLES["units"], TABLES["measurements"]
     found = {}
     for dialect in ("sqlite", "postgresql"):
         ignoring = insert_ignoring(dialect, units, ("attempt_id",)).returning(units.c.id)
         found[dialect] = DriverInsert(ignoring, units, _UNIT_COLUMNS)
-    found["measurements"] = DriverInsert(measurements.insert(), measurements, _MEASUREMENT_COLUMNS)
+    found["measurements"] = DriverRowsInsert(measurements, _MEASUREMENT_COLUMNS)
     return found
 
 
@@ -99,12 +113,12 @@ def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool
 
     def work(conn: Connection) -> tuple[bool, dict[str, int]]:
         lots = _lot_ids(conn, [unit.lot], lot_cache)
-        row = _unit_row(unit, lots.get(unit.lot))
-        unit_id = _INSERTS[conn.dialect.name].returning_one(conn, row)
+        lot_id = lots.get(unit.lot)
+        unit_id = _INSERTS[conn.dialect.name].returning_one(conn, _unit_row(unit, lot_id))
         if unit_id is None:
             return False, lots
         if unit.measurements:
-            _INSERTS["measurements"].many(conn, _measurement_rows(unit_id, unit))
+            _INSERTS["measurements"].many(conn, _measurement_rows(unit_id, unit, lot_id))
         return True, lots
 
     stored, lots = db.write("saving a unit", work, idempotent=True)
@@ -116,20 +130,20 @@ def save_units(
     db: Database, records: Iterable[UnitRecord], lot_cache: dict[str, int], batch: int = 1000
 ) -> int:
     """Store many units, ``batch`` per transaction; return how many were new."""
-    units, measurements = TABLES["units"], TABLES["measurements"]
 
     def work(conn: Connection, chunk: list[UnitRecord]) -> tuple[int, dict[str, int]]:
         lots = _lot_ids(conn, (u.lot for u in chunk), lot_cache)
-        insert = insert_ignoring_duplicates(conn, units, ["attempt_id"])
-        insert = insert.returning(units.c.id, units.c.attempt_id)
-        rows = [_unit_row(u, lots.get(u.lot)) for u in chunk]
-        new = dict((a, i) for i, a in conn.execute(insert, rows).all())
-        values = [
-            r for u in chunk if u.attempt_id in new for r in _measurement_rows(new[u.attempt_id], u)
-        ]
-        if values:
-            conn.execute(measurements.insert(), values)
-        return len(new), lots
+        insert_unit = _INSERTS[conn.dialect.name]
+        values = []
+        for u in chunk:
+            lot_id = lots.get(u.lot)
+            unit_id = insert_unit.returning_one(conn, _unit_row(u, lot_id))
+            if unit_id is not None:
+                values.append((unit_id, u, lot_id))
+        rows = [r for unit_id, u, lot_id in values for r in _measurement_rows(unit_id, u, lot_id)]
+        if rows:
+            _INSERTS["measurements"].many(conn, rows)
+        return len(values), lots
 
     stored = 0
     chunk: dict[str, UnitRecord] = {}
@@ -165,9 +179,11 @@ def _records(conn: Connection, where: Any) -> list[UnitRecord]:
             select(ms).where(ms.c.unit_id.in_(part)).order_by(ms.c.unit_id, ms.c.seq)
         )
         for m in rows:
-            value = float("nan") if m.value is None else m.value
+            value = float(m.value_special) if m.value_special else m.value
+            value = float("nan") if value is None else value
+            f = None if m.frequency == DC else m.frequency
             record = MeasurementRecord(
-                m.parameter, value, m.si_unit, m.frequency, m.low_limit, m.high_limit, m.verdict
+                m.parameter, value, m.si_unit, f, m.low_limit, m.high_limit, m.verdict
             )
             found[m.unit_id].append(record)
     return [
@@ -227,60 +243,58 @@ SUMMARY_COLUMNS += ("mean", "std", "min", "max")
 def lot_summary(db: Database, lot: str) -> pd.DataFrame:
     """Statistics of every measured parameter of lot ``lot``, computed by the database.
 
-    One row per (parameter, frequency, unit): ``count`` measurements, ``valid`` of them finite,
-    ``passed`` with verdict "pass", ``yield`` = passed / count, and ``mean``, ``std`` (sample
-    standard deviation, two-pass for accuracy), ``min``, ``max`` over the finite values. Every
-    stored attempt counts (retests included); see ``lot_yield`` for yields per serial.
+    One row per (parameter, frequency, unit), frequency NaN for DC values: ``count``
+    measurements, ``valid`` of them finite, ``passed`` with verdict "pass", ``yield`` = passed /
+    count, and ``mean``, ``std`` (sample standard deviation, from the deviations from the mean:
+    a second pass, so a large mean does not eat the digits of a small spread), ``min``, ``max``
+    over the finite values. Every stored attempt counts (retests included); see ``lot_yield``
+    for yields per serial. Both passes read the ``ix_measurements_lot_summary`` index.
     """
     import numpy as np
     import pandas as pd
 
-    m, u = TABLES["measurements"], TABLES["units"]
-    inf = float("inf")
-    finite = case((and_(m.c.value > -inf, m.c.value < inf), m.c.value), else_=None)
-    freq = func.coalesce(m.c.frequency, -1.0)
+    m = TABLES["measurements"]
 
     def work(conn: Connection) -> list:
         lot_id = _lot_id(conn, lot)
-        joined = m.join(u, u.c.id == m.c.unit_id)
         g = (
             select(
-                m.c.parameter.label("parameter"),
-                freq.label("f"),
-                m.c.si_unit.label("unit"),
+                m.c.parameter,
+                m.c.frequency,
+                m.c.si_unit,
                 func.count().label("count"),
-                func.count(finite).label("valid"),
-                func.sum(case((m.c.verdict == PASS, 1), else_=0)).label("passed"),
-                func.avg(finite).label("mean"),
-                func.min(finite).label("min"),
-                func.max(finite).label("max"),
+                func.count(m.c.value).label("valid"),
+                func.count(case((m.c.verdict == PASS, 1))).label("passed"),
+                func.avg(m.c.value).label("mean"),
+                func.min(m.c.value).label("min"),
+                func.max(m.c.value).label("max"),
             )
-            .select_from(joined)
-            .where(u.c.lot_id == lot_id)
-            .group_by(m.c.parameter, freq, m.c.si_unit)
+            .where(m.c.lot_id == lot_id)
+            .group_by(m.c.parameter, m.c.frequency, m.c.si_unit)
             .cte("g")
         )
-        match = and_(g.c.parameter == m.c.parameter, g.c.f == freq, g.c.unit == m.c.si_unit)
-        deviation = finite - g.c.mean
-        stats = [g.c[n] for n in ("parameter", "f", "unit", "count", "valid", "passed", "mean")]
-        stats += [g.c["min"], g.c["max"]]
-        query = (
-            select(*stats, func.sum(deviation * deviation).label("ss"))
-            .select_from(joined.join(g, match))
-            .where(u.c.lot_id == lot_id)
-            .group_by(*stats)
-            .order_by(g.c.parameter, g.c.f, g.c.unit)
+        deviation = m.c.value - g.c.mean
+        spread = (
+            select(func.sum(deviation * deviation))
+            .where(
+                m.c.lot_id == lot_id,
+                m.c.parameter == g.c.parameter,
+                m.c.frequency == g.c.frequency,
+                m.c.si_unit == g.c.si_unit,
+            )
+            .scalar_subquery()
         )
+        query = select(g, spread.label("ss")).order_by(g.c.parameter, g.c.frequency, g.c.si_unit)
         return conn.execute(query).all()
 
     rows = db.read("summarising a lot", work)
     out = []
     for r in rows:
         std = np.sqrt(r.ss / (r.valid - 1)) if r.valid > 1 and r.ss is not None else np.nan
-        freq_hz = np.nan if r.f < 0 else r.f
         passed = int(r.passed)
         out.append(
-            (r.parameter, freq_hz, r.unit, r.count, r.valid, passed, passed / r.count)
+            (r.parameter, np.nan if r.frequency == DC else r.frequency, r.si_unit, r.count)
+            + (r.valid, passed, passed / r.count)
             + tuple(np.nan if v is None else float(v) for v in (r.mean, std, r.min, r.max))
         )
     return pd.DataFrame(out, columns=list(SUMMARY_COLUMNS))

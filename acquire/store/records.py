@@ -22,6 +22,9 @@ from acquire.store.schema import utc_now
 
 #: The verdict and outcome word that counts as passing in yields.
 PASS = "pass"
+#: Longest parameter name, unit and verdict of a measurement: they are the test plan's words
+#: (and are indexed for lot statistics); serials, names and notes have no limit.
+WORD_LIMITS = {"parameter": 100, "unit": 20, "verdict": 40}
 
 
 def new_attempt_id() -> str:
@@ -37,7 +40,8 @@ def _aware(name: str, value: datetime | None) -> None:
 @dataclass(frozen=True)
 class MeasurementRecord:
     """One judged value of a unit: ``parameter`` (``"Ls"``, ``"Q"``, ...) at ``frequency`` Hz
-    (None for DC values such as a winding's DC resistance), ``value`` in the SI unit ``unit``,
+    (None for DC values such as a winding's DC resistance; 0 Hz means the same and becomes None),
+    ``value`` in the SI unit ``unit`` (NaN for an invalid reading, infinite for an overrange one),
     the limits actually applied (after any guard band; None for an open side) and the verdict.
     """
 
@@ -54,6 +58,14 @@ class MeasurementRecord:
             v = getattr(self, name)
             if v is not None:
                 object.__setattr__(self, name, float(v))
+        if self.frequency == 0.0:
+            object.__setattr__(self, "frequency", None)
+        for name, longest in WORD_LIMITS.items():
+            if len(getattr(self, name)) > longest:
+                raise StoreError(
+                    f"a measurement's {name} may have at most {longest} characters (it names a "
+                    f"quantity of the test plan); got {len(getattr(self, name))}"
+                )
 
     def same_as(self, other: MeasurementRecord) -> bool:
         """Equal field by field, with NaN equal to NaN (an invalid reading stays invalid)."""

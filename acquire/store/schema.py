@@ -10,14 +10,19 @@ a query tool or a spreadsheet connected to the database can answer questions dir
      WHERE l.name = 'X' AND m.parameter = 'Q' AND m.frequency = 100000 AND m.value < 40
 
 Values are in SI units (hertz, ohm, henry, ...; ``measurements.si_unit`` names the unit of each
-value). Times are UTC. An invalid reading (NaN) is stored as NULL; an overrange one as infinity.
+value). Times are UTC. In sweep and reference points an invalid reading (NaN) is NULL and an
+overrange one infinity. A measurement's ``value`` is finite or NULL: ``value_special`` is "" for
+a finite value, else "nan", "inf" or "-inf" (so SQL averages need no filtering); a DC value has
+``frequency`` 0. Each measurement row also carries its unit's ``lot_id``, so lot statistics read
+one index (``ix_measurements_lot_summary``) instead of joining every unit.
 Names that identify a record (a meter's identity, a fixture's or lot's name, a serial number)
 may be of any length; their uniqueness and look-ups go through a SHA-256 ``key`` column.
 
-Versions: 1 kept a unit's lot as free text on the unit and knew nothing of who was writing a
-sweep. 2 (this release) adds the ``lots`` table (units point to it by ``lot_id``) and records
-the writing process and its last write on each sweep, so a sweep whose writer died can be told
-from one still running.
+Versions: 1 kept a unit's lot as free text on the unit, stored non-finite measurement values in
+the value column and DC frequencies as NULL, and knew nothing of who was writing a sweep.
+2 (this release) adds the ``lots`` table (units and measurements point to it by ``lot_id``),
+``value_special``, and the writing process and its last write on each sweep, so a sweep whose
+writer died can be told from one still running.
 """
 
 from __future__ import annotations
@@ -157,6 +162,7 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
             for std in ("open", "short", "load", "load_true")
             for part in "rx"
         ),
+        sqlite_with_rowid=False,
     )
     sweep_extra = []
     if version >= 2:
@@ -191,6 +197,7 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
         Column("idx", Integer, primary_key=True, autoincrement=False),
         Column("frequency", Double, nullable=False),
         *(_real(name) for name in ("raw_r", "raw_x", "corrected_r", "corrected_x")),
+        sqlite_with_rowid=False,
     )
     Table(
         "plans",
@@ -239,6 +246,21 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
         lot_column,
         lot_index,
     )
+    measurement_extra: list = []
+    if version >= 2:
+        measurement_extra = [
+            _ref("lot_id", "lots"),
+            Column("value_special", String(4), nullable=False, default=""),
+            Index(
+                "ix_measurements_lot_summary",
+                "lot_id",
+                "parameter",
+                "frequency",
+                "si_unit",
+                "value",
+                "verdict",
+            ),
+        ]
     Table(
         "measurements",
         md,
@@ -251,6 +273,8 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
         _real("low_limit"),
         _real("high_limit"),
         _text("verdict"),
+        *measurement_extra,
+        sqlite_with_rowid=False,
     )
     return md
 

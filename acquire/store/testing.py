@@ -113,20 +113,36 @@ def synthetic_unit(
     """A deterministic unit with ``measurements`` judged values (cycling through demo values)."""
     import numpy as np
 
-    rng = np.random.default_rng([seed, worker, index])
+    z = np.random.default_rng([seed, worker, index]).standard_normal(measurements)
+    return _unit(index, lot, worker, z, seed)
+
+
+def synthetic_units(
+    count: int, lot: str = "LOT-1", worker: int = 0, measurements: int = 10, seed: int = 0
+) -> Iterator[UnitRecord]:
+    """``count`` units like :func:`synthetic_unit` (other values, drawn in one go: faster)."""
+    import numpy as np
+
+    z = np.random.default_rng([seed, worker, count, 1]).standard_normal((count, measurements))
+    for index in range(count):
+        yield _unit(index, lot, worker, z[index].tolist(), seed)
+
+
+def _unit(index: int, lot: str, worker: int, z, seed: int) -> UnitRecord:
     records = []
-    for k in range(measurements):
+    for k, zk in enumerate(z):
         name, f, unit, nominal, sigma = _PARAMETERS[k % len(_PARAMETERS)]
-        value = float(nominal + sigma * rng.standard_normal())
+        value = float(nominal + sigma * zk)
         low, high = nominal - 2.5 * sigma, nominal + 2.5 * sigma
         verdict = "pass" if low <= value <= high else "fail"
         records.append(MeasurementRecord(name, value, unit, f, low, high, verdict))
+    good = all(m.verdict == "pass" for m in records)
     began = _T0 + timedelta(seconds=index)
     return UnitRecord(
         serial=f"W{worker}-{index:07d}",
         lot=lot,
-        outcome="pass" if all(m.verdict == "pass" for m in records) else "fail",
-        bin="1" if all(m.verdict == "pass" for m in records) else "reject",
+        outcome="pass" if good else "fail",
+        bin="1" if good else "reject",
         station=f"station-{worker}",
         operator="demo operator",
         started_at=began,
@@ -150,6 +166,9 @@ def _main(argv: list[str] | None = None) -> int:
     p.add_argument("--lot", default="LOT-1")
     p.add_argument("--replay-worker", type=int, help="afterwards, save this worker's units again")
     p.add_argument("--replay", type=int, default=0, help="how many units to replay")
+    p.add_argument(
+        "--replay-every", type=int, default=10, help="save every Nth unit twice (0: never)"
+    )
     p.add_argument("--start-at", type=float, help="wait until this time.time() before writing")
     args = p.parse_args(argv)
     stored = replayed_new = 0
@@ -165,7 +184,7 @@ def _main(argv: list[str] | None = None) -> int:
         for i, unit in enumerate(units):
             stored += store.save_unit(unit)
             recent = [*recent[-5:], unit]
-            if i % 10 == 9:
+            if args.replay_every and i % args.replay_every == args.replay_every - 1:
                 store.save_unit(recent[0])
         if args.replay_worker is not None:
             for i in range(args.replay):

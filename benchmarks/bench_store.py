@@ -1,0 +1,245 @@
+"""Speed of the results store, as ratios against baselines measured in the same run.
+
+    python benchmarks/bench_store.py            # full sizes (about a minute and a half)
+    python benchmarks/bench_store.py --quick    # smaller sizes (about 20 s)
+
+1. Units into SQLite with durability on (WAL, synchronous=FULL, one transaction per unit), each
+   unit with 10 measurements, through ``Store.save_unit``; baseline: bare ``sqlite3`` putting the
+   same rows into an identical empty store, one transaction per unit (``execute`` for the unit,
+   ``executemany`` for its measurements, same pragmas). Rounds alternate between the two and the
+   median round counts. Goal: at least 0.5x the baseline and at least 1,000 units/s.
+2. Four station processes writing units to PostgreSQL at once (``python -m
+   acquire.store.testing``), against one such process alone. Goal: at least 1,000 units/s
+   together.
+3. Lot summary (count, yield, mean, standard deviation per parameter) over 100,000 stored units
+   (1,000,000 measurements) in SQL, against loading the same measurement rows into pandas and
+   grouping there. Goal: under 1 s. On PostgreSQL too when it is reachable, after the
+   ``VACUUM ANALYZE`` that autovacuum would run after such a bulk load.
+
+The PostgreSQL server is ``ACQUIRE_TEST_POSTGRES`` (default
+postgresql://postgres@127.0.0.1:5432/test); each run uses its own schema and drops it.
+Unit values are demo data of our own invention (``acquire.store.testing``).
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sqlite3
+import statistics
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import pandas as pd
+from sqlalchemy import text
+
+from acquire.store import open_store
+from acquire.store.production import _measurement_rows, _unit_row
+from acquire.store.schema import TABLES
+from acquire.store.testing import (
+    postgres_unreachable,
+    postgres_url,
+    synthetic_units,
+    temporary_schema,
+)
+
+ROWS: list[tuple[str, str, str, str, str]] = []
+
+
+def report(case: str, ours: str, baseline: str, ratio: str, goal: str, met: bool | None) -> None:
+    ROWS.append((case, ours, baseline, ratio, goal, {True: "yes", False: "NO", None: "-"}[met]))
+
+
+def _sqlite_rows(unit):
+    """The unit's rows exactly as the store writes them, as plain tuples for sqlite3."""
+    row = _unit_row(unit, None)
+    units = TABLES["units"]
+    names = list(row)
+    values = []
+    for name in names:
+        v = row[name]
+        process = units.c[name].type.bind_processor(_DIALECT)
+        values.append(process(v) if process else v)
+    return names, tuple(values), [tuple(m.values())[1:] for m in _measurement_rows(0, unit, None)]
+
+
+def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
+    global _DIALECT
+    bare_path, store_path = folder / "bare.db", folder / "store.db"
+    open_store(f"sqlite:///{bare_path}").close()
+    store = open_store(f"sqlite:///{store_path}")
+    _DIALECT = store.engine.dialect
+    bare = sqlite3.connect(bare_path, isolation_level=None)
+    bare.execute("PRAGMA journal_mode = WAL")
+    bare.execute("PRAGMA synchronous = FULL")
+    bare.execute("PRAGMA foreign_keys = ON")
+    mcols = list(_measurement_rows(0, next(synthetic_units(1)), None)[0])
+    m_sql = f"INSERT INTO measurements ({', '.join(mcols)}) VALUES ({', '.join('?' * len(mcols))})"
+    bare_rates, store_rates = [], []
+    for r in range(rounds):
+        units = list(synthetic_units(per_round, lot="", worker=2 * r))
+        theirs = list(synthetic_units(per_round, lot="", worker=2 * r + 1))
+        began = time.perf_counter()
+        for unit in theirs:
+            names, head, measurements = _sqlite_rows(unit)
+            sql = f"INSERT INTO units ({', '.join(names)}) VALUES ({', '.join('?' * len(names))})"
+            bare.execute("BEGIN IMMEDIATE")
+            unit_id = bare.execute(sql, head).lastrowid
+            bare.executemany(m_sql, [(unit_id, *m) for m in measurements])
+            bare.execute("COMMIT")
+        bare_rates.append(per_round / (time.perf_counter() - began))
+        began = time.perf_counter()
+        for unit in units:
+            store.save_unit(unit)
+        store_rates.append(per_round / (time.perf_counter() - began))
+    bare.close()
+    store.close()
+    ours, base = statistics.median(store_rates), statistics.median(bare_rates)
+    report(
+        f"SQLite units (10 meas., FULL sync), {rounds} x {per_round}",
+        f"{ours:,.0f} units/s",
+        f"{base:,.0f} units/s",
+        f"{ours / base:.2f}x",
+        ">= 0.5x, >= 1,000/s",
+        ours / base >= 0.5 and ours >= 1000,
+    )
+
+
+def _stations(url: str, schema: str, count: int, per_station: int, first_worker: int) -> float:
+    start = time.time() + 2.0 + 0.5 * count
+    procs = [
+        subprocess.Popen(
+            [
+                sys.executable,
+                "-m",
+                "acquire.store.testing",
+                url,
+                "--schema",
+                schema,
+                "--worker",
+                str(first_worker + k),
+                "--count",
+                str(per_station),
+                "--replay-every",
+                "0",
+                "--start-at",
+                f"{start:.3f}",
+            ],
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
+            text=True,
+        )  # fmt: skip
+        for k in range(count)
+    ]
+    seconds = []
+    for p in procs:
+        out, err = p.communicate(timeout=600)
+        if p.returncode != 0:
+            raise SystemExit(f"a station process failed:\n{err}")
+        seconds.append(json.loads(out)["seconds"])
+    return count * per_station / max(seconds)
+
+
+def bench_postgres_stations(per_station: int) -> None:
+    url = postgres_url()
+    reason = postgres_unreachable(url)
+    if reason:
+        report("PostgreSQL, 4 stations", "skipped", reason, "-", ">= 1,000/s", None)
+        return
+    with temporary_schema(url) as schema:
+        open_store(url, schema=schema).close()
+        one = _stations(url, schema, 1, per_station, 100)
+        four = _stations(url, schema, 4, per_station, 0)
+    report(
+        f"PostgreSQL units, 4 stations x {per_station}",
+        f"{four:,.0f} units/s",
+        f"{one:,.0f} units/s (1 station)",
+        f"{four / one:.2f}x",
+        ">= 1,000/s together",
+        four >= 1000,
+    )
+
+
+def _time(call, repeat: int = 3) -> float:
+    best = float("inf")
+    for _ in range(repeat):
+        began = time.perf_counter()
+        call()
+        best = min(best, time.perf_counter() - began)
+    return best
+
+
+def _pandas_summary(store) -> pd.DataFrame:
+    query = text(
+        "SELECT parameter, frequency, si_unit, value, verdict FROM measurements m "
+        "JOIN lots l ON l.id = m.lot_id WHERE l.name = :lot"
+    )
+    with store.engine.connect() as conn:
+        frame = pd.DataFrame(conn.execute(query, {"lot": "LOT-BIG"}).all())
+    frame["passed"] = frame["verdict"] == "pass"
+    grouped = frame.groupby(["parameter", "frequency", "si_unit"])
+    return grouped.agg(
+        count=("value", "size"),
+        passed=("passed", "sum"),
+        mean=("value", "mean"),
+        std=("value", "std"),
+    )
+
+
+def bench_summary(store, units: int, label: str) -> None:
+    began = time.perf_counter()
+    store.save_units(synthetic_units(units, lot="LOT-BIG", worker=7), batch=5000)
+    loaded = time.perf_counter() - began
+    if store.engine_name == "postgresql":
+        with store.engine.connect().execution_options(isolation_level="AUTOCOMMIT") as conn:
+            conn.exec_driver_sql("VACUUM ANALYZE")
+    summary = store.lot_summary("LOT-BIG")
+    assert int(summary["count"].sum()) == 10 * units, "the summary lost rows"
+    ours = _time(lambda: store.lot_summary("LOT-BIG"))
+    per_serial = _time(lambda: store.lot_yield("LOT-BIG"))
+    theirs = _time(lambda: _pandas_summary(store), repeat=1)
+    report(
+        f"{label} lot summary, {units:,} units (loaded in {loaded:.0f} s)",
+        f"{ours:.3f} s",
+        f"{theirs:.3f} s (rows into pandas)",
+        f"{theirs / ours:.1f}x faster",
+        "< 1 s",
+        ours < 1.0,
+    )
+    report(
+        f"{label} lot yield per serial", f"{per_serial:.3f} s", "-", "-", "< 1 s", per_serial < 1.0
+    )
+
+
+def main() -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--quick", action="store_true", help="smaller sizes, for a fast look")
+    parser.add_argument("--no-postgres", action="store_true", help="SQLite only")
+    args = parser.parse_args()
+    per_round, rounds = (400, 3) if args.quick else (1500, 5)
+    per_station = 250 if args.quick else 1000
+    summary_units = 20_000 if args.quick else 100_000
+    with tempfile.TemporaryDirectory() as folder:
+        bench_sqlite_units(Path(folder), per_round, rounds)
+        with open_store(f"sqlite:///{Path(folder) / 'big.db'}") as store:
+            bench_summary(store, summary_units, "SQLite")
+    if not args.no_postgres:
+        bench_postgres_stations(per_station)
+        url = postgres_url()
+        if postgres_unreachable(url) is None:
+            with temporary_schema(url) as schema, open_store(url, schema=schema) as store:
+                bench_summary(store, summary_units, "PostgreSQL")
+    widths = [max(len(r[i]) for r in ROWS + [HEAD]) for i in range(6)]
+    for row in [HEAD, tuple("-" * w for w in widths), *ROWS]:
+        print("  ".join(cell.ljust(w) for cell, w in zip(row, widths, strict=True)))
+    return 0 if all(r[5] != "NO" for r in ROWS) else 1
+
+
+HEAD = ("case", "store", "baseline", "ratio", "goal", "met")
+_DIALECT = None
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -19,6 +19,7 @@ from __future__ import annotations
 
 import contextlib
 import logging
+import math
 import time
 from collections.abc import Callable
 from typing import TypeVar
@@ -119,12 +120,13 @@ class Session:
             ) from exc
 
     def close(self) -> None:
-        """Close the resource (and its resource manager); safe to call twice."""
+        """Close the resource; safe to call twice.
+
+        The resource manager is left open: pyvisa shares one per VISA library in a process, and
+        closing it would close every other resource the program has open through it.
+        """
         self._drop_resource()
-        if self._manager is not None:
-            with contextlib.suppress(VisaIOError, OSError):
-                self._manager.close()
-            self._manager = None
+        self._manager = None
 
     @property
     def is_open(self) -> bool:
@@ -323,7 +325,10 @@ class Session:
         self.write(message)
         self._suspect = True  # until the whole reply is read, whatever interrupts us
         self._wait_readable(deadline, message, seconds)
-        self._set_timeout(deadline - time.monotonic())
+        # What is left of the timeout, rounded up to an eighth of it: the VISA attribute then
+        # changes only when a reply was slow to start, not on every query.
+        step = seconds / 8
+        self._set_timeout(math.ceil(max(deadline - time.monotonic(), 0.0) / step) * step)
         try:
             return self._resource.read_raw()
         except VisaIOError as exc:

@@ -61,6 +61,17 @@ def meter_for(sim, dialect="simulated", **kw) -> ImpedanceMeter:
     return ImpedanceMeter.open(sim.resource, dialect=dialect, **kw)
 
 
+def test_closing_the_meter_leaves_other_resources_open(sim):
+    rm = pyvisa.ResourceManager("@py")
+    other = rm.open_resource(sim.resource, read_termination="\n", write_termination="\n")
+    try:
+        with meter_for(sim) as meter:
+            meter.identify()
+        assert other.query("*OPC?") == "1"
+    finally:
+        other.close()
+
+
 def test_identity_and_nagle_off(sim):
     with meter_for(sim) as meter:
         ident = meter.identify()

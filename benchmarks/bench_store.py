@@ -37,7 +37,7 @@ import pandas as pd
 from sqlalchemy import text
 
 from acquire.store import open_store
-from acquire.store.production import _measurement_rows, _unit_row
+from acquire.store.production import MEASUREMENT_COLUMNS, _measurement_rows, _unit_row
 from acquire.store.schema import TABLES
 from acquire.store.testing import (
     postgres_unreachable,
@@ -63,7 +63,7 @@ def _sqlite_rows(unit):
         v = row[name]
         process = units.c[name].type.bind_processor(_DIALECT)
         values.append(process(v) if process else v)
-    return names, tuple(values), [tuple(m.values())[1:] for m in _measurement_rows(0, unit, None)]
+    return names, tuple(values), [m[1:] for m in _measurement_rows(0, unit, None)]
 
 
 def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
@@ -76,7 +76,7 @@ def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
     bare.execute("PRAGMA journal_mode = WAL")
     bare.execute("PRAGMA synchronous = FULL")
     bare.execute("PRAGMA foreign_keys = ON")
-    mcols = list(_measurement_rows(0, next(synthetic_units(1)), None)[0])
+    mcols = MEASUREMENT_COLUMNS
     m_sql = f"INSERT INTO measurements ({', '.join(mcols)}) VALUES ({', '.join('?' * len(mcols))})"
     bare_rates, store_rates = [], []
     for r in range(rounds):

@@ -16,6 +16,7 @@ lost connection is invalidated as SQLAlchemy would do it, so retries and message
 from __future__ import annotations
 
 from collections.abc import Callable, Sequence
+from itertools import chain
 from typing import Any
 
 from sqlalchemy import Connection, Table, bindparam, insert
@@ -77,15 +78,21 @@ class DriverInsert:
 class DriverRowsInsert:
     """A plain INSERT of many rows into ``table``, up to ``per_statement`` rows in one statement
     (one multi-row ``VALUES`` list: one call into the driver, one statement for the server).
-    The default keeps a statement under 999 parameters, the limit of older SQLite builds."""
+    Rows are tuples of the values of ``columns``, in that order; with ``plain`` the caller
+    promises every value is already a plain ``str``, ``int``, ``float`` or None, and the types'
+    processors (which would only convert to those) are skipped. The default ``per_statement``
+    keeps a statement under 999 parameters, the limit of older SQLite builds."""
 
-    def __init__(self, table: Table, columns: Sequence[str], per_statement: int = 80) -> None:
+    def __init__(
+        self, table: Table, columns: Sequence[str], per_statement: int = 80, plain: bool = False
+    ) -> None:
         self._table = table
         self._columns = tuple(columns)
         self._per_statement = per_statement
-        self._compiled: dict[tuple[str, int], tuple[str, list[int], list[Processor]]] = {}
+        self._plain = plain
+        self._compiled: dict[tuple[str, int], tuple[str, list[int] | None, list[Processor]]] = {}
 
-    def _for(self, dialect: Dialect, rows: int) -> tuple[str, list[int], list[Processor]]:
+    def _for(self, dialect: Dialect, rows: int) -> tuple[str, list[int] | None, list[Processor]]:
         key = (dialect.name, rows)
         found = self._compiled.get(key)
         if found is None:
@@ -100,22 +107,27 @@ class DriverRowsInsert:
             compiled = insert(self._table).values(values).compile(dialect=_positional(dialect))
             order = [cell[name] for name in compiled.positiontup]
             types = [self._table.c[c].type for c in self._columns]
-            procs = [types[n % width].bind_processor(dialect) for n in order]
-            found = (compiled.string, order, procs)
+            procs = [
+                None if self._plain else types[n % width].bind_processor(dialect) for n in order
+            ]
+            direct = order == list(range(len(order))) and not any(procs)
+            found = (compiled.string, None if direct else order, procs)
             self._compiled[key] = found
         return found
 
-    def many(self, conn: Connection, rows: Sequence[dict[str, Any]]) -> None:
+    def many(self, conn: Connection, rows: Sequence[tuple]) -> None:
         """Insert every row of ``rows``."""
         step = self._per_statement
         for start in range(0, len(rows), step):
             part = rows[start : start + step]
             sql, order, procs = self._for(conn.dialect, len(part))
-            cells = [row[c] for row in part for c in self._columns]
-            params = tuple(
-                cells[n] if p is None else p(cells[n]) for n, p in zip(order, procs, strict=True)
-            )
-            _on_driver(conn, sql, params, lambda cursor, q=sql, v=params: cursor.execute(q, v))
+            cells = tuple(chain.from_iterable(part))
+            if order is not None:
+                cells = tuple(
+                    cells[n] if p is None else p(cells[n])
+                    for n, p in zip(order, procs, strict=True)
+                )
+            _on_driver(conn, sql, cells, lambda cursor, q=sql, v=cells: cursor.execute(q, v))
 
 
 def _positional(dialect: Dialect) -> Dialect:

@@ -61,24 +61,16 @@ def _split(value: float) -> tuple[float | None, str]:
     return (value, "") if math.isfinite(value) else (None, repr(value))
 
 
-def _measurement_rows(unit_id: int, unit: UnitRecord, lot_id: int | None) -> list[dict[str, Any]]:
+def _measurement_rows(unit_id: int, unit: UnitRecord, lot_id: int | None) -> list[tuple]:
+    """The unit's measurement rows, values in the order of ``MEASUREMENT_COLUMNS``."""
     rows = []
     for seq, m in enumerate(unit.measurements):
         value, special = _split(m.value)
+        frequency = DC if m.frequency is None else finite_or_none(m.frequency)
+        low, high = finite_or_none(m.low), finite_or_none(m.high)
         rows.append(
-            {
-                "unit_id": unit_id,
-                "seq": seq,
-                "lot_id": lot_id,
-                "parameter": m.parameter,
-                "frequency": DC if m.frequency is None else finite_or_none(m.frequency),
-                "value": value,
-                "value_special": special,
-                "si_unit": m.unit,
-                "low_limit": finite_or_none(m.low),
-                "high_limit": finite_or_none(m.high),
-                "verdict": m.verdict,
-            }
+            (unit_id, seq, m.parameter, frequency, value, m.unit, low, high, m.verdict)
+            + (lot_id, special)
         )
     return rows
 
@@ -91,8 +83,8 @@ def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> d
 
 
 _UNIT_COLUMNS = (*_UNIT_FIELDS, "serial_key", "lot_id", "saved_at")
-_MEASUREMENT_COLUMNS = ("unit_id", "seq", "lot_id", "parameter", "frequency", "value")
-_MEASUREMENT_COLUMNS += ("value_special", "si_unit", "low_limit", "high_limit", "verdict")
+#: The columns of a measurement row, in the table's order.
+MEASUREMENT_COLUMNS = tuple(c.name for c in TABLES["measurements"].columns)
 
 
 def _unit_inserts() -> dict[str, Any]:
@@ -101,7 +93,7 @@ def _unit_inserts() -> dict[str, Any]:
     for dialect in ("sqlite", "postgresql"):
         ignoring = insert_ignoring(dialect, units, ("attempt_id",)).returning(units.c.id)
         found[dialect] = DriverInsert(ignoring, units, _UNIT_COLUMNS)
-    found["measurements"] = DriverRowsInsert(measurements, _MEASUREMENT_COLUMNS)
+    found["measurements"] = DriverRowsInsert(measurements, MEASUREMENT_COLUMNS, plain=True)
     return found
 
 

@@ -80,13 +80,21 @@ class DriverRowsInsert:
     (one multi-row ``VALUES`` list: one call into the driver, one statement for the server).
     Rows are tuples of the values of ``columns``, in that order; with ``plain`` the caller
     promises every value is already a plain ``str``, ``int``, ``float`` or None, and the types'
-    processors (which would only convert to those) are skipped. The default ``per_statement``
-    keeps a statement under 999 parameters, the limit of older SQLite builds."""
+    processors (which would only convert to those) are skipped. ``statement(dialect_name)``, if
+    given, makes the INSERT to start from (one that skips duplicates and returns values, say).
+    Keep ``per_statement`` times the number of columns under 999 parameters, the limit of older
+    SQLite builds."""
 
     def __init__(
-        self, table: Table, columns: Sequence[str], per_statement: int = 80, plain: bool = False
+        self,
+        table: Table,
+        columns: Sequence[str],
+        per_statement: int = 80,
+        plain: bool = False,
+        statement: Callable[[str], Insert] | None = None,
     ) -> None:
         self._table = table
+        self._statement = statement
         self._columns = tuple(columns)
         self._per_statement = per_statement
         self._plain = plain
@@ -104,7 +112,8 @@ class DriverRowsInsert:
                 {c: bindparam(f"{c}__{i}", type_=self._table.c[c].type) for c in self._columns}
                 for i in range(rows)
             ]
-            compiled = insert(self._table).values(values).compile(dialect=_positional(dialect))
+            base = insert(self._table) if self._statement is None else self._statement(dialect.name)
+            compiled = base.values(values).compile(dialect=_positional(dialect))
             order = [cell[name] for name in compiled.positiontup]
             types = [self._table.c[c].type for c in self._columns]
             procs = [
@@ -115,9 +124,10 @@ class DriverRowsInsert:
             self._compiled[key] = found
         return found
 
-    def many(self, conn: Connection, rows: Sequence[tuple]) -> None:
-        """Insert every row of ``rows``."""
+    def many(self, conn: Connection, rows: Sequence[tuple]) -> list[tuple]:
+        """Insert every row of ``rows``; return the rows the statement returned (if any)."""
         step = self._per_statement
+        returned: list[tuple] = []
         for start in range(0, len(rows), step):
             part = rows[start : start + step]
             sql, order, procs = self._for(conn.dialect, len(part))
@@ -127,7 +137,13 @@ class DriverRowsInsert:
                     cells[n] if p is None else p(cells[n])
                     for n, p in zip(order, procs, strict=True)
                 )
-            _on_driver(conn, sql, cells, lambda cursor, q=sql, v=cells: cursor.execute(q, v))
+
+            def run(cursor: Any, q: str = sql, v: tuple = cells) -> list[tuple]:
+                cursor.execute(q, v)
+                return [tuple(r) for r in cursor.fetchall()] if cursor.description else []
+
+            returned += _on_driver(conn, sql, cells, run)
+        return returned
 
 
 def _positional(dialect: Dialect) -> Dialect:

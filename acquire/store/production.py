@@ -94,6 +94,14 @@ def _unit_inserts() -> dict[str, Any]:
         ignoring = insert_ignoring(dialect, units, ("attempt_id",)).returning(units.c.id)
         found[dialect] = DriverInsert(ignoring, units, _UNIT_COLUMNS)
     found["measurements"] = DriverRowsInsert(measurements, MEASUREMENT_COLUMNS, plain=True)
+    found["units"] = DriverRowsInsert(
+        units,
+        _UNIT_COLUMNS,
+        per_statement=50,
+        statement=lambda dialect: insert_ignoring(dialect, units, ("attempt_id",)).returning(
+            units.c.id, units.c.attempt_id
+        ),
+    )
     return found
 
 
@@ -125,17 +133,19 @@ def save_units(
 
     def work(conn: Connection, chunk: list[UnitRecord]) -> tuple[int, dict[str, int]]:
         lots = _lot_ids(conn, (u.lot for u in chunk), lot_cache)
-        insert_unit = _INSERTS[conn.dialect.name]
-        values = []
+        heads = []
         for u in chunk:
-            lot_id = lots.get(u.lot)
-            unit_id = insert_unit.returning_one(conn, _unit_row(u, lot_id))
-            if unit_id is not None:
-                values.append((unit_id, u, lot_id))
-        rows = [r for unit_id, u, lot_id in values for r in _measurement_rows(unit_id, u, lot_id)]
-        if rows:
-            _INSERTS["measurements"].many(conn, rows)
-        return len(values), lots
+            row = _unit_row(u, lots.get(u.lot))
+            heads.append(tuple(row[c] for c in _UNIT_COLUMNS))
+        new = dict((a, i) for i, a in _INSERTS["units"].many(conn, heads))
+        rows = [
+            r
+            for u in chunk
+            if u.attempt_id in new
+            for r in _measurement_rows(new[u.attempt_id], u, lots.get(u.lot))
+        ]
+        _INSERTS["measurements"].many(conn, rows)
+        return len(new), lots
 
     stored = 0
     chunk: dict[str, UnitRecord] = {}

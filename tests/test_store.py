@@ -275,6 +275,8 @@ def test_sqlite_store_settings(tmp_path):
     memory.save_unit(UnitRecord(serial="A", lot="LOT-1", outcome="pass"))
     assert memory.lot("LOT-1").attempts == 1
     memory.close()
+    with pytest.raises(StoreError, match="closed"):
+        memory.lot("LOT-1")
 
 
 @pytest.mark.skipif(os.name != "posix", reason="process checks use POSIX signals")

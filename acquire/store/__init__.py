@@ -14,6 +14,7 @@ writes to at once; one schema and one code path (SQLAlchemy Core) serve both::
 Modules: :mod:`~acquire.store.url` (store URLs), :mod:`~acquire.store.engine` (connections,
 transactions, SQLite durability settings), :mod:`~acquire.store.schema` (tables and versions),
 :mod:`~acquire.store.migrate`, :mod:`~acquire.store.records` (dataclasses),
+:mod:`~acquire.store.driver_insert` (the inserts on the hot path of saving units),
 :mod:`~acquire.store.catalog` (meters, fixtures, plans, lots), :mod:`~acquire.store.references`,
 :mod:`~acquire.store.sweeps`, :mod:`~acquire.store.production` (units, lot statistics),
 :mod:`~acquire.store.legacy` (stores of older versions, for tests) and

@@ -61,8 +61,9 @@ class Store:
     """Meters, fixtures, reference sets, sweeps, plans, lots and units in one database.
 
     Make one with :func:`open_store`. Every method is one transaction (a sweep's points, one per
-    ``add_points`` batch). A store may be shared by threads; a process that forks should open its
-    own store rather than use its parent's.
+    ``add_points`` batch). A store may be shared by threads (each gets its own connection),
+    except an in-memory SQLite store, which has a single connection and serves one thread; a
+    process that forks should open its own store rather than use its parent's.
     """
 
     def __init__(self, db: Database, created: bool, found_version: int, stale_after: float):

@@ -132,6 +132,7 @@ class Database:
         self._local = threading.local()
         self._lock = threading.Lock()
         self._connections: list[Connection] = []
+        self._closed = False
         if not self.is_postgres:
             event.listen(self.engine, "begin", self._sqlite_begin)
 
@@ -160,6 +161,8 @@ class Database:
         raise AssertionError("unreachable")  # pragma: no cover
 
     def _connection(self) -> Connection:
+        if self._closed:
+            raise StoreError(f"the store {self.location.shown} is closed: open it again")
         conn = getattr(self._local, "conn", None)
         if conn is not None and not conn.closed and not conn.invalidated:
             return conn
@@ -210,6 +213,7 @@ class Database:
 
     def dispose(self) -> None:
         """Close every connection of every thread, and the pool."""
+        self._closed = True
         with self._lock:
             for conn in self._connections:
                 conn.close()

@@ -132,9 +132,10 @@ class SweepWriter:
             raise StoreError(f"sweep {self._id} is already {self._finished}: begin a new sweep")
         f = np.atleast_1d(np.asarray(frequency, dtype=float))
         raw = np.atleast_1d(np.asarray(raw_z, dtype=complex))
-        cor = (
-            raw * np.nan if corrected_z is None else np.atleast_1d(np.asarray(corrected_z, complex))
-        )
+        if corrected_z is None:
+            cor = np.full(raw.shape, complex(np.nan, np.nan))
+        else:
+            cor = np.atleast_1d(np.asarray(corrected_z, dtype=complex))
         if f.ndim != 1 or raw.shape != f.shape or cor.shape != f.shape:
             raise StoreError(
                 f"sweep points need matching 1-D arrays, got frequency {f.shape}, "

@@ -166,6 +166,8 @@ def test_sweep_round_trip(store):
         writer.add_points([1e6], [1j], [1j])
     with pytest.raises(StoreError, match="matching"):
         store.begin_sweep().add_points([1, 2], [1j], [1j])
+    with pytest.raises(StoreError, match="cannot be stored as JSON"):
+        store.begin_sweep(settings={"level": float("nan")})
 
 
 def test_sweep_interrupted_by_exception_keeps_points(store):

@@ -30,7 +30,14 @@ from typing import Any, TypeVar
 
 import numpy as np
 from sqlalchemy import Connection, Engine, Table, create_engine, event
-from sqlalchemy.exc import DataError, DBAPIError, IntegrityError, OperationalError, SQLAlchemyError
+from sqlalchemy.exc import (
+    DataError,
+    DBAPIError,
+    IntegrityError,
+    OperationalError,
+    SQLAlchemyError,
+    StatementError,
+)
 from sqlalchemy.pool import StaticPool
 
 from acquire.errors import StoreError
@@ -53,8 +60,9 @@ def _json_default(value: Any) -> Any:
 
 
 def to_json(value: Any) -> str:
-    """Serialise sweep settings (numpy scalars and arrays become plain numbers and lists)."""
-    return json.dumps(value, default=_json_default, allow_nan=True, ensure_ascii=False)
+    """Serialise sweep settings as strict JSON (numpy scalars and arrays become plain numbers and
+    lists; NaN and infinity are refused, as PostgreSQL refuses them in JSON)."""
+    return json.dumps(value, default=_json_default, allow_nan=False, ensure_ascii=False)
 
 
 def make_engine(location: StoreLocation) -> Engine:
@@ -196,7 +204,9 @@ class Database:
         where = self.location.shown
         detail = getattr(exc, "orig", None) or exc
         detail = str(detail).strip().splitlines()[0] if str(detail).strip() else repr(exc)
-        if isinstance(exc, IntegrityError):
+        if isinstance(exc, StatementError) and not isinstance(exc, DBAPIError):
+            hint = "a value given to the store cannot be stored as it is; change or leave it out"
+        elif isinstance(exc, IntegrityError):
             hint = "the record refers to something that is not in the store, or clashes with one"
         elif isinstance(exc, DataError):
             hint = "a value cannot be held by this database (PostgreSQL text cannot hold NUL)"

@@ -24,7 +24,7 @@ import numpy as np
 from sqlalchemy import Connection, func, select, update
 
 from acquire.errors import StoreError
-from acquire.store.engine import Database, float_column
+from acquire.store.engine import Database, float_column, to_json
 from acquire.store.records import SweepInfo
 from acquire.store.schema import SWEEP_STATES, TABLES, utc_now
 
@@ -72,6 +72,10 @@ def begin_sweep(
     settings: dict[str, Any] | None = None,
 ) -> SweepWriter:
     """Record a new running sweep and return the writer for its points."""
+    try:
+        to_json(settings)
+    except (TypeError, ValueError) as exc:
+        raise StoreError(f"the sweep settings cannot be stored as JSON: {exc}") from None
     sweeps = TABLES["sweeps"]
     now = utc_now()
     row = {

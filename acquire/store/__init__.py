@@ -11,6 +11,12 @@ writes to at once; one schema and one code path (SQLAlchemy Core) serve both::
         store.save_unit(unit)
         print(store.lot_summary("L7"))
 
+Every record is written in one transaction; SQLite runs in WAL mode with ``synchronous=FULL``
+(a unit reported saved survives a power cut; see :mod:`~acquire.store.engine`). A unit's
+``attempt_id`` makes a repeated write store it once. A sweep left "running" by a process that
+died is reported as interrupted (see :mod:`~acquire.store.sweeps`). Opening an older store
+migrates it; a newer one is refused.
+
 Modules: :mod:`~acquire.store.url` (store URLs), :mod:`~acquire.store.engine` (connections,
 transactions, SQLite durability settings), :mod:`~acquire.store.schema` (tables and versions),
 :mod:`~acquire.store.migrate`, :mod:`~acquire.store.records` (dataclasses),

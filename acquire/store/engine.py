@@ -45,6 +45,8 @@ from acquire.store.url import StoreLocation
 
 #: Seconds a writer waits for another process to release an SQLite store before giving up.
 BUSY_TIMEOUT_S = 30.0
+#: Oldest SQLite library the store works with.
+MIN_SQLITE = (3, 35, 0)
 #: Seconds to wait for a PostgreSQL server to answer a new connection.
 CONNECT_TIMEOUT_S = 10
 
@@ -68,6 +70,14 @@ def to_json(value: Any) -> str:
 def make_engine(location: StoreLocation) -> Engine:
     """Create the SQLAlchemy engine for ``location`` with this module's connection settings."""
     if location.engine == "sqlite":
+        import sqlite3
+
+        if sqlite3.sqlite_version_info < MIN_SQLITE:
+            raise StoreError(
+                f"this Python's SQLite is {sqlite3.sqlite_version}; the store needs "
+                f"{'.'.join(map(str, MIN_SQLITE))} or later (RETURNING, DROP COLUMN): use a newer "
+                "Python build, or a PostgreSQL store"
+            )
         args: dict[str, Any] = {"check_same_thread": False, "timeout": BUSY_TIMEOUT_S}
         extra: dict[str, Any] = {"poolclass": StaticPool} if location.path is None else {}
         engine = create_engine(location.url, connect_args=args, json_serializer=to_json, **extra)

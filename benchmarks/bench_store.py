@@ -1,7 +1,7 @@
 """Speed of the results store, as ratios against baselines measured in the same run.
 
-    python benchmarks/bench_store.py            # full sizes (about a minute and a half)
-    python benchmarks/bench_store.py --quick    # smaller sizes (about 20 s)
+    python benchmarks/bench_store.py            # full sizes (about two and a half minutes)
+    python benchmarks/bench_store.py --quick    # smaller sizes (about 40 s; rougher numbers)
 
 1. Units into SQLite with durability on (WAL, synchronous=FULL, one transaction per unit), each
    unit with 10 measurements, through ``Store.save_unit``; baseline: bare ``sqlite3`` putting the
@@ -220,7 +220,7 @@ def main() -> int:
     parser.add_argument("--no-postgres", action="store_true", help="SQLite only")
     args = parser.parse_args()
     per_round, rounds = (400, 3) if args.quick else (1500, 5)
-    per_station = 250 if args.quick else 1000
+    per_station = 500 if args.quick else 1000
     summary_units = 20_000 if args.quick else 100_000
     with tempfile.TemporaryDirectory() as folder:
         bench_sqlite_units(Path(folder), per_round, rounds)

@@ -33,7 +33,7 @@ DESCRIPTION = """\
 Characterise and test coils with an impedance (LCR) meter over SCPI.
 
 Trade terms used throughout: Ls/Rs are the series inductance and resistance of the coil's
-equivalent circuit, Lp/Rp the parallel ones; Q = X/R is the quality factor and D = 1/Q the
+equivalent circuit, Lp/Rp the parallel ones; Q = |X|/R is the quality factor and D = 1/Q the
 dissipation factor; open/short/load are the reference measurements taken on the empty, shorted
 and standard-loaded fixture that let the tool remove the fixture from every reading.
 """

@@ -58,11 +58,11 @@ def test_capture_then_sweep_with_the_stored_reference_and_csv(tmp_path, monkeypa
         plan = ["--start", "1kHz", "--stop", "1MHz", "--points", "31"]
         code = main(
             ["reference", "capture", *common, *plan, "--fixture", "long-leads",
-             "--standards", "open,short,load", "--load-value", "100ohm", "--name", "leads A"]
+             "--load-value", "100ohm", "--name", "leads A"]
         )  # fmt: skip
         out = capsys.readouterr().out
         assert code == 0
-        assert len(prompts) == 3
+        assert len(prompts) == 3  # --load-value alone adds the load to open and short
         assert "discharged" in out and "licensed practice" in out  # the safety caution
         assert "saved reference set 1 ('leads A', open-short-load, 31 points)" in out
 

@@ -71,10 +71,15 @@ def test_fixture_near_its_own_resonance_is_flagged_where_it_happens():
     w = 2 * np.pi * GRID
     short = 0.05 + 1j * w * 2e-6
     open_ = short + 1 / (1j * w * 50e-12)
-    finding = only(ReferenceSet(GRID, open=open_, short=short).check(), "open")
+    # At a minority of the grid this is the fixture's own limit (a warning), not a mistake.
+    found = ReferenceSet(GRID, open=open_, short=short).check()
+    assert not [x for x in found if x.severity == "error"], found
+    finding = only(found, "open", "warning")
     ratio = np.abs(open_) / np.abs(short)
     bad = GRID[ratio < 10]
+    assert 0 < bad.size < GRID.size / 2
     assert f"at {bad.size} of 51 frequencies" in finding.message
+    assert "the fixture itself limits accuracy" in finding.message
     assert finding.frequency == GRID[np.argmin(ratio)]
 
 

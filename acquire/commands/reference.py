@@ -57,9 +57,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     cap.add_argument("--fixture", required=True, help="name of the fixture (e.g. bench-clips)")
     cap.add_argument(
         "--standards",
-        default="open,short",
         help="standards to capture, comma-separated, among open, short, load (default "
-        "open,short; add load with --load-value for the three-standard correction)",
+        "open,short, or open,short,load when --load-value is given)",
     )
     cap.add_argument(
         "--load-value",
@@ -123,7 +122,8 @@ def _capture(args: argparse.Namespace) -> int:
     from drivers.meter import ImpedanceMeter
 
     plan = plan_from_args(args)
-    standards = [s.strip().lower() for s in args.standards.split(",") if s.strip()]
+    chosen = args.standards or ("open,short,load" if args.load_value else "open,short")
+    standards = [s.strip().lower() for s in chosen.split(",") if s.strip()]
     load_true = None
     if "load" in standards:
         if not args.load_value:

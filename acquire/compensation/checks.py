@@ -11,8 +11,10 @@ Rules on the references
 - every reading finite: NaN is an invalid reading, infinity an overrange (error);
 - a load needs its true value, which must be finite and non-zero (error); a true value without
   a load reading is unused (warning);
-- ``|Zo| >= 10*|Zs|`` (error otherwise): an open that is not clearly above the short means the
-  two were swapped, or the fixture was shorted for the open or left open for the short;
+- ``|Zo| >= 10*|Zs|``: where the open is not clearly above the short at most of the grid (more
+  than half of its points), the two were swapped, or the fixture was shorted for the open or left
+  open for the short (error); where it fails at fewer points, the fixture itself limits accuracy
+  there, typically near the resonance of its own leads and stray capacitance (warning);
 - a short that is capacitive (theta < -45 degrees) and above 10 ohm looks like an open fixture;
   an open that is not capacitive (theta > -45 degrees) and below 10 ohm looks like a short
   (error): an empty fixture is a small capacitance, a shorted one a small resistance and
@@ -174,11 +176,21 @@ def _open_short_findings(zo, zs, grid) -> list[Finding]:
                 where, freq = _where(low, grid, worst)
                 text = (
                     f"|Z| of the open is less than {ACCURACY_RATIO:g}x that of the short {where}; "
-                    f"worst {ratio[worst]:.3g}x at {_hz(freq)}: the two were swapped, or the "
-                    "fixture was shorted for the open or left open for the short; capture both "
-                    "again"
+                    f"worst {ratio[worst]:.3g}x at {_hz(freq)}: "
                 )
-                found.append(Finding("error", "open", text, freq))
+                if 2 * np.count_nonzero(low) > low.size:
+                    text += (
+                        "the two were swapped, or the fixture was shorted for the open or left "
+                        "open for the short; capture both again"
+                    )
+                    found.append(Finding("error", "open", text, freq))
+                else:
+                    text += (
+                        "the fixture itself limits accuracy there (its leads and stray "
+                        "capacitance near their own resonance); corrected readings there are "
+                        "less accurate: shorten the leads or keep the sweep clear of that range"
+                    )
+                    found.append(Finding("warning", "open", text, freq))
         if zs is not None:
             like_open = (_phase(zs) < PHASE_LIMIT) & (np.abs(zs) > SHORT_OPEN_BOUNDARY)
             if np.any(like_open):

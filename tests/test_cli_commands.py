@@ -120,6 +120,21 @@ def test_sweep_without_reference_stores_raw_readings(tmp_path, capsys):
     assert points["corrected_r"].isna().all()
 
 
+def test_a_plan_outside_the_meter_range_is_refused_before_anything_is_recorded(tmp_path, capsys):
+    url = f"sqlite:///{tmp_path / 'range.db'}"
+    with running(dut="demo-coil", fixture="bench-leads", seed=24, measure_time=0) as sim:
+        code = main(
+            ["sweep", "--resource", sim.resource, "--store", url, "--start", "5Hz",
+             "--stop", "1MHz", "--no-live"]
+        )  # fmt: skip
+    captured = capsys.readouterr()
+    assert code == 2
+    assert "narrow the plan" in captured.err
+    assert "points" not in captured.out  # no progress was shown: nothing was measured
+    with open_store(url) as store:
+        assert store.list_sweeps() == []  # and no empty sweep was left in the store
+
+
 @pytest.mark.parametrize(
     "args, fragment",
     [

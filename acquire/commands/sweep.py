@@ -119,7 +119,8 @@ def run(args: argparse.Namespace) -> int:
     from acquire.csvout import write_sweep_csv
     from acquire.dashboard import open_view, summary
     from acquire.store import open_store
-    from acquire.sweep import run_sweep
+    from acquire.plan import check_range
+    from acquire.sweep import check_coverage, run_sweep
     from acquire.units import parse_quantity
     from drivers.meter import ImpedanceMeter
 
@@ -136,6 +137,9 @@ def run(args: argparse.Namespace) -> int:
         ) as meter:
             if level is not None or args.speed or args.averaging:
                 meter.configure(level=level, speed=args.speed, averaging=args.averaging)
+            check_range(plan, tuple(meter.frequency_range))
+            if refs is not None:
+                check_coverage(plan, refs)
             identity = meter.identify()
             state = prepare_state(plan, identity, refs, ref_id, args.fixture, args.dut, show)
             warn_about_references(state, refs, str(identity), args.fixture, args.max_reference_age)

@@ -118,8 +118,8 @@ def run(args: argparse.Namespace) -> int:
     from acquire.commands.reference import find_reference_set
     from acquire.csvout import write_sweep_csv
     from acquire.dashboard import open_view, summary
-    from acquire.store import open_store
     from acquire.plan import check_range
+    from acquire.store import open_store
     from acquire.sweep import check_coverage, run_sweep
     from acquire.units import parse_quantity
     from drivers.meter import ImpedanceMeter

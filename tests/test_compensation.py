@@ -263,6 +263,9 @@ def test_forward_model_undoes_the_correction(zm, zs, zo, zl, zt):
     # Whatever the standards, the map is bilinear and its inverse must return the reading.
     for a, b in ((zo, zs), (zl, zs), (zo, zl), (zo, zm)):
         assume(abs(a - b) > 1e-3 * max(abs(a), abs(b)))
+    # A fixture's reading cannot lie far beyond its own open: there the inverse map is so
+    # ill-conditioned (error grows as |zm| / |zo|) that float64 cannot meet 1e-9 in any form.
+    assume(abs(zm) <= 1e3 * max(abs(zo), abs(zs), abs(zl)))
     refs = ReferenceSet([1e3], open=[zo], short=[zs], load=[zl], load_true=zt)
     zx = refs.correct([1e3], [zm])
     back = refs.expected_reading([1e3], zx)[0]

@@ -60,6 +60,15 @@ class Exchange:
             return values
         return scpi.parse_numbers(reply, expected=2 * points)
 
+    def guarded(self, op: Operation, timeout: float) -> str:
+        """The reply text of the single query ``op``, followed by the dialect's ``wait`` when its
+        point sequence ends with one: a reply cut short then loses the final ``1`` and is refused
+        instead of a shortened number being taken for the answer."""
+        steps: Steps = [(op, {})]
+        if self._dialect.point_sequence[-1] == "wait":
+            steps.append((self._dialect.operations["wait"], {}))
+        return self.run(steps, timeout=timeout)[0]
+
     def run(
         self,
         steps: Steps,

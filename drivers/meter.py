@@ -354,10 +354,9 @@ class ImpedanceMeter:
         """DC resistance (ohm) as the meter measures it; inf if overrange."""
         op = self._dialect.operation("dc_resistance", "measure the DC resistance")
         timeout = self._timeout(1)
-        reply = self._session.call(
-            "DC resistance", lambda: self._io.run([(op, {})], timeout=timeout)[-1]
+        return self._session.call(
+            "DC resistance", lambda: scpi.parse_number(self._io.guarded(op, timeout))
         )
-        return scpi.parse_number(reply)
 
     def errors(self) -> list[ErrorEntry]:
         """Read and empty the meter's error queue (oldest first); nothing is raised."""

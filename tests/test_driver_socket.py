@@ -220,6 +220,18 @@ def test_dc_resistance(sim):
     assert rdc == pytest.approx(sim.seen_impedance(1e-3).real, rel=1e-6)
 
 
+@pytest.mark.parametrize("kind", ["truncate", "garble"])
+def test_dc_resistance_cut_short_or_garbled_is_measured_again(sim, kind):
+    # A reply cut short must not become a shorter number (0.07 ohm read as 6.99 ohm).
+    with meter_for(sim, timeout=0.3) as meter:
+        exact = meter.dc_resistance()
+        for seed in range(5):  # the seed moves the place where the reply is cut
+            sim.reseed(seed)
+            sim.inject(kind, 1)
+            assert meter.dc_resistance() == exact
+        assert meter.session.reconnects == 5
+
+
 def test_reset_returns_to_defaults_and_keeps_the_reading_pair(sim):
     with meter_for(sim) as meter:
         meter.configure(level=0.5, speed="slow")

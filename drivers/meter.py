@@ -147,7 +147,7 @@ class ImpedanceMeter:
             self._transfer = self._dialect.transfer
             self._prepare()
 
-        self._session.call("reset", action)
+        self._session.call("reset", action, op.idempotent)
 
     def configure(
         self,
@@ -176,7 +176,7 @@ class ImpedanceMeter:
             listed = ", ".join(f"{k}={v!r}" for k, v in wanted.items())
             self._check_queue(f"configure({listed})")
 
-        self._session.call("configure", action)
+        self._session.call("configure", action, all(op.idempotent for op, _ in steps))
         self._settings.update(wanted)
         if transfer is not None:
             self._transfer = transfer
@@ -321,7 +321,11 @@ class ImpedanceMeter:
 
         for i, fi in enumerate(f):
             context = {"frequency": _number(fi)}
-            chunk = self._session.call(f"measuring at {fi:g} Hz", lambda c=context: point(c))
+            chunk = self._session.call(
+                f"measuring at {fi:g} Hz",
+                lambda c=context: point(c),
+                all(o.idempotent for o in full),
+            )
             values[2 * i : 2 * i + 2] = chunk
             if on_points is not None:
                 on_points(
@@ -343,6 +347,7 @@ class ImpedanceMeter:
                 lambda c=context, n=part.size, t=timeout: self._io.readings(
                     [(op, c) for op in steps], n, t, self._binary
                 ),
+                all(op.idempotent for op in steps),
             )
             z = readings.from_flat(d.pair, part, values, d.qd_sign)
             out[start:stop] = z
@@ -355,7 +360,7 @@ class ImpedanceMeter:
         op = self._dialect.operation("dc_resistance", "measure the DC resistance")
         timeout = self._timeout(1)
         return self._session.call(
-            "DC resistance", lambda: scpi.parse_number(self._io.guarded(op, timeout))
+            "DC resistance", lambda: scpi.parse_number(self._io.guarded(op, timeout)), op.idempotent
         )
 
     def errors(self) -> list[ErrorEntry]:

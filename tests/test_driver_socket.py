@@ -283,6 +283,18 @@ def test_each_fault_ends_in_the_right_number_after_a_reconnect(
     assert elapsed < (retries + 1) * per_try + 2.0  # bounded: no hang
 
 
+def test_an_operation_the_dialect_marks_not_idempotent_is_not_repeated(sim, tmp_path):
+    path = dialect_variant(
+        tmp_path, {r"^(read = \{.*)( \})$": r"\1, idempotent = false\2"}, name="once"
+    )
+    with meter_for(sim, path, timeout=0.3) as meter:
+        sim.inject("stall", 1)
+        with pytest.raises(MeterTimeout, match="not repeated"):
+            meter.measure(1e3)
+        assert meter.session.reconnects == 1
+        assert meter.measure(2e3) == complex(sim.seen_impedance(2e3))
+
+
 def test_repeated_random_faults_never_give_a_wrong_number(sim):
     f = np.geomspace(100, 1e6, 120)
     sim.reseed(7)

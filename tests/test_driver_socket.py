@@ -297,17 +297,23 @@ def test_an_operation_the_dialect_marks_not_idempotent_is_not_repeated(sim, tmp_
 
 def test_repeated_random_faults_never_give_a_wrong_number(sim):
     f = np.geomspace(100, 1e6, 120)
-    sim.reseed(7)
-    sim.inject("garble", rate=0.05)
-    sim.inject("truncate", rate=0.03)
-    sim.inject("count", rate=0.03)
-    with meter_for(sim, timeout=0.3, retries=3) as meter:
-        try:
-            z = meter.sweep(f, mode="points")
-        except InstrumentError:
-            return  # the project's error is an acceptable end, a wrong number is not
-        assert meter.session.reconnects > 3  # the faults did fire
-    np.testing.assert_array_equal(z, sim.seen_impedance(f))
+    completed = 0
+    for seed in (7, 8, 9):
+        sim.clear_faults()
+        sim.reseed(seed)
+        sim.inject("garble", rate=0.05)
+        sim.inject("truncate", rate=0.03)
+        sim.inject("count", rate=0.03)
+        with meter_for(sim, timeout=0.3, retries=3) as meter:
+            try:
+                z = meter.sweep(f, mode="points")
+            except InstrumentError:
+                continue  # the project's error is an acceptable end, a wrong number is not
+            assert meter.session.reconnects > 3  # the faults did fire
+        np.testing.assert_array_equal(z, sim.seen_impedance(f))
+        completed += 1
+    sim.clear_faults()
+    assert completed >= 1  # at least one seed gets through, so the comparison above ran
 
 
 def test_error_pushed_on_the_queue_during_a_sweep_is_reported(sim):

@@ -109,8 +109,8 @@ def render(
     state: SweepState, width: int = 100, height: int = 30, now: datetime | None = None
 ) -> Group:
     """The whole live view for a terminal ``width`` x ``height`` cells."""
-    f, _, _ = state.points()
-    z = state.shown()
+    f, raw, corrected = state.points()
+    z = raw if corrected is None else corrected
     q = quantities(f, z) if f.size else None
     srf = self_resonance(f, z) if f.size else None
     side = width >= 80
@@ -376,9 +376,10 @@ class PlainProgress:
         """Print one progress line for the state as it stands."""
         s = self.state
         text = f"{s.count}/{s.planned} points ({100.0 * s.count / max(s.planned, 1):.0f} %)"
-        f, _, _ = s.points()
+        f, raw, corrected = s.points()
         if f.size:
-            q = quantities(f[-1:], s.shown()[-1:])
+            z = raw if corrected is None else corrected
+            q = quantities(f[-1:], z[-1:])
             values = "  ".join(f"{n}={format_value(n, float(q[n][0]))}" for n in s.quantities)
             text += f"  f={format_si(float(f[-1]), 'Hz')}  {values}"
         left = s.remaining()

@@ -228,3 +228,25 @@ def test_plot_draws_a_flat_line_in_one_row_and_axis_labels():
     assert filled == [2]
     axis = x_axis((100, 1e6), 40)
     assert axis.startswith("┴100Hz") and "┴1MHz" in axis and len(axis) == 40
+
+
+def test_live_view_reads_the_points_once_while_the_sweep_adds_more():
+    # The live view renders on rich's refresh thread while the sweep thread keeps adding
+    # points: frequencies and impedances must come from one read of the point count, or a chunk
+    # arriving between two reads gives arrays of different lengths and the redraw fails.
+    state = make_state(n_done=100)
+    f = state.plan.frequencies
+    taken = state.points
+
+    def points_then_a_chunk_arrives():
+        seen = taken()
+        i = state.count
+        if i < len(f):
+            state.add(
+                f[i : i + 1], through_leads(f[i : i + 1], coil(f[i : i + 1])), coil(f[i : i + 1])
+            )
+        return seen
+
+    state.points = points_then_a_chunk_arrives
+    text = record(DashboardView(state, now=NOW))
+    assert "measuring" in text

@@ -22,6 +22,7 @@ from typing import Any, Protocol
 
 import numpy as np
 
+from acquire.compensation.interpolation import END_TOLERANCE
 from acquire.errors import CompensationError
 from acquire.plan import FrequencyPlan, check_range
 from acquire.progress import SweepState
@@ -90,10 +91,15 @@ class SweepOutcome:
 
 
 def check_coverage(plan: FrequencyPlan, references: Any) -> None:
-    """Refuse a plan that reaches outside the reference set's grid (nothing is extrapolated)."""
+    """Refuse a plan that reaches outside the reference set's grid (nothing is extrapolated).
+
+    The ends are allowed the same rounding as the correction itself allows
+    (:data:`acquire.compensation.interpolation.END_TOLERANCE`), so a plan that passes here is
+    never refused part-way through the sweep.
+    """
     grid = np.asarray(references.frequency, dtype=float)
     low, high = float(grid[0]), float(grid[-1])
-    if plan.start < low * (1 - 1e-9) or plan.stop > high * (1 + 1e-9):
+    if plan.start < low * (1 - END_TOLERANCE) or plan.stop > high * (1 + END_TOLERANCE):
         raise CompensationError(
             f"the reference set covers {format_si(low, 'Hz')} to {format_si(high, 'Hz')} but the "
             f"plan spans {format_si(plan.start, 'Hz')} to {format_si(plan.stop, 'Hz')}; narrow "

@@ -192,3 +192,22 @@ def test_overrange_points_reach_the_state_and_the_store(store):
     assert state.overrange == 1
     assert "1 point(s) overrange, the first at 10.00 kHz" in state.all_warnings()
     assert np.isinf(store.sweep_points(writer.id)["raw_r"].to_numpy()[1])
+
+
+def test_coverage_check_agrees_with_the_correction_at_the_grid_ends():
+    # Whatever passes the coverage check before a sweep must be correctable point by point;
+    # a plan that reaches past the grid by more than the correction's rounding allowance is
+    # refused before the meter is touched, not part-way through the sweep.
+    from acquire.compensation import ReferenceSet
+    from acquire.sweep import check_coverage
+
+    grid = np.geomspace(1e3, 1e5, 11)
+    refs = ReferenceSet(grid, short=0.1 + 1j * 2 * np.pi * grid * 1e-7)
+    inside = list_plan([2e3, 1e5 * (1 + 1e-13)])  # rounding: taken as the grid's end
+    check_coverage(inside, refs)
+    assert np.all(np.isfinite(refs.correct(inside.frequencies, np.full(2, 5.0 + 1j))))
+    beyond = list_plan([2e3, 1e5 * (1 + 1e-10)])
+    with pytest.raises(CompensationError):
+        refs.correct(beyond.frequencies, np.full(2, 5.0 + 1j))
+    with pytest.raises(CompensationError, match="covers"):
+        check_coverage(beyond, refs)

@@ -198,3 +198,18 @@ def test_help_explains_trade_terms_and_safety():
     assert "OPEN" in ref and "SHORT" in ref and "LOAD" in ref and "DC bias" in ref
     capture = acquire("reference", "capture", "--help").stdout
     assert "DC bias" in capture and "licensed practice" in capture
+
+
+def test_a_bad_reference_age_in_the_environment_is_one_line_naming_it(monkeypatch, capsys):
+    # A bench set-up error in an environment variable must not break every command (even
+    # --help) with a traceback; the sweep that uses it says which variable to fix.
+    monkeypatch.setenv("ACQUIRE_MAX_REFERENCE_AGE", "8h")
+    with pytest.raises(SystemExit) as done:
+        main(["--help"])
+    assert done.value.code == 0
+    capsys.readouterr()
+    with pytest.raises(SystemExit) as done:
+        main(["sweep", "--resource", "TCPIP0::127.0.0.1::1::SOCKET"])
+    assert done.value.code == 2
+    err = capsys.readouterr().err
+    assert "ACQUIRE_MAX_REFERENCE_AGE" in err and "Traceback" not in err

@@ -73,8 +73,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument(
         "--max-reference-age",
-        type=float,
-        default=float(os.environ.get("ACQUIRE_MAX_REFERENCE_AGE", "8")),
+        type=_hours,
+        default=os.environ.get("ACQUIRE_MAX_REFERENCE_AGE", "8"),
         metavar="HOURS",
         help="warn when the reference set is older than this (default 8, env "
         "ACQUIRE_MAX_REFERENCE_AGE)",
@@ -94,6 +94,17 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--no-live", action="store_true", help="print plain progress lines instead of the live view"
     )
+
+
+def _hours(text: str) -> float:
+    """A number of hours (argparse converts the option and its default from the environment)."""
+    try:
+        return float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"{text!r} is not a number of hours (give e.g. 8, on the command line or in "
+            "ACQUIRE_MAX_REFERENCE_AGE; 0 turns the age warning off)"
+        ) from None
 
 
 def parse_show(text: str) -> tuple[str, ...]:

@@ -142,6 +142,7 @@ def test_a_plan_outside_the_meter_range_is_refused_before_anything_is_recorded(t
         (["sweep", "--resource", "X", "--start", "10MHz", "--stop", "1kHz"], "must be above"),
         (["sweep", "--resource", "X", "--show", "Lx"], "unknown quantity 'Lx'"),
         (["sweep", "--resource", "X", "--list", "1k", "--points", "5"], "--points goes with"),
+        (["sweep", "--resource", "X", "--csv", "/no/such/folder/a.csv"], "does not exist"),
         (["reference", "show", "42"], "no reference set 42"),
         (["reference", "check", "latest"], "no reference sets"),
         (["reference", "capture", "--resource", "X", "--fixture", "A", "--standards", "load"],

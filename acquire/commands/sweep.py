@@ -137,6 +137,8 @@ def run(args: argparse.Namespace) -> int:
 
     plan = plan_from_args(args)
     show = parse_show(args.show)
+    if args.csv:
+        check_csv_destination(args.csv)
     level = parse_quantity(args.level, "V") if args.level else None
     console = Console()
     with open_store(args.store) as store:
@@ -173,6 +175,20 @@ def run(args: argparse.Namespace) -> int:
         return 0
     print(f"acquire sweep: {line}", file=sys.stderr)
     return 130 if isinstance(outcome.error, KeyboardInterrupt) else 2
+
+
+def check_csv_destination(path: str) -> None:
+    """Refuse a CSV path whose folder is missing or not writable, before anything is measured."""
+    import os
+    from pathlib import Path
+
+    from acquire.errors import InputError
+
+    folder = Path(path).expanduser().resolve().parent
+    if not folder.is_dir():
+        raise InputError(f"--csv {path}: the folder {folder} does not exist; create it first")
+    if not os.access(folder, os.W_OK):
+        raise InputError(f"--csv {path}: the folder {folder} is not writable; choose another")
 
 
 def prepare_state(plan, identity, refs, ref_id, fixture, dut, show):

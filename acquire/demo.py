@@ -24,8 +24,9 @@ from rich.table import Table
 from acquire.capture import SAFETY, capture_references, dut_warnings
 from acquire.dashboard import open_view, summary
 from acquire.plan import FrequencyPlan, log_plan
-from acquire.progress import SweepState
 from acquire.sweep import SweepOutcome, run_sweep
+from acquire.sweep_setup import begin, prepare_state
+from acquire.sweep_state import SweepState
 from acquire.units import format_si
 
 #: What the demo measures: a coil and a fixture of our own invention (sim_profiles/).
@@ -122,8 +123,6 @@ def capture(run: DemoRun) -> None:
 
 def sweep(run: DemoRun) -> None:
     """Put the demo coil in the fixture and sweep it with the live view."""
-    from acquire.commands.sweep import begin, prepare_state
-
     run.sim.insert(run.dut)
     run.console.print(f"\n[bold]Sweeping {run.dut}[/] through the fixture, corrected live")
     state = prepare_state(

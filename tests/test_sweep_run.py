@@ -9,9 +9,9 @@ from acquire.capture import capture_references
 from acquire.errors import CompensationError, InputError
 from acquire.impedance import quantities
 from acquire.plan import list_plan, log_plan
-from acquire.progress import SweepState
 from acquire.store import open_store
 from acquire.sweep import run_sweep
+from acquire.sweep_state import SweepState
 from drivers.errors import InstrumentError
 from drivers.meter import ImpedanceMeter
 from drivers.simulator import running

@@ -26,39 +26,11 @@ import argparse
 import os
 import sys
 
-from acquire.commands.options import add_dialect, add_resource, add_store
+from acquire.commands.options import add_dialect, add_plan_arguments, add_resource, add_store
 
 HELP = "sweep a part across frequency with the live view and store the points"
 
 QUANTITIES = ("Ls", "Rs", "Cs", "Lp", "Rp", "Cp", "Q", "D", "Z", "theta", "X", "G", "B")
-
-
-def add_plan_arguments(parser: argparse.ArgumentParser) -> None:
-    """The frequency plan options (shared with `acquire reference capture`)."""
-    g = parser.add_argument_group("frequency plan (a span, a --list or a --file)")
-    g.add_argument("--start", help="lowest frequency, e.g. 100Hz (default 100Hz)")
-    g.add_argument("--stop", help="highest frequency, e.g. 10MHz (default 10MHz)")
-    g.add_argument("--points", type=int, help="number of frequencies in the span (default 201)")
-    g.add_argument(
-        "--spacing", choices=("log", "linear"), default="log", help="spacing of the span"
-    )
-    g.add_argument("--list", dest="values", help='explicit frequencies, e.g. "1k, 10k, 100kHz"')
-    g.add_argument("--file", help="text file of frequencies (commas, spaces or lines; # comments)")
-
-
-def plan_from_args(args: argparse.Namespace):
-    """The plan the options describe; the default span is 100 Hz to 10 MHz, 201 points."""
-    from acquire.plan import make_plan
-
-    if not (args.values or args.file):
-        start = args.start or "100Hz"
-        stop = args.stop or "10MHz"
-        return make_plan(start=start, stop=stop, points=args.points, spacing=args.spacing)
-    if args.points:
-        from acquire.errors import InputError
-
-        raise InputError("--points goes with --start and --stop, not with --list or --file")
-    return make_plan(start=args.start, stop=args.stop, values=args.values, file=args.file)
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -126,12 +98,13 @@ def run(args: argparse.Namespace) -> int:
     from rich.console import Console
 
     from acquire.capture import dut_warnings
-    from acquire.commands.reference import find_reference_set
+    from acquire.commands.options import plan_from_args
     from acquire.csvout import write_sweep_csv
     from acquire.dashboard import open_view, summary
     from acquire.plan import check_range
     from acquire.store import open_store
     from acquire.sweep import check_coverage, run_sweep
+    from acquire.sweep_setup import begin, find_reference_set, prepare_state, warn_about_references
     from acquire.units import parse_quantity
     from drivers.meter import ImpedanceMeter
 
@@ -156,7 +129,10 @@ def run(args: argparse.Namespace) -> int:
             identity = meter.identify()
             state = prepare_state(plan, identity, refs, ref_id, args.fixture, args.dut, show)
             warn_about_references(state, refs, str(identity), args.fixture, args.max_reference_age)
-            writer = begin(store, meter, identity, args.fixture, args.dut, ref_id, plan, show, args)
+            measurement = {"level": args.level, "speed": args.speed, "averaging": args.averaging}
+            writer = begin(
+                store, meter, identity, args.fixture, args.dut, ref_id, plan, show, measurement
+            )
             state.destination = f"sweep {writer.id} in {store.url}"
             with open_view(state, live=not args.no_live, console=console) as view:
                 outcome = run_sweep(meter, plan, refs, writer, state, on_progress=view.update)
@@ -189,64 +165,3 @@ def check_csv_destination(path: str) -> None:
         raise InputError(f"--csv {path}: the folder {folder} does not exist; create it first")
     if not os.access(folder, os.W_OK):
         raise InputError(f"--csv {path}: the folder {folder} is not writable; choose another")
-
-
-def prepare_state(plan, identity, refs, ref_id, fixture, dut, show):
-    """A sweep state for the view, with the meter and the reference set described."""
-    from acquire.progress import SweepState
-
-    reference = ""
-    if refs is not None:
-        where = f" on {refs.fixture}" if refs.fixture else ""
-        reference = f"#{ref_id}{where} ({refs.method}, {refs.frequency.size} points)"
-    return SweepState(
-        plan,
-        dut=dut,
-        meter=str(identity),
-        reference=reference,
-        reference_captured_at=None if refs is None else refs.captured_at,
-        quantities=show,
-        corrected_too=refs is not None,
-    )
-
-
-def warn_about_references(state, refs, meter_name: str, fixture: str, max_hours: float) -> None:
-    """Put the reference set's warnings (age, meter, fixture, checks) on the view."""
-    from acquire.capture import reference_warnings
-
-    if refs is None:
-        return
-    max_age = None if max_hours is None or max_hours <= 0 else max_hours * 3600.0
-    for w in reference_warnings(refs, meter_name, fixture, max_age):
-        state.warn(w)
-
-
-def begin(store, meter, identity, fixture, dut, ref_id, plan, show, args=None):
-    """Record the meter and fixture and open a sweep in the store; returns its writer."""
-    meter_id = store.record_meter(
-        identity.manufacturer,
-        identity.model,
-        identity.serial,
-        identity.firmware,
-        dialect=getattr(getattr(meter, "dialect", None), "name", ""),
-    )
-    fixture_id = store.record_fixture(fixture) if fixture else None
-    settings = {
-        "plan": plan.describe(),
-        "spacing": plan.spacing,
-        "start_hz": plan.start,
-        "stop_hz": plan.stop,
-        "points": len(plan),
-        "show": list(show),
-    }
-    for key in ("level", "speed", "averaging"):
-        value = getattr(args, key, None) if args is not None else None
-        if value is not None:
-            settings[key] = value
-    return store.begin_sweep(
-        dut=dut,
-        meter_id=meter_id,
-        fixture_id=fixture_id,
-        reference_set_id=ref_id,
-        settings=settings,
-    )

@@ -129,19 +129,3 @@ class SweepState:
         if self.invalid:
             lines.append(f"{self.invalid} point(s) invalid (the meter gave no reading)")
         return lines
-
-
-def format_duration(seconds: float | None) -> str:
-    """``0.4 s``, ``12 s``, ``3 min 20 s``, ``2.0 h``, ``3.5 days``; ``—`` for None."""
-    if seconds is None:
-        return "—"
-    s = max(float(seconds), 0.0)
-    if s < 10:
-        return f"{s:.1f} s"
-    if s < 60:
-        return f"{s:.0f} s"
-    if s < 3600:
-        return f"{int(s // 60)} min {int(s % 60)} s"
-    if s < 86400 * 2:
-        return f"{s / 3600:.1f} h"
-    return f"{s / 86400:.1f} days"

@@ -44,6 +44,11 @@ def reference_age(state: SweepState, now: datetime | None = None) -> float | Non
     return (now - state.reference_captured_at).total_seconds()
 
 
+def override_line(state: SweepState) -> str:
+    """The line saying the reference set failed its check and was used anyway, and why."""
+    return f"reference set used despite failing its check; reason given: {state.reference_override}"
+
+
 class DashboardView:
     """A rich renderable drawing ``state`` afresh each time it is rendered."""
 
@@ -92,6 +97,8 @@ def _header(state: SweepState, now: datetime | None) -> Text:
         age = reference_age(state, now)
         when = f", captured {format_duration(age)} ago" if age is not None else ""
         text.append(f"\nreference set: {state.reference}{when}")
+        if state.reference_override:
+            text.append(f"\n{override_line(state)}", style="bold red")
     else:
         text.append("\nreference set: none (raw readings, fixture not removed)", style="yellow")
     if state.destination:
@@ -190,12 +197,16 @@ def _side(
 def summary(state: SweepState, count: int = 6) -> Group:
     """The end-of-sweep view: outcome, raw vs corrected at a few points, resonance, warnings."""
     f, raw, corrected = state.points()
-    style = "green" if state.status == "complete" else "yellow"
+    style = "green" if state.status == "complete" and not state.open_fixture else "yellow"
     head = Text(
         f"Sweep {state.status}: {state.count} of {state.planned} points", style=f"bold {style}"
     )
     if state.reason:
         head.append(f" ({state.reason})")
+    if state.open_fixture:
+        head.append(" (the readings look like an open fixture)", style="bold red")
+    if state.reference_override:
+        head.append(f"\n{override_line(state)}", style="bold red")
     if state.destination:
         head.append(f"\nstored in {state.destination}")
     parts: list = [head]

@@ -9,9 +9,54 @@ from __future__ import annotations
 from collections.abc import Mapping, Sequence
 from typing import Any
 
-from acquire.errors import InputError
+from acquire.errors import CompensationError, InputError
 from acquire.plan import FrequencyPlan
 from acquire.sweep_state import SweepState
+
+#: How many of a refused reference set's problems the refusal names.
+PROBLEMS_NAMED = 2
+
+
+class ReferenceRefused(CompensationError):
+    """A reference set fails its own check and no reason to use it anyway was given."""
+
+    def __init__(self, message: str, problems: Sequence[str]) -> None:
+        super().__init__(message)
+        self.problems = list(problems)
+
+
+def reference_problems(refs: Any) -> list[str]:
+    """The error-severity findings of ``refs.check()``, one line each ('' for None)."""
+    if refs is None:
+        return []
+    return [
+        " ".join(f"{f.standard}: {f.message}".split())
+        for f in refs.check()
+        if f.severity == "error"
+    ]
+
+
+def usable_reference(refs: Any, ref_id: int | None, override: str | None = None) -> str:
+    """Refuse ``refs`` when its check finds errors, unless ``override`` gives a reason.
+
+    Returns the reason that let a failing set through ('' when the set passes, or there is
+    none), which is what the sweep records as ``reference_override``. Raises
+    :class:`ReferenceRefused` naming the first problems otherwise.
+    """
+    problems = reference_problems(refs)
+    if not problems:
+        return ""
+    reason = " ".join((override or "").split())
+    if reason:
+        return reason
+    named = "; ".join(problems[:PROBLEMS_NAMED])
+    more = f" (and {len(problems) - PROBLEMS_NAMED} more)" if len(problems) > PROBLEMS_NAMED else ""
+    label = f"reference set {ref_id}" if ref_id is not None else "the reference set"
+    raise ReferenceRefused(
+        f"{label} fails its check: {named}{more}; capture it again with `acquire reference "
+        "capture`, or give a reason to use it anyway",
+        problems,
+    )
 
 
 def find_reference_set(store: Any, key: str) -> tuple[int, Any]:
@@ -42,8 +87,13 @@ def prepare_state(
     fixture: str,
     dut: str,
     show: Sequence[str],
+    override: str = "",
 ) -> SweepState:
-    """A sweep state for the view, with the meter and the reference set described."""
+    """A sweep state for the view, with the meter and the reference set described.
+
+    ``override`` is the reason a failing reference set is used anyway (from
+    :func:`usable_reference`), shown on the view.
+    """
     reference = ""
     if refs is not None:
         where = f" on {refs.fixture}" if refs.fixture else ""
@@ -54,6 +104,7 @@ def prepare_state(
         meter=str(identity),
         reference=reference,
         reference_captured_at=None if refs is None else refs.captured_at,
+        reference_override=override,
         quantities=tuple(show),
         corrected_too=refs is not None,
     )
@@ -82,12 +133,22 @@ def begin(
     plan: FrequencyPlan,
     show: Sequence[str],
     measurement: Mapping[str, Any] | None = None,
+    references: Any = None,
+    override: str | None = None,
 ) -> Any:
     """Record the meter and fixture and open a sweep in the store; returns its writer.
+
+    A reference set that fails its check is refused (:class:`ReferenceRefused`, before anything
+    is written) unless ``override`` gives a reason, which is then kept in the sweep's settings
+    as ``reference_override``. ``references`` is the set with id ``ref_id`` (loaded from the
+    store when not given).
 
     ``measurement`` holds the meter settings given for the sweep (``level`` as the operator
     wrote it, ``speed``, ``averaging``); those that are not None are kept in its settings.
     """
+    if ref_id is not None and references is None:
+        references = store.load_reference_set(ref_id)
+    reason = usable_reference(references, ref_id, override)
     meter_id = store.record_meter(
         identity.manufacturer,
         identity.model,
@@ -107,6 +168,8 @@ def begin(
     for key, value in (measurement or {}).items():
         if value is not None:
             settings[key] = value
+    if reason:
+        settings["reference_override"] = reason
     return store.begin_sweep(
         dut=dut,
         meter_id=meter_id,
@@ -114,3 +177,19 @@ def begin(
         reference_set_id=ref_id,
         settings=settings,
     )
+
+
+def review_readings(state: SweepState, refs: Any) -> None:
+    """After a sweep: put on the view what the readings say about the fixture and the part.
+
+    Where the fixture limits accuracy (with a reference set), and whether the readings look like
+    an empty fixture (:func:`acquire.open_fixture.open_fixture`).
+    """
+    from acquire.capture import dut_warnings
+    from acquire.open_fixture import open_fixture
+
+    f, raw, _ = state.points()
+    if refs is not None:
+        for w in dut_warnings(refs, f, raw):
+            state.warn(w)
+    state.open_fixture = open_fixture(f, raw, refs)

@@ -4,7 +4,11 @@ The meter measures the part's complex impedance Z = R + jX at each frequency of 
 linear from --start to --stop, or a --list, or a --file of frequencies). Each reading is
 corrected with a stored reference set (--reference: open, short and load readings of the
 fixture captured with `acquire reference capture`), so the leads and clips of the fixture are
-removed from the result; without one, the raw readings are shown and stored.
+removed from the result; without one, the raw readings are shown and stored. A reference set
+that fails its own check (`acquire reference check`: open and short swapped, a short that reads
+open, ...) is refused; --use-despite-problems REASON uses it anyway and keeps the reason with
+the sweep. When most readings look like an empty fixture (nothing connected), the end of the
+sweep says so.
 
 Shown live: Ls and Rs (inductance and resistance of the series equivalent circuit) and
 Q = X/R (quality factor) against log frequency, by default; --show picks others among Ls, Rs, Cs,
@@ -62,6 +66,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--level", help="test-signal level, e.g. 1V or 100mV")
     parser.add_argument("--speed", choices=("fast", "medium", "slow"), help="measurement speed")
     parser.add_argument("--averaging", type=int, help="readings averaged per point")
+    parser.add_argument(
+        "--use-despite-problems",
+        metavar="REASON",
+        help="use a reference set that fails its check anyway; the reason is stored with the "
+        "sweep and shown on the view (the corrected values may be wrong)",
+    )
     parser.add_argument("--csv", help="also write the sweep to this CSV file")
     parser.add_argument(
         "--no-live", action="store_true", help="print plain progress lines instead of the live view"
@@ -95,16 +105,23 @@ def parse_show(text: str) -> tuple[str, ...]:
 
 
 def run(args: argparse.Namespace) -> int:
+    from datetime import UTC, datetime
+
     from rich.console import Console
 
-    from acquire.capture import dut_warnings
     from acquire.commands.options import plan_from_args
     from acquire.csvout import write_sweep_csv
     from acquire.dashboard import open_view, summary
     from acquire.plan import check_range
     from acquire.store import open_store
     from acquire.sweep import check_coverage, run_sweep
-    from acquire.sweep_setup import begin, find_reference_set, prepare_state, warn_about_references
+    from acquire.sweep_setup import (
+        begin,
+        find_reference_set,
+        prepare_state,
+        review_readings,
+        warn_about_references,
+    )
     from acquire.units import parse_quantity
     from drivers.meter import ImpedanceMeter
 
@@ -112,12 +129,14 @@ def run(args: argparse.Namespace) -> int:
     show = parse_show(args.show)
     if args.csv:
         check_csv_destination(args.csv)
+    override = _override(args.use_despite_problems)
     level = parse_quantity(args.level, "V") if args.level else None
     console = Console()
     with open_store(args.store) as store:
         ref_id, refs = (None, None)
         if args.reference:
             ref_id, refs = find_reference_set(store, args.reference)
+        used = _usable(refs, ref_id, override)
         with ImpedanceMeter.open(
             args.resource, dialect=args.dialect, backend=args.backend
         ) as meter:
@@ -127,30 +146,73 @@ def run(args: argparse.Namespace) -> int:
             if refs is not None:
                 check_coverage(plan, refs)
             identity = meter.identify()
-            state = prepare_state(plan, identity, refs, ref_id, args.fixture, args.dut, show)
+            state = prepare_state(plan, identity, refs, ref_id, args.fixture, args.dut, show, used)
             warn_about_references(state, refs, str(identity), args.fixture, args.max_reference_age)
             measurement = {"level": args.level, "speed": args.speed, "averaging": args.averaging}
-            writer = begin(
-                store, meter, identity, args.fixture, args.dut, ref_id, plan, show, measurement
-            )
+            writer = begin(store, meter, identity, args.fixture, args.dut, ref_id, plan, show,
+                           measurement, references=refs, override=used)  # fmt: skip
             state.destination = f"sweep {writer.id} in {store.url}"
+            started = datetime.now(UTC)
             with open_view(state, live=not args.no_live, console=console) as view:
                 outcome = run_sweep(meter, plan, refs, writer, state, on_progress=view.update)
-        if refs is not None:
-            for w in dut_warnings(refs, outcome.frequency, outcome.raw):
-                state.warn(w)
+                review_readings(state, refs)
         console.print(summary(state))
         if args.csv:
+            about = csv_heading(state, args, started, outcome)
             path = write_sweep_csv(
-                args.csv, outcome.frequency, outcome.raw, outcome.corrected, show
+                args.csv, outcome.frequency, outcome.raw, outcome.corrected, show, about
             )
             console.print(f"CSV written to {path}", soft_wrap=True)
         line = outcome.message(store.url)
+    if state.open_fixture:
+        line += "; but the readings look like an open fixture (nothing connected)"
     if not outcome.interrupted:
         console.print(line, soft_wrap=True)
         return 0
     print(f"acquire sweep: {line}", file=sys.stderr)
     return 130 if isinstance(outcome.error, KeyboardInterrupt) else 2
+
+
+def _override(text: str | None) -> str:
+    """The reason given with --use-despite-problems, on one line; refuses an empty one."""
+    from acquire.errors import InputError
+
+    if text is None:
+        return ""
+    reason = " ".join(text.split())
+    if not reason:
+        raise InputError('--use-despite-problems needs a reason, e.g. "open re-taken tomorrow"')
+    return reason
+
+
+def _usable(refs, ref_id, override: str) -> str:
+    """The override a failing set is used with, or a refusal that names the option."""
+    from acquire.sweep_setup import ReferenceRefused, usable_reference
+
+    try:
+        return usable_reference(refs, ref_id, override)
+    except ReferenceRefused as exc:
+        raise ReferenceRefused(f"{exc} with --use-despite-problems REASON", exc.problems) from None
+
+
+def csv_heading(state, args: argparse.Namespace, started, outcome) -> dict[str, str]:
+    """What the CSV file says about the sweep in its comment lines."""
+    status = outcome.status + (f" ({outcome.reason})" if outcome.reason else "")
+    about = {
+        "dut": args.dut or "(not named)",
+        "meter": state.meter,
+        "fixture": args.fixture or "(not named)",
+        "reference set": state.reference or "none (raw readings, fixture not removed)",
+        "time": started.isoformat(timespec="seconds"),
+        "status": status,
+    }
+    if state.reference_override:
+        about["reference override"] = state.reference_override
+    if state.open_fixture:
+        about["warning"] = state.open_fixture
+    if state.destination:
+        about["stored as"] = state.destination
+    return about
 
 
 def check_csv_destination(path: str) -> None:

@@ -22,9 +22,9 @@ from typing import Any, Protocol
 import numpy as np
 
 from acquire.compensation import STANDARDS, ReferenceSet
+from acquire.display import format_duration
 from acquire.errors import CompensationError
 from acquire.plan import FrequencyPlan, check_range
-from acquire.progress import format_duration
 
 INSTRUCTIONS = {
     "open": (

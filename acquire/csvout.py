@@ -1,4 +1,9 @@
-"""Sweeps as CSV files: one header row naming each column and its unit, then one row per point.
+"""Sweeps as CSV files: comment lines about the sweep, a header row naming each column and its
+unit, then one row per point.
+
+The file opens with ``# key: value`` lines saying what was measured and how (for example
+``# dut: coil 7``, ``# meter: ...``, ``# fixture: ...``, ``# reference set: ...``, ``# time: ...``
+in ISO 8601, ``# status: complete``); pandas skips them with ``read_csv(path, comment="#")``.
 
 Columns: ``frequency [Hz]``, the raw reading as ``raw R [ohm]`` and ``raw X [ohm]``, the corrected
 one as ``corrected R [ohm]`` and ``corrected X [ohm]`` (when a reference set was used), then the
@@ -11,7 +16,7 @@ digits, so a float64 reads back exactly; an overrange reading is ``inf`` and an 
 from __future__ import annotations
 
 import csv
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import TextIO
 
@@ -37,6 +42,16 @@ def header(corrected: bool, names: Sequence[str]) -> list[str]:
     return cols + [f"{n} [{CSV_UNITS[n]}]" for n in names]
 
 
+def comment_lines(about: Mapping[str, object]) -> list[str]:
+    """``# key: value`` lines, each value on one line (line breaks become spaces)."""
+    lines = []
+    for key, value in about.items():
+        name = " ".join(str(key).replace(":", " ").split())
+        text = " ".join(str(value).split())
+        lines.append(f"# {name}: {text}\n")
+    return lines
+
+
 def _number(value: float) -> str:
     return format(float(value), ".17g")
 
@@ -47,8 +62,10 @@ def write_rows(
     raw: np.ndarray,
     corrected: np.ndarray | None = None,
     names: Sequence[str] = ("Ls", "Rs", "Q"),
+    about: Mapping[str, object] | None = None,
 ) -> int:
-    """Write the header and one row per point to ``out``; returns the number of rows."""
+    """Write ``about`` as comment lines, the header and one row per point to ``out``; returns
+    the number of rows."""
     from acquire.impedance import quantities
 
     f = np.asarray(frequency, dtype=float)
@@ -57,6 +74,7 @@ def write_rows(
     if zr.shape != f.shape or (zc is not None and zc.shape != f.shape):
         raise InputError("frequency, raw and corrected arrays must have the same length")
     q = quantities(f, zr if zc is None else zc) if f.size else {}
+    out.writelines(comment_lines(about or {}))
     writer = csv.writer(out, lineterminator="\n")
     writer.writerow(header(zc is not None, names))
     columns = [f, zr.real, zr.imag]
@@ -74,11 +92,14 @@ def write_sweep_csv(
     raw: np.ndarray,
     corrected: np.ndarray | None = None,
     names: Sequence[str] = ("Ls", "Rs", "Q"),
+    about: Mapping[str, object] | None = None,
 ) -> Path:
-    """Write a sweep to the CSV file at ``path`` (replaced if it exists); returns the path."""
+    """Write a sweep to the CSV file at ``path`` (replaced if it exists); returns the path.
+
+    ``about`` holds what the file's comment lines say (see the module docstring)."""
     p = Path(path)
     if p.parent and not p.parent.exists():
         raise InputError(f"cannot write {str(p)!r}: folder {str(p.parent)!r} does not exist")
     with p.open("w", encoding="utf-8", newline="") as out:
-        write_rows(out, frequency, raw, corrected, names)
+        write_rows(out, frequency, raw, corrected, names, about)
     return p

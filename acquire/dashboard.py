@@ -1,6 +1,6 @@
 """The live terminal view of a sweep, and its plain-text and end-of-sweep counterparts.
 
-:class:`DashboardView` renders a :class:`acquire.progress.SweepState` as it stands: the chosen
+:class:`DashboardView` renders a :class:`acquire.sweep_state.SweepState` as it stands: the chosen
 quantities plotted against log frequency, the latest point, progress and time left, the meter,
 the reference set and its age, warnings, and a marker at a self-resonance (where the reactance
 turns from inductive to capacitive). It is a pure function of the state; :class:`LiveDashboard`
@@ -25,63 +25,15 @@ from rich.progress_bar import ProgressBar
 from rich.table import Table
 from rich.text import Text
 
+from acquire.display import UNITS, format_duration, format_value
 from acquire.impedance import quantities
-from acquire.progress import SweepState, format_duration
+from acquire.resonance import self_resonance, summary_frequencies
+from acquire.sweep_state import SweepState
 from acquire.textplot import draw, x_axis, y_labels
 from acquire.units import format_si
 
-#: The SI unit of each quantity of :func:`acquire.impedance.quantities`.
-UNITS = {
-    "Ls": "H", "Lp": "H", "Rs": "Ω", "Rp": "Ω", "Cs": "F", "Cp": "F", "Q": "", "D": "",
-    "Z": "Ω", "theta": "°", "X": "Ω", "G": "S", "B": "S",
-}  # fmt: skip
 COLOURS = ("cyan", "magenta", "green", "yellow", "blue", "red")
 SIDE_WIDTH = 34
-
-
-def format_value(name: str, value: float) -> str:
-    """One quantity for people: SI prefixes for dimensioned values, plain digits for Q, D, θ."""
-    if name == "theta":
-        return "—" if not math.isfinite(value) else f"{value:.2f}°"
-    if name in ("Q", "D"):
-        if math.isnan(value):
-            return "—"
-        if math.isinf(value):
-            return "∞"
-        return f"{value:.0f}" if abs(value) >= 1e4 else f"{value:.4g}"
-    return format_si(value, UNITS.get(name, ""))
-
-
-def self_resonance(f: np.ndarray, z: np.ndarray) -> float | None:
-    """The frequency where the impedance ``z`` turns from inductive (X > 0) to capacitive.
-
-    Near a self-resonance the susceptance B = Im(1/Z) passes through zero almost linearly
-    (the admittance of a parallel tank is linear in the detuning), so the zero is interpolated
-    on B, linearly in frequency, between the two points where X changes sign. Among several such
-    changes the one with the largest |Z| is taken, and only if that |Z| is at least a tenth of the
-    largest |Z| measured: a resonance peaks in |Z|, while noise around X = 0 at low frequency
-    does not. None when the data show no such change.
-    """
-    f = np.asarray(f, dtype=float)
-    z = np.asarray(z, dtype=complex)
-    if f.size < 2:
-        return None
-    x = z.imag
-    a, b = x[:-1], x[1:]
-    ok = np.isfinite(z[:-1]) & np.isfinite(z[1:])
-    turn = ok & (a > 0) & (b <= 0)
-    if not turn.any():
-        return None
-    idx = np.flatnonzero(turn)
-    size = np.maximum(np.abs(z[:-1][idx]), np.abs(z[1:][idx]))
-    if size.max() < 0.1 * np.max(np.abs(z[np.isfinite(z)])):
-        return None
-    i = int(idx[np.argmax(size)])
-    with np.errstate(divide="ignore", invalid="ignore"):
-        b0, b1 = (1 / z[i]).imag, (1 / z[i + 1]).imag
-    if not (np.isfinite(b0) and np.isfinite(b1)) or b1 == b0:
-        return float(f[i + 1])
-    return float(f[i] + (f[i + 1] - f[i]) * (-b0) / (b1 - b0))
 
 
 def reference_age(state: SweepState, now: datetime | None = None) -> float | None:
@@ -90,6 +42,11 @@ def reference_age(state: SweepState, now: datetime | None = None) -> float | Non
         return None
     now = now or datetime.now(UTC)
     return (now - state.reference_captured_at).total_seconds()
+
+
+def override_line(state: SweepState) -> str:
+    """The line saying the reference set failed its check and was used anyway, and why."""
+    return f"reference set used despite failing its check; reason given: {state.reference_override}"
 
 
 class DashboardView:
@@ -140,6 +97,8 @@ def _header(state: SweepState, now: datetime | None) -> Text:
         age = reference_age(state, now)
         when = f", captured {format_duration(age)} ago" if age is not None else ""
         text.append(f"\nreference set: {state.reference}{when}")
+        if state.reference_override:
+            text.append(f"\n{override_line(state)}", style="bold red")
     else:
         text.append("\nreference set: none (raw readings, fixture not removed)", style="yellow")
     if state.destination:
@@ -235,34 +194,19 @@ def _side(
     return Group(*parts)
 
 
-def summary_frequencies(f: np.ndarray, count: int = 6) -> np.ndarray:
-    """Indices of points to tabulate: those nearest each decade in range, else evenly spread."""
-    finite = f[np.isfinite(f) & (f > 0)]
-    if finite.size == 0:
-        return np.empty(0, dtype=int)
-    lo, hi = math.log10(finite.min()), math.log10(finite.max())
-    decades = [10.0**d for d in range(math.ceil(lo - 1e-9), math.floor(hi + 1e-9) + 1)]
-    if len(decades) >= 3:
-        targets = np.log10(decades)
-        if len(targets) > count:
-            targets = targets[np.linspace(0, len(targets) - 1, count).round().astype(int)]
-    else:
-        targets = np.linspace(lo, hi, min(count, f.size))
-    with np.errstate(divide="ignore", invalid="ignore"):
-        lf = np.log10(f)
-    picks = [int(np.nanargmin(np.abs(lf - t))) for t in targets]
-    return np.array(sorted(set(picks)), dtype=int)
-
-
 def summary(state: SweepState, count: int = 6) -> Group:
     """The end-of-sweep view: outcome, raw vs corrected at a few points, resonance, warnings."""
     f, raw, corrected = state.points()
-    style = "green" if state.status == "complete" else "yellow"
+    style = "green" if state.status == "complete" and not state.open_fixture else "yellow"
     head = Text(
         f"Sweep {state.status}: {state.count} of {state.planned} points", style=f"bold {style}"
     )
     if state.reason:
         head.append(f" ({state.reason})")
+    if state.open_fixture:
+        head.append(" (the readings look like an open fixture)", style="bold red")
+    if state.reference_override:
+        head.append(f"\n{override_line(state)}", style="bold red")
     if state.destination:
         head.append(f"\nstored in {state.destination}")
     parts: list = [head]

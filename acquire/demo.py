@@ -21,11 +21,12 @@ import numpy as np
 from rich.console import Console
 from rich.table import Table
 
-from acquire.capture import SAFETY, capture_references, dut_warnings
+from acquire.capture import SAFETY, capture_references
 from acquire.dashboard import open_view, summary
 from acquire.plan import FrequencyPlan, log_plan
-from acquire.progress import SweepState
 from acquire.sweep import SweepOutcome, run_sweep
+from acquire.sweep_setup import begin, prepare_state, review_readings
+from acquire.sweep_state import SweepState
 from acquire.units import format_si
 
 #: What the demo measures: a coil and a fixture of our own invention (sim_profiles/).
@@ -122,8 +123,6 @@ def capture(run: DemoRun) -> None:
 
 def sweep(run: DemoRun) -> None:
     """Put the demo coil in the fixture and sweep it with the live view."""
-    from acquire.commands.sweep import begin, prepare_state
-
     run.sim.insert(run.dut)
     run.console.print(f"\n[bold]Sweeping {run.dut}[/] through the fixture, corrected live")
     state = prepare_state(
@@ -131,12 +130,11 @@ def sweep(run: DemoRun) -> None:
         ("Ls", "Rs", "Q"),
     )  # fmt: skip
     writer = begin(run.store, run.meter, run.identity, run.fixture, run.dut, run.reference_id,
-                   run.plan, state.quantities)  # fmt: skip
+                   run.plan, state.quantities, references=run.references)  # fmt: skip
     state.destination = f"sweep {writer.id} in {run.store.url}"
     with open_view(state, live=run.live, console=run.console) as view:
         run.outcome = run_sweep(run.meter, run.plan, run.references, writer, state, view.update)
-    for w in dut_warnings(run.references, run.outcome.frequency, run.outcome.raw):
-        state.warn(w)
+        review_readings(state, run.references)
     run.state = state
     run.console.print(summary(state))
 

@@ -2,7 +2,7 @@
 
 :func:`run_sweep` asks the meter for the plan's frequencies (``meter.sweep(frequencies,
 on_points=...)`` of :class:`drivers.meter.ImpedanceMeter`), corrects every chunk of points that
-arrives with the reference set in use, appends it to a :class:`acquire.progress.SweepState`
+arrives with the reference set in use, appends it to a :class:`acquire.sweep_state.SweepState`
 for the live view, and hands it to the store's sweep writer. Writes are grouped: the points
 that arrived since the last write go to the store in one transaction at most every
 ``flush_interval`` seconds and at the end, so a fast meter is not held up by one transaction
@@ -25,7 +25,7 @@ import numpy as np
 from acquire.compensation.interpolation import END_TOLERANCE
 from acquire.errors import CompensationError
 from acquire.plan import FrequencyPlan, check_range
-from acquire.progress import SweepState
+from acquire.sweep_state import SweepState
 from acquire.units import format_si
 from drivers.errors import InstrumentError
 

@@ -26,9 +26,9 @@ from rich.console import Console
 
 from acquire.dashboard import DashboardView, LiveDashboard
 from acquire.plan import log_plan
-from acquire.progress import SweepState
 from acquire.store import open_store
 from acquire.sweep import run_sweep
+from acquire.sweep_state import SweepState
 from drivers.meter import ImpedanceMeter
 
 POINTS = 401

@@ -7,6 +7,7 @@ import signal
 import subprocess
 import sys
 import time
+from datetime import UTC, datetime
 from pathlib import Path
 
 import numpy as np
@@ -80,7 +81,7 @@ def test_capture_then_sweep_with_the_stored_reference_and_csv(tmp_path, monkeypa
     # A 10 uH coil at 1 kHz is about 0.08 ohm, as small as the long leads' short residual.
     assert "warning: the DUT's |Z| is within 10x of the short residual" in " ".join(out.split())
     assert f"sweep complete: 11 points saved as sweep 1 in {url}" in " ".join(out.split())
-    table = pd.read_csv(csv_path)
+    table = pd.read_csv(csv_path, comment="#")
     assert list(table.columns)[:5] == [
         "frequency [Hz]",
         "raw R [ohm]",
@@ -214,3 +215,134 @@ def test_a_bad_reference_age_in_the_environment_is_one_line_naming_it(monkeypatc
     assert done.value.code == 2
     err = capsys.readouterr().err
     assert "ACQUIRE_MAX_REFERENCE_AGE" in err and "Traceback" not in err
+
+
+class _PutsEachStandardIn:
+    """An operator for capture_references that puts each standard in the simulated fixture."""
+
+    def __init__(self, sim):
+        self.sim = sim
+
+    def tell(self, text):
+        pass
+
+    def ready(self, standard, instruction):
+        self.sim.insert(standard)
+        return True
+
+    def retry(self, standard, problems):
+        return False
+
+
+PLAN = ["--start", "1kHz", "--stop", "1MHz", "--points", "31"]
+
+
+@pytest.fixture
+def bench(tmp_path):
+    """A simulated bench-leads fixture, empty, and a store holding a good reference set
+    ("good") and the same set with open and short swapped ("swapped")."""
+    import dataclasses
+
+    from acquire.capture import capture_references
+    from acquire.plan import log_plan
+    from drivers.meter import ImpedanceMeter
+
+    url = f"sqlite:///{tmp_path / 'bench.db'}"
+    with running(dut="open", fixture="bench-leads", seed=31, measure_time=0) as sim:
+        with ImpedanceMeter.open(sim.resource, dialect="simulated") as meter:
+            identity = str(meter.identify())
+            refs = capture_references(
+                meter,
+                log_plan("1kHz", "1MHz", 31),
+                _PutsEachStandardIn(sim),
+                load_true=sim.load_true,
+                fixture="bench-leads",
+                meter_name=identity,
+            )
+        swapped = dataclasses.replace(refs, open=refs.short, short=refs.open)
+        with open_store(url) as store:
+            store.save_reference_set(refs, name="good")
+            store.save_reference_set(swapped, name="swapped")
+        sim.insert("open")
+        yield sim, url, identity
+
+
+def test_a_reference_set_that_fails_its_check_is_refused(bench):
+    sim, url, _ = bench
+    result = acquire(
+        "sweep", "--resource", sim.resource, "--store", url, *PLAN, "--reference", "swapped",
+        "--no-live",
+    )  # fmt: skip
+    assert result.returncode == 2, result.stdout + result.stderr
+    lines = result.stderr.strip().splitlines()
+    assert len(lines) == 1 and "Traceback" not in result.stderr
+    assert lines[0].startswith("acquire sweep: error: reference set 2 fails its check: ")
+    assert "--use-despite-problems REASON" in lines[0]
+    assert "points" not in result.stdout  # nothing was measured
+    with open_store(url) as store:
+        assert store.list_sweeps() == []
+
+
+def test_a_failing_reference_set_is_used_with_a_reason_kept_with_the_sweep(bench, tmp_path):
+    sim, url, identity = bench
+    sim.insert("demo-coil")
+    csv_path = tmp_path / "override.csv"
+    reason = "swapped on purpose to test the refusal"
+    before = datetime.now(UTC).replace(microsecond=0)
+    result = acquire(
+        "sweep", "--resource", sim.resource, "--store", url, *PLAN, "--reference", "swapped",
+        "--use-despite-problems", reason, "--dut", "coil 12", "--fixture", "bench-leads",
+        "--no-live", "--csv", str(csv_path),
+    )  # fmt: skip
+    after = datetime.now(UTC)
+    assert result.returncode == 0, result.stderr
+    out = " ".join(result.stdout.split())
+    assert f"reference set used despite failing its check; reason given: {reason}" in out
+    with open_store(url) as store:
+        info = store.sweep_info(1)
+        assert info.settings["reference_override"] == reason
+        assert info.reference_set_id == 2
+    # The CSV names the sweep in "# key: value" lines above the header, which pandas skips.
+    head = {}
+    for line in csv_path.read_text(encoding="utf-8").splitlines():
+        if not line.startswith("#"):
+            break
+        key, value = line[2:].split(": ", 1)
+        head[key] = value
+    assert head["dut"] == "coil 12"
+    assert head["meter"] == identity
+    assert head["fixture"] == "bench-leads"
+    assert head["reference set"].startswith("#2 ")
+    assert head["status"] == "complete"
+    assert head["reference override"] == reason
+    assert before <= datetime.fromisoformat(head["time"]) <= after
+    table = pd.read_csv(csv_path, comment="#")
+    assert list(table.columns)[:5] == [
+        "frequency [Hz]", "raw R [ohm]", "raw X [ohm]", "corrected R [ohm]", "corrected X [ohm]",
+    ]  # fmt: skip
+    # 31 points, log-spaced from 1 kHz to 1 MHz: 1 kHz * 10^(3 k / 30) (computed).
+    assert np.allclose(table["frequency [Hz]"], 1e3 * 10 ** (np.arange(31) / 10), rtol=1e-12)
+
+
+@pytest.mark.parametrize("with_reference", [False, True])
+def test_an_empty_fixture_is_called_open_at_the_end(bench, capsys, with_reference):
+    sim, url, _ = bench
+    refs = ["--reference", "good"] if with_reference else []
+    code = main(["sweep", "--resource", sim.resource, "--store", url, *PLAN, *refs, "--no-live"])
+    out = " ".join(capsys.readouterr().out.split())
+    assert code == 0
+    assert "Sweep complete: 31 of 31 points (the readings look like an open fixture)" in out
+    assert "warning: the readings look like an open fixture (nothing connected)" in out
+    assert out.endswith("; but the readings look like an open fixture (nothing connected)")
+
+
+@pytest.mark.parametrize("with_reference", [False, True])
+def test_a_coil_in_the_fixture_is_not_called_open(bench, capsys, with_reference):
+    sim, url, _ = bench
+    sim.insert("demo-coil")
+    refs = ["--reference", "good"] if with_reference else []
+    code = main(["sweep", "--resource", sim.resource, "--store", url, *PLAN, *refs, "--no-live"])
+    out = capsys.readouterr().out
+    assert code == 0
+    assert "open fixture" not in out
+    assert "Sweep complete: 31 of 31 points" in " ".join(out.split())

@@ -4,26 +4,19 @@ from __future__ import annotations
 
 import io
 import math
+import re
 from datetime import UTC, datetime, timedelta
 
 import numpy as np
 import pytest
 from rich.console import Console
 
-from acquire.dashboard import (
-    DashboardView,
-    LiveDashboard,
-    PlainProgress,
-    format_value,
-    open_view,
-    self_resonance,
-    summary,
-    summary_frequencies,
-)
+from acquire.dashboard import DashboardView, LiveDashboard, PlainProgress, open_view, summary
+from acquire.display import format_duration, format_value
 from acquire.plan import list_plan, log_plan
-from acquire.progress import SweepState, format_duration
+from acquire.resonance import self_resonance, summary_frequencies
+from acquire.sweep_state import SweepState
 from acquire.textplot import MARKER, draw, x_axis
-from acquire.units import format_si
 
 L, R, C = 340e-6, 4.8, 1.5e-12  # demo data: a coil of our own invention
 LEAD_L, LEAD_C = 1.5e-6, 8e-12
@@ -34,6 +27,31 @@ def coil(f):
     """A lossy inductor with its self-capacitance across it: (R + jwL) || C."""
     w = 2 * np.pi * f
     return 1 / (1 / (R + 1j * w * L) + 1j * w * C)
+
+
+def coil_ls(f):
+    """Ls = X / w of (R + jwL) || C, from the closed form of X written out by hand (computed):
+    X = w (L (1 - w^2 LC) - R^2 C) / ((1 - w^2 LC)^2 + (w R C)^2)."""
+    w = 2 * math.pi * f
+    a = 1 - w * w * L * C
+    return (L * a - R * R * C) / (a * a + (w * R * C) ** 2)
+
+
+#: Self-resonance of (R + jwL) || C, where X = 0: w0^2 = 1/(LC) - (R/L)^2 (parallel tank
+#: circuit, standard circuit theory); computed by hand from L, R, C above: 7.0475 MHz.
+SRF = math.sqrt(1 / (L * C) - (R / L) ** 2) / (2 * math.pi)
+
+PREFIXES = {"p": 1e-12, "n": 1e-9, "µ": 1e-6, "u": 1e-6, "m": 1e-3, "": 1.0, "k": 1e3, "M": 1e6}
+
+
+def shown(text, unit):
+    """Every number printed with ``unit`` (and an SI prefix) in ``text``, in SI units."""
+    pattern = rf"(-?\d+(?:\.\d+)?) ?([pnµumkM]?){re.escape(unit)}(?![a-zA-Z])"
+    return [float(v) * PREFIXES[p] for v, p in re.findall(pattern, text)]
+
+
+def is_shown(text, unit, value, rel):
+    return any(math.isclose(v, value, rel_tol=rel) for v in shown(text, unit))
 
 
 def through_leads(f, z):
@@ -81,7 +99,8 @@ def test_self_resonance_matches_the_lc_formula():
     expected = math.sqrt(1 / (L * C) - (R / L) ** 2) / (2 * math.pi)
     found = self_resonance(f, coil(f))
     assert found == pytest.approx(expected, rel=1e-6)
-    assert found == pytest.approx(7.046e6, rel=1e-3)
+    assert found == pytest.approx(7.0475e6, rel=1e-4)  # computed by hand from L, R, C
+    assert 1 / (2 * math.pi * math.sqrt(L * C)) == pytest.approx(found, rel=1e-4)  # R/L tiny
 
 
 def test_self_resonance_ignores_noise_around_zero():
@@ -97,17 +116,19 @@ def test_self_resonance_ignores_noise_around_zero():
 def test_live_view_shows_latest_point_progress_meter_and_reference():
     state = make_state(n_done=180)
     text = record(DashboardView(state, now=NOW))
-    f_last = state.plan.frequencies[179]
-    z_last = coil(np.array([f_last]))[0]
-    ls = z_last.imag / (2 * np.pi * f_last)
+    # Point 180 of a 201-point log plan from 100 Hz to 10 MHz: 100 Hz * 10^(179/40) (computed).
+    f_last = 100 * 10 ** (179 / 40)
+    assert "2.985 MHz" in text
     assert "Sweep of demo-coil · 201 points, log, 100.0 Hz to 10.00 MHz" in text
     assert "meter: Bench Instruments,Sim-1,0042,1.0" in text
     assert "reference set: #3 bench fixture (open-short-load), captured 5 min 0 s ago" in text
     assert "points go to: sweep 7 in sqlite:///bench.db" in text
     assert "measuring 180/201 · 90 %" in text
-    assert format_si(f_last, "Hz") in text
-    assert format_si(ls, "H") in text
-    assert format_si(z_last.real, "Ω") in text
+    assert is_shown(text, "H", coil_ls(f_last), rel=6e-4)  # 4 digits shown
+    w = 2 * math.pi * f_last
+    a = 1 - w * w * L * C
+    rs = R / (a * a + (w * R * C) ** 2)  # Re of (R + jwL) || C, closed form (computed)
+    assert is_shown(text, "Ω", rs, rel=6e-4)
     assert "Ls (corrected)" in text and "Rs (corrected)" in text and "Q (corrected)" in text
     assert "┴1kHz" in text and "┴10MHz" in text
     assert "self-resonance" not in text  # 2.98 MHz reached so far, below the 7 MHz resonance
@@ -119,8 +140,8 @@ def test_live_view_marks_the_self_resonance_and_warnings():
     state.add(np.empty(0), np.empty(0, complex), np.empty(0, complex))
     text = record(DashboardView(state, now=NOW))
     assert "self-resonance" in text
-    srf = self_resonance(state.plan.frequencies, coil(state.plan.frequencies))
-    assert f"≈ {format_si(srf, 'Hz')}" in text
+    marked = re.search(r"≈ (\d+\.\d+) MHz", text)
+    assert marked and float(marked.group(1)) * 1e6 == pytest.approx(SRF, rel=1e-3)
     assert MARKER in text
     assert "open reference close to the coil's impedance" in text
 
@@ -164,11 +185,13 @@ def test_summary_shows_raw_against_corrected_at_decades():
     assert "Sweep complete: 201 of 201 points" in text
     assert "stored in sweep 7 in sqlite:///bench.db" in text
     assert "raw vs corrected" in text
-    f = np.array([1e3])
-    raw = through_leads(f, coil(f))[0]
-    assert format_si(raw.imag / (2 * np.pi * 1e3), "H") in text  # raw Ls with the leads in
-    assert format_si(L, "H") in text  # corrected Ls at 1 kHz is the coil's own 340.0 µH
-    assert "self-resonance: raw" in text and "corrected 7.04" in text
+    # At 1 kHz the coil and leads are nearly ideal inductors in series (w^2 LC ~ 2e-8), so
+    # raw Ls = L + LEAD_L = 341.5 µH and the corrected Ls is the coil's own 340.0 µH (computed).
+    assert "341.5 µH" in text
+    assert "340.0 µH" in text
+    assert "self-resonance: raw" in text
+    corrected = re.search(r"corrected (\d+\.\d+) MHz", text)
+    assert corrected and float(corrected.group(1)) * 1e6 == pytest.approx(SRF, rel=1e-3)
     picks = state.plan.frequencies[summary_frequencies(state.plan.frequencies)]
     assert np.allclose(picks, [1e2, 1e3, 1e4, 1e5, 1e6, 1e7])
 
@@ -189,6 +212,8 @@ def test_plain_progress_prints_lines_with_values():
     assert lines[0] == "sweep: 201 points, log, 100.0 Hz to 10.00 MHz"
     assert lines[1].startswith("100/201 points (50 %)  f=")
     assert "Ls=" in lines[1] and "Rs=" in lines[1] and "Q=" in lines[1]
+    f_100 = 100 * 10 ** (99 / 40)  # the 100th point of the plan (computed)
+    assert is_shown(lines[1].split("Ls=")[1], "H", coil_ls(f_100), rel=6e-4)
     assert len(lines) == 3
 
 

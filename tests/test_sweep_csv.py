@@ -69,3 +69,38 @@ def test_mismatched_arrays_and_missing_folder_are_refused(tmp_path):
         write_rows(io.StringIO(), f, raw[:2], corrected)
     with pytest.raises(InputError, match="does not exist"):
         write_sweep_csv(tmp_path / "no" / "x.csv", f, raw, corrected)
+
+
+def test_comment_lines_name_the_sweep_and_pandas_skips_them(tmp_path):
+    f, raw, corrected = _sweep()
+    about = {
+        "dut": "coil 7",
+        "meter": "Example Works, model 1, serial 9, firmware 2",
+        "fixture": "bench clips",
+        "reference set": "#3 on bench clips (open-short-load, 31 points)",
+        "time": "2031-05-04T12:00:00+00:00",
+        "status": "complete",
+        "reference override": "open re-taken\nafter lunch",  # a line break stays on one line
+    }
+    path = write_sweep_csv(tmp_path / "named.csv", f, raw, corrected, ("Ls", "Q"), about)
+    lines = path.read_text(encoding="utf-8").splitlines()
+    assert lines[:7] == [
+        "# dut: coil 7",
+        "# meter: Example Works, model 1, serial 9, firmware 2",
+        "# fixture: bench clips",
+        "# reference set: #3 on bench clips (open-short-load, 31 points)",
+        "# time: 2031-05-04T12:00:00+00:00",
+        "# status: complete",
+        "# reference override: open re-taken after lunch",
+    ]
+    table = pd.read_csv(path, comment="#")
+    assert list(table.columns) == [
+        "frequency [Hz]", "raw R [ohm]", "raw X [ohm]", "corrected R [ohm]", "corrected X [ohm]",
+        "Ls [H]", "Q [1]",
+    ]  # fmt: skip
+    assert len(table) == 4
+    assert np.array_equal(table["frequency [Hz]"].to_numpy(), f)
+    # The corrected coil is 340 uH in series with 4.8 ohm (as made in _sweep): Ls = 340 uH and
+    # Q = wL/R at 1 kHz = 2 pi 1e3 340e-6 / 4.8 = 0.44506 (computed by hand).
+    assert np.allclose(table["Ls [H]"], 340e-6, rtol=1e-12)
+    assert table["Q [1]"][1] == pytest.approx(0.44506, rel=1e-4)

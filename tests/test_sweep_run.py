@@ -9,9 +9,9 @@ from acquire.capture import capture_references
 from acquire.errors import CompensationError, InputError
 from acquire.impedance import quantities
 from acquire.plan import list_plan, log_plan
-from acquire.progress import SweepState
 from acquire.store import open_store
 from acquire.sweep import run_sweep
+from acquire.sweep_state import SweepState
 from drivers.errors import InstrumentError
 from drivers.meter import ImpedanceMeter
 from drivers.simulator import running
@@ -211,3 +211,34 @@ def test_coverage_check_agrees_with_the_correction_at_the_grid_ends():
         refs.correct(beyond.frequencies, np.full(2, 5.0 + 1j))
     with pytest.raises(CompensationError, match="covers"):
         check_coverage(beyond, refs)
+
+
+def _swapped_references():
+    """Open and short of an invented fixture (8 pF stray, 20 mohm + 0.3 uH leads), swapped."""
+    from acquire.compensation import ReferenceSet
+
+    f = np.geomspace(1e3, 1e6, 11)
+    w = 2 * np.pi * f
+    z_open = 1 / (1j * w * 8e-12)
+    z_short = 0.02 + 1j * w * 0.3e-6
+    return ReferenceSet(frequency=f, open=z_short, short=z_open)
+
+
+def test_opening_a_sweep_refuses_a_reference_set_that_fails_its_check(tmp_path):
+    from types import SimpleNamespace
+
+    from acquire.sweep_setup import ReferenceRefused, begin
+
+    refs = _swapped_references()
+    identity = SimpleNamespace(manufacturer="Example", model="M1", serial="7", firmware="1")
+    with open_store(f"sqlite:///{tmp_path / 'r.db'}") as store:
+        ref_id = store.save_reference_set(refs, name="swapped")
+        plan = list_plan("1k, 10k")
+        with pytest.raises(ReferenceRefused, match="fails its check") as refused:
+            begin(store, None, identity, "clips", "coil", ref_id, plan, ("Ls",))
+        assert refused.value.problems  # the check's error findings, named
+        assert store.list_sweeps() == []
+        writer = begin(store, None, identity, "clips", "coil", ref_id, plan, ("Ls",),
+                       override="  testing\nthe override ")  # fmt: skip
+        writer.finish()
+        assert store.sweep_info(writer.id).settings["reference_override"] == "testing the override"

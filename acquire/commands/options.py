@@ -45,3 +45,31 @@ def add_store(parser: argparse.ArgumentParser) -> None:
         help="results store URL: sqlite:///path/file.db or postgresql://user@host/dbname "
         f"(env ACQUIRE_STORE; default: {DEFAULT_STORE})",
     )
+
+
+def add_plan_arguments(parser: argparse.ArgumentParser) -> None:
+    """The frequency plan options (shared with `acquire reference capture`)."""
+    g = parser.add_argument_group("frequency plan (a span, a --list or a --file)")
+    g.add_argument("--start", help="lowest frequency, e.g. 100Hz (default 100Hz)")
+    g.add_argument("--stop", help="highest frequency, e.g. 10MHz (default 10MHz)")
+    g.add_argument("--points", type=int, help="number of frequencies in the span (default 201)")
+    g.add_argument(
+        "--spacing", choices=("log", "linear"), default="log", help="spacing of the span"
+    )
+    g.add_argument("--list", dest="values", help='explicit frequencies, e.g. "1k, 10k, 100kHz"')
+    g.add_argument("--file", help="text file of frequencies (commas, spaces or lines; # comments)")
+
+
+def plan_from_args(args: argparse.Namespace):
+    """The plan the options describe; the default span is 100 Hz to 10 MHz, 201 points."""
+    from acquire.plan import make_plan
+
+    if not (args.values or args.file):
+        start = args.start or "100Hz"
+        stop = args.stop or "10MHz"
+        return make_plan(start=start, stop=stop, points=args.points, spacing=args.spacing)
+    if args.points:
+        from acquire.errors import InputError
+
+        raise InputError("--points goes with --start and --stop, not with --list or --file")
+    return make_plan(start=args.start, stop=args.stop, values=args.values, file=args.file)

@@ -24,7 +24,7 @@ from __future__ import annotations
 
 import argparse
 
-from acquire.commands.options import add_dialect, add_resource, add_store
+from acquire.commands.options import add_dialect, add_plan_arguments, add_resource, add_store
 
 HELP = "capture, list, show and check fixture reference sets (open, short, load)"
 
@@ -41,8 +41,6 @@ and licensed practice.
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    from acquire.commands.sweep import add_plan_arguments
-
     actions = parser.add_subparsers(dest="action", metavar="ACTION", required=True)
     cap = actions.add_parser(
         "capture",
@@ -87,35 +85,11 @@ def run(args: argparse.Namespace) -> int:
     return {"capture": _capture, "list": _list, "show": _show, "check": _check}[args.action](args)
 
 
-def find_reference_set(store, key: str):
-    """The (id, ReferenceSet) a user named: an id, a name (the newest of that name) or 'latest'."""
-    from acquire.errors import InputError
-
-    infos = store.list_reference_sets()
-    text = str(key).strip()
-    if text.isdigit():
-        ids = {info.id for info in infos}
-        if int(text) not in ids:
-            raise InputError(
-                f"no reference set {text} in {store.url}; `acquire reference list` shows them"
-            )
-        return int(text), store.load_reference_set(int(text))
-    latest = text.lower() == "latest"
-    pool = infos if latest else [info for info in infos if info.name == text]
-    if not pool:
-        what = (
-            "no reference sets" if text.lower() == "latest" else f"no reference set named {text!r}"
-        )
-        raise InputError(f"{what} in {store.url}; capture one with `acquire reference capture`")
-    newest = max(pool, key=lambda info: (info.saved_at or info.captured_at or 0, info.id))
-    return newest.id, store.load_reference_set(newest.id)
-
-
 def _capture(args: argparse.Namespace) -> int:
     from rich.console import Console
 
     from acquire.capture import SAFETY, ConsoleOperator, capture_references
-    from acquire.commands.sweep import plan_from_args
+    from acquire.commands.options import plan_from_args
     from acquire.errors import InputError
     from acquire.store import open_store
     from acquire.units import parse_quantity
@@ -175,7 +149,7 @@ def _list(args: argparse.Namespace) -> int:
     from rich.console import Console
     from rich.table import Table
 
-    from acquire.progress import format_duration
+    from acquire.display import format_duration
     from acquire.store import open_store
 
     console = Console()
@@ -207,9 +181,10 @@ def _show(args: argparse.Namespace) -> int:
     from rich.console import Console
     from rich.table import Table
 
-    from acquire.dashboard import summary_frequencies
     from acquire.impedance import quantities
+    from acquire.resonance import summary_frequencies
     from acquire.store import open_store
+    from acquire.sweep_setup import find_reference_set
     from acquire.units import format_si
 
     console = Console()
@@ -247,6 +222,7 @@ def _check(args: argparse.Namespace) -> int:
     from rich.console import Console
 
     from acquire.store import open_store
+    from acquire.sweep_setup import find_reference_set
 
     console = Console()
     with open_store(args.store) as store:

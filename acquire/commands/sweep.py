@@ -4,7 +4,11 @@ The meter measures the part's complex impedance Z = R + jX at each frequency of 
 linear from --start to --stop, or a --list, or a --file of frequencies). Each reading is
 corrected with a stored reference set (--reference: open, short and load readings of the
 fixture captured with `acquire reference capture`), so the leads and clips of the fixture are
-removed from the result; without one, the raw readings are shown and stored.
+removed from the result; without one, the raw readings are shown and stored. A reference set
+that fails its own check (`acquire reference check`: open and short swapped, a short that reads
+open, ...) is refused; --use-despite-problems REASON uses it anyway and keeps the reason with
+the sweep. When most readings look like an empty fixture (nothing connected), the end of the
+sweep says so.
 
 Shown live: Ls and Rs (inductance and resistance of the series equivalent circuit) and
 Q = X/R (quality factor) against log frequency, by default; --show picks others among Ls, Rs, Cs,
@@ -26,39 +30,11 @@ import argparse
 import os
 import sys
 
-from acquire.commands.options import add_dialect, add_resource, add_store
+from acquire.commands.options import add_dialect, add_plan_arguments, add_resource, add_store
 
 HELP = "sweep a part across frequency with the live view and store the points"
 
 QUANTITIES = ("Ls", "Rs", "Cs", "Lp", "Rp", "Cp", "Q", "D", "Z", "theta", "X", "G", "B")
-
-
-def add_plan_arguments(parser: argparse.ArgumentParser) -> None:
-    """The frequency plan options (shared with `acquire reference capture`)."""
-    g = parser.add_argument_group("frequency plan (a span, a --list or a --file)")
-    g.add_argument("--start", help="lowest frequency, e.g. 100Hz (default 100Hz)")
-    g.add_argument("--stop", help="highest frequency, e.g. 10MHz (default 10MHz)")
-    g.add_argument("--points", type=int, help="number of frequencies in the span (default 201)")
-    g.add_argument(
-        "--spacing", choices=("log", "linear"), default="log", help="spacing of the span"
-    )
-    g.add_argument("--list", dest="values", help='explicit frequencies, e.g. "1k, 10k, 100kHz"')
-    g.add_argument("--file", help="text file of frequencies (commas, spaces or lines; # comments)")
-
-
-def plan_from_args(args: argparse.Namespace):
-    """The plan the options describe; the default span is 100 Hz to 10 MHz, 201 points."""
-    from acquire.plan import make_plan
-
-    if not (args.values or args.file):
-        start = args.start or "100Hz"
-        stop = args.stop or "10MHz"
-        return make_plan(start=start, stop=stop, points=args.points, spacing=args.spacing)
-    if args.points:
-        from acquire.errors import InputError
-
-        raise InputError("--points goes with --start and --stop, not with --list or --file")
-    return make_plan(start=args.start, stop=args.stop, values=args.values, file=args.file)
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
@@ -90,6 +66,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("--level", help="test-signal level, e.g. 1V or 100mV")
     parser.add_argument("--speed", choices=("fast", "medium", "slow"), help="measurement speed")
     parser.add_argument("--averaging", type=int, help="readings averaged per point")
+    parser.add_argument(
+        "--use-despite-problems",
+        metavar="REASON",
+        help="use a reference set that fails its check anyway; the reason is stored with the "
+        "sweep and shown on the view (the corrected values may be wrong)",
+    )
     parser.add_argument("--csv", help="also write the sweep to this CSV file")
     parser.add_argument(
         "--no-live", action="store_true", help="print plain progress lines instead of the live view"
@@ -123,15 +105,23 @@ def parse_show(text: str) -> tuple[str, ...]:
 
 
 def run(args: argparse.Namespace) -> int:
+    from datetime import UTC, datetime
+
     from rich.console import Console
 
-    from acquire.capture import dut_warnings
-    from acquire.commands.reference import find_reference_set
+    from acquire.commands.options import plan_from_args
     from acquire.csvout import write_sweep_csv
     from acquire.dashboard import open_view, summary
     from acquire.plan import check_range
     from acquire.store import open_store
     from acquire.sweep import check_coverage, run_sweep
+    from acquire.sweep_setup import (
+        begin,
+        find_reference_set,
+        prepare_state,
+        review_readings,
+        warn_about_references,
+    )
     from acquire.units import parse_quantity
     from drivers.meter import ImpedanceMeter
 
@@ -139,12 +129,14 @@ def run(args: argparse.Namespace) -> int:
     show = parse_show(args.show)
     if args.csv:
         check_csv_destination(args.csv)
+    override = _override(args.use_despite_problems)
     level = parse_quantity(args.level, "V") if args.level else None
     console = Console()
     with open_store(args.store) as store:
         ref_id, refs = (None, None)
         if args.reference:
             ref_id, refs = find_reference_set(store, args.reference)
+        used = _usable(refs, ref_id, override)
         with ImpedanceMeter.open(
             args.resource, dialect=args.dialect, backend=args.backend
         ) as meter:
@@ -154,27 +146,73 @@ def run(args: argparse.Namespace) -> int:
             if refs is not None:
                 check_coverage(plan, refs)
             identity = meter.identify()
-            state = prepare_state(plan, identity, refs, ref_id, args.fixture, args.dut, show)
+            state = prepare_state(plan, identity, refs, ref_id, args.fixture, args.dut, show, used)
             warn_about_references(state, refs, str(identity), args.fixture, args.max_reference_age)
-            writer = begin(store, meter, identity, args.fixture, args.dut, ref_id, plan, show, args)
+            measurement = {"level": args.level, "speed": args.speed, "averaging": args.averaging}
+            writer = begin(store, meter, identity, args.fixture, args.dut, ref_id, plan, show,
+                           measurement, references=refs, override=used)  # fmt: skip
             state.destination = f"sweep {writer.id} in {store.url}"
+            started = datetime.now(UTC)
             with open_view(state, live=not args.no_live, console=console) as view:
                 outcome = run_sweep(meter, plan, refs, writer, state, on_progress=view.update)
-        if refs is not None:
-            for w in dut_warnings(refs, outcome.frequency, outcome.raw):
-                state.warn(w)
+                review_readings(state, refs)
         console.print(summary(state))
         if args.csv:
+            about = csv_heading(state, args, started, outcome)
             path = write_sweep_csv(
-                args.csv, outcome.frequency, outcome.raw, outcome.corrected, show
+                args.csv, outcome.frequency, outcome.raw, outcome.corrected, show, about
             )
             console.print(f"CSV written to {path}", soft_wrap=True)
         line = outcome.message(store.url)
+    if state.open_fixture:
+        line += "; but the readings look like an open fixture (nothing connected)"
     if not outcome.interrupted:
         console.print(line, soft_wrap=True)
         return 0
     print(f"acquire sweep: {line}", file=sys.stderr)
     return 130 if isinstance(outcome.error, KeyboardInterrupt) else 2
+
+
+def _override(text: str | None) -> str:
+    """The reason given with --use-despite-problems, on one line; refuses an empty one."""
+    from acquire.errors import InputError
+
+    if text is None:
+        return ""
+    reason = " ".join(text.split())
+    if not reason:
+        raise InputError('--use-despite-problems needs a reason, e.g. "open re-taken tomorrow"')
+    return reason
+
+
+def _usable(refs, ref_id, override: str) -> str:
+    """The override a failing set is used with, or a refusal that names the option."""
+    from acquire.sweep_setup import ReferenceRefused, usable_reference
+
+    try:
+        return usable_reference(refs, ref_id, override)
+    except ReferenceRefused as exc:
+        raise ReferenceRefused(f"{exc} with --use-despite-problems REASON", exc.problems) from None
+
+
+def csv_heading(state, args: argparse.Namespace, started, outcome) -> dict[str, str]:
+    """What the CSV file says about the sweep in its comment lines."""
+    status = outcome.status + (f" ({outcome.reason})" if outcome.reason else "")
+    about = {
+        "dut": args.dut or "(not named)",
+        "meter": state.meter,
+        "fixture": args.fixture or "(not named)",
+        "reference set": state.reference or "none (raw readings, fixture not removed)",
+        "time": started.isoformat(timespec="seconds"),
+        "status": status,
+    }
+    if state.reference_override:
+        about["reference override"] = state.reference_override
+    if state.open_fixture:
+        about["warning"] = state.open_fixture
+    if state.destination:
+        about["stored as"] = state.destination
+    return about
 
 
 def check_csv_destination(path: str) -> None:
@@ -189,64 +227,3 @@ def check_csv_destination(path: str) -> None:
         raise InputError(f"--csv {path}: the folder {folder} does not exist; create it first")
     if not os.access(folder, os.W_OK):
         raise InputError(f"--csv {path}: the folder {folder} is not writable; choose another")
-
-
-def prepare_state(plan, identity, refs, ref_id, fixture, dut, show):
-    """A sweep state for the view, with the meter and the reference set described."""
-    from acquire.progress import SweepState
-
-    reference = ""
-    if refs is not None:
-        where = f" on {refs.fixture}" if refs.fixture else ""
-        reference = f"#{ref_id}{where} ({refs.method}, {refs.frequency.size} points)"
-    return SweepState(
-        plan,
-        dut=dut,
-        meter=str(identity),
-        reference=reference,
-        reference_captured_at=None if refs is None else refs.captured_at,
-        quantities=show,
-        corrected_too=refs is not None,
-    )
-
-
-def warn_about_references(state, refs, meter_name: str, fixture: str, max_hours: float) -> None:
-    """Put the reference set's warnings (age, meter, fixture, checks) on the view."""
-    from acquire.capture import reference_warnings
-
-    if refs is None:
-        return
-    max_age = None if max_hours is None or max_hours <= 0 else max_hours * 3600.0
-    for w in reference_warnings(refs, meter_name, fixture, max_age):
-        state.warn(w)
-
-
-def begin(store, meter, identity, fixture, dut, ref_id, plan, show, args=None):
-    """Record the meter and fixture and open a sweep in the store; returns its writer."""
-    meter_id = store.record_meter(
-        identity.manufacturer,
-        identity.model,
-        identity.serial,
-        identity.firmware,
-        dialect=getattr(getattr(meter, "dialect", None), "name", ""),
-    )
-    fixture_id = store.record_fixture(fixture) if fixture else None
-    settings = {
-        "plan": plan.describe(),
-        "spacing": plan.spacing,
-        "start_hz": plan.start,
-        "stop_hz": plan.stop,
-        "points": len(plan),
-        "show": list(show),
-    }
-    for key in ("level", "speed", "averaging"):
-        value = getattr(args, key, None) if args is not None else None
-        if value is not None:
-            settings[key] = value
-    return store.begin_sweep(
-        dut=dut,
-        meter_id=meter_id,
-        fixture_id=fixture_id,
-        reference_set_id=ref_id,
-        settings=settings,
-    )

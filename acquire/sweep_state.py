@@ -29,7 +29,9 @@ class SweepState:
     identity line, ``reference`` a one-line description of the reference set in use and
     ``reference_captured_at`` its capture time (timezone-aware), ``destination`` where the points
     are stored. ``quantities`` names the quantities plotted (keys of
-    :func:`acquire.impedance.quantities`).
+    :func:`acquire.impedance.quantities`). ``reference_override`` is the operator's reason for
+    using a reference set that fails its check ('' when it passes); ``open_fixture`` says why
+    the readings look like an empty fixture ('' when they do not).
     """
 
     plan: FrequencyPlan
@@ -37,6 +39,7 @@ class SweepState:
     meter: str = ""
     reference: str = ""
     reference_captured_at: datetime | None = None
+    reference_override: str = ""
     destination: str = ""
     quantities: tuple[str, ...] = ("Ls", "Rs", "Q")
     corrected_too: bool = False
@@ -50,6 +53,7 @@ class SweepState:
     started: float | None = None
     ended: float | None = None
     warnings: list[str] = field(default_factory=list)
+    open_fixture: str = ""
     frequency: np.ndarray = field(init=False, repr=False)
     raw: np.ndarray = field(init=False, repr=False)
     corrected: np.ndarray | None = field(init=False, repr=False)
@@ -122,26 +126,10 @@ class SweepState:
 
     def all_warnings(self) -> list[str]:
         """The warnings, with overrange and invalid points summarised in one line each."""
-        lines = list(self.warnings)
+        lines = ([self.open_fixture] if self.open_fixture else []) + list(self.warnings)
         if self.overrange:
             where = format_si(self.first_overrange or float("nan"), "Hz")
             lines.append(f"{self.overrange} point(s) overrange, the first at {where}")
         if self.invalid:
             lines.append(f"{self.invalid} point(s) invalid (the meter gave no reading)")
         return lines
-
-
-def format_duration(seconds: float | None) -> str:
-    """``0.4 s``, ``12 s``, ``3 min 20 s``, ``2.0 h``, ``3.5 days``; ``—`` for None."""
-    if seconds is None:
-        return "—"
-    s = max(float(seconds), 0.0)
-    if s < 10:
-        return f"{s:.1f} s"
-    if s < 60:
-        return f"{s:.0f} s"
-    if s < 3600:
-        return f"{int(s // 60)} min {int(s % 60)} s"
-    if s < 86400 * 2:
-        return f"{s / 3600:.1f} h"
-    return f"{s / 86400:.1f} days"

@@ -2,18 +2,10 @@
 
 from __future__ import annotations
 
-import pytest
 import pyvisa
 
 from acquire.cli import main
 from acquire.units import format_si
-from drivers.simulator import running
-
-
-@pytest.fixture(scope="module")
-def sim():
-    with running(dut="air-core-coil", measure_time=0, noise=False) as s:
-        yield s
 
 
 def test_identify_prints_identity_dialect_and_a_reading(sim, capsys):

@@ -25,16 +25,9 @@ from drivers.errors import (
     SettingRefused,
 )
 from drivers.meter import ImpedanceMeter
-from drivers.simulator import running
 
 # Below and above the coil-on-leads resonance (the top point reads capacitive).
 F = np.array([10.0, 1e3, 12345.6789, 1e5, 1e6, 1.368e7, 3e7])
-
-
-@pytest.fixture(scope="module")
-def sim():
-    with running(dut="air-core-coil", fixture="bench-leads", measure_time=0, noise=False) as s:
-        yield s
 
 
 @pytest.fixture(autouse=True)

@@ -11,18 +11,14 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
-from drivers.simulator import running
-
-pyvisa = pytest.importorskip("pyvisa")
+import pyvisa
 
 N = 400
 
 
 @pytest.fixture(scope="module")
-def sim():
-    with running(dut="air-core-coil", fixture="direct", measure_time=0, seed=11) as handle:
-        yield handle
+def sim_options():
+    return {"fixture": "direct", "seed": 11, "noise": True}
 
 
 @pytest.fixture

@@ -13,19 +13,15 @@ import re
 
 import numpy as np
 import pytest
-
-pyvisa = pytest.importorskip("pyvisa")
-
-from drivers.simulator import running  # noqa: E402
+import pyvisa
 
 OVERRANGE = 9.9e37
 INVALID = 9.91e37
 
 
 @pytest.fixture(scope="module")
-def sim():
-    with running(dut="air-core-coil", fixture="bench-leads", seed=3, measure_time=0) as handle:
-        yield handle
+def sim_options():
+    return {"seed": 3, "noise": True}
 
 
 @pytest.fixture(scope="module")

@@ -83,9 +83,13 @@ def noise_deviation(conditions: Conditions, magnitude: np.ndarray, f: np.ndarray
 
 
 def read_impedance(
-    conditions: Conditions, rng: np.random.Generator, forced_overrange: np.ndarray
+    conditions: Conditions, normals: np.ndarray, forced_overrange: np.ndarray
 ) -> Reading:
-    """The reading at ``conditions.frequency``: DUT through fixture, plus noise, flags."""
+    """The reading at ``conditions.frequency``: DUT through fixture, plus noise, flags.
+
+    ``normals`` holds one pair of standard normal draws per frequency (see
+    :mod:`drivers.simulator.streams`).
+    """
     f = np.asarray(conditions.frequency, dtype=float)
     seen = conditions.fixture.seen(f, conditions.dut.impedance(f))
     invalid = np.isnan(seen)
@@ -95,12 +99,15 @@ def read_impedance(
     z = np.where(invalid | overrange, 0.0, seen)
     if conditions.noise:
         deviation = noise_deviation(conditions, np.abs(z), f)
-        z = physics.add_noise(z, deviation, rng)
+        z = physics.add_noise(z, deviation, normals)
     return Reading(frequency=f, z=z, overrange=overrange, invalid=invalid)
 
 
-def read_dc_resistance(conditions: Conditions, rng: np.random.Generator) -> float:
-    """DC resistance seen through the fixture, with noise (at ``f = 0``), or a flag value."""
+def read_dc_resistance(conditions: Conditions, normal: float) -> float:
+    """DC resistance seen through the fixture, with noise (at ``f = 0``), or a flag value.
+
+    ``normal`` is this reading's standard normal draw.
+    """
     value = conditions.fixture.seen_dc(conditions.dut.dc_value)
     if np.isnan(value):
         return INVALID
@@ -108,7 +115,7 @@ def read_dc_resistance(conditions: Conditions, rng: np.random.Generator) -> floa
         return OVERRANGE
     if conditions.noise:
         deviation = float(noise_deviation(conditions, np.array([value]), np.array([0.0]))[0])
-        value += deviation * float(rng.standard_normal())
+        value += deviation * normal
     return float(value)
 
 

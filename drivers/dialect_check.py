@@ -4,7 +4,7 @@
 :class:`~drivers.dialect.Dialect`, refusing unknown keys, wrong types, impossible limits,
 operations the driver does not know, queries that do not say what they return, placeholders an
 operation cannot fill, and sequences that would never tell the meter its frequency or never
-return a reading. :func:`drivers.dialect.load_dialect` is the way in.
+return a reading. :func:`drivers.dialect_file.load_dialect` is the way in.
 """
 
 from __future__ import annotations

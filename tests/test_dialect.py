@@ -7,7 +7,8 @@ from pathlib import Path
 
 import pytest
 
-from drivers.dialect import DIRECTORY, OPERATIONS, list_dialects, load_dialect
+from drivers.dialect import DIRECTORY, OPERATIONS
+from drivers.dialect_file import list_dialects, load_dialect
 from drivers.errors import DialectError
 
 SIMULATED = DIRECTORY / "simulated.toml"

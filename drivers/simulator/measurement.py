@@ -13,12 +13,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from drivers.scpi import INVALID, OVERRANGE
 from drivers.simulator import physics
 from drivers.simulator.profiles import DutProfile, FixtureProfile, MeterProfile
 from drivers.simulator.scpi_parser import block, format_number
-
-OVERRANGE = 9.9e37
-INVALID = 9.91e37
 
 
 @dataclass(frozen=True, eq=False)

@@ -27,7 +27,7 @@ from drivers.simulator.profiles import (
     load_meter,
 )
 from drivers.simulator.scpi_parser import ScpiError
-from drivers.simulator.state import SPEEDS, ClientStatus, Settings
+from drivers.simulator.state import ClientStatus, Settings
 
 
 class Session:
@@ -133,7 +133,7 @@ class Instrument:
         return Conditions(
             frequency=frequencies,
             level=s.level,
-            speed=SPEEDS[s.speed],
+            periods=s.periods,
             averaging=s.averaging,
             noise=self.noise,
             dut=self.dut,

@@ -3,7 +3,7 @@
 A reading is the DUT seen through the fixture (:mod:`drivers.simulator.physics`), plus seeded
 noise, with overrange (``|Z|`` above the meter's limit, or an armed overrange fault) and invalid
 (nothing in the fixture) points flagged. It is encoded as pairs of values named by
-``FORMat:PAIR``, in ASCII or as a block of IEEE 754 float64.
+``FORMat:PAIR`` (with ``CIRCuit`` and ``UNIT:ANGLe``), in ASCII or as a block of IEEE 754 float64.
 """
 
 from __future__ import annotations
@@ -35,7 +35,7 @@ class Conditions:
 
     frequency: tuple[float, ...]
     level: float
-    speed: str
+    periods: int
     averaging: int
     noise: bool
     dut: DutProfile
@@ -45,18 +45,23 @@ class Conditions:
 
 
 def point_time(conditions: Conditions, f: float) -> float:
-    """Seconds one point takes: the override, or ``n_avg · max(t_reading, periods/f)``."""
+    """Seconds one point takes: the override, or ``n_avg · max(t_min, periods/f)``."""
     if conditions.time_override is not None:
         return conditions.time_override
-    speed = conditions.meter.speeds[conditions.speed]
-    return conditions.averaging * max(speed.reading_time, speed.periods / f)
+    t_min = conditions.meter.minimum_reading_time
+    return conditions.averaging * max(t_min, conditions.periods / f)
 
 
 def dc_time(conditions: Conditions) -> float:
-    """Seconds a DC resistance reading takes: the override, or ``n_avg · t_reading``."""
+    """Seconds a DC resistance reading takes: the override, or ``n_avg · periods · t_min``."""
     if conditions.time_override is not None:
         return conditions.time_override
-    return conditions.averaging * conditions.meter.speeds[conditions.speed].reading_time
+    return conditions.averaging * conditions.periods * conditions.meter.minimum_reading_time
+
+
+def periods_factor(conditions: Conditions) -> float:
+    """How the noise scales with the periods per reading: ``sqrt(periods_ref / periods)``."""
+    return float(np.sqrt(conditions.meter.reference_periods / conditions.periods))
 
 
 def duration(conditions: Conditions) -> float:
@@ -75,7 +80,7 @@ def noise_deviation(conditions: Conditions, magnitude: np.ndarray, f: np.ndarray
         meter.high_impedance_corner,
         meter.frequency_corner,
         level_ratio=meter.reference_level / conditions.level,
-        speed_factor=meter.speeds[conditions.speed].noise_factor,
+        speed_factor=periods_factor(conditions),
         averaging=conditions.averaging,
     )
 
@@ -117,31 +122,50 @@ def read_dc_resistance(conditions: Conditions, normal: float) -> float:
     return float(value)
 
 
-def pair_values(pair: str, f: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """The two quantities ``pair`` names, per point (SI units; Q = X/R and D = R/X, signed)."""
+def quantity(word: str, f: np.ndarray, z: np.ndarray, circuit: str, angle_unit: str) -> np.ndarray:
+    """One quantity per point, named by its ``FORMat:PAIR`` short form (SI units).
+
+    ``circuit`` (``SER``/``PAR``) says which equivalent circuit inductance, capacitance and
+    resistance belong to; ``angle_unit`` (``DEG``/``RAD``) the unit of the phase. Quality is
+    ``X/R`` and dissipation ``R/X`` (signed, the same in both circuits).
+    """
     w = 2.0 * np.pi * f
     r, x = z.real, z.imag
+    series = circuit == "SER"
     with np.errstate(divide="ignore", invalid="ignore"):
         y = 1.0 / z
         g, b = y.real, y.imag
-        table = {
-            "RX": (r, x),
-            "ZDEG": (np.abs(z), np.degrees(np.angle(z))),
-            "ZRAD": (np.abs(z), np.angle(z)),
-            "GB": (g, b),
-            "LSRS": (x / w, r),
-            "LPRP": (-1.0 / (w * b), 1.0 / g),
-            "CSRS": (-1.0 / (w * x), r),
-            "CPD": (b / w, r / x),
-            "LSQ": (x / w, x / r),
-        }
-    return table[pair]
+        if word == "REAL":
+            return r
+        if word == "IMAG":
+            return x
+        if word == "MAGN":
+            return np.abs(z)
+        if word == "PHAS":
+            return np.angle(z, deg=angle_unit == "DEG")
+        if word == "COND":
+            return g
+        if word == "SUSC":
+            return b
+        if word == "IND":
+            return x / w if series else -1.0 / (w * b)
+        if word == "CAP":
+            return -1.0 / (w * x) if series else b / w
+        if word == "RES":
+            return r if series else 1.0 / g
+        if word == "QUAL":
+            return x / r
+        if word == "DISS":
+            return r / x
+    raise ValueError(f"unknown quantity {word!r}")
 
 
-def reading_values(reading: Reading, pair: str) -> np.ndarray:
+def reading_values(
+    reading: Reading, pair: tuple[str, str], circuit: str = "SER", angle_unit: str = "DEG"
+) -> np.ndarray:
     """Flat array ``a1, b1, a2, b2, ...`` with 9.9E37 for overrange and 9.91E37 for invalid."""
-    a, b = pair_values(pair, reading.frequency, reading.z)
-    values = np.column_stack([a, b])
+    f, z = reading.frequency, reading.z
+    values = np.column_stack([quantity(w, f, z, circuit, angle_unit) for w in pair])
     values = np.where(np.isnan(values), INVALID, values)
     values = np.where(np.isinf(values), np.sign(values) * OVERRANGE, values)
     values[reading.overrange] = OVERRANGE

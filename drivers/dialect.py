@@ -5,14 +5,15 @@ It names, for each abstract operation the driver needs (identify, set the freque
 point, load a frequency list, ...), a command template with named placeholders, whether it is a
 query and what its reply means; plus terminations, timeouts, the frequency range, list-mode
 limits, ASCII/binary transfer and the order of steps for one point and for one list. Every key
-is checked when the file is loaded (:mod:`drivers.dialect_check`); a malformed dialect raises
-:class:`DialectError` naming the file, the key and the reason.
+is checked when the file is loaded (:func:`drivers.dialect_file.load_dialect`, which reads the file,
+and :mod:`drivers.dialect_check`, which checks it); a malformed dialect raises
+:class:`DialectError` naming the file, the key and the reason. This module holds only what a
+dialect is: the data classes and the vocabulary of operations, replies and placeholders.
 ``drivers/dialects/template.toml`` explains every key.
 """
 
 from __future__ import annotations
 
-import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
@@ -144,40 +145,3 @@ class Dialect:
                 f"add [operations.{name}] to the dialect if the meter can do it, "
                 "or remove that step from the plan"
             ) from None
-
-
-def list_dialects() -> list[str]:
-    """Names of the shipped dialects (the template excluded)."""
-    return sorted(p.stem for p in DIRECTORY.glob("*.toml") if p.stem != "template")
-
-
-def load_dialect(name_or_path: str | Path) -> Dialect:
-    """Load a shipped dialect by name, or a dialect file by path, and validate every key."""
-    path = _resolve(name_or_path)
-    try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
-    except OSError as exc:
-        raise DialectError(f"{path}: cannot read the dialect file: {exc.strerror}") from None
-    except tomllib.TOMLDecodeError as exc:
-        raise DialectError(f"{path}: not valid TOML: {exc}") from None
-    except UnicodeDecodeError:
-        raise DialectError(f"{path}: not a UTF-8 text file") from None
-    from drivers.dialect_check import check_dialect  # the checker builds on this module
-
-    return check_dialect(path, data)
-
-
-def _resolve(name_or_path: str | Path) -> Path:
-    text = str(name_or_path)
-    candidate = Path(text)
-    if candidate.suffix == ".toml" or "/" in text or "\\" in text:
-        if not candidate.is_file():
-            raise DialectError(f"{candidate}: no such dialect file")
-        return candidate
-    shipped = DIRECTORY / f"{text}.toml"
-    if not shipped.is_file():
-        raise DialectError(
-            f"no shipped dialect named {text!r}; shipped: {', '.join(list_dialects())} "
-            "(or give the path to your own .toml file)"
-        )
-    return shipped

@@ -4,7 +4,7 @@
 :class:`~drivers.dialect.Dialect`, refusing unknown keys, wrong types, impossible limits,
 operations the driver does not know, queries that do not say what they return, placeholders an
 operation cannot fill, and sequences that would never tell the meter its frequency or never
-return a reading. :func:`drivers.dialect.load_dialect` is the way in.
+return a reading. :func:`drivers.dialect_file.load_dialect` is the way in.
 """
 
 from __future__ import annotations
@@ -27,6 +27,7 @@ from drivers.dialect import (
 )
 from drivers.errors import DialectError
 from drivers.readings import QD_SIGNS, QUANTITIES, is_supported, supported_pairs
+from drivers.renamed import dialect_problems
 
 
 def check_dialect(path: Path, data: dict[str, Any]) -> Dialect:
@@ -298,6 +299,8 @@ class _Checker:
                 raise self.fail(
                     f"operations.{name}", f"missing; the driver needs it to {OPERATIONS[name]}"
                 )
+        for name, reason in dialect_problems({n: op.command for n, op in out.items()}):
+            raise self.fail(f"operations.{name}.command", reason)
         return out
 
     def operation(self, name: str, spec: dict) -> Operation:

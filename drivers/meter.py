@@ -19,7 +19,8 @@ from typing import Any
 import numpy as np
 
 from drivers import readings, scpi
-from drivers.dialect import Dialect, Operation, load_dialect
+from drivers.dialect import Dialect, Operation
+from drivers.dialect_file import load_dialect
 from drivers.errors import DialectError, OutOfRange, SettingRefused
 from drivers.exchange import Exchange
 from drivers.scpi import ErrorEntry, Identity

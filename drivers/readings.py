@@ -30,6 +30,8 @@ from collections.abc import Callable
 
 import numpy as np
 
+from drivers.scpi import markers
+
 #: Names a dialect may use for the two numbers of a reading.
 QUANTITIES: dict[str, str] = {
     "R": "resistance, ohm",
@@ -48,11 +50,6 @@ QUANTITIES: dict[str, str] = {
     "Q": "quality factor of the named equivalent, 1",
     "D": "dissipation factor of the named equivalent (1/Q), 1",
 }
-
-#: Overrange and invalid markers of SCPI-99, and the relative tolerance used to recognise them.
-OVERRANGE = 9.9e37
-INVALID = 9.91e37
-MARKER_RTOL = 1e-5
 
 _Converter = Callable[[np.ndarray, np.ndarray, np.ndarray], np.ndarray]
 
@@ -183,18 +180,6 @@ def is_supported(pair: tuple[str, str]) -> bool:
     """True if ``pair`` (in either order) can be turned into impedance."""
     a, b = pair
     return (a, b) in CONVERTERS or (b, a) in CONVERTERS
-
-
-def markers(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Boolean masks (overrange, invalid) of the SCPI-99 markers in ``values``.
-
-    A value within :data:`MARKER_RTOL` of +-9.9E37 is overrange, of 9.91E37 invalid; an actual
-    NaN or infinity (possible in binary transfers) counts as invalid or overrange too.
-    """
-    magnitude = np.abs(np.asarray(values, dtype=float))
-    invalid = (np.abs(magnitude - INVALID) <= INVALID * MARKER_RTOL) | np.isnan(magnitude)
-    overrange = (np.abs(magnitude - OVERRANGE) <= OVERRANGE * MARKER_RTOL) | np.isinf(magnitude)
-    return overrange & ~invalid, invalid
 
 
 def _plain(values: np.ndarray) -> bool:

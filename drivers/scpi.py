@@ -15,10 +15,15 @@ import numpy as np
 from pyvisa import util as visa_util
 
 from drivers.errors import ReplyError, SettingRefused
-from drivers.readings import markers
 
 #: The longest error queue drained in one go; a meter that never answers "0" is broken.
 MAX_QUEUE = 100
+
+
+#: Overrange and invalid markers of SCPI-99, and the relative tolerance used to recognise them.
+OVERRANGE = 9.9e37
+INVALID = 9.91e37
+MARKER_RTOL = 1e-5
 
 
 class MeterWarning(UserWarning):
@@ -137,6 +142,18 @@ def raise_for_errors(
             f"{context}: the meter refused it and reported {listed}. Check the value against "
             "the meter's limits and the dialect's command for it"
         )
+
+
+def markers(values: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Boolean masks (overrange, invalid) of the SCPI-99 markers in ``values``.
+
+    A value within :data:`MARKER_RTOL` of +-9.9E37 is overrange, of 9.91E37 invalid; an actual
+    NaN or infinity (possible in binary transfers) counts as invalid or overrange too.
+    """
+    magnitude = np.abs(np.asarray(values, dtype=float))
+    invalid = (np.abs(magnitude - INVALID) <= INVALID * MARKER_RTOL) | np.isnan(magnitude)
+    overrange = (np.abs(magnitude - OVERRANGE) <= OVERRANGE * MARKER_RTOL) | np.isinf(magnitude)
+    return overrange & ~invalid, invalid
 
 
 def special_values(values: np.ndarray) -> np.ndarray:

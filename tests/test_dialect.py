@@ -7,7 +7,8 @@ from pathlib import Path
 
 import pytest
 
-from drivers.dialect import DIRECTORY, OPERATIONS, list_dialects, load_dialect
+from drivers.dialect import DIRECTORY, OPERATIONS
+from drivers.dialect_file import list_dialects, load_dialect
 from drivers.errors import DialectError
 
 SIMULATED = DIRECTORY / "simulated.toml"
@@ -31,11 +32,11 @@ def test_shipped_dialects():
     assert d.name == "simulated"
     assert d.pair == ("R", "X") and d.qd_sign == "signed"
     assert (d.frequency_min, d.frequency_max) == (10.0, 30e6)
-    assert d.list_max_points == 1601 and d.has_list
+    assert d.list_max_points == 2000 and d.has_list
     assert d.point_sequence == ("point_mode", "set_frequency", "read", "wait")
     assert d.has("dc_resistance") and not d.has("nonsense")
     assert d.operations["next_error"].idempotent is False
-    assert d.operations["set_speed"].choices["medium"] == "MED"
+    assert d.operations["set_speed"].choices["medium"] == "4"
     assert d.operations["set_list"].placeholders == {"frequencies"}
 
 
@@ -72,7 +73,7 @@ def test_optional_operations_may_be_left_out(tmp_path):
 def test_list_mode_may_be_left_out(tmp_path):
     path = variant(
         tmp_path,
-        {r"^\[list\]\nmax_points = 1601\nmin_points = 1\n": "", r"^list = \[.*\]$": ""},
+        {r"^\[list\]\nmax_points = 2000\nmin_points = 1\n": "", r"^list = \[.*\]$": ""},
     )
     d = load_dialect(path)
     assert not d.has_list and d.list_sequence == ()
@@ -103,7 +104,7 @@ MALFORMED = [
     ({r"^encoding = .*$": 'encoding = "klingon"'}, "", "connection.encoding", "unknown encoding"),
     ({r"^\[connection\]$": "[connection]\nbaud = 9600"}, "", "connection.baud", "unknown key"),
     ({}, "\n[extras]\nx = 1\n", "extras", "unknown key"),
-    ({r"^max_points = 1601$": "max_points = 0"}, "", "list.max_points", "at least 1"),
+    ({r"^max_points = 2000$": "max_points = 0"}, "", "list.max_points", "at least 1"),
     ({r"^min_points = 1$": "min_points = 5000"}, "", "list.min_points", "between 1 and max"),
     ({r"^default = .*$": 'default = "hex"'}, "", "transfer.default", "'ascii' or 'binary'"),
     ({r"^datatype = .*$": 'datatype = "int16"'}, "", "transfer.datatype", "float64"),
@@ -206,13 +207,13 @@ MALFORMED = [
     ),
     ({r"^settle = 0.0$": "settle = -1"}, "", "sequence.settle", ">= 0"),
     (
-        {r"^\[list\]\nmax_points = 1601\nmin_points = 1\n": ""},
+        {r"^\[list\]\nmax_points = 2000\nmin_points = 1\n": ""},
         "",
         "sequence.list",
         "without a \\[list\\] table",
     ),
     (
-        {r"^set_speed = .*$": 'set_speed = { command = "SPE {speed}" }'},
+        {r"^set_speed = .*$": 'set_speed = { command = "PER {speed}" }'},
         "",
         "operations.set_speed.choices",
         "map speed words",
@@ -244,3 +245,45 @@ def test_toml_syntax_error_names_the_file_and_line(tmp_path):
     path = variant(tmp_path, {r"^name = .*$": "name = = 3"})
     with pytest.raises(DialectError, match=r"variant\.toml: not valid TOML: .*line \d+"):
         load_dialect(path)
+
+
+# The simulated meter's retired words (the dialect of the previous release used them) and what
+# each must be told to say now: the table of drivers/simulator/COMMANDS.md, checked here by hand.
+RETIRED_PAIRS = [
+    ("RX", "FORM:PAIR REAL,IMAG"),
+    ("ZDEG", "UNIT:ANGL DEG;FORM:PAIR MAGN,PHAS"),
+    ("ZRAD", "UNIT:ANGL RAD;FORM:PAIR MAGN,PHAS"),
+    ("GB", "FORM:PAIR COND,SUSC"),
+    ("LSRS", "CIRC SER;FORM:PAIR IND,RES"),
+    ("LPRP", "CIRC PAR;FORM:PAIR IND,RES"),
+    ("CSRS", "CIRC SER;FORM:PAIR CAP,RES"),
+    ("CPD", "CIRC PAR;FORM:PAIR CAP,DISS"),
+    ("LSQ", "CIRC SER;FORM:PAIR IND,QUAL"),
+]
+
+
+@pytest.mark.parametrize(("old", "new"), RETIRED_PAIRS)
+def test_a_dialect_with_a_retired_pair_name_fails_naming_the_new_one(tmp_path, old, new):
+    setup = f'setup = {{ command = "FORM:PAIR {old};FORM:BORD NORM" }}'
+    path = variant(tmp_path, {r"^setup = .*$": setup})
+    with pytest.raises(DialectError) as info:
+        load_dialect(path)
+    message = str(info.value)
+    assert message.startswith(f"{path}: key 'operations.setup.command': ")
+    assert f"'FORM:PAIR {old};FORM:BORD NORM' uses a reading-pair name" in message
+    assert f"the simulator now says {new} " in message
+
+
+def test_the_previous_simulated_dialect_fails_on_its_speed_command(tmp_path):
+    old = 'set_speed = { command = "SPE {speed}", choices = { fast = "FAST", slow = "SLOW" } }'
+    path = variant(tmp_path, {r"^set_speed = .*$": old})
+    with pytest.raises(DialectError, match=r"operations\.set_speed\.command.*speed header.*PER"):
+        load_dialect(path)
+
+
+def test_another_meter_family_may_keep_a_speed_header_of_that_spelling(tmp_path):
+    edits = {
+        r"^setup = .*$": 'setup = { command = "FORM:BORD NORM" }',
+        r"^set_speed = .*$": 'set_speed = { command = "SPE {speed}", choices = { fast = "F" } }',
+    }
+    assert load_dialect(variant(tmp_path, edits)).operations["set_speed"].command == "SPE {speed}"

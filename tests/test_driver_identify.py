@@ -2,18 +2,10 @@
 
 from __future__ import annotations
 
-import pytest
 import pyvisa
 
 from acquire.cli import main
 from acquire.units import format_si
-from drivers.simulator import running
-
-
-@pytest.fixture(scope="module")
-def sim():
-    with running(dut="air-core-coil", measure_time=0, noise=False) as s:
-        yield s
 
 
 def test_identify_prints_identity_dialect_and_a_reading(sim, capsys):
@@ -27,7 +19,7 @@ def test_identify_prints_identity_dialect_and_a_reading(sim, capsys):
     first = out.splitlines()[0]
     assert first.startswith("meter") and all(field.strip() in first for field in fields)
     assert "dialect     simulated" in out
-    assert "list mode   up to 1601 points per list" in out
+    assert "list mode   up to 2000 points per list" in out
     assert "errors      none" in out
     z = complex(sim.seen_impedance(1e3))
     assert f"R = {format_si(z.real, 'Ω')}, X = {format_si(z.imag, 'Ω')}" in out

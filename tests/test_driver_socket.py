@@ -25,16 +25,9 @@ from drivers.errors import (
     SettingRefused,
 )
 from drivers.meter import ImpedanceMeter
-from drivers.simulator import running
 
 # Below and above the coil-on-leads resonance (the top point reads capacitive).
 F = np.array([10.0, 1e3, 12345.6789, 1e5, 1e6, 1.368e7, 3e7])
-
-
-@pytest.fixture(scope="module")
-def sim():
-    with running(dut="air-core-coil", fixture="bench-leads", measure_time=0, noise=False) as s:
-        yield s
 
 
 @pytest.fixture(autouse=True)
@@ -79,26 +72,35 @@ def test_identity_and_nagle_off(sim):
         assert meter.session.nodelay is True
 
 
+#: Every pair the driver reads, the simulator's settings that select it and its FORM:PAIR? reply.
 PAIRS = [
-    ('["R", "X"]', "RX"),
-    ('["Z", "theta_deg"]', "ZDEG"),
-    ('["Z", "theta_rad"]', "ZRAD"),
-    ('["G", "B"]', "GB"),
-    ('["Ls", "Rs"]', "LSRS"),
-    ('["Lp", "Rp"]', "LPRP"),
-    ('["Cs", "Rs"]', "CSRS"),
-    ('["Cp", "D"]', "CPD"),
-    ('["Ls", "Q"]', "LSQ"),
+    ('["R", "X"]', "CIRC SER;FORM:PAIR REAL,IMAG", "REAL,IMAG"),
+    ('["X", "R"]', "FORM:PAIR IMAGINARY,REAL", "IMAG,REAL"),
+    ('["Z", "theta_deg"]', "UNIT:ANGL DEG;FORM:PAIR MAGN,PHAS", "MAGN,PHAS"),
+    ('["Z", "theta_rad"]', "UNIT:ANGLE RADIAN;FORM:PAIR MAGNITUDE,PHASE", "MAGN,PHAS"),
+    ('["G", "B"]', "FORM:PAIR COND,SUSC", "COND,SUSC"),
+    ('["Ls", "Rs"]', "CIRC SER;FORM:PAIR IND,RES", "IND,RES"),
+    ('["Ls", "Q"]', "CIRC SER;FORM:PAIR IND,QUAL", "IND,QUAL"),
+    ('["Ls", "D"]', "CIRC SER;FORM:PAIR IND,DISS", "IND,DISS"),
+    ('["Lp", "Rp"]', "CIRCUIT PARALLEL;FORM:PAIR INDUCTANCE,RESISTANCE", "IND,RES"),
+    ('["Lp", "Q"]', "CIRC PAR;FORM:PAIR IND,QUAL", "IND,QUAL"),
+    ('["Lp", "D"]', "CIRC PAR;FORM:PAIR IND,DISS", "IND,DISS"),
+    ('["Rp", "Lp"]', "CIRC PAR;FORM:PAIR RES,IND", "RES,IND"),
+    ('["Cs", "Rs"]', "CIRC SER;FORM:PAIR CAP,RES", "CAP,RES"),
+    ('["Cs", "D"]', "CIRC SER;FORM:PAIR CAP,DISS", "CAP,DISS"),
+    ('["Cs", "Q"]', "CIRC SER;FORM:PAIR CAP,QUAL", "CAP,QUAL"),
+    ('["Cp", "Rp"]', "CIRC PAR;FORM:PAIR CAP,RES", "CAP,RES"),
+    ('["Cp", "D"]', "CIRC PAR;FORM:PAIR CAPACITANCE,DISSIPATION", "CAP,DISS"),
+    ('["Cp", "Q"]', "CIRC PAR;FORM:PAIR CAP,QUAL", "CAP,QUAL"),
 ]
 
 
-@pytest.mark.parametrize(("pair", "word"), PAIRS, ids=[w for _, w in PAIRS])
-def test_every_reply_form_through_the_socket(sim, tmp_path, pair, word):
-    path = dialect_variant(
-        tmp_path, {r"^pair = .*$": f"pair = {pair}", "FORM:PAIR RX": f"FORM:PAIR {word}"}
-    )
+@pytest.mark.parametrize(("pair", "select", "reply"), PAIRS, ids=[p[1] for p in PAIRS])
+def test_every_reply_form_through_the_socket(sim, tmp_path, pair, select, reply):
+    setup = f'setup = {{ command = "{select};FORM:BORD NORM" }}'
+    path = dialect_variant(tmp_path, {r"^pair = .*$": f"pair = {pair}", r"^setup = .*$": setup})
     with meter_for(sim, path) as meter:
-        assert meter.session.query("FORM:PAIR?") == word
+        assert meter.session.query("FORM:PAIR?") == reply
         z = meter.sweep(F)
         assert meter.measure(F[2]) == pytest.approx(complex(sim.seen_impedance(F[2])), rel=1e-12)
     np.testing.assert_allclose(z, sim.seen_impedance(F), rtol=1e-11)
@@ -119,7 +121,7 @@ def test_list_and_point_by_point_agree_and_are_exact(sim):
 
 
 def test_long_lists_are_chunked_and_streamed_in_order(sim, tmp_path):
-    path = dialect_variant(tmp_path, {r"^max_points = 1601$": "max_points = 100"})
+    path = dialect_variant(tmp_path, {r"^max_points = 2000$": "max_points = 100"})
     f = np.geomspace(100, 1e6, 250)
     chunks: list[tuple[np.ndarray, np.ndarray]] = []
     with meter_for(sim, path) as meter:
@@ -184,13 +186,13 @@ def test_refused_settings_are_reported(sim, tmp_path):
         },
     )
     with meter_for(sim, path) as meter:
-        meter.configure(level=0.5)
+        meter.configure(level=0.25)
         with pytest.raises(SettingRefused, match=r"level=5.0.*-222"):
             meter.configure(level=5.0)
         with pytest.raises(SettingRefused, match="-222"):
             meter.configure(averaging=1000)
-        assert float(meter.session.query("VOLT?")) == 0.5
-        assert meter.settings == {"level": 0.5}
+        assert float(meter.session.query("VOLT?")) == 0.25
+        assert meter.settings == {"level": 0.25}
         assert meter.errors() == []
     only_max = dialect_variant(
         tmp_path,
@@ -234,12 +236,12 @@ def test_dc_resistance_cut_short_or_garbled_is_measured_again(sim, kind):
 
 def test_reset_returns_to_defaults_and_keeps_the_reading_pair(sim):
     with meter_for(sim) as meter:
-        meter.configure(level=0.5, speed="slow")
-        meter.session.write("FORM:PAIR CPD")
+        meter.configure(level=1.5, speed="slow")
+        meter.session.write("CIRC PAR;FORM:PAIR CAP,DISS")
         meter.reset()
         assert meter.settings == {}
-        assert float(meter.session.query("VOLT?")) == 1.0
-        assert meter.session.query("FORM:PAIR?") == "RX"
+        assert float(meter.session.query("VOLT?")) == 0.5
+        assert meter.session.query("FORM:PAIR?;CIRC?") == "REAL,IMAG;SER"
         assert meter.measure(1e3) == complex(sim.seen_impedance(1e3))
 
 
@@ -269,7 +271,7 @@ FAULTS = [("drop", 1), ("drop", 2), ("stall", 1), ("garble", 1), ("truncate", 1)
 def test_each_fault_ends_in_the_right_number_after_a_reconnect(
     sim, tmp_path, kind, n, mode, transfer
 ):
-    path = dialect_variant(tmp_path, {r"^max_points = 1601$": "max_points = 3"})
+    path = dialect_variant(tmp_path, {r"^max_points = 2000$": "max_points = 3"})
     timeout, retries = 0.3, 2
     with meter_for(sim, path, timeout=timeout, retries=retries) as meter:
         meter.configure(transfer=transfer)

@@ -22,13 +22,13 @@ from drivers.meter import ImpedanceMeter
 
 BACKEND = f"{sim_profiles.path('protocol-meters.yaml')}@sim"
 PORTS = {
-    "coil-rx": 5025,
-    "coil-zdeg": 5026,
-    "coil-zrad": 5027,
-    "coil-gb": 5028,
-    "coil-lsq": 5029,
-    "coil-lprp": 5030,
-    "capacitor-cpd": 5031,
+    "coil-real-imag": 5025,
+    "coil-magnitude-degrees": 5026,
+    "coil-magnitude-radians": 5027,
+    "coil-admittance": 5028,
+    "coil-series-inductance-quality": 5029,
+    "coil-parallel-inductance-resistance": 5030,
+    "capacitor-parallel-dissipation": 5031,
     "overrange": 5032,
     "invalid": 5033,
     "wrong-count": 5034,
@@ -61,13 +61,13 @@ def dialect_variant(tmp_path: Path, edits: dict[str, str]) -> Path:
     return path
 
 
-def pair_dialect(tmp_path: Path, pair: str, word: str, qd_sign: str = "signed") -> Path:
+def pair_dialect(tmp_path: Path, pair: str, select: str, qd_sign: str = "signed") -> Path:
     return dialect_variant(
         tmp_path,
         {
             r"^pair = .*$": f"pair = {pair}",
             r"^qd_sign = .*$": f'qd_sign = "{qd_sign}"',
-            r"FORM:PAIR RX": f"FORM:PAIR {word}",
+            r"^setup = .*$": f'setup = {{ command = "{select};FORM:BORD NORM" }}',
         },
     )
 
@@ -83,33 +83,38 @@ def base(tmp_path) -> Path:
 
 
 def test_identity(base):
-    with open_meter("coil-rx", base) as meter:
+    with open_meter("coil-real-imag", base) as meter:
         ident = meter.identify()
     assert (ident.manufacturer, ident.model, ident.serial) == (
         "Bench Example",
         "Protocol Meter",
-        "PM-5025",
+        "EXAMPLE-01",
     )
     assert ident.firmware == "1.0"
 
 
 @pytest.mark.parametrize(
-    ("device", "pair", "word", "qd_sign", "expected"),
+    ("device", "pair", "select", "qd_sign", "expected"),
     [
-        ("coil-rx", '["R", "X"]', "RX", "signed", COIL),
-        ("coil-zdeg", '["Z", "theta_deg"]', "ZDEG", "signed", COIL),
-        ("coil-zrad", '["Z", "theta_rad"]', "ZRAD", "signed", COIL),
-        ("coil-gb", '["G", "B"]', "GB", "signed", COIL),
-        ("coil-lsq", '["Ls", "Q"]', "LSQ", "signed", COIL),
-        ("coil-lprp", '["Lp", "Rp"]', "LPRP", "signed", COIL),
+        ("coil-real-imag", '["R", "X"]', "FORM:PAIR REAL,IMAG", "signed", COIL),
+        ("coil-magnitude-degrees", '["Z", "theta_deg"]', "UNIT:ANGL DEG;FORM:PAIR MAGN,PHAS",
+         "signed", COIL),
+        ("coil-magnitude-radians", '["Z", "theta_rad"]', "UNIT:ANGL RAD;FORM:PAIR MAGN,PHAS",
+         "signed", COIL),
+        ("coil-admittance", '["G", "B"]', "FORM:PAIR COND,SUSC", "signed", COIL),
+        ("coil-series-inductance-quality", '["Ls", "Q"]', "CIRC SER;FORM:PAIR IND,QUAL",
+         "signed", COIL),
+        ("coil-parallel-inductance-resistance", '["Lp", "Rp"]', "CIRC PAR;FORM:PAIR IND,RES",
+         "signed", COIL),
         # The profile's capacitor reports D = G/(w Cp) > 0: the by_mode convention.
-        ("capacitor-cpd", '["Cp", "D"]', "CPD", "by_mode", CAPACITOR),
+        ("capacitor-parallel-dissipation", '["Cp", "D"]', "CIRC PAR;FORM:PAIR CAP,DISS",
+         "by_mode", CAPACITOR),
     ],
-)
+)  # fmt: skip
 def test_each_reading_form_gives_the_circuit_impedance(
-    tmp_path, device, pair, word, qd_sign, expected
+    tmp_path, device, pair, select, qd_sign, expected
 ):
-    with open_meter(device, pair_dialect(tmp_path, pair, word, qd_sign)) as meter:
+    with open_meter(device, pair_dialect(tmp_path, pair, select, qd_sign)) as meter:
         z = meter.measure(1e3)
     assert z == pytest.approx(expected, rel=1e-12)
 
@@ -125,19 +130,19 @@ def test_overrange_and_invalid_readings(base):
 
 
 def test_dc_resistance_and_settings(base):
-    with open_meter("coil-rx", base) as meter:
+    with open_meter("coil-real-imag", base) as meter:
         assert meter.dc_resistance() == 1.25
         meter.configure(level=0.5, speed="slow", averaging=4)
         assert meter.session.query("VOLT?") == "0.5"
-        assert meter.session.query("SPE?") == "SLOW"
+        assert meter.session.query("PER?") == "16"
         assert meter.session.query("AVER:COUN?") == "4"
         assert meter.settings == {"level": 0.5, "speed": "slow", "averaging": 4}
         assert meter.errors() == []
 
 
 def test_setting_refused_by_the_meter_is_reported(base):
-    # The profile's meter takes averaging 1..64; the dialect allows up to 256.
-    with open_meter("coil-rx", base) as meter:
+    # The profile's meter takes averaging 1..50; the dialect allows up to 500.
+    with open_meter("coil-real-imag", base) as meter:
         before = meter.session.query("AVER:COUN?")
         with pytest.raises(SettingRefused, match=r"averaging=100.*-100"):
             meter.configure(averaging=100)
@@ -147,11 +152,11 @@ def test_setting_refused_by_the_meter_is_reported(base):
 
 
 def test_settings_outside_the_dialect_are_refused_before_sending(base, monkeypatch):
-    with open_meter("coil-rx", base) as meter:
+    with open_meter("coil-real-imag", base) as meter:
         sent: list[str] = []
         monkeypatch.setattr(meter.session, "write", sent.append)
         monkeypatch.setattr(meter.session, "query", lambda m, t=None: sent.append(m))
-        with pytest.raises(OutOfRange, match="level 5 V is outside 0.005 V to 2 V"):
+        with pytest.raises(OutOfRange, match="level 5 V is outside 0.002 V to 3 V"):
             meter.configure(level=5.0)
         with pytest.raises(OutOfRange, match="speed 'warp' is not one of fast, medium, slow"):
             meter.configure(speed="warp")
@@ -166,7 +171,7 @@ def test_settings_outside_the_dialect_are_refused_before_sending(base, monkeypat
 
 def test_missing_optional_operation_is_a_dialect_error(tmp_path):
     path = dialect_variant(tmp_path, {r"^(dc_resistance|set_level) = .*$": ""})
-    with open_meter("coil-rx", path) as meter:
+    with open_meter("coil-real-imag", path) as meter:
         assert not meter.has("dc_resistance")
         with pytest.raises(DialectError, match="no operation 'dc_resistance'"):
             meter.dc_resistance()
@@ -177,9 +182,9 @@ def test_missing_optional_operation_is_a_dialect_error(tmp_path):
 
 def test_list_mode_requested_without_one_is_a_dialect_error(tmp_path):
     path = dialect_variant(
-        tmp_path, {r"^\[list\]\nmax_points = 1601\nmin_points = 1\n": "", r"^list = \[.*\]$": ""}
+        tmp_path, {r"^\[list\]\nmax_points = 2000\nmin_points = 1\n": "", r"^list = \[.*\]$": ""}
     )
-    with open_meter("coil-rx", path) as meter:
+    with open_meter("coil-real-imag", path) as meter:
         with pytest.raises(DialectError, match="no list mode"):
             meter.sweep([1e3, 2e3], mode="list")
         # auto falls back to point by point
@@ -194,10 +199,10 @@ def test_trigger_wait_fetch_sequence_and_separate_messages(tmp_path):
                 'point = ["point_mode", "set_frequency", "trigger", "wait", "fetch", "wait"]'
             ),
             r"^compound = true": "compound = false",
-            r"^setup = .*$": 'setup = { command = "FORM:PAIR RX" }',
+            r"^setup = .*$": 'setup = { command = "FORM:PAIR REAL,IMAG" }',
         },
     )
-    with open_meter("coil-rx", path) as meter:
+    with open_meter("coil-real-imag", path) as meter:
         assert meter.measure(1e3) == pytest.approx(COIL, rel=1e-12)
 
 

@@ -20,9 +20,9 @@ from drivers.errors import ReplyError, SettingRefused
 
 
 def test_identity_has_four_fields():
-    ident = scpi.parse_identity("Bench Example,Protocol Meter,PM-1,1.0\n")
-    assert ident == scpi.Identity("Bench Example", "Protocol Meter", "PM-1", "1.0")
-    assert str(ident) == "Bench Example Protocol Meter, serial PM-1, firmware 1.0"
+    ident = scpi.parse_identity("Bench Example,Protocol Meter,EXAMPLE-01,1.0\n")
+    assert ident == scpi.Identity("Bench Example", "Protocol Meter", "EXAMPLE-01", "1.0")
+    assert str(ident) == "Bench Example Protocol Meter, serial EXAMPLE-01, firmware 1.0"
 
 
 def test_identity_keeps_extra_commas_in_firmware_and_blank_fields():

@@ -4,19 +4,17 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+import pyvisa
 
 from drivers.errors import ProfileError
-from drivers.simulator import running
 from drivers.simulator.faults import FaultSpec
 
-pyvisa = pytest.importorskip("pyvisa")
 IDN_PREFIX = "coil-acquire,"
 
 
 @pytest.fixture(scope="module")
-def sim():
-    with running(dut="air-core-coil", fixture="bench-leads", measure_time=0, seed=7) as handle:
-        yield handle
+def sim_options():
+    return {"seed": 7, "noise": True}
 
 
 @pytest.fixture(scope="module")

@@ -11,18 +11,14 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-
-from drivers.simulator import running
-
-pyvisa = pytest.importorskip("pyvisa")
+import pyvisa
 
 N = 400
 
 
 @pytest.fixture(scope="module")
-def sim():
-    with running(dut="air-core-coil", fixture="direct", measure_time=0, seed=11) as handle:
-        yield handle
+def sim_options():
+    return {"fixture": "direct", "seed": 11, "noise": True}
 
 
 @pytest.fixture
@@ -31,7 +27,7 @@ def meter(sim):
     inst = rm.open_resource(sim.resource, read_termination="\n", write_termination="\n")
     inst.timeout = 5000
     inst.query(
-        '*RST;*CLS;SIM:NOIS ON;SIM:FIXT "direct";SIM:DUT "air-core-coil";SIM:SEED 11;'
+        '*RST;*CLS;VOLT 1;SIM:NOIS ON;SIM:FIXT "direct";SIM:DUT "air-core-coil";SIM:SEED 11;'
         f"LIST:FREQ {','.join(['1e4'] * N)};FREQ:MODE LIST;FORM REAL;*OPC?"
     )
     yield inst
@@ -55,7 +51,8 @@ def test_noise_is_unbiased_and_of_the_model_size(meter, sim):
     z = readings(meter)
     exact = complex(sim.seen_impedance(1e4))
     m, magnitude = sim.meter, abs(exact)
-    # The documented model (COMMANDS.md, "Time and noise") at MEDium, 1 V, no averaging.
+    # The documented model (COMMANDS.md, "Time and noise") at 4 periods per reading (the meter's
+    # reference), 1 V, no averaging.
     sigma = (
         m.accuracy_class
         * (1 + 1e4 / m.frequency_corner)
@@ -74,9 +71,10 @@ def test_seeded_noise_repeats(meter):
     assert not np.array_equal(first, other)
 
 
-def test_faster_speed_is_noisier(meter):
-    fast, medium, slow = (spread(readings(meter, f"SPE {s}")) for s in ("FAST", "MED", "SLOW"))
-    assert fast > 1.5 * medium > 2.25 * slow
+def test_fewer_periods_per_reading_are_noisier(meter):
+    one, four, sixteen = (spread(readings(meter, f"PER {n}")) for n in (1, 4, 16))
+    assert one / four == pytest.approx(2.0, rel=0.25)  # sqrt(4 / 1)
+    assert four / sixteen == pytest.approx(2.0, rel=0.25)  # sqrt(16 / 4)
 
 
 def test_lower_level_is_noisier(meter):

@@ -15,12 +15,10 @@ import tomllib
 
 import numpy as np
 import pytest
+import pyvisa
 from scipy.optimize import brentq
 
 import sim_profiles
-from drivers.simulator import running
-
-pyvisa = pytest.importorskip("pyvisa")
 
 FREQUENCIES = np.geomspace(10.0, 30e6, 60)
 
@@ -49,9 +47,8 @@ def through_leads(f: np.ndarray, z_dut: np.ndarray, p: dict) -> np.ndarray:
 
 
 @pytest.fixture(scope="module")
-def sim():
-    with running(dut="air-core-coil", fixture="direct", measure_time=0, noise=False) as handle:
-        yield handle
+def sim_options():
+    return {"fixture": "direct"}
 
 
 @pytest.fixture

@@ -13,19 +13,15 @@ import re
 
 import numpy as np
 import pytest
-
-pyvisa = pytest.importorskip("pyvisa")
-
-from drivers.simulator import running  # noqa: E402
+import pyvisa
 
 OVERRANGE = 9.9e37
 INVALID = 9.91e37
 
 
 @pytest.fixture(scope="module")
-def sim():
-    with running(dut="air-core-coil", fixture="bench-leads", seed=3, measure_time=0) as handle:
-        yield handle
+def sim_options():
+    return {"seed": 3, "noise": True}
 
 
 @pytest.fixture(scope="module")
@@ -89,9 +85,9 @@ def test_short_and_long_forms_and_case(meter):
 
 
 def test_compound_message_replies_in_order_and_commands_from_root(meter):
-    reply = meter.query("VOLT 0.5;SPE FAST;:AVER:COUN 4;VOLT?;SPEED?;SENSE:AVERAGE:COUNT?")
-    level, speed, count = reply.split(";")
-    assert float(level) == 0.5 and speed == "FAST" and count == "4"
+    reply = meter.query("VOLT 0.25;PER 2;:AVER:COUN 4;VOLT?;PERIODS?;SENSE:AVERAGE:COUNT?")
+    level, periods, count = reply.split(";")
+    assert float(level) == 0.25 and periods == "2" and count == "4"
 
 
 def test_suffixes_follow_ieee_488_2_multipliers(meter):
@@ -104,26 +100,30 @@ def test_suffixes_follow_ieee_488_2_multipliers(meter):
 
 def test_min_max_default_values_and_queries(meter):
     reply = meter.query("FREQ MAX;FREQ?;FREQ? MIN;FREQ DEF;FREQ?;VOLT MIN;VOLT?;VOLT? MAX")
-    assert numbers(reply.replace(";", ",")).tolist() == [30e6, 10.0, 1e3, 0.005, 2.0]
-    assert meter.query("AVER:COUN MAX;AVER:COUN?;AVER:COUN? MIN") == "256;1"
+    assert numbers(reply.replace(";", ",")).tolist() == [30e6, 10.0, 1e3, 0.002, 3.0]
+    assert meter.query("AVER:COUN MAX;AVER:COUN?;AVER:COUN? MIN") == "500;1"
+    assert meter.query("PER MAX;PER?;PER? MIN;PER DEF;PER?") == "1000;1;4"
 
 
 def test_rst_restores_defaults(meter):
-    meter.query("FREQ 5e3;VOLT 0.1;SPE SLOW;AVER:COUN 8;TRIG:SOUR BUS;FORM REAL;*OPC?")
-    meter.query("FORM:BORD SWAP;FORM:PAIR LSQ;FREQ:MODE LIST;LIST:FREQ 1e3,2e3;*OPC?")
+    meter.query("FREQ 5e3;VOLT 0.1;PER 16;AVER:COUN 8;TRIG:SOUR BUS;FORM REAL;*OPC?")
+    meter.query("FORM:BORD SWAP;CIRC PAR;UNIT:ANGL RAD;FORM:PAIR IND,QUAL;*OPC?")
+    meter.query("FREQ:MODE LIST;LIST:FREQ 1e3,2e3;*OPC?")
     reply = meter.query(
-        "*RST;FREQ?;VOLT?;SPE?;AVER:COUN?;TRIG:SOUR?;FORM?;FORM:BORD?;FORM:PAIR?;"
-        "FREQ:MODE?;LIST:FREQ:POIN?"
+        "*RST;FREQ?;VOLT?;PER?;AVER:COUN?;TRIG:SOUR?;FORM?;FORM:BORD?;FORM:PAIR?;CIRC?;"
+        "UNIT:ANGL?;FREQ:MODE?;LIST:FREQ:POIN?"
     )
     assert reply.split(";") == [
         "+1E+03",
-        "+1E+00",
-        "MED",
+        "+5E-01",
+        "4",
         "1",
         "IMM",
         "ASC",
         "NORM",
-        "RX",
+        "REAL,IMAG",
+        "SER",
+        "DEG",
         "FIX",
         "0",
     ]
@@ -131,16 +131,16 @@ def test_rst_restores_defaults(meter):
 
 def test_error_queue_order_codes_and_empty_reply(meter):
     # SCPI-99: oldest first; 0,"No error" when empty; standard codes and messages.
-    meter.query("BOGUS:CMD;FREQ 5;FREQ abc;SPE TURBO;FREQ;FREQ 1,2;AVER:COUN 0;*OPC?")
+    meter.query("BOGUS:CMD;FREQ 5;FREQ abc;CIRC TURBO;FREQ;FREQ 1,2;AVER:COUN 0;*OPC?")
     replies = [meter.query("SYST:ERR?") for _ in range(8)]
     assert replies == [
         '-113,"Undefined header; BOGUS:CMD"',
         '-222,"Data out of range; 5 outside 10 to 3e+07"',
         "-104,\"Data type error; expected a number, got 'abc'\"",
-        "-224,\"Illegal parameter value; 'TURBO' is not one of FAST, MEDium, SLOW\"",
+        "-224,\"Illegal parameter value; 'TURBO' is not one of SERies, PARallel\"",
         '-109,"Missing parameter; expected 1 parameter(s)"',
         '-108,"Parameter not allowed; at most 1 parameter(s)"',
-        '-222,"Data out of range; 0 outside 1 to 256"',
+        '-222,"Data out of range; 0 outside 1 to 500"',
         '0,"No error"',
     ]
     assert meter.query("SYST:ERROR:NEXT?") == '0,"No error"'
@@ -239,27 +239,51 @@ def test_binary_block_parsed_by_pyvisa(meter):
 
 
 def test_every_reading_pair(meter, sim):
+    # Circuit theory (from memory): Y = 1/Z = G + jB; series L or C from X = wLs = -1/(wCs);
+    # parallel L or C from B = -1/(wLp) = wCp, Rp = 1/G; Q = X/R and D = R/X, signed.
     f = 2e5
     z = complex(sim.seen_impedance(f))
     w = 2 * np.pi * f
     y = 1 / z
-    expected = {
-        "RX": (z.real, z.imag),
-        "ZDEG": (abs(z), np.degrees(np.angle(z))),
-        "ZRAD": (abs(z), np.angle(z)),
-        "GB": (y.real, y.imag),
-        "LSRS": (z.imag / w, z.real),
-        "LPRP": (-1 / (w * y.imag), 1 / y.real),
-        "CSRS": (-1 / (w * z.imag), z.real),
-        "CPD": (y.imag / w, z.real / z.imag),
-        "LSQ": (z.imag / w, z.imag / z.real),
-    }
+    expected = [
+        ("SER", "DEG", "REAL,IMAG", (z.real, z.imag)),
+        ("SER", "DEG", "IMAG,REAL", (z.imag, z.real)),
+        ("SER", "DEG", "MAGN,PHAS", (abs(z), np.degrees(np.angle(z)))),
+        ("SER", "RAD", "MAGN,PHAS", (abs(z), np.angle(z))),
+        ("PAR", "DEG", "COND,SUSC", (y.real, y.imag)),
+        ("SER", "DEG", "IND,RES", (z.imag / w, z.real)),
+        ("PAR", "DEG", "IND,RES", (-1 / (w * y.imag), 1 / y.real)),
+        ("SER", "DEG", "CAP,RES", (-1 / (w * z.imag), z.real)),
+        ("PAR", "DEG", "CAP,RES", (y.imag / w, 1 / y.real)),
+        ("PAR", "DEG", "CAP,DISS", (y.imag / w, z.real / z.imag)),
+        ("SER", "DEG", "IND,QUAL", (z.imag / w, z.imag / z.real)),
+        ("PAR", "DEG", "QUAL,IND", (z.imag / z.real, -1 / (w * y.imag))),
+    ]
     meter.query(f"FREQ {f};*OPC?")
-    for pair, (a, b) in expected.items():
-        reply = meter.query(f"FORM:PAIR {pair};FORM:PAIR?;READ?")
+    for circuit, unit, pair, (a, b) in expected:
+        reply = meter.query(f"CIRC {circuit};UNIT:ANGL {unit};FORM:PAIR {pair};FORM:PAIR?;READ?")
         name, values = reply.split(";")
         assert name == pair
         np.testing.assert_allclose(numbers(values), [a, b], rtol=1e-12)
+
+
+def test_retired_words_are_refused_naming_the_new_spelling(meter):
+    meter.query("FORM:PAIR LSRS;FORM:PAIR ZRAD;SPE FAST;SPE?;*OPC?")
+    assert meter.query("SYST:ERR?") == (
+        '-224,"Illegal parameter value; LSRS is a retired reading-pair name; '
+        'say CIRC SER;FORM:PAIR IND,RES"'
+    )
+    assert "UNIT:ANGL RAD;FORM:PAIR MAGN,PHAS" in meter.query("SYST:ERR?")
+    for _ in range(2):
+        code, text = meter.query("SYST:ERR?").split(",", 1)
+        assert code == "-113" and "use PER <n>" in text
+    assert meter.query("FORM:PAIR?") == "REAL,IMAG"
+
+
+def test_two_words_that_are_not_a_pair_are_refused(meter):
+    meter.query("FORM:PAIR REAL,DISS;FORM:PAIR IND,CAP;FORM:PAIR REAL;FORM:PAIR REAL,WHAT;*OPC?")
+    assert errors(meter) == [-224, -224, -109, -224]
+    assert meter.query("FORM:PAIR?") == "REAL,IMAG"
 
 
 def test_dc_resistance(meter, sim):
@@ -286,12 +310,12 @@ def test_simulate_dut_fixture_unit_noise_time_seed(meter, sim):
 
 
 def test_measure_time_model(meter):
-    # FAST: 5 ms per reading; MEDium: max(20 ms, 2 periods); averaging multiplies.
+    # max(2 ms, periods / f) per reading; averaging multiplies (COMMANDS.md, computed by hand).
     reply = meter.query(
-        "SIM:TIME?;SIM:TIME AUTO;SPE FAST;SIM:TIME?;SPE MED;FREQ 10;SIM:TIME?;"
+        "SIM:TIME?;SIM:TIME AUTO;PER 1;SIM:TIME?;PER 4;FREQ 10;SIM:TIME?;"
         "AVER:COUN 4;SIM:TIME?;SIM:TIME 20ms;SIM:TIME?"
     )
-    np.testing.assert_allclose(numbers(reply.replace(";", ",")), [0, 0.005, 0.2, 0.8, 0.02])
+    np.testing.assert_allclose(numbers(reply.replace(";", ",")), [0, 0.002, 0.4, 1.6, 0.02])
 
 
 def test_opc_sets_its_bit_when_the_measurement_ends(meter):

@@ -10,6 +10,7 @@ import asyncio
 
 import numpy as np
 
+from drivers.renamed import NEW_SPEED, OLD_PAIRS
 from drivers.simulator import state
 from drivers.simulator.instrument import Instrument, Session
 from drivers.simulator.measurement import Reading, encode, reading_values
@@ -52,8 +53,10 @@ class Commands(SimulateCommands):
             ("[SOURce:]LIST:FREQuency:POINts", None, s.list_points),
             ("[SOURce:]LIST:FREQuency:LOG", s.list_log, None),
             ("[SOURce:]VOLTage[:LEVel]", s.level, s.level_query),
-            ("[SENSe:]SPEed", s.speed, s.speed_query),
+            ("[SENSe:]PERiods", s.periods, s.periods_query),
+            ("[SENSe:]SPEed", s.old_speed, s.old_speed),
             ("[SENSe:]AVERage:COUNt", s.averaging, s.averaging_query),
+            ("[SENSe:]CIRCuit", s.circuit, s.circuit_query),
             ("TRIGger:SOURce", s.trigger_source, s.trigger_source_query),
             ("INITiate[:IMMediate]", s.initiate, None),
             ("FETCh", None, s.fetch),
@@ -62,6 +65,7 @@ class Commands(SimulateCommands):
             ("FORMat[:DATA]", s.data_format, s.data_format_query),
             ("FORMat:BORDer", s.byte_order, s.byte_order_query),
             ("FORMat:PAIR", s.pair, s.pair_query),
+            ("UNIT:ANGLe", s.angle_unit, s.angle_unit_query),
             ("SYSTem:ERRor[:NEXT]", None, s.error_next),
             ("SYSTem:ERRor:COUNt", None, s.error_count),
             ("SYSTem:VERSion", None, s.version),
@@ -222,15 +226,31 @@ class Commands(SimulateCommands):
         return self._limit_query(params, state.LEVEL_MIN, state.LEVEL_MAX, state.LEVEL_DEFAULT,
                                  self.instrument.settings.level)  # fmt: skip
 
-    # Sense: speed and averaging
+    # Sense: periods per reading, averaging, circuit
 
-    async def speed(self, session: Session, params) -> None:
+    async def periods(self, session: Session, params) -> None:
         expect(params, 1)
-        self.instrument.settings.speed = keyword(params[0], ("FAST", "MEDium", "SLOW"))
+        low, high = state.PERIODS_MIN, state.PERIODS_MAX
+        self.instrument.settings.periods = integer(params[0], low, high, state.PERIODS_DEFAULT)
 
-    async def speed_query(self, session: Session, params) -> str:
+    async def periods_query(self, session: Session, params) -> str:
+        expect(params, 0, 1)
+        if params:
+            word = keyword(params[0], ("MINimum", "MAXimum", "DEFault"))
+            low, high, default = state.PERIODS_MIN, state.PERIODS_MAX, state.PERIODS_DEFAULT
+            return str({"MIN": low, "MAX": high, "DEF": default}[word])
+        return str(self.instrument.settings.periods)
+
+    async def old_speed(self, session: Session, params) -> None:
+        raise ScpiError(-113, f"the speed header was renamed: use {NEW_SPEED}")
+
+    async def circuit(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.settings.circuit = keyword(params[0], state.CIRCUITS)
+
+    async def circuit_query(self, session: Session, params) -> str:
         expect(params, 0)
-        return self.instrument.settings.speed
+        return self.instrument.settings.circuit
 
     async def averaging(self, session: Session, params) -> None:
         expect(params, 1)
@@ -259,7 +279,7 @@ class Commands(SimulateCommands):
 
     def _reply(self, reading: Reading) -> bytes:
         s = self.instrument.settings
-        values = reading_values(reading, s.pair)
+        values = reading_values(reading, s.pair, s.circuit, s.angle_unit)
         if self.instrument.faults.short_reading():
             values = values[:-1]
         return encode(values, s.data_format, s.byte_order)
@@ -325,12 +345,30 @@ class Commands(SimulateCommands):
         return self.instrument.settings.byte_order
 
     async def pair(self, session: Session, params) -> None:
-        expect(params, 1)
-        self.instrument.settings.pair = keyword(params[0], state.PAIRS)
+        if len(params) == 1 and params[0].strip().upper() in OLD_PAIRS:
+            old = params[0].strip().upper()
+            raise ScpiError(-224, f"{old} is a retired reading-pair name; say {OLD_PAIRS[old]}")
+        expect(params, 2)
+        first, second = (keyword(p, state.PAIR_WORDS) for p in params)
+        if frozenset({first, second}) not in state.PAIRS:
+            raise ScpiError(
+                -224,
+                f"{first},{second} is not a pair; use REAL,IMAG, MAGN,PHAS, COND,SUSC, or IND "
+                "or CAP with RES, QUAL or DISS",
+            )
+        self.instrument.settings.pair = (first, second)
 
     async def pair_query(self, session: Session, params) -> str:
         expect(params, 0)
-        return self.instrument.settings.pair
+        return ",".join(self.instrument.settings.pair)
+
+    async def angle_unit(self, session: Session, params) -> None:
+        expect(params, 1)
+        self.instrument.settings.angle_unit = keyword(params[0], state.ANGLE_UNITS)
+
+    async def angle_unit_query(self, session: Session, params) -> str:
+        expect(params, 0)
+        return self.instrument.settings.angle_unit
 
     # System
 

@@ -153,7 +153,7 @@ def running(
     """Serve a simulated meter on a background thread while the block runs.
 
     ``measure_time`` overrides the seconds per point (0 for fast tests); None uses the time the
-    speed and averaging settings imply. Profiles are loaded before the thread starts, so a bad
+    periods and averaging settings imply. Profiles are loaded before the thread starts, so a bad
     one raises :class:`~drivers.errors.ProfileError` here.
     """
     if host not in LOOPBACK:

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import numpy as np
 
-from drivers.simulator import measurement
+from drivers.simulator import measurement, streams
 from drivers.simulator.faults import Faults, FaultSpec
 from drivers.simulator.measurement import Conditions, Reading
 from drivers.simulator.profiles import (
@@ -27,7 +27,7 @@ from drivers.simulator.profiles import (
     load_meter,
 )
 from drivers.simulator.scpi_parser import ScpiError
-from drivers.simulator.state import SPEEDS, ClientStatus, Settings
+from drivers.simulator.state import ClientStatus, Settings
 
 
 class Session:
@@ -70,10 +70,14 @@ class Instrument:
         self.insert(self.dut)
 
     def reseed(self, seed: int) -> None:
-        """Restart the noise, production spread and fault generators from ``seed``."""
+        """Restart the noise, production spread and fault generators from ``seed``.
+
+        A reading's noise depends only on the seed and on how many readings were completed
+        before it (:mod:`drivers.simulator.streams`), never on how they were grouped or timed.
+        """
         self.seed = seed
-        noise, spread, fault = np.random.SeedSequence(seed).spawn(3)
-        self.noise_rng = np.random.default_rng(noise)
+        _, spread, fault = np.random.SeedSequence(seed).spawn(3)
+        self.readings = streams.ReadingCounter(seed)
         self.spread_rng = np.random.default_rng(spread)
         self.faults.reseed(np.random.default_rng(fault))
 
@@ -129,7 +133,7 @@ class Instrument:
         return Conditions(
             frequency=frequencies,
             level=s.level,
-            speed=SPEEDS[s.speed],
+            periods=s.periods,
             averaging=s.averaging,
             noise=self.noise,
             dut=self.dut,
@@ -168,7 +172,8 @@ class Instrument:
     async def _measure(self, conditions: Conditions) -> Reading:
         await asyncio.sleep(measurement.duration(conditions))
         forced = self.faults.overrange(np.asarray(conditions.frequency, dtype=float))
-        reading = measurement.read_impedance(conditions, self.noise_rng, forced)
+        normals = self.readings.draw(streams.POINTS, len(conditions.frequency))
+        reading = measurement.read_impedance(conditions, normals, forced)
         self.last = reading
         return reading
 
@@ -181,7 +186,8 @@ class Instrument:
 
     async def _measure_dc(self, conditions: Conditions) -> float:
         await asyncio.sleep(measurement.dc_time(conditions))
-        return measurement.read_dc_resistance(conditions, self.noise_rng)
+        normal = float(self.readings.draw(streams.DC, 1)[0, 0])
+        return measurement.read_dc_resistance(conditions, normal)
 
     def point_time(self) -> float:
         """Seconds per point at the present frequency and settings."""

@@ -3,7 +3,7 @@
 A reading is the DUT seen through the fixture (:mod:`drivers.simulator.physics`), plus seeded
 noise, with overrange (``|Z|`` above the meter's limit, or an armed overrange fault) and invalid
 (nothing in the fixture) points flagged. It is encoded as pairs of values named by
-``FORMat:PAIR``, in ASCII or as a block of IEEE 754 float64.
+``FORMat:PAIR`` (with ``CIRCuit`` and ``UNIT:ANGLe``), in ASCII or as a block of IEEE 754 float64.
 """
 
 from __future__ import annotations
@@ -13,12 +13,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from drivers.scpi import INVALID, OVERRANGE
 from drivers.simulator import physics
 from drivers.simulator.profiles import DutProfile, FixtureProfile, MeterProfile
 from drivers.simulator.scpi_parser import block, format_number
-
-OVERRANGE = 9.9e37
-INVALID = 9.91e37
 
 
 @dataclass(frozen=True, eq=False)
@@ -37,7 +35,7 @@ class Conditions:
 
     frequency: tuple[float, ...]
     level: float
-    speed: str
+    periods: int
     averaging: int
     noise: bool
     dut: DutProfile
@@ -47,18 +45,23 @@ class Conditions:
 
 
 def point_time(conditions: Conditions, f: float) -> float:
-    """Seconds one point takes: the override, or ``n_avg · max(t_reading, periods/f)``."""
+    """Seconds one point takes: the override, or ``n_avg · max(t_min, periods/f)``."""
     if conditions.time_override is not None:
         return conditions.time_override
-    speed = conditions.meter.speeds[conditions.speed]
-    return conditions.averaging * max(speed.reading_time, speed.periods / f)
+    t_min = conditions.meter.minimum_reading_time
+    return conditions.averaging * max(t_min, conditions.periods / f)
 
 
 def dc_time(conditions: Conditions) -> float:
-    """Seconds a DC resistance reading takes: the override, or ``n_avg · t_reading``."""
+    """Seconds a DC resistance reading takes: the override, or ``n_avg · periods · t_min``."""
     if conditions.time_override is not None:
         return conditions.time_override
-    return conditions.averaging * conditions.meter.speeds[conditions.speed].reading_time
+    return conditions.averaging * conditions.periods * conditions.meter.minimum_reading_time
+
+
+def periods_factor(conditions: Conditions) -> float:
+    """How the noise scales with the periods per reading: ``sqrt(periods_ref / periods)``."""
+    return float(np.sqrt(conditions.meter.reference_periods / conditions.periods))
 
 
 def duration(conditions: Conditions) -> float:
@@ -77,15 +80,19 @@ def noise_deviation(conditions: Conditions, magnitude: np.ndarray, f: np.ndarray
         meter.high_impedance_corner,
         meter.frequency_corner,
         level_ratio=meter.reference_level / conditions.level,
-        speed_factor=meter.speeds[conditions.speed].noise_factor,
+        speed_factor=periods_factor(conditions),
         averaging=conditions.averaging,
     )
 
 
 def read_impedance(
-    conditions: Conditions, rng: np.random.Generator, forced_overrange: np.ndarray
+    conditions: Conditions, normals: np.ndarray, forced_overrange: np.ndarray
 ) -> Reading:
-    """The reading at ``conditions.frequency``: DUT through fixture, plus noise, flags."""
+    """The reading at ``conditions.frequency``: DUT through fixture, plus noise, flags.
+
+    ``normals`` holds one pair of standard normal draws per frequency (see
+    :mod:`drivers.simulator.streams`).
+    """
     f = np.asarray(conditions.frequency, dtype=float)
     seen = conditions.fixture.seen(f, conditions.dut.impedance(f))
     invalid = np.isnan(seen)
@@ -95,12 +102,15 @@ def read_impedance(
     z = np.where(invalid | overrange, 0.0, seen)
     if conditions.noise:
         deviation = noise_deviation(conditions, np.abs(z), f)
-        z = physics.add_noise(z, deviation, rng)
+        z = physics.add_noise(z, deviation, normals)
     return Reading(frequency=f, z=z, overrange=overrange, invalid=invalid)
 
 
-def read_dc_resistance(conditions: Conditions, rng: np.random.Generator) -> float:
-    """DC resistance seen through the fixture, with noise (at ``f = 0``), or a flag value."""
+def read_dc_resistance(conditions: Conditions, normal: float) -> float:
+    """DC resistance seen through the fixture, with noise (at ``f = 0``), or a flag value.
+
+    ``normal`` is this reading's standard normal draw.
+    """
     value = conditions.fixture.seen_dc(conditions.dut.dc_value)
     if np.isnan(value):
         return INVALID
@@ -108,35 +118,54 @@ def read_dc_resistance(conditions: Conditions, rng: np.random.Generator) -> floa
         return OVERRANGE
     if conditions.noise:
         deviation = float(noise_deviation(conditions, np.array([value]), np.array([0.0]))[0])
-        value += deviation * float(rng.standard_normal())
+        value += deviation * normal
     return float(value)
 
 
-def pair_values(pair: str, f: np.ndarray, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """The two quantities ``pair`` names, per point (SI units; Q = X/R and D = R/X, signed)."""
+def quantity(word: str, f: np.ndarray, z: np.ndarray, circuit: str, angle_unit: str) -> np.ndarray:
+    """One quantity per point, named by its ``FORMat:PAIR`` short form (SI units).
+
+    ``circuit`` (``SER``/``PAR``) says which equivalent circuit inductance, capacitance and
+    resistance belong to; ``angle_unit`` (``DEG``/``RAD``) the unit of the phase. Quality is
+    ``X/R`` and dissipation ``R/X`` (signed, the same in both circuits).
+    """
     w = 2.0 * np.pi * f
     r, x = z.real, z.imag
+    series = circuit == "SER"
     with np.errstate(divide="ignore", invalid="ignore"):
         y = 1.0 / z
         g, b = y.real, y.imag
-        table = {
-            "RX": (r, x),
-            "ZDEG": (np.abs(z), np.degrees(np.angle(z))),
-            "ZRAD": (np.abs(z), np.angle(z)),
-            "GB": (g, b),
-            "LSRS": (x / w, r),
-            "LPRP": (-1.0 / (w * b), 1.0 / g),
-            "CSRS": (-1.0 / (w * x), r),
-            "CPD": (b / w, r / x),
-            "LSQ": (x / w, x / r),
-        }
-    return table[pair]
+        if word == "REAL":
+            return r
+        if word == "IMAG":
+            return x
+        if word == "MAGN":
+            return np.abs(z)
+        if word == "PHAS":
+            return np.angle(z, deg=angle_unit == "DEG")
+        if word == "COND":
+            return g
+        if word == "SUSC":
+            return b
+        if word == "IND":
+            return x / w if series else -1.0 / (w * b)
+        if word == "CAP":
+            return -1.0 / (w * x) if series else b / w
+        if word == "RES":
+            return r if series else 1.0 / g
+        if word == "QUAL":
+            return x / r
+        if word == "DISS":
+            return r / x
+    raise ValueError(f"unknown quantity {word!r}")
 
 
-def reading_values(reading: Reading, pair: str) -> np.ndarray:
+def reading_values(
+    reading: Reading, pair: tuple[str, str], circuit: str = "SER", angle_unit: str = "DEG"
+) -> np.ndarray:
     """Flat array ``a1, b1, a2, b2, ...`` with 9.9E37 for overrange and 9.91E37 for invalid."""
-    a, b = pair_values(pair, reading.frequency, reading.z)
-    values = np.column_stack([a, b])
+    f, z = reading.frequency, reading.z
+    values = np.column_stack([quantity(w, f, z, circuit, angle_unit) for w in pair])
     values = np.where(np.isnan(values), INVALID, values)
     values = np.where(np.isinf(values), np.sign(values) * OVERRANGE, values)
     values[reading.overrange] = OVERRANGE

@@ -220,10 +220,10 @@ def noise_deviation(
     return accuracy_class * k_f * (speed_factor / np.sqrt(averaging)) * spread
 
 
-def add_noise(z: np.ndarray, deviation: np.ndarray, rng: np.random.Generator) -> np.ndarray:
+def add_noise(z: np.ndarray, deviation: np.ndarray, normals: np.ndarray) -> np.ndarray:
     """``z`` with independent normal errors of standard deviation ``deviation`` (ohm) added to
-    its real and imaginary parts."""
+    its real and imaginary parts; ``normals`` holds one pair of standard normal draws per point
+    (shape ``z.shape + (2,)``: real part, imaginary part)."""
     z = np.asarray(z, dtype=complex)
-    real = rng.standard_normal(z.shape)
-    imag = rng.standard_normal(z.shape)
-    return z + np.asarray(deviation, dtype=float) * (real + 1j * imag)
+    pairs = np.asarray(normals, dtype=float).reshape(z.shape + (2,))
+    return z + np.asarray(deviation, dtype=float) * (pairs[..., 0] + 1j * pairs[..., 1])

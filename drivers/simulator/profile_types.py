@@ -137,17 +137,12 @@ class FixtureProfile:
 
 
 @dataclass(frozen=True, kw_only=True)
-class SpeedSetting:
-    """One measurement speed: seconds per reading, minimum signal periods, noise multiplier."""
-
-    reading_time: float
-    periods: float
-    noise_factor: float
-
-
-@dataclass(frozen=True, kw_only=True)
 class MeterProfile:
-    """The simulated meter: identity, noise model (``physics.noise_deviation``), timing."""
+    """The simulated meter: identity, noise model (``physics.noise_deviation``), timing.
+
+    A reading lasts ``max(minimum_reading_time, periods / f)``; its noise scales as
+    ``sqrt(reference_periods / periods)``, so the accuracy class holds at ``reference_periods``.
+    """
 
     name: str
     manufacturer: str
@@ -160,6 +155,7 @@ class MeterProfile:
     frequency_corner: float
     max_impedance: float
     reference_level: float
-    speeds: Mapping[str, SpeedSetting]
+    minimum_reading_time: float
+    reference_periods: float
     description: str = ""
     path: Path | None = None

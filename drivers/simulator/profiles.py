@@ -46,7 +46,6 @@ from drivers.simulator.profile_types import (
     FixtureProfile,
     LineSpec,
     MeterProfile,
-    SpeedSetting,
 )
 
 __all__ = [
@@ -55,7 +54,6 @@ __all__ = [
     "FixtureProfile",
     "LineSpec",
     "MeterProfile",
-    "SpeedSetting",
     "draw_unit",
     "list_profiles",
     "load_dut",
@@ -119,7 +117,6 @@ _LINE_SCHEMA = {
     "length": _Key("m"),
     "velocity_factor": _Key("", 0.66, positive=True),
 }
-_SPEEDS = ("fast", "medium", "slow")
 _METER_SCHEMA = {
     "accuracy_class": _Key("", positive=True),
     "low_impedance_corner": _Key("ohm", positive=True),
@@ -127,11 +124,8 @@ _METER_SCHEMA = {
     "frequency_corner": _Key("Hz", positive=True),
     "max_impedance": _Key("ohm", positive=True),
     "reference_level": _Key("V", positive=True),
-}
-_SPEED_SCHEMA = {
-    "reading_time": _Key("s"),
-    "periods": _Key("", positive=True),
-    "noise_factor": _Key("", positive=True),
+    "minimum_reading_time": _Key("s", positive=True),
+    "reference_periods": _Key("", positive=True),
 }
 _METER_TEXT = ("manufacturer", "model", "serial", "firmware")
 
@@ -299,27 +293,14 @@ def meter_from_dict(data: Mapping[str, Any], name: str, path: Path | None = None
     """Build and validate a meter profile from parsed TOML ``data``."""
     where_path = path or Path(f"<{name}>")
     _kind(where_path, data, ("meter",))
-    extra = ("kind", "description", "speed", *_METER_TEXT)
+    extra = ("kind", "description", *_METER_TEXT)
     values = _values(where_path, data, _METER_SCHEMA, extra=extra)
-    speeds_table = data.get("speed")
-    if not isinstance(speeds_table, dict):
-        raise ProfileError(f"{where_path}: missing table 'speed' with {', '.join(_SPEEDS)}")
-    speeds = {}
-    for speed in _SPEEDS:
-        table = speeds_table.get(speed)
-        if not isinstance(table, dict):
-            raise ProfileError(f"{where_path}: missing table 'speed.{speed}'")
-        speeds[speed] = SpeedSetting(**_values(where_path, table, _SPEED_SCHEMA, f"speed.{speed}."))
-    for key in speeds_table:
-        if key not in _SPEEDS:
-            _unknown(where_path, "speed.", key, dict.fromkeys(_SPEEDS))
     identity = {key: _text(where_path, data, key) for key in _METER_TEXT}
     for key, value in identity.items():
         if any(c in value for c in ',;"\n'):
             raise ProfileError(f'{where_path}: {key!r} must not contain , ; " or a line break')
     return MeterProfile(
         name=name,
-        speeds=speeds,
         description=_text(where_path, data, "description", ""),
         path=path,
         **identity,

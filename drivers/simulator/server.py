@@ -17,7 +17,7 @@ from drivers.simulator.commands import Commands
 from drivers.simulator.instrument import Instrument, Session
 
 LOG = logging.getLogger("drivers.simulator")
-#: Longest message accepted (a full 1601-point list fits with room to spare).
+#: Longest message accepted (a full 2000-point list fits with room to spare).
 MESSAGE_LIMIT = 1 << 20
 LOOPBACK = ("127.0.0.1", "::1", "localhost")
 

@@ -13,16 +13,38 @@ from drivers.simulator.scpi_parser import ERROR_MESSAGES
 FREQUENCY_MIN = 10.0
 FREQUENCY_MAX = 30e6
 FREQUENCY_DEFAULT = 1e3
-LEVEL_MIN = 0.005
-LEVEL_MAX = 2.0
-LEVEL_DEFAULT = 1.0
-AVERAGING_MAX = 256
-LIST_MAX = 1601
+LEVEL_MIN = 0.002
+LEVEL_MAX = 3.0
+LEVEL_DEFAULT = 0.5
+AVERAGING_MAX = 500
+PERIODS_MIN = 1
+PERIODS_MAX = 1000
+PERIODS_DEFAULT = 4
+LIST_MAX = 2000
 TIME_MAX = 60.0
 ERROR_QUEUE_SIZE = 20
 
-SPEEDS = {"FAST": "fast", "MED": "medium", "SLOW": "slow"}
-PAIRS = ("RX", "ZDEG", "ZRAD", "GB", "LSRS", "LPRP", "CSRS", "CPD", "LSQ")
+#: The words of ``FORMat:PAIR`` (long forms; the capitals are the short form).
+PAIR_WORDS = (
+    "REAL",
+    "IMAGinary",
+    "MAGNitude",
+    "PHASe",
+    "CONDuctance",
+    "SUSCeptance",
+    "INDuctance",
+    "CAPacitance",
+    "RESistance",
+    "QUALity",
+    "DISSipation",
+)
+#: Which two words make a pair (in either order), by their short forms.
+PAIRS = frozenset(
+    {frozenset({"REAL", "IMAG"}), frozenset({"MAGN", "PHAS"}), frozenset({"COND", "SUSC"})}
+    | {frozenset({a, b}) for a in ("IND", "CAP") for b in ("RES", "QUAL", "DISS")}
+)
+CIRCUITS = ("SERies", "PARallel")
+ANGLE_UNITS = ("DEGree", "RADian")
 
 # IEEE 488.2 standard event status register bits.
 ESR_OPC = 1
@@ -43,12 +65,14 @@ class Settings:
     mode: str = "FIX"
     frequency_list: tuple[float, ...] = ()
     level: float = LEVEL_DEFAULT
-    speed: str = "MED"
+    periods: int = PERIODS_DEFAULT
     averaging: int = 1
     trigger_source: str = "IMM"
     data_format: str = "ASC"
     byte_order: str = "NORM"
-    pair: str = "RX"
+    pair: tuple[str, str] = ("REAL", "IMAG")
+    circuit: str = "SER"
+    angle_unit: str = "DEG"
 
 
 def _esr_bit(code: int) -> int:

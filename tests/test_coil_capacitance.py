@@ -15,8 +15,8 @@ from acquire.coil import (
 )
 from acquire.errors import ModelError
 
-# Medhurst, Wireless Engineer 1947: H (pF/cm) at l/D, as reproduced in secondary sources and
-# listed in issue 7 (about 5 % accuracy claimed).
+# Medhurst, Wireless Engineer 24 (1947), pp. 35 and 80: H (pF/cm) at l/D, as reproduced in
+# secondary sources (from memory; he claims about 5 %).
 MEDHURST = [
     (0.1, 0.96), (0.2, 0.70), (0.3, 0.60), (0.5, 0.50), (0.8, 0.46), (1, 0.46), (2, 0.50),
     (3, 0.61), (5, 0.81), (10, 1.32), (20, 2.36), (50, 5.8),
@@ -37,8 +37,8 @@ def test_interpolation_stays_between_neighbouring_entries():
     assert np.all(values <= np.maximum(hs[:-1], hs[1:]) + 1e-12)
 
 
-def test_interpolation_from_issue_subset_predicts_the_other_entries():
-    # Held-out check: interpolating only the 12 entries of issue 7 reproduces the rest of
+def test_interpolation_from_twelve_entries_predicts_the_other_entries():
+    # Held-out check: interpolating only the 12 entries above reproduces the rest of
     # Medhurst's table within his stated 5 %.
     from scipy.interpolate import PchipInterpolator
 

@@ -36,7 +36,65 @@ def test_predict_prints_the_demo_coil_with_methods(capsys):
     assert format_si(expected.dc_resistance, "Ω") in out
     assert format_si(expected.capacitance, "F") in out
     assert "Nagaoka" in out and "Medhurst" in out and "Kelvin" in out
-    assert "± 0.50 %" in out and "lower bound" in out
+    assert "± 0.5" in out and "lower bound" in out
+
+
+def test_predict_json_has_the_agreed_record_per_quantity(capsys):
+    import json
+
+    assert main(["predict", *DEMO_ARGS, "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    assert doc["command"] == "predict"
+    keys = {"name", "label", "value", "unit", "relative_accuracy", "lower_bound", "method"}
+    by_name = {q["name"]: q for q in doc["quantities"]}
+    for q in doc["quantities"]:
+        assert set(q) == keys
+        assert q["method"]
+        assert q["relative_accuracy"] is None or q["lower_bound"] is None
+    # Long-solenoid formula µ0 N² A / l (common practice) bounds the demo coil's L from above.
+    upper = 4e-7 * math.pi * 150**2 * math.pi * (0.030 + 0.2546e-3) ** 2 / 4 / 0.045
+    assert by_name["L"]["unit"] == "H" and 0.7 * upper < by_name["L"]["value"] < upper
+    assert by_name["L"]["relative_accuracy"] == 0.005
+    assert by_name["C"]["relative_accuracy"] == 0.05  # Medhurst 1947: about 5 %
+    assert by_name["SRF"]["relative_accuracy"] is None and by_name["SRF"]["lower_bound"] is None
+    assert "no accuracy stated" in by_name["SRF"]["method"]
+    rac = by_name["Rac@1e+06"]
+    assert rac["lower_bound"] == rac["value"] and rac["relative_accuracy"] is None
+
+
+@pytest.mark.parametrize("spelling", ["23", "23C", "23c", "23°C", "23 °C", "296.15K"])
+def test_predict_temperature_spellings_mean_the_same(spelling, capsys):
+    import json
+
+    args = list(DEMO_ARGS)
+    args[args.index("--temperature") + 1] = spelling
+    assert main(["predict", *args, "--json"]) == 0
+    doc = json.loads(capsys.readouterr().out)
+    rdc = next(q for q in doc["quantities"] if q["name"] == "Rdc")
+    assert "23 °C" in rdc["label"]
+    # IEC 60028 / IACS copper at 23 °C over the helix of 150 turns plus 100 mm of leads.
+    d = 0.005 * 0.0254 * 92 ** (6 / 39)
+    wire = 150 * math.hypot(math.pi * (0.030 + d), 0.045 / 150) + 0.100
+    expected = 1e-6 / 58 * (1 + 0.00393 * 3) * wire / (math.pi * d * d / 4)
+    assert rdc["value"] == pytest.approx(expected, rel=1e-9)
+
+
+@pytest.mark.parametrize(
+    ("option", "value", "message"),
+    [
+        ("--diameter", "30", "did you mean 30 mm"),
+        ("--length", "45", "did you mean 45 mm"),
+        ("--diameter", "30m", "check the unit"),
+        ("--temperature", "23k", "not a temperature"),
+        ("--temperature", "75F", "Fahrenheit"),
+        ("--leads", "100", "did you mean 100 mm"),
+    ],
+)
+def test_predict_refuses_suspect_input_with_a_hint(option, value, message, capsys):
+    args = list(DEMO_ARGS)
+    args[args.index(option) + 1] = value
+    assert main(["predict", *args]) == 2
+    assert message in capsys.readouterr().err
 
 
 def test_predict_table_and_wire_diameter_option(capsys, monkeypatch):

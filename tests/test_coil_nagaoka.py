@@ -14,7 +14,8 @@ from acquire.errors import ModelError
 
 # Grover, "Inductance Calculations" (1946), Table 36: D/l -> K.
 GROVER_TABLE_36 = [(1.0, 0.688423), (2.0, 0.525510), (5.0, 0.319825), (10.0, 0.203324)]
-# Exact values from Nagaoka's elliptic-integral formula (Nagaoka 1909), as listed in issue 7.
+# Values of Nagaoka's elliptic-integral formula (Nagaoka, J. Coll. Sci. Tokyo 27, 1909), computed
+# outside this project (from memory); the quadrature test below checks the formula itself.
 NAGAOKA_EXACT = [(0.1, 0.9588071), (0.2, 0.9200927), (0.5, 0.8181358)]
 
 

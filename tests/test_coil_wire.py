@@ -22,9 +22,10 @@ from acquire.errors import ModelError
 
 # ASTM B258: bare diameters in mm.
 ASTM_B258 = [(24, 0.5106), (30, 0.2546), (36, 0.1270)]
-# Skin depth in IACS copper at 20 °C (issue 7's values, computed from δ = √(ρ/(π f µ0))).
+# Skin depth in IACS copper at 20 °C (computed from δ = √(ρ/(π f µ0)), ρ = 1/58 Ω·mm²/m).
 SKIN_DEPTHS = [(1e3, 2.0898e-3), (100e3, 0.20898e-3), (1e6, 66.085e-6)]
-# Round-wire AC/DC resistance ratio at r/δ (exact Bessel solution; issue 7's values).
+# Round-wire AC/DC resistance ratio at r/δ: the Bessel-function (Kelvin ber/bei) solution for an
+# isolated round wire, computed outside this project (from memory).
 AC_RATIOS = [(1.0, 1.020492), (2.0, 1.264643), (5.0, 2.768108), (10.0, 5.259302)]
 
 
@@ -93,7 +94,8 @@ def test_kelvin_functions_agree_with_complex_bessel(x):
 
 
 def test_ac_ratio_published_asymptotes():
-    # Low frequency: 1 + x⁴/48; high frequency: x/2 + 1/4 + 3/(32x) (issue 7's asymptotes).
+    # Low frequency: 1 + x⁴/48; high frequency: x/2 + 1/4 + 3/(32x) (the Bessel solution's
+    # low- and high-frequency expansions, from memory).
     assert ac_resistance_ratio(0.1) == pytest.approx(1 + 0.1**4 / 48, rel=1e-9)
     for x in (30.0, 100.0, 1000.0):
         assert ac_resistance_ratio(x) == pytest.approx(x / 2 + 0.25 + 3 / (32 * x), rel=2e-7)

@@ -2,8 +2,8 @@
 
 Physics in SI units (henry, ohm, farad, hertz, metre); every function is pure and takes numpy
 arrays or floats. Predictions: :func:`predict` on a :class:`CoilGeometry`. Fits: :func:`fit_sweep`
-on frequencies and complex impedances. Both results print as a rich table (``.table()``) or plain
-text (``.text()``); :func:`compare` / :func:`compare_text` put them side by side.
+on frequencies and complex impedances. :mod:`acquire.coil.report` prints them (rich tables, plain
+text, JSON records); :func:`compare` / :func:`compare_text` put them side by side.
 """
 
 from acquire.coil.capacitance import (

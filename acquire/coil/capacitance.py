@@ -7,7 +7,7 @@ reproduced in secondary sources; between its entries ``H`` is interpolated with 
 (PCHIP) in ``ln(l/D)``. Outside ``0.1 ≤ l/D ≤ 50`` nothing is extrapolated.
 
 Where each entry comes from: ``l/D`` = 0.1, 0.2, 0.3, 0.5, 0.8, 1, 2, 3, 5, 10, 20, 50 are the
-values the project's issue quotes from secondary reproductions; ``l/D`` = 1.0 to 5.0 in steps of
+values recalled (from memory) from secondary reproductions; ``l/D`` = 1.0 to 5.0 in steps of
 0.5 also agree with the reproduction by M. S. Rzeszotarski (Tesla coil mailing list, January
 1997, citing Wireless Engineer 24, 1947, pp. 35 and 80). The remaining entries (0.15, 0.25, 0.35,
 0.4, 0.45, 0.6, 0.7, 0.9, 6 to 9, 15, 25, 30, 40) are from memory of the published table and have

@@ -9,6 +9,7 @@ from numpy.typing import ArrayLike
 
 from acquire.coil.circuit import impedance_from_parameters
 from acquire.coil.fitstart import StartValues
+from acquire.coil.report import fit_table, fit_text
 
 
 @dataclass(frozen=True)
@@ -84,12 +85,8 @@ class CoilFit:
 
     def table(self):
         """A :class:`rich.table.Table` of the results."""
-        from acquire.coil.report import fit_table
-
         return fit_table(self)
 
     def text(self) -> str:
         """The results as aligned plain text."""
-        from acquire.coil.report import fit_text
-
         return fit_text(self)

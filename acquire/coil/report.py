@@ -1,16 +1,23 @@
-"""Printable forms of a prediction, a fit and their comparison: rich tables and plain text.
+"""Printable forms of a prediction, a fit and their comparison: rich tables, plain text, JSON.
 
 Every number is shown with its method and accuracy (predictions) or its 1σ uncertainty (fits);
 a quantity that is not predicted or not determined shows the reason instead of a number.
+
+Imports run one way: this module reads the result objects of :mod:`acquire.coil.predict` and
+:mod:`acquire.coil.fitresult`; neither of them imports it back. A fit is only read through its
+attributes, so :mod:`acquire.coil.fitresult` is imported for type checking alone.
 """
 
 from __future__ import annotations
 
 import math
+from typing import TYPE_CHECKING, Any
 
-from acquire.coil.fitresult import CoilFit, FittedValue
 from acquire.coil.predict import CoilGeometry, Estimate, Prediction
 from acquire.units import format_si
+
+if TYPE_CHECKING:
+    from acquire.coil.fitresult import CoilFit, FittedValue
 
 _SIGMA_FACTOR = 2.0
 
@@ -63,6 +70,30 @@ def estimate_accuracy(e: Estimate) -> str:
     if e.accuracy is None:
         return "not stated"
     return f"± {_percent(e.accuracy)}"
+
+
+def estimate_record(e: Estimate) -> dict[str, Any]:
+    """One estimate as the JSON record: name, label, value, unit, accuracy or bound, method."""
+    method = "; ".join(filter(None, (e.method, e.note)))
+    if e.bound == "geometry":
+        method += "; follows from the geometry, no accuracy stated"
+    return {
+        "name": e.key,
+        "label": e.label,
+        "value": e.value,
+        "unit": e.unit,
+        "relative_accuracy": e.accuracy if e.value is not None else None,
+        "lower_bound": e.value if e.bound == "at least" else None,
+        "method": method,
+    }
+
+
+def prediction_json(prediction: Prediction) -> dict[str, Any]:
+    """The prediction as a JSON-ready dict: ``{"command": "predict", "quantities": [...]}``."""
+    return {
+        "command": "predict",
+        "quantities": [estimate_record(e) for e in prediction.estimates],
+    }
 
 
 def fitted_value(v: FittedValue) -> str:

@@ -1,19 +1,23 @@
 """Guided capture of open, short and load references on a fixture, and the checks on using them.
 
 For each standard the operator is told what to do to the fixture and asked to confirm; the
-meter then sweeps the plan, the new reading is added to the set and the set is judged with
-:meth:`ReferenceSet.check`. A reading that brings a new error (a "short" that reads like an
-open fixture, a load far from its standard) is refused and the operator is offered another try;
-warnings are shown and the reading is kept. The operator is an object with three methods, so a
-terminal (:class:`ConsoleOperator`), a test or the demo can answer the prompts.
+meter then sweeps the plan ``repeats`` times, the mean reading (with the Type A standard
+uncertainty of that mean) is added to the set and the set is judged with
+:meth:`ReferenceSet.check`. A reading that brings a new error (a "short" that reads the same as
+the open, a load that reads as another value) is refused, with what the readings looked like,
+and the operator is offered another try; warnings are shown and the reading is kept. The
+operator is an object with three methods, so a terminal (:class:`ConsoleOperator`), a test or
+the demo can answer the prompts.
 
 :func:`reference_warnings` says what to beware of when a stored set is used for a sweep: its age,
 and whether it was captured on another meter or fixture; :func:`dut_warnings` what the set's
-checks say about the part measured through it.
+checks say about the part measured through it (whether the readings look like an empty fixture
+is :mod:`acquire.open_fixture`'s question).
 """
 
 from __future__ import annotations
 
+import dataclasses
 from collections import Counter
 from collections.abc import Callable, Sequence
 from datetime import UTC, datetime
@@ -25,6 +29,7 @@ from acquire.compensation import STANDARDS, ReferenceSet
 from acquire.display import format_duration
 from acquire.errors import CompensationError
 from acquire.plan import FrequencyPlan, check_range
+from acquire.units import format_si
 
 INSTRUCTIONS = {
     "open": (
@@ -136,6 +141,7 @@ def capture_references(
     notes: str = "",
     attempts: int = 3,
     on_points: Callable | None = None,
+    repeats: int = 3,
 ) -> ReferenceSet:
     """Capture ``standards`` over ``plan`` with the operator's help; returns the reference set.
 
@@ -144,7 +150,15 @@ def capture_references(
     that, or when the operator stops, :class:`CompensationError` is raised and nothing is kept.
     Meter faults propagate as the driver's errors. The plan is checked against the meter's range
     before anything is sent.
+
+    Each standard is swept ``repeats`` times in a row without touching the fixture; the set
+    keeps the mean reading and, for ``repeats`` of 2 or more, the Type A standard uncertainty of
+    that mean in ``open_u``, ``short_u``, ``load_u`` (see :func:`mean_reading`). The set records
+    the plan's spacing in ``grid_spacing``, so a gap appearing later in a log or linear grid is
+    found by its check.
     """
+    if type(repeats) is not int or repeats < 1:
+        raise CompensationError(f"repeats must be a whole number of 1 or more, not {repeats!r}")
     order = [s for s in STANDARDS if s in standards]
     unknown = [s for s in standards if s not in STANDARDS]
     if unknown or not order:
@@ -159,20 +173,36 @@ def capture_references(
         f"Capturing {', '.join(order)} on fixture {fixture or '(unnamed)'} over {plan.describe()}."
     )
     for standard in order:
-        refs = _capture_one(meter, f, operator, standard, refs, truth, attempts, on_points)
+        refs = _capture_one(meter, f, operator, standard, refs, truth, attempts, on_points, repeats)
     assert refs is not None
-    return ReferenceSet(
-        frequency=f,
-        open=refs.open,
-        short=refs.short,
-        load=refs.load,
-        load_true=refs.load_true,
+    return dataclasses.replace(
+        refs,
         captured_at=datetime.now(UTC),
         fixture=fixture,
         meter=meter_name,
         temperature=temperature,
         notes=notes,
+        repeats=repeats,
+        grid_spacing=plan.spacing,
     )
+
+
+def mean_reading(readings: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
+    """Mean of ``n`` sweeps (array of shape ``(n, points)``, complex ohm) and its Type A standard
+    uncertainty per component, or None for one sweep.
+
+    The uncertainty is the experimental standard deviation of the mean (JCGM 100:2008, 4.2.3),
+    ``s/sqrt(n)``, with the variances of the real and imaginary parts pooled,
+    ``s**2 = (s_R**2 + s_X**2)/2``: one number per frequency that holds for R and X alike.
+    """
+    readings = np.atleast_2d(np.asarray(readings, dtype=complex))
+    n = readings.shape[0]
+    with np.errstate(invalid="ignore"):
+        mean = readings.mean(axis=0)
+        if n < 2:
+            return mean, None
+        pooled = (readings.real.var(axis=0, ddof=1) + readings.imag.var(axis=0, ddof=1)) / 2
+    return mean, np.sqrt(pooled / n)
 
 
 def _capture_one(
@@ -184,18 +214,18 @@ def _capture_one(
     truth: np.ndarray | None,
     attempts: int,
     on_points: Callable | None,
+    repeats: int,
 ) -> ReferenceSet:
     value = ""
     if standard == "load" and truth is not None:
-        from acquire.units import format_si
-
         value = f" ({format_si(float(np.median(truth.real)), 'Ω')})"
     if not operator.ready(standard, INSTRUCTIONS[standard].format(value=value)):
         raise CompensationError(f"capture stopped before the {standard}; nothing was saved")
     for attempt in range(1, attempts + 1):
-        z = np.asarray(meter.sweep(f, on_points=on_points), dtype=complex)
+        sweeps = [meter.sweep(f, on_points=on_points) for _ in range(repeats)]
+        z, u = mean_reading(np.array(sweeps, dtype=complex).reshape(repeats, f.size))
         base = before if before is not None else ReferenceSet(frequency=f)
-        after = base.with_standard(standard, z)
+        after = base.with_standard(standard, z, u)
         if standard == "load":
             after = after.with_standard("load_true", truth)
         problems = _new_findings(before, after, "error") if before else _first_errors(after)

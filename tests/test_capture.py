@@ -1,18 +1,33 @@
-"""Guided reference capture on the simulated fixture: accepted, refused, retried, stopped."""
+"""Guided reference capture on the simulated fixture: accepted, refused, retried, stopped.
+
+Sources: the simulated meter's physics (drivers.simulator.physics: the fixture as a two-port,
+the noise model) is the outside reference: corrected readings are compared with the simulator's
+own noiseless ``dut_impedance``, and the Type A uncertainty of the mean with the simulator's
+stated noise deviation over sqrt(n) (JCGM 100:2008, 4.2.3, the standard deviation of the mean).
+"""
 
 from __future__ import annotations
 
+import re
 from datetime import UTC, datetime, timedelta
 
 import numpy as np
 import pytest
 
-from acquire.capture import ConsoleOperator, capture_references, dut_warnings, reference_warnings
+from acquire.capture import (
+    ConsoleOperator,
+    capture_references,
+    dut_warnings,
+    mean_reading,
+    reference_warnings,
+)
 from acquire.compensation import ReferenceSet
 from acquire.errors import CompensationError
+from acquire.open_fixture import open_fixture
 from acquire.plan import log_plan
 from drivers.meter import ImpedanceMeter
 from drivers.simulator import running
+from drivers.simulator.physics import noise_deviation
 
 PLAN = log_plan("1kHz", "1MHz", 16)
 
@@ -89,7 +104,7 @@ def test_a_short_that_reads_like_an_open_is_refused_then_retried(bench):
     assert len(hand.refused) == 1
     standard, problems = hand.refused[0]
     assert standard == "short"
-    assert any("looks like an open fixture" in p for p in problems)
+    assert any("short: reads the same as the open" in p for p in problems)
     assert np.all(np.abs(refs.short) < 10)  # the accepted short is the real one
 
 
@@ -179,3 +194,146 @@ def test_dut_warnings_apply_the_ten_times_rule_to_the_part():
     assert len(found) == 1 and "within 10x of the short residual" in found[0]
     assert dut_warnings(refs, f, np.full(3, 100.0 + 0j)) == []
     assert dut_warnings(refs, f[:0], small[:0]) == []
+
+
+@pytest.fixture
+def cable():
+    with (
+        running(dut="open", fixture="cable-leads", seed=23, measure_time=0) as sim,
+        ImpedanceMeter.open(sim.resource, dialect="simulated") as meter,
+    ):
+        yield sim, meter
+
+
+@pytest.mark.parametrize("top", ["20MHz", "30MHz"])
+def test_cable_leads_capture_is_accepted_and_corrects_the_coil(cable, top):
+    # Before: the load was refused at 20 MHz ("681.6 %") and the short at 30 MHz, above the
+    # leads' own resonance, so nothing could be captured. The fixture is passive and linear,
+    # so the three standards fix it exactly (formulas module): the coil corrected with them
+    # must agree with the simulator's noiseless coil.
+    sim, meter = cable
+    plan = log_plan("1kHz", top, 41)
+    hand = ScriptedHand(sim, retry=False)
+    refs = capture_references(meter, plan, hand, load_true=sim.load_true, repeats=2)
+    assert hand.refused == []
+    assert refs.method == "open-short-load" and refs.grid_spacing == "log" and refs.repeats == 2
+    f = plan.frequencies
+    sim.insert("air-core-coil")
+    raw = np.asarray(meter.sweep(f), dtype=complex)
+    true = sim.dut_impedance(f)
+    corrected = refs.correct(f, raw)
+    # Within the noise: each reading's one-sigma noise from the simulator's own model
+    # (physics.noise_deviation), the references' divided by sqrt(2) for the mean of two, carried
+    # through the correction by its derivatives (computed by finite differences). At 6 sigma.
+    m = sim.meter
+
+    def sigma(z):
+        return noise_deviation(np.abs(z), f, m.accuracy_class, m.low_impedance_corner,
+                               m.high_impedance_corner, m.frequency_corner)  # fmt: skip
+
+    variance = (sigma(raw) * _slope(refs, f, raw, None)) ** 2
+    for name in ("open", "short", "load"):
+        variance += (sigma(getattr(refs, name)) / np.sqrt(2) * _slope(refs, f, raw, name)) ** 2
+    err = np.abs(corrected - true)
+    assert np.all(err <= 6 * np.sqrt(2 * variance)), np.max(err / np.sqrt(variance))
+    # The raw reading is not (the fixture matters), so the check above can fail.
+    assert np.max(np.abs(raw - true) / np.abs(true)) > 0.05
+
+
+def _slope(refs, f, raw, name):
+    """|d corrected / d reading| (name None) or |d corrected / d standard name|, numerically."""
+    base = refs.correct(f, raw)
+    if name is None:
+        step = 1e-6 * np.abs(raw)
+        return np.abs(refs.correct(f, raw + step) - base) / step
+    z = getattr(refs, name)
+    step = 1e-6 * np.abs(z)
+    moved = refs.with_standard(name, z + step, getattr(refs, f"{name}_u"))
+    return np.abs(moved.correct(f, raw) - base) / step
+
+
+@pytest.mark.parametrize(
+    ("script", "refused", "seen"),
+    [
+        ({"open": ["short"]}, "short", "reads the same as the open"),
+        ({"short": ["open"]}, "short", "reads the same as the open"),
+        ({"load": ["open"]}, "load", "reads the same as the open"),
+        ({"load": ["air-core-coil"]}, "load", "not a load of the value given"),
+    ],
+    ids=["short-for-open", "open-for-short", "nothing-for-load", "coil-for-load"],
+)
+def test_wrong_standards_on_the_cable_are_refused_saying_what_was_seen(
+    cable, script, refused, seen
+):
+    sim, meter = cable
+    hand = ScriptedHand(sim, script=script, retry=False)
+    with pytest.raises(CompensationError, match=f"{refused} reference was refused"):
+        capture_references(meter, log_plan("1kHz", "30MHz", 41), hand, load_true=sim.load_true)
+    standard, problems = hand.refused[0]
+    assert standard == refused
+    assert any(seen in p for p in problems), problems
+    assert any(" at " in p and "Ω" in p for p in problems)  # the readings' values are named
+
+
+def test_a_load_of_the_wrong_value_is_refused(cable):
+    sim, meter = cable
+    hand = ScriptedHand(sim, retry=False)
+    with pytest.raises(CompensationError, match="load reference was refused"):
+        capture_references(meter, log_plan("1kHz", "20MHz", 31), hand, load_true=50.0)
+    text = hand.refused[0][1][0]
+    assert "is more than 50% from its true value at 24 of 31" in text, text
+    # It reads the 100 ohm standard the simulator holds: about twice the 50 ohm given.
+    assert re.search(r"worst 10\d\.\d% at .*reads 10\d\.\d Ω at 0\.0° against 50\.00 Ω", text)
+
+
+def test_repeats_give_the_mean_and_its_type_a_uncertainty(bench):
+    sim, meter = bench
+    n = 8
+    refs = capture_references(meter, PLAN, ScriptedHand(sim), standards=("open",), repeats=n)
+    assert refs.repeats == n and refs.short_u is None
+    f = PLAN.frequencies
+    sim.insert("open")
+    exact = sim.seen_impedance(f)
+    from drivers.simulator.measurement import Conditions, noise_deviation
+    from drivers.simulator.state import LEVEL_DEFAULT, PERIODS_DEFAULT
+
+    conditions = Conditions(
+        tuple(f), LEVEL_DEFAULT, PERIODS_DEFAULT, 1, True, sim.dut, sim.fixture, sim.meter, 0
+    )
+    sigma = noise_deviation(conditions, np.abs(exact), f)
+    ratio = refs.open_u / (sigma / np.sqrt(n))
+    # 16 estimates of a standard deviation from 2*8 values each: their mean is near 1.
+    assert 0.8 < np.mean(ratio) < 1.2, ratio
+    assert np.all(np.abs(refs.open - exact) < 6 * sigma / np.sqrt(n))
+    once = capture_references(meter, PLAN, ScriptedHand(sim), standards=("open",), repeats=1)
+    assert once.open_u is None and once.repeats == 1
+    with pytest.raises(CompensationError, match="repeats"):
+        capture_references(meter, PLAN, ScriptedHand(sim), standards=("open",), repeats=0)
+
+
+def test_mean_reading_is_the_standard_deviation_of_the_mean():
+    # Computed by hand: readings 1+1j, 3+5j -> mean 2+3j; s_R^2 = 2, s_X^2 = 8, pooled 5;
+    # u = sqrt(5/2).
+    z, u = mean_reading(np.array([[1 + 1j], [3 + 5j]]))
+    assert z[0] == 2 + 3j and u[0] == pytest.approx(np.sqrt(2.5))
+    assert mean_reading(np.array([[1 + 1j]]))[1] is None
+
+
+def test_empty_fixture_without_references():
+    f = np.logspace(3, 7, 9)
+    w = 2 * np.pi * f
+    assert "open fixture" in open_fixture(f, 1 / (1e-9 + 1j * w * 8e-12))  # open leads, 8 pF
+    nan = np.full(9, complex(np.nan, np.nan))
+    assert "open fixture" in open_fixture(f, nan)
+    assert open_fixture(f, 0.5 + 1j * w * 10e-6) == ""  # a coil
+    assert open_fixture(f, 1 / (1j * w * 100e-9)) == ""  # a 100 nF capacitor
+    assert open_fixture(f[:0], nan[:0]) == ""
+
+
+def test_empty_fixture_through_the_simulator(bench):
+    sim, meter = bench
+    f = PLAN.frequencies
+    sim.insert("open")
+    assert open_fixture(f, meter.sweep(f)) != ""
+    sim.insert("air-core-coil")
+    assert open_fixture(f, meter.sweep(f)) == ""

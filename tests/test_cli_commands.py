@@ -240,7 +240,8 @@ PLAN = ["--start", "1kHz", "--stop", "1MHz", "--points", "31"]
 @pytest.fixture
 def bench(tmp_path):
     """A simulated bench-leads fixture, empty, and a store holding a good reference set
-    ("good") and the same set with open and short swapped ("swapped")."""
+    ("good") and the same set with the open's reading kept as the short's too ("bad": the short
+    reads the same as the open, which no fixture with a working short does)."""
     import dataclasses
 
     from acquire.capture import capture_references
@@ -259,10 +260,10 @@ def bench(tmp_path):
                 fixture="bench-leads",
                 meter_name=identity,
             )
-        swapped = dataclasses.replace(refs, open=refs.short, short=refs.open)
+        bad = dataclasses.replace(refs, short=refs.open, short_u=refs.open_u)
         with open_store(url) as store:
             store.save_reference_set(refs, name="good")
-            store.save_reference_set(swapped, name="swapped")
+            store.save_reference_set(bad, name="bad")
         sim.insert("open")
         yield sim, url, identity
 
@@ -270,7 +271,7 @@ def bench(tmp_path):
 def test_a_reference_set_that_fails_its_check_is_refused(bench):
     sim, url, _ = bench
     result = acquire(
-        "sweep", "--resource", sim.resource, "--store", url, *PLAN, "--reference", "swapped",
+        "sweep", "--resource", sim.resource, "--store", url, *PLAN, "--reference", "bad",
         "--no-live",
     )  # fmt: skip
     assert result.returncode == 2, result.stdout + result.stderr
@@ -287,10 +288,10 @@ def test_a_failing_reference_set_is_used_with_a_reason_kept_with_the_sweep(bench
     sim, url, identity = bench
     sim.insert("demo-coil")
     csv_path = tmp_path / "override.csv"
-    reason = "swapped on purpose to test the refusal"
+    reason = "short replaced by the open on purpose to test the refusal"
     before = datetime.now(UTC).replace(microsecond=0)
     result = acquire(
-        "sweep", "--resource", sim.resource, "--store", url, *PLAN, "--reference", "swapped",
+        "sweep", "--resource", sim.resource, "--store", url, *PLAN, "--reference", "bad",
         "--use-despite-problems", reason, "--dut", "coil 12", "--fixture", "bench-leads",
         "--no-live", "--csv", str(csv_path),
     )  # fmt: skip

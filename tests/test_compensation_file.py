@@ -38,6 +38,10 @@ def sample(**kw) -> ReferenceSet:
         "meter": "simulated meter 1.0",
         "temperature": 23.4,
         "notes": "après nettoyage ∑ — unicode kept",
+        "open_u": np.abs(short) * 1e-3 / 3,
+        "short_u": np.full(GRID.shape, 1e-5 / 7),
+        "repeats": 3,
+        "grid_spacing": "log",
     }
     base.update(kw)
     return ReferenceSet(GRID, **base)
@@ -60,7 +64,13 @@ def same(a: ReferenceSet, b: ReferenceSet) -> None:
                 both_nan = np.isnan(px) & np.isnan(py)
                 assert np.array_equal(bits(px)[~both_nan], bits(py)[~both_nan]), name
                 assert np.array_equal(np.isnan(px), np.isnan(py)), name
-    for name in ("captured_at", "fixture", "meter", "temperature", "notes"):
+    for name in ("open_u", "short_u", "load_u"):
+        x, y = getattr(a, name), getattr(b, name)
+        assert (x is None) == (y is None), name
+        if x is not None:
+            assert np.array_equal(bits(x), bits(y)), name
+    names = ("captured_at", "fixture", "meter", "temperature", "notes", "repeats", "grid_spacing")
+    for name in names:
         assert getattr(a, name) == getattr(b, name), name
 
 
@@ -68,7 +78,7 @@ def test_file_round_trip_is_exact(tmp_path):
     refs = sample()
     path = tmp_path / "bench3.refs.json"
     refs.save(path)
-    back = ReferenceSet.load(path)
+    back = ReferenceSet.read(path)
     same(refs, back)
     assert back.captured_at.tzinfo == UTC
     assert back.captured_at == refs.captured_at
@@ -111,7 +121,7 @@ def test_any_float_survives_the_file(tmp_path_factory, values, notes):
     refs = ReferenceSet(grid, short=z, load_true=z[::-1], notes=notes)
     path = tmp_path_factory.mktemp("refs") / "any.json"
     refs.save(path)
-    same(refs, ReferenceSet.load(path))
+    same(refs, ReferenceSet.read(path))
 
 
 def _saved(tmp_path):
@@ -134,7 +144,7 @@ def test_truncated_file_is_refused(tmp_path):
     path = _saved(tmp_path)
     path.write_text(path.read_text(encoding="utf-8")[:-200], encoding="utf-8")
     with pytest.raises(CompensationError, match="damaged"):
-        ReferenceSet.load(path)
+        ReferenceSet.read(path)
 
 
 def test_changed_digit_is_refused_by_the_checksum(tmp_path):
@@ -144,14 +154,14 @@ def test_changed_digit_is_refused_by_the_checksum(tmp_path):
     assert marker in text
     path.write_text(text.replace(marker, '"frequency_hz": [101.0'), encoding="utf-8")
     with pytest.raises(CompensationError, match="checksum"):
-        ReferenceSet.load(path)
+        ReferenceSet.read(path)
 
 
 def test_newer_version_is_refused_with_advice(tmp_path):
     path = _saved(tmp_path)
     _rewrite(path, lambda d: d.update(format_version=FORMAT_VERSION + 1))
     with pytest.raises(CompensationError, match="newer than this tool reads.*update"):
-        ReferenceSet.load(path)
+        ReferenceSet.read(path)
 
 
 @pytest.mark.parametrize("version", [0, -3, "1", 1.0, None, True])
@@ -159,7 +169,7 @@ def test_unknown_or_malformed_version_is_refused(tmp_path, version):
     path = _saved(tmp_path)
     _rewrite(path, lambda d: d.update(format_version=version))
     with pytest.raises(CompensationError, match="version"):
-        ReferenceSet.load(path)
+        ReferenceSet.read(path)
 
 
 @pytest.mark.parametrize(
@@ -175,13 +185,19 @@ def test_unknown_or_malformed_version_is_refused(tmp_path, version):
         lambda d: d.update(captured_at="2024-05-02T11:30:15"),
         lambda d: d.update(temperature_c="warm"),
         lambda d: d.update(frequency_hz={"a": 1}),
+        lambda d: d.update(repeats=0),
+        lambda d: d.update(repeats=2.0),
+        lambda d: d.update(grid_spacing="spiral"),
+        lambda d: d["uncertainty_ohm"]["open"].pop(),
+        lambda d: d["uncertainty_ohm"].update(load_true=[0.0] * GRID.size),
+        lambda d: d.pop("uncertainty_ohm"),
     ],
 )
 def test_malformed_fields_are_refused(tmp_path, change):
     path = _saved(tmp_path)
     _rewrite(path, change)
     with pytest.raises(CompensationError, match="damaged"):
-        ReferenceSet.load(path)
+        ReferenceSet.read(path)
 
 
 @pytest.mark.parametrize(
@@ -192,7 +208,7 @@ def test_files_that_are_not_reference_sets(tmp_path, content):
     path = tmp_path / "other.json"
     path.write_bytes(content)
     with pytest.raises(CompensationError):
-        ReferenceSet.load(path)
+        ReferenceSet.read(path)
 
 
 def test_bare_nan_literal_is_refused(tmp_path):
@@ -200,12 +216,12 @@ def test_bare_nan_literal_is_refused(tmp_path):
     text = path.read_text(encoding="utf-8").replace('"temperature_c": 23.4', '"temperature_c": NaN')
     path.write_text(text, encoding="utf-8")
     with pytest.raises(CompensationError, match="damaged"):
-        ReferenceSet.load(path)
+        ReferenceSet.read(path)
 
 
 def test_missing_file_and_unwritable_place(tmp_path):
     with pytest.raises(CompensationError, match="no reference-set file"):
-        ReferenceSet.load(tmp_path / "absent.json")
+        ReferenceSet.read(tmp_path / "absent.json")
     with pytest.raises(CompensationError, match="cannot write"):
         sample().save(tmp_path / "no such dir" / "r.json")
 
@@ -244,3 +260,71 @@ def test_with_standard_builds_up_a_set():
     assert refs.method == "open-short" and refs.standards == ("open", "short")
     assert refs.fixture == "clips" and refs.points == GRID.size
     assert refs.with_standard("short", None).method == "open"
+
+
+def test_version_1_file_is_still_read(tmp_path):
+    # A version 1 file, written by hand as that version laid it out (RFC 8259 JSON, digest by
+    # FIPS 180-4 SHA-256 over the canonical form, computed here with hashlib): its standards
+    # were read once and its grid spacing was not recorded.
+    refs = sample(open_u=None, short_u=None, repeats=1, grid_spacing="")
+    d = {
+        "format": FORMAT,
+        "format_version": 1,
+        "about": "version 1",
+        "captured_at": refs.captured_at.isoformat(),
+        "fixture": refs.fixture,
+        "meter": refs.meter,
+        "temperature_c": refs.temperature,
+        "notes": refs.notes,
+        "frequency_hz": GRID.tolist(),
+        "impedance_ohm": {
+            name: {"real": z.real.tolist(), "imag": z.imag.tolist()}
+            for name in ("open", "short", "load", "load_true")
+            if (z := getattr(refs, name)) is not None
+        },
+    }
+    canonical = json.dumps(d, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
+    d["sha256"] = hashlib.sha256(canonical.encode("utf-8")).hexdigest()
+    path = tmp_path / "v1.json"
+    path.write_text(json.dumps(d), encoding="utf-8")
+    back = ReferenceSet.read(path)
+    same(refs, back)
+    assert back.repeats == 1 and back.open_u is None and back.grid_spacing == ""
+    # A version 1 file with version 2 fields is damaged, not silently half-read.
+    _rewrite(path, lambda x: x.update(repeats=3))
+    with pytest.raises(CompensationError, match="damaged"):
+        ReferenceSet.read(path)
+
+
+def test_uncertainties_round_trip_bit_for_bit_and_checksum_holds(tmp_path):
+    rng = np.random.default_rng(5)
+    u = rng.random(GRID.size) * 1e-3
+    u[3] = math.nan  # a standard read as NaN has no uncertainty either
+    refs = sample(load_u=u, repeats=4)
+    path = tmp_path / "u.json"
+    refs.save(path)
+    d = json.loads(path.read_text(encoding="utf-8"))
+    assert d["format_version"] == 2 and d["repeats"] == 4
+    assert set(d["uncertainty_ohm"]) == {"open", "short", "load"}
+    digest = d.pop("sha256")
+    canonical = json.dumps(d, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
+    assert hashlib.sha256(canonical.encode("utf-8")).hexdigest() == digest
+    back = ReferenceSet.read(path)
+    same(refs, back)
+    same(refs, ReferenceSet.from_dict(json.loads(json.dumps(refs.to_dict()))))
+
+
+def test_uncertainty_fields_are_checked_at_construction():
+    with pytest.raises(CompensationError, match="non-negative"):
+        sample(open_u=-np.ones(GRID.size))
+    with pytest.raises(CompensationError, match="non-negative"):
+        sample(open_u=np.ones(3))
+    with pytest.raises(CompensationError, match="load reading is not"):
+        sample(load=None, load_u=np.ones(GRID.size))
+    with pytest.raises(CompensationError, match="repeats"):
+        sample(repeats=0)
+    with pytest.raises(CompensationError, match="grid_spacing"):
+        sample(grid_spacing="geometric")
+    refs = sample().with_standard("open", sample().open, np.ones(GRID.size))
+    assert np.array_equal(refs.open_u, np.ones(GRID.size))
+    assert sample().with_standard("open", sample().open).open_u is None

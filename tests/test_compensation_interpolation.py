@@ -146,6 +146,21 @@ def test_at_keeps_metadata_and_broadcasts_load_true():
     assert moved.method == "open-short-load"
 
 
+def test_at_carries_the_type_a_uncertainties_linearly_in_log_frequency():
+    grid = np.logspace(2, 7, 26)
+    u = np.linspace(1e-4, 3.5e-3, 26)
+    refs = coarse_refs(open_u=u, short_u=2 * u, repeats=3, grid_spacing="log")
+    # Computed: half-way in log f between points 4 and 5 is their geometric mean, where a line in
+    # log f gives the mean of the two values; at a grid point the stored value itself.
+    mid = math.sqrt(grid[4] * grid[5])
+    moved = refs.at([grid[3], mid])
+    assert moved.open_u[0] == u[3]
+    assert moved.open_u[1] == pytest.approx((u[4] + u[5]) / 2, rel=1e-12)
+    assert moved.short_u[1] == pytest.approx(u[4] + u[5], rel=1e-12)
+    assert moved.load_u is None and moved.repeats == 3
+    assert moved.grid_spacing == "list"  # a grid made by the caller, not by a plan
+
+
 def test_line_fixture_between_coarse_grid_points():
     # A fixture with a length of line (built from scikit-rf elements, as in test_compensation):
     # not an L section, so interpolation is not exact; with references at about 11 points a

@@ -213,15 +213,15 @@ def test_coverage_check_agrees_with_the_correction_at_the_grid_ends():
         check_coverage(beyond, refs)
 
 
-def _swapped_references():
-    """Open and short of an invented fixture (8 pF stray, 20 mohm + 0.3 uH leads), swapped."""
+def _failing_references():
+    """Open and short of an invented fixture (8 pF stray), where the
+    "short" reads the same as the open: no fixture with a working short reads that way."""
     from acquire.compensation import ReferenceSet
 
     f = np.geomspace(1e3, 1e6, 11)
     w = 2 * np.pi * f
     z_open = 1 / (1j * w * 8e-12)
-    z_short = 0.02 + 1j * w * 0.3e-6
-    return ReferenceSet(frequency=f, open=z_short, short=z_open)
+    return ReferenceSet(frequency=f, open=z_open, short=z_open * 1.001)
 
 
 def test_opening_a_sweep_refuses_a_reference_set_that_fails_its_check(tmp_path):
@@ -229,10 +229,10 @@ def test_opening_a_sweep_refuses_a_reference_set_that_fails_its_check(tmp_path):
 
     from acquire.sweep_setup import ReferenceRefused, begin
 
-    refs = _swapped_references()
+    refs = _failing_references()
     identity = SimpleNamespace(manufacturer="Example", model="M1", serial="7", firmware="1")
     with open_store(f"sqlite:///{tmp_path / 'r.db'}") as store:
-        ref_id = store.save_reference_set(refs, name="swapped")
+        ref_id = store.save_reference_set(refs, name="failing")
         plan = list_plan("1k, 10k")
         with pytest.raises(ReferenceRefused, match="fails its check") as refused:
             begin(store, None, identity, "clips", "coil", ref_id, plan, ("Ls",))

@@ -17,7 +17,8 @@ constant, each with the fixture effects of the standards before it taken off:
   ``X/f``): what is left is the load standard itself plus what the L-section model misses, and
   it is put back through the interpolated open and short; without an open or short, the raw load
   in impedance;
-- the load's true value in impedance (``R``, ``X/f``).
+- the load's true value in impedance (``R``, ``X/f``);
+- each standard's Type A uncertainty (:func:`uncertainty_at`) linearly in ``log(f)`` as it is.
 
 For a fixture that really is lumped R, L, G and C (an L section) this is exact at every
 frequency, with or without the load; for frequency-dependent elements (skin effect, dielectric
@@ -155,3 +156,18 @@ def standards_at(grid: np.ndarray, at: Placement, zo, zs, zl, zt) -> tuple[np.nd
 
 def _hz(value: float) -> str:
     return format_si(float(value), "Hz")
+
+
+def uncertainty_at(grid: np.ndarray, u: np.ndarray | None, at: Placement) -> np.ndarray | None:
+    """A standard's Type A uncertainty (ohm, on ``grid``) at the placed frequencies.
+
+    Linear in ``log(f)`` between neighbouring grid points, as the standards are; the stored value
+    bit for bit at a grid frequency. An uncertainty is a slowly varying, non-negative number, so
+    no other form is needed and a linear piece never goes below its ends.
+    """
+    if u is None or at.on_grid:
+        return None if u is None else u[at.index]
+    upper = np.minimum(at.index + 1, grid.size - 1)
+    a, b = u[at.index], u[upper]
+    with np.errstate(invalid="ignore"):
+        return np.where(at.exact, a, a + at.weight * (b - a))

@@ -20,13 +20,17 @@ from typing import Any
 import numpy as np
 
 from acquire.compensation import checks, formulas, refs_file
-from acquire.compensation.interpolation import place, standards_at
+from acquire.compensation.findings import Finding
+from acquire.compensation.interpolation import place, standards_at, uncertainty_at
+from acquire.compensation.protocol import (
+    GRID_SPACINGS,
+    IMPEDANCE_FIELDS,
+    STANDARDS,
+    UNCERTAINTY_FIELDS,
+)
 from acquire.errors import CompensationError
 
-#: The standards a fixture can be measured with, in the order methods are named.
-STANDARDS: tuple[str, ...] = ("open", "short", "load")
-#: Every complex array a reference set may hold: the standards and the load's true value.
-IMPEDANCE_FIELDS: tuple[str, ...] = (*STANDARDS, "load_true")
+__all__ = ["IMPEDANCE_FIELDS", "STANDARDS", "UNCERTAINTY_FIELDS", "ReferenceSet"]
 
 
 @dataclass(frozen=True, eq=False, repr=False)
@@ -38,6 +42,13 @@ class ReferenceSet:
     ``load_true`` is the load standard's true impedance (an array on the grid, or one number that
     is broadcast). Any of them may be None. ``captured_at`` is a timezone-aware time (kept in
     UTC), ``temperature`` the fixture temperature in degrees Celsius if known.
+
+    ``open_u``, ``short_u`` and ``load_u`` are the Type A standard uncertainties of the mean
+    readings (JCGM 100:2008, 4.2: the experimental standard deviation of the mean), in ohm, one
+    value per grid frequency that holds for the real and for the imaginary part alike, or None
+    when the standard was read once; ``repeats`` is how many readings each mean is of.
+    ``grid_spacing`` says how the grid was made: ``"log"`` or ``"linear"`` (evenly spaced: a gap
+    is a fault :meth:`check` reports), ``"list"`` (any spacing) or ``""`` (not recorded).
 
     Arrays are copied and made read-only at construction; equality is identity (compare the
     arrays or :meth:`to_dict` to compare contents). Construction refuses only what cannot be
@@ -56,6 +67,11 @@ class ReferenceSet:
     meter: str = ""
     temperature: float | None = None
     notes: str = ""
+    open_u: np.ndarray | None = None
+    short_u: np.ndarray | None = None
+    load_u: np.ndarray | None = None
+    repeats: int = 1
+    grid_spacing: str = ""
 
     def __post_init__(self) -> None:
         grid = _array(self.frequency, float, "frequency")
@@ -78,6 +94,24 @@ class ReferenceSet:
                     "frequencies; give one value per grid frequency"
                 )
             object.__setattr__(self, name, _frozen(z))
+        for name in UNCERTAINTY_FIELDS:
+            value = getattr(self, name)
+            if value is None:
+                continue
+            u = _array(value, float, name)
+            if u.shape != grid.shape or np.any(u < 0):
+                raise CompensationError(
+                    f"{name} must hold one non-negative uncertainty (ohm) per grid frequency"
+                )
+            if getattr(self, name[:-2]) is None:
+                raise CompensationError(f"{name} is given but the {name[:-2]} reading is not")
+            object.__setattr__(self, name, _frozen(u))
+        if type(self.repeats) is not int or self.repeats < 1:
+            raise CompensationError("repeats must be a whole number of readings, 1 or more")
+        if self.grid_spacing not in GRID_SPACINGS:
+            raise CompensationError(
+                f"grid_spacing must be one of {', '.join(map(repr, GRID_SPACINGS))}"
+            )
         object.__setattr__(self, "captured_at", _utc(self.captured_at))
         if self.temperature is not None:
             t = float(self.temperature)
@@ -135,15 +169,22 @@ class ReferenceSet:
         return self._correction_at(f).reading(z).reshape(shape)
 
     def at(self, f) -> ReferenceSet:
-        """This set carried to the 1-D grid ``f`` (inside the grid), metadata unchanged."""
+        """This set carried to the 1-D grid ``f`` (inside the grid), metadata unchanged except
+        ``grid_spacing``, which becomes ``"list"`` (the new grid's spacing is the caller's).
+
+        The standards move as :meth:`correct` moves them, their uncertainties as in
+        :func:`~acquire.compensation.interpolation.uncertainty_at`.
+        """
         f = _array(f, float, "frequency")
         at = place(self._grid, np.atleast_1d(f))
         moved = dict(
             zip(IMPEDANCE_FIELDS, standards_at(self._grid, at, *self._impedances), strict=True)
         )
-        return dataclasses.replace(self, frequency=at.f, **moved)
+        for name in UNCERTAINTY_FIELDS:
+            moved[name] = uncertainty_at(self._grid, getattr(self, name), at)
+        return dataclasses.replace(self, frequency=at.f, grid_spacing="list", **moved)
 
-    def check(self, dut=None, f=None) -> list[checks.Finding]:
+    def check(self, dut=None, f=None) -> list[Finding]:
         """Findings a user can act on, about these references and, if given, a DUT's readings.
 
         ``dut`` are complex readings at ``f`` (default: the grid). The rules are listed in
@@ -151,12 +192,15 @@ class ReferenceSet:
         """
         return checks.check(self, dut, f)
 
-    def with_standard(self, name: str, z) -> ReferenceSet:
-        """A copy with ``name`` (``open``, ``short``, ``load`` or ``load_true``) set to ``z``."""
+    def with_standard(self, name: str, z, u=None) -> ReferenceSet:
+        """A copy with ``name`` (``open``, ``short``, ``load`` or ``load_true``) set to ``z``
+        and, for a standard, its Type A uncertainty ``name_u`` set to ``u`` (None: read once)."""
         if name not in IMPEDANCE_FIELDS:
             raise CompensationError(
                 f"unknown standard {name!r}; use one of {', '.join(IMPEDANCE_FIELDS)}"
             )
+        if name in STANDARDS:
+            return dataclasses.replace(self, **{name: z, f"{name}_u": u})
         return dataclasses.replace(self, **{name: z})
 
     def to_dict(self) -> dict[str, Any]:
@@ -171,9 +215,15 @@ class ReferenceSet:
     def save(self, path: str | Path) -> None:
         """Write the set to ``path`` in the self-describing JSON of :mod:`.refs_file`.
 
-        Read it back with ``ReferenceSet.load(path)`` (a classmethod, called on the class).
+        Read it back with :meth:`ReferenceSet.read`.
         """
         refs_file.write(Path(path), self.to_dict())
+
+    @classmethod
+    def read(cls, path: str | Path) -> ReferenceSet:
+        """The set in the file at ``path`` (written by :meth:`save`, format version 1 or 2);
+        refuses a damaged file or one of an unknown version."""
+        return cls.from_dict(refs_file.read(Path(path)))
 
     @property
     def _impedances(self) -> tuple[np.ndarray | None, ...]:
@@ -223,20 +273,6 @@ class ReferenceSet:
                 f"{z.size} readings of shape {z.shape}"
             )
         return f.reshape(-1), z.reshape(-1), z.shape
-
-
-def _load(cls: type[ReferenceSet], path: str | Path) -> ReferenceSet:
-    """Read a set written by :meth:`ReferenceSet.save`; refuse a damaged file or unknown version.
-
-    Call it on the class: ``ReferenceSet.load(path)``. (On an instance, ``refs.load`` is the load
-    standard's readings: a classmethod is a non-data descriptor, so the instance's own attribute
-    wins. It is attached after the class is built so that the dataclass field ``load`` keeps its
-    default of None.)
-    """
-    return cls.from_dict(refs_file.read(Path(path)))
-
-
-ReferenceSet.load = classmethod(_load)  # type: ignore[assignment]
 
 
 def _array(value, dtype, name: str) -> np.ndarray:

@@ -1,10 +1,10 @@
 """The reference-set file: self-describing JSON that round-trips exactly.
 
-Layout (format version 1), one JSON object::
+Layout (format version 2), one JSON object::
 
     {
       "format": "coil-acquire reference set",
-      "format_version": 1,
+      "format_version": 2,
       "about": "<one sentence saying what the fields mean>",
       "captured_at": "2024-05-02T09:30:00+00:00" | null,
       "fixture": "...", "meter": "...", "temperature_c": 23.0 | null, "notes": "...",
@@ -13,8 +13,17 @@ Layout (format version 1), one JSON object::
         "open":  {"real": [...], "imag": [...]},
         "short": {...}, "load": {...}, "load_true": {...}      (only those present)
       },
+      "repeats": 3,
+      "grid_spacing": "log" | "linear" | "list" | "",
+      "uncertainty_ohm": {"open": [...], ...}                   (only those present)
       "sha256": "<hex digest>"                                  (in files only)
     }
+
+Version 2 added ``repeats``, ``grid_spacing`` and ``uncertainty_ohm`` (the Type A standard
+uncertainty of each mean standard reading, ohm per component, one per frequency). A version 1
+file (without them) is still read: its standards were read once (``repeats`` 1, no
+uncertainties) and its grid spacing is not recorded (``""``). Files are always written as
+version 2.
 
 Numbers are JSON numbers written with Python's shortest round-tripping ``repr``, so every float
 reads back bit for bit; values that are not finite (a meter's overrange or invalid reading) are
@@ -35,32 +44,33 @@ import os
 import tempfile
 from datetime import UTC, datetime
 from pathlib import Path
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 
+from acquire.compensation.protocol import GRID_SPACINGS, STANDARDS, References
 from acquire.errors import CompensationError
 
-if TYPE_CHECKING:
-    from acquire.compensation.reference_set import ReferenceSet
-
 FORMAT = "coil-acquire reference set"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
 ABOUT = (
     "Readings of a test fixture taken open, shorted and with a load standard, for removing the "
     "fixture from later readings. frequency_hz lists the grid in hertz; impedance_ohm holds, per "
     "standard, the real and imaginary parts in ohm, one per frequency; load_true is the load "
     "standard's true impedance; non-finite values are the strings inf, -inf and nan; "
-    "temperature_c is in degrees Celsius; sha256 is the digest of the canonical JSON of all "
-    "other fields."
+    "temperature_c is in degrees Celsius; uncertainty_ohm holds, per standard, the standard "
+    "uncertainty of its mean reading in ohm (for the real and the imaginary part alike), from "
+    "repeats readings; grid_spacing says how the grid was made (log, linear, list, or empty if "
+    "not recorded); sha256 is the digest of the canonical JSON of all other fields."
 )
 _NAMES = ("open", "short", "load", "load_true")
 _KEYS = {"format", "format_version", "about", "captured_at", "fixture", "meter",
          "temperature_c", "notes", "frequency_hz", "impedance_ohm"}  # fmt: skip
+_KEYS_V2 = _KEYS | {"repeats", "grid_spacing", "uncertainty_ohm"}
 _SPECIAL = {"inf": math.inf, "-inf": -math.inf, "nan": math.nan}
 
 
-def to_dict(refs: ReferenceSet) -> dict[str, Any]:
+def to_dict(refs: References) -> dict[str, Any]:
     """The JSON-ready object for ``refs`` (the file's content without ``sha256``)."""
     standards = {
         name: {"real": _encode(z.real), "imag": _encode(z.imag)}
@@ -78,6 +88,11 @@ def to_dict(refs: ReferenceSet) -> dict[str, Any]:
         "notes": refs.notes,
         "frequency_hz": _encode(refs.frequency),
         "impedance_ohm": standards,
+        "repeats": refs.repeats,
+        "grid_spacing": refs.grid_spacing,
+        "uncertainty_ohm": {
+            name: _encode(u) for name in STANDARDS if (u := getattr(refs, f"{name}_u")) is not None
+        },
     }
 
 
@@ -100,7 +115,8 @@ def fields_from_dict(d: Any) -> dict[str, Any]:
     if version < 1:
         raise CompensationError(f"unknown reference-set format version {version}")
     d = {k: v for k, v in d.items() if k != "sha256"}
-    missing, extra = _KEYS - d.keys(), d.keys() - _KEYS
+    keys = _KEYS if version == 1 else _KEYS_V2
+    missing, extra = keys - d.keys(), d.keys() - keys
     if missing or extra:
         raise _damaged(f"fields missing {sorted(missing)} / unexpected {sorted(extra)}")
     for key in ("about", "fixture", "meter", "notes"):
@@ -131,16 +147,39 @@ def fields_from_dict(d: Any) -> dict[str, Any]:
         z = np.empty(frequency.shape, dtype=complex)
         z.real, z.imag = real, imag
         fields[name] = z
+    if version >= 2:
+        fields.update(_version_2_fields(d, frequency, standards))
+    return fields
+
+
+def _version_2_fields(d: dict[str, Any], frequency: np.ndarray, standards: dict) -> dict:
+    repeats, spacing, spreads = d["repeats"], d["grid_spacing"], d["uncertainty_ohm"]
+    if type(repeats) is not int or repeats < 1:
+        raise _damaged("repeats is not a whole number of 1 or more")
+    if spacing not in GRID_SPACINGS:
+        raise _damaged(f"grid_spacing is not one of {', '.join(map(repr, GRID_SPACINGS))}")
+    if not isinstance(spreads, dict) or not set(spreads) <= set(standards) - {"load_true"}:
+        raise _damaged("uncertainty_ohm must map standards present in impedance_ohm to values")
+    fields: dict[str, Any] = {"repeats": repeats, "grid_spacing": spacing}
+    for name, values in spreads.items():
+        u = _decode(values, f"uncertainty_ohm.{name}")
+        if u.shape != frequency.shape:
+            raise _damaged(f"uncertainty_ohm.{name} does not have one value per frequency")
+        fields[f"{name}_u"] = u
     return fields
 
 
 def write(path: Path, payload: dict[str, Any]) -> None:
     """Write ``payload`` and its digest to ``path`` atomically (never a half-written file)."""
-    lines = [f"  {json.dumps(k)}: {_dumps(v)}" for k, v in payload.items() if k != "impedance_ohm"]
-    inner = ",\n".join(
-        f"    {json.dumps(k)}: {_dumps(v)}" for k, v in payload["impedance_ohm"].items()
-    )
-    lines.append(f'  "impedance_ohm": {{\n{inner}\n  }}' if inner else '  "impedance_ohm": {}')
+    lines = []
+    for key, value in payload.items():
+        if isinstance(value, dict):
+            inner = ",\n".join(f"    {json.dumps(k)}: {_dumps(v)}" for k, v in value.items())
+            lines.append(
+                f"  {json.dumps(key)}: {{\n{inner}\n  }}" if inner else f"  {json.dumps(key)}: {{}}"
+            )
+        else:
+            lines.append(f"  {json.dumps(key)}: {_dumps(value)}")
     lines.append(f'  "sha256": "{_digest(payload)}"')
     text = "{\n" + ",\n".join(lines) + "\n}\n"
     temp = None

@@ -9,6 +9,7 @@ return a reading. :func:`drivers.dialect.load_dialect` is the way in.
 
 from __future__ import annotations
 
+import math
 import string
 from pathlib import Path
 from typing import Any
@@ -23,6 +24,7 @@ from drivers.dialect import (
     SCHEMA,
     SEQUENCE_PLACEHOLDERS,
     Dialect,
+    MeterAccuracy,
     Operation,
 )
 from drivers.errors import DialectError
@@ -91,7 +93,7 @@ class _Checker:
             top,
             "",
             {"schema", "name", "description", "connection", "frequency", "reading", "errors"}
-            | {"transfer", "list", "sequence", "operations"},
+            | {"transfer", "list", "sequence", "operations", "accuracy"},
         )
         schema = self.get(top, "schema", int)
         if schema != SCHEMA:
@@ -126,9 +128,48 @@ class _Checker:
             list_min_points=list_min,
             settle=settle,
             warning_codes=frozenset(codes),
+            accuracy=self.accuracy(operations),
             **transfer,
             **conn,
         )
+
+    def accuracy(self, operations: dict[str, Operation]) -> MeterAccuracy | None:
+        """The ``[accuracy]`` table (see :class:`~drivers.dialect.MeterAccuracy`), or None."""
+        if "accuracy" not in self.data:
+            return None
+        t = self.table("accuracy")
+        floors = {"relative", "low_impedance", "high_impedance", "frequency_corner"}
+        self.unknown(t, "accuracy.", floors | {"reference_level", "repeatability", "speed_factors"})
+        values = {}
+        for key, default, zero in (
+            ("relative", _MISSING, True),
+            ("low_impedance", _MISSING, True),
+            ("high_impedance", _MISSING, False),
+            ("frequency_corner", _MISSING, False),
+            ("reference_level", 1.0, False),
+            ("repeatability", 0.0, True),
+        ):
+            values[key] = self.finite(t, f"accuracy.{key}", default, zero)
+        table = self.get(t, "accuracy.speed_factors", dict, {})
+        words = operations["set_speed"].choices if "set_speed" in operations else {}
+        factors = {}
+        for word in table:
+            key = f"accuracy.speed_factors.{word}"
+            if words and word not in words:
+                known = ", ".join(words)
+                raise self.fail(key, f"not a speed word of operations.set_speed (known: {known})")
+            factors[word] = self.finite(table, key, _MISSING, False)
+        missing = [w for w in words if w not in factors]  # no set_speed: any words, unused
+        if factors and missing:
+            raise self.fail("accuracy.speed_factors", f"missing the speed word {missing[0]!r}")
+        return MeterAccuracy(speed_factors=dict(factors), **values)
+
+    def finite(self, table: dict, key: str, default: Any, allow_zero: bool) -> float:
+        """A finite number, above 0 (or at least 0 with ``allow_zero``)."""
+        value = self.get(table, key, float, default)
+        if not math.isfinite(value):
+            raise self.fail(key, f"must be a finite number, got {value}")
+        return self.positive(table, key, default, allow_zero)
 
     def connection(self) -> dict[str, Any]:
         t = self.table("connection")

@@ -163,3 +163,4 @@ class MeterProfile:
     speeds: Mapping[str, SpeedSetting]
     description: str = ""
     path: Path | None = None
+    systematic_accuracy: float = 0.0

@@ -127,6 +127,7 @@ _METER_SCHEMA = {
     "frequency_corner": _Key("Hz", positive=True),
     "max_impedance": _Key("ohm", positive=True),
     "reference_level": _Key("V", positive=True),
+    "systematic_accuracy": _Key("", 0.0),
 }
 _SPEED_SCHEMA = {
     "reading_time": _Key("s"),

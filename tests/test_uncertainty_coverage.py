@@ -141,3 +141,18 @@ def test_the_check_can_fail(runs):
     full = overall(ACCURACY)
     assert overall(dataclasses.replace(ACCURACY, relative=0.0)) < 0.88
     assert overall(dataclasses.replace(ACCURACY, repeatability=0.0)) < full - 0.015
+
+
+def test_rs_far_above_self_resonance_is_flagged(runs):
+    """The demo coil above its self-resonance (about 7.1 MHz, sim_profiles/demo-coil.toml): its
+    corrected Rs swings by hundreds of ohms either side of zero from seed to seed, so it is
+    flagged beyond accuracy in every seed instead of being shown as a measured value."""
+    _, data = runs
+    above = F > 7e6
+    signs = set()
+    for refs, duts in data:
+        zm, _ = duts["demo-coil"]
+        pts = correct_with_uncertainty(F, zm, None, refs, ACCURACY)
+        assert np.all(point_flags(F[above], pts.z[above], pts.cov[above], ("Rs",)) != "")
+        signs |= set(np.sign(pts.z.real[above]).tolist())
+    assert signs == {-1.0, 1.0}  # some seeds read a negative Rs: the flag is what saves them

@@ -93,6 +93,38 @@ class Operation:
 
 
 @dataclass(frozen=True)
+class MeterAccuracy:
+    """What the meter's maker states about the error of one reading (the ``[accuracy]`` table).
+
+    Our own form (``drivers/dialects/template.toml`` documents each key). For a reading of
+    magnitude ``|Z|`` (ohm) at ``f`` (Hz) and test level ``V`` (V rms), with
+    ``k_f = 1 + f/frequency_corner`` and ``r = reference_level/V`` (1 at the reference level):
+
+    - the half-width of the error of R and of X, each (ohm; the bound the error stays within)::
+
+          a = relative · k_f · (|Z| + r·(low_impedance + |Z|²/high_impedance))
+
+    - the standard deviation of one reading of R and of X, each (ohm; its repeatability) at speed
+      word ``s`` with ``n`` readings averaged::
+
+          σ = repeatability · k_f · (speed_factors[s]/√n)
+              · (√r·|Z| + r·(low_impedance + |Z|²/high_impedance))
+
+    So the relative error is ``relative`` in the middle of the range and grows at low ``|Z|``
+    (an impedance floor), at high ``|Z|`` (an admittance floor), at high frequency and at low
+    test levels.
+    """
+
+    relative: float
+    low_impedance: float
+    high_impedance: float
+    frequency_corner: float
+    reference_level: float = 1.0
+    repeatability: float = 0.0
+    speed_factors: dict[str, float] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
 class Dialect:
     """A loaded, validated dialect. Times are seconds, frequencies hertz."""
 
@@ -124,6 +156,7 @@ class Dialect:
     retries: int = 2
     retry_wait: float = 0.2
     warning_codes: frozenset[int] = frozenset()
+    accuracy: MeterAccuracy | None = None
 
     @property
     def has_list(self) -> bool:

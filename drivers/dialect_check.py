@@ -13,6 +13,7 @@ import string
 from pathlib import Path
 from typing import Any
 
+from drivers.accuracy_check import MISSING, check_accuracy
 from drivers.dialect import (
     OPERATIONS,
     OWN_PLACEHOLDERS,
@@ -35,7 +36,7 @@ def check_dialect(path: Path, data: dict[str, Any]) -> Dialect:
     return _Checker(path, data).dialect()
 
 
-_MISSING = object()
+_MISSING = MISSING
 
 
 class _Checker:
@@ -92,7 +93,7 @@ class _Checker:
             top,
             "",
             {"schema", "name", "description", "connection", "frequency", "reading", "errors"}
-            | {"transfer", "list", "sequence", "operations"},
+            | {"transfer", "list", "sequence", "operations", "accuracy"},
         )
         schema = self.get(top, "schema", int)
         if schema != SCHEMA:
@@ -127,6 +128,7 @@ class _Checker:
             list_min_points=list_min,
             settle=settle,
             warning_codes=frozenset(codes),
+            accuracy=check_accuracy(self, operations),
             **transfer,
             **conn,
         )

@@ -284,6 +284,9 @@ def test_the_previous_simulated_dialect_fails_on_its_speed_command(tmp_path):
 def test_another_meter_family_may_keep_a_speed_header_of_that_spelling(tmp_path):
     edits = {
         r"^setup = .*$": 'setup = { command = "FORM:BORD NORM" }',
-        r"^set_speed = .*$": 'set_speed = { command = "SPE {speed}", choices = { fast = "F" } }',
+        r"^set_speed = .*$": (
+            'set_speed = { command = "SPE {speed}", '
+            'choices = { fast = "F", medium = "M", slow = "S" } }'
+        ),
     }
     assert load_dialect(variant(tmp_path, edits)).operations["set_speed"].command == "SPE {speed}"

@@ -52,14 +52,24 @@ def test_noise_is_unbiased_and_of_the_model_size(meter, sim):
     exact = complex(sim.seen_impedance(1e4))
     m, magnitude = sim.meter, abs(exact)
     # The documented model (COMMANDS.md, "Time and noise") at 4 periods per reading (the meter's
-    # reference), 1 V, no averaging.
+    # reference), 1 V (r = reference level / 1 V), no averaging.
+    r = m.reference_level / 1.0
     sigma = (
         m.accuracy_class
         * (1 + 1e4 / m.frequency_corner)
-        * (magnitude + m.low_impedance_corner + magnitude**2 / m.high_impedance_corner)
+        * (
+            np.sqrt(r) * magnitude
+            + r * (m.low_impedance_corner + magnitude**2 / m.high_impedance_corner)
+        )
+    )
+    # The mean is off by at most the meter's systematic error (measurement.py), within its bound.
+    bound = (
+        m.systematic_accuracy
+        * (1 + 1e4 / m.frequency_corner)
+        * (magnitude + r * (m.low_impedance_corner + magnitude**2 / m.high_impedance_corner))
     )
     for part, truth in ((z.real, exact.real), (z.imag, exact.imag)):
-        assert abs(part.mean() - truth) < 5 * sigma / np.sqrt(N)
+        assert abs(part.mean() - truth) < bound + 5 * sigma / np.sqrt(N)
         assert np.std(part, ddof=1) == pytest.approx(sigma, rel=5 / np.sqrt(2 * N))
 
 

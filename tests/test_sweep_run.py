@@ -80,7 +80,11 @@ def test_corrected_ls_matches_the_simulated_coil_through_long_leads(store):
     raw_error = np.abs(quantities(f, raw)["Ls"] / true_ls - 1)
     corrected_error = np.abs(quantities(f, corrected)["Ls"] / true_ls - 1)
     assert raw_error.min() > 0.10
-    assert corrected_error.max() < 0.005
+    # The simulated meter's stated accuracy (drivers/dialects/simulated.toml [accuracy]: 0.1 %
+    # of |Z| plus a 0.2 ohm floor per part, as a systematic error) allows up to about 0.5 % of X
+    # at 1 kHz, where this 0.08 ohm coil sits on the floor (computed); above 5 kHz, 0.2 %.
+    assert corrected_error.max() < 0.01
+    assert corrected_error[f > 5e3].max() < 0.003
 
 
 def test_points_stream_in_blocks_while_the_meter_measures():

@@ -78,6 +78,7 @@ class Instrument:
         self.seed = seed
         _, spread, fault = np.random.SeedSequence(seed).spawn(3)
         self.readings = streams.ReadingCounter(seed)
+        self.systematic_key = np.random.SeedSequence([seed, streams.SYSTEMATIC])
         self.spread_rng = np.random.default_rng(spread)
         self.faults.reseed(np.random.default_rng(fault))
 
@@ -173,7 +174,7 @@ class Instrument:
         await asyncio.sleep(measurement.duration(conditions))
         forced = self.faults.overrange(np.asarray(conditions.frequency, dtype=float))
         normals = self.readings.draw(streams.POINTS, len(conditions.frequency))
-        reading = measurement.read_impedance(conditions, normals, forced)
+        reading = measurement.read_impedance(conditions, normals, forced, self.systematic_key)
         self.last = reading
         return reading
 

@@ -1,9 +1,26 @@
 """One measurement of the simulated meter: how long it takes, what it reads, how it is sent.
 
-A reading is the DUT seen through the fixture (:mod:`drivers.simulator.physics`), plus seeded
-noise, with overrange (``|Z|`` above the meter's limit, or an armed overrange fault) and invalid
-(nothing in the fixture) points flagged. It is encoded as pairs of values named by
+A reading is the DUT seen through the fixture (:mod:`drivers.simulator.physics`), plus the
+meter's errors, with overrange (``|Z|`` above the meter's limit, or an armed overrange fault)
+and invalid (nothing in the fixture) points flagged. It is encoded as pairs of values named by
 ``FORMat:PAIR`` (with ``CIRCuit`` and ``UNIT:ANGLe``), in ASCII or as a block of IEEE 754 float64.
+
+The meter's errors (what the simulated dialect's ``[accuracy]`` states, and what makes its
+stated uncertainty honest) are two independent parts, both off with ``SIMulate:NOISe OFF``:
+
+- a *systematic* error per session (seed), per half-decade of frequency and per decade of
+  ``|Z|``, uniform within ``±b`` on R and on X (:func:`error_bound`,
+  :func:`drivers.simulator.physics.systematic_error`); repeats and averaging do not remove it;
+- *noise*: normal, independent per reading and part, standard deviation ``σ``
+  (:func:`noise_deviation`), divided by ``√n`` when the meter averages ``n`` readings.
+
+With ``b = 0.1 %`` and ``σ = 0.05 %`` of ``|Z|`` in mid-range (sim_profiles/simulated-meter.toml)
+the two are of the same size (``b/√3 ≈ 0.058 %``): the sum of a rectangular and a normal error
+of about equal standard deviations is close to normal, so ``U = 2u`` covers about 96 % of the
+errors of one reading (computed), and more standards in the correction bring it closer to 95 %.
+A single rectangular error alone would be covered 100 % at ``k = 2``; a normal error alone,
+95.4 %. The systematic draws come from the session's seed and the cell alone (not from the noise
+stream), so the noise draws are exactly those of a meter without systematic error.
 """
 
 from __future__ import annotations
@@ -85,14 +102,34 @@ def noise_deviation(conditions: Conditions, magnitude: np.ndarray, f: np.ndarray
     )
 
 
+def error_bound(conditions: Conditions, magnitude: np.ndarray, f: np.ndarray) -> np.ndarray:
+    """Bound in ohm on the systematic error of R and of X of readings of ``magnitude`` at ``f``."""
+    meter = conditions.meter
+    return physics.error_bound(
+        magnitude,
+        f,
+        meter.systematic_accuracy,
+        meter.low_impedance_corner,
+        meter.high_impedance_corner,
+        meter.frequency_corner,
+        level_ratio=meter.reference_level / conditions.level,
+    )
+
+
 def read_impedance(
-    conditions: Conditions, normals: np.ndarray, forced_overrange: np.ndarray
+    conditions: Conditions,
+    normals: np.ndarray,
+    forced_overrange: np.ndarray,
+    key: np.random.SeedSequence | None = None,
 ) -> Reading:
-    """The reading at ``conditions.frequency``: DUT through fixture, plus noise, flags.
+    """The reading at ``conditions.frequency``: DUT through fixture, plus the meter's errors, flags.
 
     ``normals`` holds one pair of standard normal draws per frequency (see
-    :mod:`drivers.simulator.streams`).
+    :mod:`drivers.simulator.streams`); ``key`` fixes the session's systematic errors (seed 0's
+    when not given).
     """
+    if key is None:
+        key = np.random.SeedSequence(0)
     f = np.asarray(conditions.frequency, dtype=float)
     seen = conditions.fixture.seen(f, conditions.dut.impedance(f))
     invalid = np.isnan(seen)
@@ -101,8 +138,10 @@ def read_impedance(
     overrange |= forced_overrange & ~invalid
     z = np.where(invalid | overrange, 0.0, seen)
     if conditions.noise:
-        deviation = noise_deviation(conditions, np.abs(z), f)
-        z = physics.add_noise(z, deviation, normals)
+        magnitude = np.abs(z)
+        deviation = noise_deviation(conditions, magnitude, f)
+        bound = error_bound(conditions, magnitude, f)
+        z = physics.add_noise(z, deviation, normals) + physics.systematic_error(z, f, bound, key)
     return Reading(frequency=f, z=z, overrange=overrange, invalid=invalid)
 
 

@@ -159,3 +159,4 @@ class MeterProfile:
     reference_periods: float
     description: str = ""
     path: Path | None = None
+    systematic_accuracy: float = 0.0

@@ -126,6 +126,7 @@ _METER_SCHEMA = {
     "reference_level": _Key("V", positive=True),
     "minimum_reading_time": _Key("s", positive=True),
     "reference_periods": _Key("", positive=True),
+    "systematic_accuracy": _Key("", 0.0),
 }
 _METER_TEXT = ("manufacturer", "model", "serial", "firmware")
 

@@ -18,6 +18,8 @@ import numpy as np
 #: The kinds of reading, each with a stream of its own.
 POINTS = 0
 DC = 1
+#: Not a stream of draws: the key of the meter's systematic errors for a seed.
+SYSTEMATIC = 2
 
 
 def _key(seed: int, stream: int) -> np.ndarray:

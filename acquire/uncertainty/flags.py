@@ -1,0 +1,56 @@
+"""Where a derived value is past what the tool can measure: flagged, not shown as a number.
+
+A value is *beyond accuracy* when
+
+- its expanded uncertainty is as large as the value itself (``U ≥ |value|``): not even its sign
+  is known, or either is not finite; or
+- it is a quantity a passive part cannot make negative (Rs, Rp, G, Q, D) and it is below zero
+  by more than its expanded uncertainty (``value < −U``): the correction has gone past the
+  range where its model and the stated accuracy hold (for example a coil far above its
+  self-resonance read through a fixture whose open is close to the coil).
+
+The display shows such a value as "beyond accuracy" instead of a number; the store keeps the
+point's flag words (:data:`BEYOND_ACCURACY`).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from acquire.impedance import quantities
+from acquire.uncertainty.quantities import quantity_uncertainty
+
+#: The flag word of a point with a value past the tool's accuracy (store column ``flags``).
+BEYOND_ACCURACY = "beyond-accuracy"
+#: Quantities a passive part cannot make negative.
+NEVER_NEGATIVE = ("Rs", "Rp", "G", "Q", "D")
+#: What a coil's sweep shows, the default for :func:`point_flags`.
+DEFAULT_NAMES = ("Ls", "Rs", "Q")
+
+
+def beyond_accuracy(f, z, cov, names=DEFAULT_NAMES) -> dict[str, np.ndarray]:
+    """Per quantity in ``names``, a boolean array: True where its value is beyond accuracy."""
+    values = quantities(f, z)
+    spread = quantity_uncertainty(f, z, cov, names)
+    out = {}
+    with np.errstate(invalid="ignore"):
+        for name in names:
+            v, u = values[name], spread[name]
+            bad = ~np.isfinite(v) | ~np.isfinite(u) | (u >= np.abs(v))
+            if name in NEVER_NEGATIVE:
+                bad |= v < -u
+            out[name] = bad
+    return out
+
+
+def point_flags(f, z, cov, names=DEFAULT_NAMES) -> np.ndarray:
+    """Per point, ``"beyond-accuracy"`` if a quantity in ``names`` is beyond accuracy, else ``""``.
+
+    An array of strings, ready for the store's ``flags`` column.
+    """
+    bad = beyond_accuracy(f, z, cov, names)
+    shape = np.broadcast_shapes(np.shape(f), np.shape(z))
+    anyone = np.zeros(shape, dtype=bool)
+    for b in bad.values():
+        anyone |= b
+    return np.where(anyone, BEYOND_ACCURACY, "")

@@ -1,0 +1,177 @@
+"""Propagating uncertainty through the open/short/load correction by its Jacobian.
+
+Every correction of :mod:`acquire.compensation.formulas` is ``Zx = K·(Zm − Zs)/(Zo − Zm)`` (with
+an open) or ``Zx = K·(Zm − Zs)`` (without), ``Zs = 0`` without a short, and ``K`` depends on the
+method. The map is holomorphic in each complex input ``w`` (``Zm, Zo, Zs, Zl, Zt``), so its
+derivative ``g = ∂Zx/∂w`` is one complex number, and the real Jacobian of ``(Re Zx, Im Zx)``
+with respect to ``(Re w, Im w)`` is (Cauchy–Riemann)::
+
+    J = [[Re g, −Im g],
+         [Im g,  Re g]]
+
+With independent inputs the covariance of the result is ``Σ J·V_w·Jᵀ`` over the inputs, where
+``V_w`` is the 2×2 covariance of ``(Re w, Im w)`` (JCGM 100:2008 5.1.2 in matrix form;
+JCGM 102:2011 6.2.1.3). Nothing assumes ``V_w`` to be circular: an input with different
+uncertainties of its real and imaginary parts, or correlated parts, is carried as it is.
+
+The derivatives, with ``N = Zm − Zs`` and ``D = Zo − Zm`` (``D = 1`` without an open)::
+
+    ∂Zx/∂Zm = K·(Zo − Zs)/D²      (K without an open)
+    ∂Zx/∂Zs = −K/D + (Zx/K)·∂K/∂Zs
+    ∂Zx/∂Zo = −K·N/D² + (Zx/K)·∂K/∂Zo
+    ∂Zx/∂Zl = (N/D)·∂K/∂Zl,   ∂Zx/∂Zt = (N/D)·∂K/∂Zt
+
+and ``∂K`` from the table of ``K`` per method (see :func:`sensitivities`). Like any first-order
+propagation this is exact only for a linear model; it is good where the map is nearly linear
+over the spread of the inputs, and poor where a reading comes close to the open (``D → 0``),
+where a Monte Carlo propagation (JCGM 101:2008) is the reference.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from acquire.compensation import formulas
+from acquire.errors import InputError
+
+NAMES = ("zm", "zo", "zs", "zl", "zt")
+
+
+def as_covariance(u, shape: tuple[int, ...]) -> np.ndarray:
+    """The ``shape + (2, 2)`` covariance (ohm²) of the real and imaginary parts from ``u``.
+
+    ``u`` is None (no uncertainty), a standard uncertainty the same for both parts (a number or
+    an array of ``shape``), one per part (``shape + (2,)``, [u_R, u_X]) or a covariance already
+    (``shape + (2, 2)``).
+    """
+    out = np.zeros(shape + (2, 2))
+    if u is None:
+        return out
+    u = np.asarray(u, dtype=float)
+    if u.shape == shape + (2, 2):
+        return np.broadcast_to(u, out.shape).copy()
+    if u.shape == shape + (2,):
+        out[..., 0, 0] = u[..., 0] ** 2
+        out[..., 1, 1] = u[..., 1] ** 2
+        return out
+    try:
+        u = np.broadcast_to(u, shape)
+    except ValueError:
+        raise InputError(
+            f"an uncertainty of shape {u.shape} does not fit {shape} points; give one per point, "
+            "one per point and part (n, 2), or a covariance (n, 2, 2)"
+        ) from None
+    out[..., 0, 0] = out[..., 1, 1] = u**2
+    return out
+
+
+def _k_and_partials(zo, zs, zl, zt) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    """``K`` of the method the standards given imply, and its derivatives."""
+    one = np.ones_like(zo if zo is not None else zs if zs is not None else zl)
+    zs0 = 0.0 if zs is None else zs
+    if zl is not None:
+        span = zl - zs0
+        if zo is not None:  # open-short-load (or open-load with zs0 = 0)
+            k = zt * (zo - zl) / span
+            dk = {
+                "zt": (zo - zl) / span,
+                "zo": zt / span,
+                "zl": -zt * (zo - zs0) / span**2,
+                "zs": zt * (zo - zl) / span**2,
+            }
+        else:  # short-load, load
+            k = zt / span
+            dk = {"zt": 1.0 / span, "zl": -zt / span**2, "zs": zt / span**2}
+    elif zo is not None:  # open-short, open
+        k = zo - zs0
+        dk = {"zo": one, "zs": -one}
+    else:  # short
+        k = one
+        dk = {}
+    return k, dk
+
+
+def sensitivities(zm, zo=None, zs=None, zl=None, zt=None) -> dict[str, np.ndarray]:
+    """``∂Zx/∂w`` (complex) for each input ``w`` given: keys ``zm``, ``zo``, ``zs``, ``zl``, ``zt``.
+
+    The method follows from the standards given, as in
+    :func:`acquire.compensation.formulas.correction`.
+    """
+    zm = np.asarray(zm, dtype=complex)
+    std = [
+        None if a is None else np.broadcast_to(np.asarray(a, dtype=complex), zm.shape)
+        for a in (zo, zs, zl, zt)
+    ]
+    zo, zs, zl, zt = std
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        k, dk = _k_and_partials(zo, zs, zl, zt)
+        n = zm if zs is None else zm - zs
+        d = 1.0 if zo is None else zo - zm
+        ratio = n / d  # Zx / K
+        out = {"zm": k * (1.0 if zo is None else (zo - (0.0 if zs is None else zs)) / d**2)}
+        if zs is not None:
+            out["zs"] = -k / d + ratio * dk.get("zs", 0.0)
+        if zo is not None:
+            out["zo"] = -k * n / d**2 + ratio * dk["zo"]
+        if zl is not None:
+            out["zl"] = ratio * dk["zl"]
+            out["zt"] = ratio * dk["zt"]
+    return {name: np.broadcast_to(g, zm.shape) for name, g in out.items()}
+
+
+def real_jacobian(g: np.ndarray) -> np.ndarray:
+    """The ``(..., 2, 2)`` real Jacobian of a holomorphic map with complex derivative ``g``."""
+    g = np.asarray(g, dtype=complex)
+    j = np.empty(g.shape + (2, 2))
+    j[..., 0, 0] = g.real
+    j[..., 0, 1] = -g.imag
+    j[..., 1, 0] = g.imag
+    j[..., 1, 1] = g.real
+    return j
+
+
+def propagate(
+    zm, u_m=None, zo=None, u_o=None, zs=None, u_s=None, zl=None, u_l=None, zt=None, u_t=None
+) -> tuple[np.ndarray, np.ndarray]:
+    """Corrected impedance and the covariance of its real and imaginary parts, per point.
+
+    ``zm`` are readings of the DUT; ``zo``, ``zs``, ``zl`` the open, short and load readings at
+    the same frequencies (None where not taken); ``zt`` the load's true value (needed with a
+    load). Each ``u_*`` is the uncertainty of that input in any form :func:`as_covariance`
+    takes (None for none); the inputs are taken as independent. Returns ``(zx, cov)``: ``zx``
+    as :func:`acquire.compensation.formulas.correction` computes it, ``cov`` of shape
+    ``zx.shape + (2, 2)`` in ohm². A point with no finite value has a NaN covariance.
+    """
+    zm = np.asarray(zm, dtype=complex)
+    shape = zm.shape
+    inputs = {"zo": zo, "zs": zs, "zl": zl, "zt": zt}
+    given = {
+        k: np.broadcast_to(np.asarray(v, dtype=complex), shape)
+        for k, v in inputs.items()
+        if v is not None
+    }
+    if not any(k in given for k in ("zo", "zs", "zl")):
+        raise InputError("no standard given: the correction needs an open, a short or a load")
+    if "zl" in given and "zt" not in given:
+        raise InputError("a load reading needs the load's true impedance (zt)")
+    corr = formulas.correction(given.get("zo"), given.get("zs"), given.get("zl"), given.get("zt"))
+    zx = corr.apply(zm)
+    grads = sensitivities(zm, **given)
+    us = {"zm": u_m, "zo": u_o, "zs": u_s, "zl": u_l, "zt": u_t}
+    cov = np.zeros(shape + (2, 2))
+    with np.errstate(invalid="ignore", over="ignore"):
+        for name, g in grads.items():
+            v = as_covariance(us[name], shape)
+            if not np.any(v):
+                continue
+            j = real_jacobian(g)
+            cov = cov + j @ v @ np.swapaxes(j, -1, -2)
+    cov = np.where(np.isfinite(zx)[..., None, None], cov, np.nan)
+    return zx, cov
+
+
+def expanded(cov, k: float = 2.0) -> np.ndarray:
+    """Expanded uncertainty ``k·√diag`` of R and of X, shape ``(..., 2)``, from covariances."""
+    cov = np.asarray(cov, dtype=float)
+    with np.errstate(invalid="ignore"):
+        return k * np.sqrt(np.diagonal(cov, axis1=-2, axis2=-1))

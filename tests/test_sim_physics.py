@@ -29,13 +29,32 @@ def toml(name: str) -> dict:
         return tomllib.load(fh)
 
 
+def wire_reference(f: np.ndarray, p: dict) -> np.ndarray:
+    """The winding's own impedance. A round wire: Z/R_dc = (j x/2)(ber x + j bei x)/(ber' x +
+    j bei' x), x = sqrt(2) a/delta (the Kelvin-function form of the exact round-wire solution,
+    e.g. H. B. Dwight, Electrical Coils and Conductors, McGraw-Hill 1945), the excess resistance
+    times the profile's proximity factor; else the profile's resistance law."""
+    from scipy.special import bei, beip, ber, berp
+
+    rho = p.get("resistivity", 1 / 58e6)
+    if "wire_diameter" not in p:
+        corner = p["ac_corner_frequency"]
+        return p["dc_resistance"] * np.sqrt(1 + (f / corner) ** 2) ** p.get("ac_exponent", 0.5)
+    a = p["wire_diameter"] / 2
+    rdc = p.get("dc_resistance") or rho * p["wire_length"] / (np.pi * a**2)
+    x = np.sqrt(2) * a / np.sqrt(rho / (np.pi * f * 4e-7 * np.pi))
+    ratio = 0.5j * x * (ber(x) + 1j * bei(x)) / (berp(x) + 1j * beip(x))
+    return rdc * (1 + p.get("proximity_factor", 1.0) * (ratio.real - 1) + 1j * ratio.imag)
+
+
 def coil_reference(f: np.ndarray, p: dict) -> np.ndarray:
-    """Equivalent circuit, written as admittances: Y = jwC + 1/(R_ac + w L tan(delta) + jwL)."""
+    """Equivalent circuit, written as admittances: Y = jwC + 1/(Z_wire + jwL mu(f)), with the
+    core's mu(f) = (1 - j tan(delta))/(1 + j f/f_r) (a Debye relaxation)."""
     w = 2 * np.pi * f
-    r_ac = p["dc_resistance"] * np.sqrt(1 + (f / p["ac_corner_frequency"]) ** 2) ** p.get(
-        "ac_exponent", 0.5
+    mu = (1 - 1j * p.get("core_loss_tangent", 0.0)) / (
+        1 + 1j * f / p.get("core_relaxation_frequency", np.inf)
     )
-    branch = r_ac + w * p["inductance"] * p.get("core_loss_tangent", 0.0) + 1j * w * p["inductance"]
+    branch = wire_reference(f, p) + 1j * w * p["inductance"] * mu
     return 1 / (1j * w * p.get("capacitance", 0.0) + 1 / branch)
 
 
@@ -78,7 +97,8 @@ def assert_close(actual: np.ndarray, expected: np.ndarray, rel: float) -> None:
 @pytest.mark.parametrize("name", ["air-core-coil", "ferrite-choke", "rf-coil", "demo-coil"])
 def test_coil_matches_its_equivalent_circuit(meter, name):
     meter.query(f'SIM:DUT "{name}";*OPC?')
-    assert_close(measure(meter, FREQUENCIES), coil_reference(FREQUENCIES, toml(name)), 1e-12)
+    # 1e-10: two formulations of the round-wire Bessel functions agree to about 1e-11.
+    assert_close(measure(meter, FREQUENCIES), coil_reference(FREQUENCIES, toml(name)), 1e-10)
 
 
 @pytest.mark.parametrize("fixture", ["bench-leads", "long-leads"])
@@ -86,7 +106,7 @@ def test_coil_seen_through_the_leads(meter, fixture):
     meter.query(f'SIM:DUT "demo-coil";SIM:FIXT "{fixture}";*OPC?')
     z_dut = coil_reference(FREQUENCIES, toml("demo-coil"))
     expected = through_leads(FREQUENCIES, z_dut, toml(fixture))
-    assert_close(measure(meter, FREQUENCIES), expected, 1e-12)
+    assert_close(measure(meter, FREQUENCIES), expected, 1e-10)
 
 
 def test_cable_fixture_matches_scikit_rf_cascade(meter):
@@ -170,16 +190,18 @@ def test_self_resonance_at_the_lc_frequency(sim, tmp_path):
 @pytest.mark.parametrize("name", ["air-core-coil", "rf-coil", "demo-coil"])
 def test_self_resonance_of_the_lossy_coils(sim, name):
     # (R + jwL) || C has zero reactance where w^2 = 1/(LC) - (R/L)^2 (standard circuit theory),
-    # with R = R_ac(f) taken at that frequency (solved here by fixed-point iteration).
+    # with R and L (external plus the wire's internal) taken at that frequency (solved here by
+    # fixed-point iteration).
     p = toml(name)
-    L, C = p["inductance"], p["capacitance"]
-    f0 = 1 / (2 * np.pi * np.sqrt(L * C))
+    C = p["capacitance"]
+    f0 = 1 / (2 * np.pi * np.sqrt(p["inductance"] * C))
     f = f0
     for _ in range(50):
-        r = p["dc_resistance"] * (1 + (f / p["ac_corner_frequency"]) ** 2) ** 0.25
+        wire = wire_reference(np.array([f]), p)[0]
+        r, L = wire.real, p["inductance"] + wire.imag / (2 * np.pi * f)
         f = np.sqrt(1 / (L * C) - (r / L) ** 2) / (2 * np.pi)
     assert _zero_reactance(sim, name, f0) == pytest.approx(f, rel=1e-9)
-    assert f == pytest.approx(f0, rel=1e-5)
+    assert f == pytest.approx(f0, rel=1e-3)  # the wire's internal inductance lowers it a little
 
 
 def test_self_resonance_seen_through_pyvisa(meter):
@@ -189,7 +211,8 @@ def test_self_resonance_seen_through_pyvisa(meter):
     f = f0 * np.linspace(0.98, 1.02, 201)
     z = measure(meter, f)
     assert z[0].imag > 0 > z[-1].imag
-    assert abs(f[np.argmax(np.abs(z))] / f0 - 1) <= 0.0002 + 1e-12
+    # within a grid step and the 0.04 % by which the wire's internal inductance lowers it
+    assert abs(f[np.argmax(np.abs(z))] / f0 - 1) <= 0.0006
 
 
 def test_demo_coil_resonates_near_7_mhz():

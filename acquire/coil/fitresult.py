@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -50,9 +51,15 @@ class CoilFit:
     parameters: tuple[tuple[str, float], ...]
     start: StartValues
     notes: tuple[str, ...] = field(default_factory=tuple)
+    #: True when the per-point uncertainties were given, False when estimated from the data.
+    noise_given: bool = False
+    #: χ²/ν of the best circuit (about 1 when it describes the sweep within the noise given).
+    reduced_chi2: float = math.nan
+    #: Each candidate circuit and its weight in the averaged values.
+    model_weights: tuple[tuple[str, float], ...] = ()
 
     def get(self, key: str) -> FittedValue:
-        """The result named ``key``: L, Rdc, fc, n, Cp, tand, SRF, Qmax, fQmax."""
+        """The result named ``key``: L, Rdc, fc, n, fw, kp, Cp, tand, SRF, Qmax, fQmax."""
         for value in self.values:
             if value.key == key:
                 return value

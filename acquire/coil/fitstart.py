@@ -30,17 +30,39 @@ class StartValues:
     corner: float
 
 
-def clean_sweep(frequency, impedance) -> tuple[np.ndarray, np.ndarray, int]:
-    """Sorted finite points of a sweep and how many non-finite (overrange, invalid) were dropped."""
+def per_point_sigma(sigma, n: int) -> np.ndarray | None:
+    """``sigma`` as an ``(n, 2)`` array (R and X columns), from a number, ``(n,)`` or ``(n, 2)``."""
+    if sigma is None:
+        return None
+    s = np.asarray(sigma, dtype=float)
+    if s.ndim == 0 or s.shape == (n,):
+        s = np.broadcast_to(s.reshape(-1, 1) if s.ndim else s, (n, 2))
+    if s.shape != (n, 2):
+        raise ModelError(
+            f"the uncertainties have shape {s.shape}, the sweep {n} points: give one per point "
+            "(or one for R and one for X per point)"
+        )
+    return np.array(s)
+
+
+def clean_sweep(frequency, impedance, sigma=None):
+    """Sorted finite points of a sweep, their uncertainties (``(n, 2)`` or None) and how many
+    non-finite (overrange, invalid) points, or points without a positive uncertainty, were
+    dropped."""
     f = np.asarray(frequency, dtype=float).ravel()
     z = np.asarray(impedance, dtype=complex).ravel()
     if f.shape != z.shape:
         raise ModelError(f"{f.size} frequencies but {z.size} impedances: the sweep is malformed")
+    s = per_point_sigma(sigma, f.size)
     keep = np.isfinite(f) & np.isfinite(z.real) & np.isfinite(z.imag) & (f > 0)
+    if s is not None:
+        keep &= np.all(np.isfinite(s) & (s > 0), axis=1)
     dropped = int(f.size - np.count_nonzero(keep))
     f, z = f[keep], z[keep]
     order = np.argsort(f)
     f, z = f[order], z[order]
+    if s is not None:
+        s = s[keep][order]
     if f.size < MIN_POINTS:
         raise ModelError(
             f"only {f.size} usable points: the fit needs at least {MIN_POINTS}; "
@@ -48,7 +70,7 @@ def clean_sweep(frequency, impedance) -> tuple[np.ndarray, np.ndarray, int]:
         )
     if np.any(np.diff(f) <= 0):
         raise ModelError("the sweep repeats a frequency: give each frequency once")
-    return f, z, dropped
+    return f, z, s, dropped
 
 
 def find_resonance(f: np.ndarray, z: np.ndarray) -> float | None:

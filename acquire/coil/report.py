@@ -118,6 +118,7 @@ def fit_summary(fit: CoilFit) -> str:
         "constant": "constant R",
         "skin": "R = Rdc·(1+(f/fc)²)^(n/2), n = 1/2",
         "power": "R = Rdc·(1+(f/fc)²)^(n/2), n free",
+        "wire": "round wire (Bessel functions), proximity factor kp",
     }[fit.resistance_law]
     core = "with a core loss tangent" if fit.core_loss else "no core-loss term"
     return (

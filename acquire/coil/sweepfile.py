@@ -1,15 +1,22 @@
-"""Where the fit's sweep comes from: a sweep in the results store, or a CSV file.
+"""Reading a sweep to fit from a CSV file (the store's sweeps are read by `acquire fit`).
 
 A CSV file needs a frequency column and a resistance and reactance pair. Headers are matched
-without case, spacing or a bracketed unit: ``frequency [Hz]`` (or ``frequency``, ``freq``,
-``f``), then ``corrected R``/``corrected X`` (as `acquire sweep` writes them), ``raw R``/``raw X``
-(with ``raw=True``), or a plain ``R``/``X`` (also ``Rs``/``Xs``). The corrected pair is used
-when present; fitting raw readings is always an explicit choice.
+without case or spacing: ``frequency [Hz]`` (or ``frequency``, ``freq``, ``f``), then
+``corrected R``/``corrected X`` (as `acquire sweep` writes them), ``raw R``/``raw X`` (with
+``raw=True``), a plain ``R``/``X`` (also ``Rs``/``Xs``), or ``Rs`` with ``Ls`` (X = 2πf·Ls),
+or ``Z`` with ``theta`` (R = |Z| cos θ, X = |Z| sin θ). The corrected pair is used when present;
+fitting raw readings is always an explicit choice.
+
+A unit in square brackets after a header is honoured, with an SI prefix (``[kHz]``,
+``[mohm]``, ``[kΩ]``, ``[uH]``/``[µH]``, ``[deg]``/``[rad]``); a header without one is taken in
+SI units (hertz, ohm, henry, degrees for an angle). A unit that does not fit the column
+refuses the file, naming the column.
 """
 
 from __future__ import annotations
 
 import csv
+import math
 import re
 from dataclasses import dataclass
 from pathlib import Path
@@ -19,6 +26,32 @@ import numpy as np
 from acquire.errors import InputError
 
 _FREQUENCY = ("frequency", "freq", "f", "frequency_hz")
+_PREFIX = {"": 1.0, "p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "m": 1e-3}
+_PREFIX |= {"k": 1e3, "M": 1e6, "G": 1e9}
+_BASE = {"Hz": ("Hz", "hz"), "ohm": ("ohm", "Ω", "Ohm", "ohms", "Ω"), "H": ("H",)}
+
+
+def unit_scale(header: str, base: str) -> float:
+    """The factor to SI of the bracketed unit in ``header`` (1 without one); ``base`` is
+    ``Hz``, ``ohm``, ``H`` or ``angle`` (degrees to radians)."""
+    found = re.search(r"\[(.*?)\]", header)
+    unit = found.group(1).strip() if found else ""
+    if base == "angle":
+        table = {"": math.pi / 180, "deg": math.pi / 180, "°": math.pi / 180, "rad": 1.0}
+        if unit in table:
+            return table[unit]
+    elif not unit:
+        return 1.0
+    else:
+        for name in _BASE[base]:
+            if unit.endswith(name) and unit[: -len(name)] in _PREFIX:
+                return _PREFIX[unit[: -len(name)]]
+    want = {"Hz": "Hz, kHz, MHz", "ohm": "ohm, mohm, kohm, Ω", "H": "H, mH, uH, nH"}
+    raise InputError(
+        f"column {header!r}: unit {unit!r} is not understood (use {want.get(base, 'deg or rad')})"
+    )
+
+
 _PLAIN_R = ("r", "rs", "resistance")
 _PLAIN_X = ("x", "xs", "reactance")
 
@@ -37,22 +70,25 @@ def _key(header: str) -> str:
     return re.sub(r"[\s_-]+", "_", text)
 
 
-def _pick(columns: dict[str, int], raw: bool) -> tuple[int, int, int, str]:
+def _pick(columns: dict[str, int], raw: bool) -> tuple[int, str, int, int, str]:
+    """Frequency column, the pair's kind (``RX``, ``RL``, ``Ztheta``), its two columns, and what."""
     f_col = next((columns[k] for k in _FREQUENCY if k in columns), None)
     if f_col is None:
         raise InputError("the CSV file has no frequency column (expected a header 'frequency')")
-    pairs = [("raw_r", "raw_x", "raw readings")] if raw else [
-        ("corrected_r", "corrected_x", "corrected readings"),
+    pairs = [("raw_r", "raw_x", "RX", "raw readings")] if raw else [
+        ("corrected_r", "corrected_x", "RX", "corrected readings"),
     ]  # fmt: skip
-    pairs += [(r, x, "readings") for r in _PLAIN_R for x in _PLAIN_X]
-    for r_key, x_key, what in pairs:
-        if r_key in columns and x_key in columns:
-            return f_col, columns[r_key], columns[x_key], what
-    if not raw and "raw_r" in columns:
+    pairs += [(r, x, "RX", "readings") for r in _PLAIN_R for x in _PLAIN_X]
+    pairs += [(r, "ls", "RL", "readings") for r in ("rs", "r")]
+    pairs += [(z, t, "Ztheta", "readings") for z in ("z", "abs_z") for t in ("theta", "phase")]
+    if not raw and "raw_r" in columns and "corrected_r" not in columns:
         raise InputError(
             "the CSV file has only raw readings (no corrected R and X): pass --raw to fit them "
             "with the fixture included, or sweep with a reference set"
         )
+    for a_key, b_key, kind, what in pairs:
+        if a_key in columns and b_key in columns:
+            return f_col, kind, columns[a_key], columns[b_key], what
     raise InputError("the CSV file needs R and X columns (e.g. 'corrected R [ohm]', 'R', 'X')")
 
 
@@ -72,46 +108,27 @@ def read_csv_sweep(path: str | Path, raw: bool = False) -> SweepSource:
         rows = [row for row in csv.reader(handle) if row and not row[0].startswith("#")]
     if len(rows) < 2:
         raise InputError(f"{path} has no data rows under its header")
-    columns = {_key(h): i for i, h in enumerate(rows[0])}
-    f_col, r_col, x_col, what = _pick(columns, raw)
+    header = rows[0]
+    columns = {_key(h): i for i, h in enumerate(header)}
+    f_col, kind, a_col, b_col, what = _pick(columns, raw)
+    units = {"RX": ("ohm", "ohm"), "RL": ("ohm", "H"), "Ztheta": ("ohm", "angle")}[kind]
+    f_scale = unit_scale(header[f_col], "Hz")
+    a_scale = unit_scale(header[a_col], units[0])
+    b_scale = unit_scale(header[b_col], units[1])
     f, z = [], []
     for line, row in enumerate(rows[1:], start=2):
-        if len(row) <= max(f_col, r_col, x_col):
+        if len(row) <= max(f_col, a_col, b_col):
             raise InputError(f"line {line} of {path} has too few columns")
-        f.append(_number(row[f_col], line))
-        z.append(complex(_number(row[r_col], line), _number(row[x_col], line)))
+        freq = _number(row[f_col], line) * f_scale
+        a = _number(row[a_col], line) * a_scale
+        b = _number(row[b_col], line) * b_scale
+        if kind == "RL":
+            b = 2.0 * math.pi * freq * b
+        elif kind == "Ztheta":
+            a, b = a * math.cos(b), a * math.sin(b)
+        f.append(freq)
+        z.append(complex(a, b))
     return SweepSource(np.array(f), np.array(z), f"{path}: {len(f)} points, {what}")
 
 
-def read_store_sweep(store_url: str, sweep_id: int, raw: bool = False) -> SweepSource:
-    """Read sweep ``sweep_id`` from the results store at ``store_url``."""
-    from acquire.store import open_store
-
-    with open_store(store_url) as store:
-        info = store.sweep_info(sweep_id)
-        points = store.sweep_points(sweep_id)
-    prefix = "raw" if raw else "corrected"
-    r = points[f"{prefix}_r"].to_numpy(dtype=float)
-    x = points[f"{prefix}_x"].to_numpy(dtype=float)
-    if not raw and points.shape[0] and np.all(np.isnan(r)):
-        raise InputError(
-            f"sweep {sweep_id} was stored without a reference set, so it has no corrected "
-            "readings: pass --raw to fit the raw ones (fixture included)"
-        )
-    dut = f" of {info.dut}" if info.dut else ""
-    status = "" if info.status == "complete" else f" ({info.status})"
-    description = (
-        f"sweep {sweep_id}{dut} in {store_url}{status}: {len(r)} points, {prefix} readings"
-    )
-    return SweepSource(points["frequency"].to_numpy(dtype=float), r + 1j * x, description)
-
-
-def read_sweep(source: str, store_url: str, raw: bool = False) -> SweepSource:
-    """A sweep id (digits) from the store, else a CSV file path."""
-    text = source.strip()
-    if text.isdigit():
-        return read_store_sweep(store_url, int(text), raw)
-    return read_csv_sweep(text, raw)
-
-
-__all__ = ["SweepSource", "read_csv_sweep", "read_store_sweep", "read_sweep"]
+__all__ = ["SweepSource", "read_csv_sweep", "unit_scale"]

@@ -48,12 +48,79 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="include a core loss tangent (default: when the data needs it)",
     )
     parser.add_argument("--plain", action="store_true", help="plain text instead of tables")
+    parser.add_argument(
+        "--json", action="store_true", help="print the fitted quantities as JSON (see the docs)"
+    )
     add_geometry_arguments(parser, required=False)
+
+
+def read_store_sweep(store_url: str, sweep_id: int, raw: bool = False):
+    """Sweep ``sweep_id`` of the results store, through the store's public API."""
+    import numpy as np
+
+    from acquire.coil.sweepfile import SweepSource
+    from acquire.errors import InputError
+    from acquire.store import open_store
+
+    with open_store(store_url) as store:
+        info = store.sweep_info(sweep_id)
+        points = store.sweep_points(sweep_id)
+    prefix = "raw" if raw else "corrected"
+    r = points[f"{prefix}_r"].to_numpy(dtype=float)
+    x = points[f"{prefix}_x"].to_numpy(dtype=float)
+    if not raw and points.shape[0] and np.all(np.isnan(r)):
+        raise InputError(
+            f"sweep {sweep_id} was stored without a reference set, so it has no corrected "
+            "readings: pass --raw to fit the raw ones (fixture included)"
+        )
+    dut = f" of {info.dut}" if info.dut else ""
+    status = "" if info.status == "complete" else f" ({info.status})"
+    description = (
+        f"sweep {sweep_id}{dut} in {store_url}{status}: {len(r)} points, {prefix} readings"
+    )
+    return SweepSource(points["frequency"].to_numpy(dtype=float), r + 1j * x, description)
+
+
+def read_sweep(source: str, store_url: str, raw: bool = False):
+    """A sweep id (digits) from the store, else a CSV file path."""
+    from acquire.coil.sweepfile import read_csv_sweep
+
+    text = source.strip()
+    if text.isdigit():
+        return read_store_sweep(store_url, int(text), raw)
+    return read_csv_sweep(text, raw)
+
+
+def fit_json(fit) -> dict:
+    """The fit as the JSON document shared with `acquire predict --json`."""
+    quantities = []
+    for v in fit.values:
+        rel = None if v.value is None or v.sigma is None or v.value == 0 else abs(v.sigma / v.value)
+        method = "equivalent-circuit fit: weighted least squares, averaged over circuits"
+        if v.value is not None and v.sigma is None:
+            method += "; no uncertainty stated"
+        if v.note:
+            method = f"{method}; {v.note}"
+        lower = None
+        if v.value is None and v.note.startswith("not in the sweep: above"):
+            lower = fit.frequency_range[1]
+        quantities.append(
+            {
+                "name": v.key,
+                "label": v.label,
+                "value": v.value,
+                "unit": v.unit,
+                "relative_accuracy": rel,
+                "lower_bound": lower,
+                "method": method,
+                "standard_uncertainty": v.sigma,
+            }
+        )
+    return {"command": "fit", "quantities": quantities, "notes": list(fit.notes)}
 
 
 def run(args: argparse.Namespace) -> int:
     from acquire.coil import compare, compare_text, fit_sweep, predict
-    from acquire.coil.sweepfile import read_sweep
     from acquire.commands.predict import geometry_from_args
 
     geometry = geometry_from_args(args)
@@ -64,6 +131,11 @@ def run(args: argparse.Namespace) -> int:
         resistance_law=None if args.law == "auto" else args.law,
         core_loss={"auto": None, "yes": True, "no": False}[args.core_loss],
     )
+    if args.json:
+        import json
+
+        print(json.dumps(fit_json(fit), ensure_ascii=False))
+        return 0
     prediction = predict(geometry) if geometry is not None else None
     if args.plain:
         print(source.description)

@@ -3,20 +3,41 @@
 Pure functions of numpy arrays in SI units (hertz, henry, ohm, farad, siemens, metre, volt).
 Nothing here knows about SCPI, profiles or sockets.
 
-The coil model is the usual lumped equivalent circuit: a series branch ``R_ac(f) + jωL`` (with an
-optional core loss) in parallel with the winding's self-capacitance ``C``. Its self-resonance is
-near ``1/(2π√(LC))``.
+The coil model is a series branch (the winding and, optionally, its core) in parallel with the
+winding's self-capacitance ``C``. Its self-resonance is where the phase crosses zero, near
+``1/(2π√(LC))``.
 
-The AC resistance follows a growth law with a corner frequency ``f_c`` and an exponent ``n``::
+The winding is described in one of two ways:
 
-    R_ac(f) = R_dc · (1 + (f/f_c)²)^(n/2)
+- **round wire** (``wire_radius`` given): the exact solution for a straight round wire carrying
+  alternating current, with the current density ``J(r) ∝ J0(kr)``, ``k = (1 − j)/δ`` and skin
+  depth ``δ = √(ρ/(π f µ0))``. The wire's internal impedance over its DC resistance is::
 
-Well below ``f_c`` it is ``R_dc``; well above it grows as ``(f/f_c)^n``. With ``n = 0.5`` (the
-default) that is the skin-effect asymptote ``R ∝ √f``; a larger ``n`` stands for proximity effect in
-a tightly wound coil. ``f_c`` is roughly where the skin depth falls to the wire's radius.
+      Z_wire / R_dc = (ka/2) · J0(ka) / J1(ka)
 
-Core loss is a constant loss tangent ``tan δ = μ''/μ'`` of the core's complex permeability, so the
-inductive branch is ``jωL(1 - j tan δ) = ωL tan δ + jωL``.
+  (S. Ramo, J. R. Whinnery, T. Van Duzer, *Fields and Waves in Communication Electronics*,
+  3rd ed., Wiley 1994, section 5.5, "impedance of round wires"). Its real part is the AC
+  resistance ratio; its imaginary part is the internal reactance, ``ωL_int`` with
+  ``L_int(0) = µ0·l/(8π)`` at DC, falling as the current crowds to the surface. The Bessel
+  functions of complex argument are :func:`scipy.special.jve` (exponentially scaled, so the
+  ratio does not overflow for thick wires at high frequency).
+
+  Neighbouring turns add loss (proximity effect). We model it, by our own choice, as a
+  multiplier ``p`` of the excess resistance: ``R = R_dc·(1 + p·(Re(Z_wire/R_dc) − 1))``, which
+  keeps the isolated wire's frequency dependence (``f²`` rise below the corner, ``√f`` above) and
+  scales its size; ``p = 1`` is the isolated wire. The internal reactance is not scaled.
+- **resistance law** (no wire radius): ``R_ac(f) = R_dc · (1 + (f/f_c)²)^(n/2)``, flat below
+  the corner ``f_c`` and growing as ``f^n`` above it; no internal inductance.
+
+The core (optional) turns ``jωL`` into ``jωL·µ(f)`` with the relative complex permeability,
+normalised to 1 at DC::
+
+    µ(f) = (1 − j·tan δ0) / (1 + j·f/f_r)
+
+a constant loss tangent ``tan δ0`` (the hysteresis-like part) times a single Debye relaxation
+of frequency ``f_r`` (P. Debye, *Polar Molecules*, 1929; for ferrites J. L. Snoek, Physica 14,
+207 (1948)): the loss tangent grows with frequency, ``tan δ ≈ tan δ0 + f/f_r`` well below
+``f_r``, while ``µ'`` falls as ``1/(1 + (f/f_r)²)``. Without ``f_r`` the tangent is constant.
 
 The fixture is a linear two-port between the meter's terminals and the DUT, built from (meter side
 first) an optional lossless transmission line, the leads' series residual ``R_s + jωL_s`` and the
@@ -27,9 +48,13 @@ stray shunt ``G_p + jωC_p`` across the DUT's terminals. The meter sees
 from __future__ import annotations
 
 import numpy as np
+from scipy.optimize import brentq
+from scipy.special import jve
 
 #: Speed of light in vacuum, m/s (exact, SI definition).
 SPEED_OF_LIGHT = 299_792_458.0
+#: Magnetic constant µ0, H/m (CODATA 2018 recommended value).
+MU0 = 1.25663706212e-6
 
 
 def omega(f: np.ndarray | float) -> np.ndarray:
@@ -50,6 +75,45 @@ def ac_resistance(
     return dc_resistance * (1.0 + (f / corner_frequency) ** 2) ** (exponent / 2.0)
 
 
+def round_wire_ratio(f: np.ndarray | float, radius: float, resistivity: float) -> np.ndarray:
+    """``Z_wire/R_dc = (ka/2)·J0(ka)/J1(ka)`` of a round wire, ``k = (1 − j)/δ`` (complex)."""
+    f = np.asarray(f, dtype=float)
+    x = radius * np.sqrt(np.pi * f * MU0 / resistivity)
+    ka = (1.0 - 1.0j) * x
+    small = x < 1e-3
+    safe = np.where(small, 1.0, ka)
+    exact = safe / 2.0 * jve(0, safe) / jve(1, safe)
+    return np.where(small, 1.0 + 0.25j * x**2, exact)
+
+
+def core_permeability(
+    f: np.ndarray | float, loss_tangent: float = 0.0, relaxation_frequency: float | None = None
+) -> np.ndarray:
+    """Relative complex permeability of the core, 1 at DC: ``(1 − j tanδ0)/(1 + j f/f_r)``."""
+    f = np.asarray(f, dtype=float)
+    mu = np.full(f.shape, 1.0 - 1j * loss_tangent)
+    if relaxation_frequency is not None:
+        mu = mu / (1.0 + 1j * f / relaxation_frequency)
+    return mu
+
+
+def winding_impedance(
+    f: np.ndarray | float,
+    dc_resistance: float,
+    corner_frequency: float | None = None,
+    exponent: float = 0.5,
+    wire_radius: float | None = None,
+    resistivity: float | None = None,
+    proximity_factor: float = 1.0,
+) -> np.ndarray:
+    """The wire's own impedance (ohm): resistance and internal reactance (see the module doc)."""
+    f = np.asarray(f, dtype=float)
+    if wire_radius is None:
+        return ac_resistance(f, dc_resistance, corner_frequency, exponent).astype(complex)
+    ratio = round_wire_ratio(f, wire_radius, resistivity)
+    return dc_resistance * (1.0 + proximity_factor * (ratio.real - 1.0) + 1j * ratio.imag)
+
+
 def coil_impedance(
     f: np.ndarray | float,
     inductance: float,
@@ -58,15 +122,48 @@ def coil_impedance(
     corner_frequency: float | None = None,
     exponent: float = 0.5,
     core_loss_tangent: float = 0.0,
+    *,
+    wire_radius: float | None = None,
+    resistivity: float | None = None,
+    proximity_factor: float = 1.0,
+    core_relaxation_frequency: float | None = None,
 ) -> np.ndarray:
-    """Impedance of a coil: ``(R_ac(f) + ωL·tanδ + jωL) ∥ 1/(jωC)``."""
+    """Impedance of a coil: ``(Z_wire(f) + jωL·µ(f)) ∥ 1/(jωC)``.
+
+    ``inductance`` is the external inductance (the flux outside the wire) at DC; with a round
+    wire the low-frequency inductance is ``L + µ0·l/(8π)`` (see :func:`internal_inductance`).
+    """
     w = omega(f)
-    series = (
-        ac_resistance(f, dc_resistance, corner_frequency, exponent)
-        + w * inductance * core_loss_tangent
-        + 1j * w * inductance
-    )
+    series = winding_impedance(
+        f, dc_resistance, corner_frequency, exponent, wire_radius, resistivity, proximity_factor
+    ) + 1j * w * inductance * core_permeability(f, core_loss_tangent, core_relaxation_frequency)
     return series / (1.0 + 1j * w * capacitance * series)
+
+
+def internal_inductance(dc_resistance: float, wire_radius: float, resistivity: float) -> float:
+    """DC internal inductance ``µ0·l/(8π)`` of a round wire of length ``l = R_dc·πa²/ρ`` (H)."""
+    length = dc_resistance * np.pi * wire_radius**2 / resistivity
+    return float(MU0 * length / (8.0 * np.pi))
+
+
+def phase_zero(impedance, f_low: float, f_high: float, points: int = 4000) -> float | None:
+    """Lowest frequency in ``[f_low, f_high]`` where ``impedance(f)``'s reactance turns from
+    positive to negative (the self-resonance), to 1e-12 relative; None if it does not."""
+    grid = np.geomspace(f_low, f_high, points)
+    x = impedance(grid).imag
+    change = np.flatnonzero((x[:-1] > 0) & (x[1:] <= 0))
+    if change.size == 0:
+        return None
+    i = int(change[0])
+    return float(
+        brentq(
+            lambda v: float(impedance(np.array([v]))[0].imag),
+            grid[i],
+            grid[i + 1],
+            xtol=1e-12 * grid[i],
+            rtol=1e-13,
+        )
+    )
 
 
 def resistor_impedance(

@@ -47,15 +47,7 @@ class DutProfile:
         f = np.atleast_1d(np.asarray(f, dtype=float))
         v = self.values
         if self.kind == "coil":
-            return physics.coil_impedance(
-                f,
-                v["inductance"],
-                v["dc_resistance"],
-                v["capacitance"],
-                v["ac_corner_frequency"],
-                v["ac_exponent"],
-                v["core_loss_tangent"],
-            )
+            return self._coil_impedance(f)
         if self.kind in ("resistor", "load"):
             return physics.resistor_impedance(
                 f, v["resistance"], v["series_inductance"], v["parallel_capacitance"]
@@ -69,6 +61,51 @@ class DutProfile:
         if self.kind == "short":
             return physics.short_impedance(f)
         return np.full(f.shape, complex(np.nan, np.nan))
+
+    def _coil_impedance(self, f: np.ndarray) -> np.ndarray:
+        v = self.values
+        diameter = v.get("wire_diameter")
+        return physics.coil_impedance(
+            f,
+            v["inductance"],
+            v["dc_resistance"],
+            v["capacitance"],
+            v["ac_corner_frequency"],
+            v["ac_exponent"],
+            v["core_loss_tangent"],
+            wire_radius=None if diameter is None else diameter / 2.0,
+            resistivity=v.get("resistivity"),
+            proximity_factor=v.get("proximity_factor", 1.0),
+            core_relaxation_frequency=v.get("core_relaxation_frequency"),
+        )
+
+    def true_values(self, f_high: float = 1e9) -> dict[str, float | None]:
+        """What a fit of this coil should find, from its exact physics (coils only).
+
+        - ``L``: the low-frequency inductance, external plus the wire's DC internal inductance
+          ``µ0·l/(8π)`` (what ``X/ω`` tends to as ``f → 0``), henry;
+        - ``Rdc``: the DC resistance, ohm;
+        - ``Cp``: the parallel self-capacitance, farad;
+        - ``SRF``: the lowest frequency up to ``f_high`` where the exact impedance's phase
+          crosses zero from inductive to capacitive, hertz (None if there is none).
+        """
+        if self.kind != "coil":
+            raise AttributeError(f"{self.name!r} is a {self.kind}, not a coil: no true values")
+        v = self.values
+        inductance = float(v["inductance"])
+        if v.get("wire_diameter") is not None:
+            inductance += physics.internal_inductance(
+                v["dc_resistance"], v["wire_diameter"] / 2.0, v["resistivity"]
+            )
+        srf = None
+        if v["capacitance"]:
+            srf = physics.phase_zero(self._coil_impedance, 1.0, f_high)
+        return {
+            "L": inductance,
+            "Rdc": float(v["dc_resistance"]),
+            "Cp": float(v["capacitance"]),
+            "SRF": srf,
+        }
 
     @property
     def dc_value(self) -> float:

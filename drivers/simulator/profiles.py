@@ -7,9 +7,15 @@ inductance) raises :class:`~drivers.errors.ProfileError` naming the file and the
 
 Kinds and their keys (``?`` marks an optional key, with its default):
 
-- ``coil``: ``inductance`` H, ``dc_resistance`` ohm, ``capacitance?`` F = 0 (parallel
-  self-capacitance), ``ac_corner_frequency?`` Hz (none: R stays at its DC value),
-  ``ac_exponent?`` = 0.5, ``core_loss_tangent?`` = 0 (see :mod:`drivers.simulator.physics`).
+- ``coil``: ``inductance`` H (external, at DC), ``capacitance?`` F = 0 (parallel
+  self-capacitance), ``core_loss_tangent?`` = 0 and ``core_relaxation_frequency?`` Hz (none:
+  a constant loss tangent), and the winding either as a round wire, ``wire_diameter`` m,
+  ``resistivity?`` ohm·m = 1.7241e-8 (annealed copper at 20 °C, IEC 60028), ``proximity_factor?``
+  = 1, and ``wire_length`` m or ``dc_resistance`` ohm (one of the two), or as a resistance law,
+  ``dc_resistance`` ohm, ``ac_corner_frequency?`` Hz (none: R stays at its DC value),
+  ``ac_exponent?`` = 0.5 (see :mod:`drivers.simulator.physics`). With a wire length the DC
+  resistance is ``ρ·l/(πa²)``; ``values["dc_resistance"]`` always holds it, and the physics
+  uses it (a drawn unit's resistance stands for a longer or shorter wire).
 - ``resistor`` and ``load`` (a load standard): ``resistance`` ohm, ``series_inductance?`` H = 0,
   ``parallel_capacitance?`` F = 0.
 - ``capacitor``: ``capacitance`` F, ``series_resistance?`` ohm = 0, ``series_inductance?`` H = 0.
@@ -82,14 +88,22 @@ class _Key:
         return self.default == "required"
 
 
+#: Resistivity of annealed copper at 20 °C, ohm·m (IEC 60028: 1/58 ohm·mm²/m).
+COPPER_RESISTIVITY = 1.0 / 58e6
+
 _DUT_SCHEMA: dict[str, dict[str, _Key]] = {
     "coil": {
         "inductance": _Key("H", positive=True),
-        "dc_resistance": _Key("ohm"),
+        "dc_resistance": _Key("ohm", None),
         "capacitance": _Key("F", 0.0),
         "ac_corner_frequency": _Key("Hz", None, positive=True),
         "ac_exponent": _Key("", 0.5),
         "core_loss_tangent": _Key("", 0.0),
+        "core_relaxation_frequency": _Key("Hz", None, positive=True),
+        "wire_diameter": _Key("m", None, positive=True),
+        "wire_length": _Key("m", None, positive=True),
+        "resistivity": _Key("ohm m", COPPER_RESISTIVITY, positive=True),
+        "proximity_factor": _Key("", 1.0),
     },
     "resistor": {
         "resistance": _Key("ohm"),
@@ -105,6 +119,30 @@ _DUT_SCHEMA: dict[str, dict[str, _Key]] = {
     "short": {},
 }
 _DUT_SCHEMA["load"] = _DUT_SCHEMA["resistor"]
+
+
+def _coil_winding(path: Path, values: dict[str, float | None]) -> None:
+    """Check the coil's winding is described one way, and fill in its DC resistance."""
+    wire, length, rdc = values["wire_diameter"], values["wire_length"], values["dc_resistance"]
+    if wire is not None and values["ac_corner_frequency"] is not None:
+        raise ProfileError(
+            f"{path}: give either 'wire_diameter' (round-wire physics) or "
+            "'ac_corner_frequency' (a resistance law), not both"
+        )
+    if length is not None:
+        if wire is None:
+            raise ProfileError(f"{path}: 'wire_length' needs 'wire_diameter' (m)")
+        if rdc is not None:
+            raise ProfileError(
+                f"{path}: give either 'wire_length' or 'dc_resistance', not both "
+                "(the DC resistance follows from the wire)"
+            )
+        values["dc_resistance"] = values["resistivity"] * length / (math.pi * (wire / 2) ** 2)
+    elif rdc is None:
+        raise ProfileError(
+            f"{path}: missing key 'dc_resistance' (ohm), or give 'wire_diameter' and 'wire_length'"
+        )
+
 
 _FIXTURE_SCHEMA = {
     "series_resistance": _Key("ohm"),
@@ -219,6 +257,8 @@ def dut_from_dict(data: Mapping[str, Any], name: str, path: Path | None = None) 
     kind = _kind(where_path, data, DUT_KINDS + STANDARD_KINDS)
     schema = _DUT_SCHEMA[kind]
     values = _values(where_path, data, schema, extra=("kind", "description", "spread", "faults"))
+    if kind == "coil":
+        _coil_winding(where_path, values)
     spread_table = data.get("spread", {})
     if not isinstance(spread_table, dict):
         raise ProfileError(f"{where_path}: 'spread' must be a table of relative spreads")

@@ -16,6 +16,7 @@ import pytest
 from scipy.special import jv
 
 from acquire.coil import fit_sweep
+from acquire.coil.report import fit_table, fit_text
 from acquire.errors import ModelError
 
 
@@ -171,11 +172,11 @@ def test_fit_prints_as_text_and_table():
     L, R, C, radius, _, f0, f1 = COILS["demo-coil"]
     f = np.geomspace(f0, f1, 101)
     fit = fit_sweep(f, _noisy(_textbook(f, L, R, C, radius), seed=4))
-    text = fit.text()
+    text = fit_text(fit)
     assert "inductance (L)" in text and "self-resonant frequency (SRF)" in text
     assert "residual" in text
     console = Console(width=160, record=True)
-    console.print(fit.table())
+    console.print(fit_table(fit))
     assert "parallel capacitance (Cp)" in console.export_text()
     model = fit.impedance(f)
     assert model.shape == f.shape and np.iscomplexobj(model)

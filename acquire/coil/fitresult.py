@@ -10,7 +10,6 @@ from numpy.typing import ArrayLike
 
 from acquire.coil.circuit import impedance_from_parameters
 from acquire.coil.fitstart import StartValues
-from acquire.coil.report import fit_table, fit_text
 
 
 @dataclass(frozen=True)
@@ -89,11 +88,3 @@ class CoilFit:
     def impedance(self, frequency: ArrayLike) -> np.ndarray:
         """The fitted circuit's impedance (ohm) at ``frequency`` (hertz)."""
         return impedance_from_parameters(np.asarray(frequency, dtype=float), dict(self.parameters))
-
-    def table(self):
-        """A :class:`rich.table.Table` of the results."""
-        return fit_table(self)
-
-    def text(self) -> str:
-        """The results as aligned plain text."""
-        return fit_text(self)

@@ -121,6 +121,7 @@ def fit_json(fit) -> dict:
 
 def run(args: argparse.Namespace) -> int:
     from acquire.coil import compare, compare_text, fit_sweep, predict
+    from acquire.coil.report import fit_table, fit_text
     from acquire.commands.predict import geometry_from_args
 
     geometry = geometry_from_args(args)
@@ -139,7 +140,7 @@ def run(args: argparse.Namespace) -> int:
     prediction = predict(geometry) if geometry is not None else None
     if args.plain:
         print(source.description)
-        print(fit.text())
+        print(fit_text(fit))
         if prediction is not None:
             print()
             print(compare_text(prediction, fit))
@@ -148,7 +149,7 @@ def run(args: argparse.Namespace) -> int:
 
     console = Console()
     console.print(source.description)
-    console.print(fit.table())
+    console.print(fit_table(fit))
     if prediction is not None:
         console.print(compare(prediction, fit))
     return 0

@@ -37,7 +37,6 @@ import dataclasses
 import math
 import tomllib
 from collections.abc import Mapping
-from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -46,6 +45,15 @@ import numpy as np
 import sim_profiles
 from drivers.errors import ProfileError
 from drivers.simulator.faults import FAULT_KINDS, FaultSpec
+from drivers.simulator.profile_schema import (
+    DUT_SCHEMA,
+    FIXTURE_SCHEMA,
+    LINE_SCHEMA,
+    METER_SCHEMA,
+    METER_TEXT,
+    Key,
+    coil_winding,
+)
 from drivers.simulator.profile_types import (
     NOTHING,
     DutProfile,
@@ -77,98 +85,6 @@ GROUPS = {
 }
 
 
-@dataclass(frozen=True)
-class _Key:
-    unit: str
-    default: float | None | str = "required"
-    positive: bool = False
-
-    @property
-    def required(self) -> bool:
-        return self.default == "required"
-
-
-#: Resistivity of annealed copper at 20 °C, ohm·m (IEC 60028: 1/58 ohm·mm²/m).
-COPPER_RESISTIVITY = 1.0 / 58e6
-
-_DUT_SCHEMA: dict[str, dict[str, _Key]] = {
-    "coil": {
-        "inductance": _Key("H", positive=True),
-        "dc_resistance": _Key("ohm", None),
-        "capacitance": _Key("F", 0.0),
-        "ac_corner_frequency": _Key("Hz", None, positive=True),
-        "ac_exponent": _Key("", 0.5),
-        "core_loss_tangent": _Key("", 0.0),
-        "core_relaxation_frequency": _Key("Hz", None, positive=True),
-        "wire_diameter": _Key("m", None, positive=True),
-        "wire_length": _Key("m", None, positive=True),
-        "resistivity": _Key("ohm m", COPPER_RESISTIVITY, positive=True),
-        "proximity_factor": _Key("", 1.0),
-    },
-    "resistor": {
-        "resistance": _Key("ohm"),
-        "series_inductance": _Key("H", 0.0),
-        "parallel_capacitance": _Key("F", 0.0),
-    },
-    "capacitor": {
-        "capacitance": _Key("F", positive=True),
-        "series_resistance": _Key("ohm", 0.0),
-        "series_inductance": _Key("H", 0.0),
-    },
-    "open": {},
-    "short": {},
-}
-_DUT_SCHEMA["load"] = _DUT_SCHEMA["resistor"]
-
-
-def _coil_winding(path: Path, values: dict[str, float | None]) -> None:
-    """Check the coil's winding is described one way, and fill in its DC resistance."""
-    wire, length, rdc = values["wire_diameter"], values["wire_length"], values["dc_resistance"]
-    if wire is not None and values["ac_corner_frequency"] is not None:
-        raise ProfileError(
-            f"{path}: give either 'wire_diameter' (round-wire physics) or "
-            "'ac_corner_frequency' (a resistance law), not both"
-        )
-    if length is not None:
-        if wire is None:
-            raise ProfileError(f"{path}: 'wire_length' needs 'wire_diameter' (m)")
-        if rdc is not None:
-            raise ProfileError(
-                f"{path}: give either 'wire_length' or 'dc_resistance', not both "
-                "(the DC resistance follows from the wire)"
-            )
-        values["dc_resistance"] = values["resistivity"] * length / (math.pi * (wire / 2) ** 2)
-    elif rdc is None:
-        raise ProfileError(
-            f"{path}: missing key 'dc_resistance' (ohm), or give 'wire_diameter' and 'wire_length'"
-        )
-
-
-_FIXTURE_SCHEMA = {
-    "series_resistance": _Key("ohm"),
-    "series_inductance": _Key("H"),
-    "shunt_capacitance": _Key("F"),
-    "shunt_conductance": _Key("S"),
-}
-_LINE_SCHEMA = {
-    "impedance": _Key("ohm", positive=True),
-    "length": _Key("m"),
-    "velocity_factor": _Key("", 0.66, positive=True),
-}
-_METER_SCHEMA = {
-    "accuracy_class": _Key("", positive=True),
-    "low_impedance_corner": _Key("ohm", positive=True),
-    "high_impedance_corner": _Key("ohm", positive=True),
-    "frequency_corner": _Key("Hz", positive=True),
-    "max_impedance": _Key("ohm", positive=True),
-    "reference_level": _Key("V", positive=True),
-    "minimum_reading_time": _Key("s", positive=True),
-    "reference_periods": _Key("", positive=True),
-    "systematic_accuracy": _Key("", 0.0),
-}
-_METER_TEXT = ("manufacturer", "model", "serial", "firmware")
-
-
 def _shipped(name: str) -> Path:
     return sim_profiles.path(f"{name}.toml")
 
@@ -197,7 +113,7 @@ def _read(path: Path) -> dict[str, Any]:
         raise ProfileError(f"{path}: cannot read: {exc}") from exc
 
 
-def _number(path: Path, where: str, key: str, value: Any, spec: _Key) -> float:
+def _number(path: Path, where: str, key: str, value: Any, spec: Key) -> float:
     if isinstance(value, bool) or not isinstance(value, int | float):
         raise ProfileError(
             f"{path}: {where}{key!r} must be a number in {spec.unit or 'SI units'}, got {value!r}"
@@ -215,7 +131,7 @@ def _number(path: Path, where: str, key: str, value: Any, spec: _Key) -> float:
 def _values(
     path: Path,
     table: Mapping[str, Any],
-    schema: Mapping[str, _Key],
+    schema: Mapping[str, Key],
     where: str = "",
     extra: tuple[str, ...] = (),
 ) -> dict[str, float | None]:
@@ -255,14 +171,14 @@ def dut_from_dict(data: Mapping[str, Any], name: str, path: Path | None = None) 
     """Build and validate a DUT or standard profile from parsed TOML ``data``."""
     where_path = path or Path(f"<{name}>")
     kind = _kind(where_path, data, DUT_KINDS + STANDARD_KINDS)
-    schema = _DUT_SCHEMA[kind]
+    schema = DUT_SCHEMA[kind]
     values = _values(where_path, data, schema, extra=("kind", "description", "spread", "faults"))
     if kind == "coil":
-        _coil_winding(where_path, values)
+        coil_winding(where_path, values)
     spread_table = data.get("spread", {})
     if not isinstance(spread_table, dict):
         raise ProfileError(f"{where_path}: 'spread' must be a table of relative spreads")
-    spread_schema = {key: _Key("") for key in schema if values[key] is not None}
+    spread_schema = {key: Key("") for key in schema if values[key] is not None}
     spread = {}
     for key, value in spread_table.items():
         if key not in spread_schema:
@@ -315,12 +231,12 @@ def fixture_from_dict(
     """Build and validate a fixture profile from parsed TOML ``data``."""
     where_path = path or Path(f"<{name}>")
     _kind(where_path, data, ("fixture",))
-    values = _values(where_path, data, _FIXTURE_SCHEMA, extra=("kind", "description", "line"))
+    values = _values(where_path, data, FIXTURE_SCHEMA, extra=("kind", "description", "line"))
     line = None
     if "line" in data:
         if not isinstance(data["line"], dict):
             raise ProfileError(f"{where_path}: 'line' must be a table")
-        line = LineSpec(**_values(where_path, data["line"], _LINE_SCHEMA, where="line."))
+        line = LineSpec(**_values(where_path, data["line"], LINE_SCHEMA, where="line."))
     return FixtureProfile(
         name=name,
         line=line,
@@ -334,9 +250,9 @@ def meter_from_dict(data: Mapping[str, Any], name: str, path: Path | None = None
     """Build and validate a meter profile from parsed TOML ``data``."""
     where_path = path or Path(f"<{name}>")
     _kind(where_path, data, ("meter",))
-    extra = ("kind", "description", *_METER_TEXT)
-    values = _values(where_path, data, _METER_SCHEMA, extra=extra)
-    identity = {key: _text(where_path, data, key) for key in _METER_TEXT}
+    extra = ("kind", "description", *METER_TEXT)
+    values = _values(where_path, data, METER_SCHEMA, extra=extra)
+    identity = {key: _text(where_path, data, key) for key in METER_TEXT}
     for key, value in identity.items():
         if any(c in value for c in ',;"\n'):
             raise ProfileError(f'{where_path}: {key!r} must not contain , ; " or a line break')

@@ -1,0 +1,104 @@
+"""The keys each kind of simulator profile may hold, with their units and defaults.
+
+Read by :mod:`drivers.simulator.profiles`, whose docstring lists the kinds and keys in words.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+from drivers.errors import ProfileError
+
+
+@dataclass(frozen=True)
+class Key:
+    unit: str
+    default: float | None | str = "required"
+    positive: bool = False
+
+    @property
+    def required(self) -> bool:
+        return self.default == "required"
+
+
+#: Resistivity of annealed copper at 20 °C, ohm·m (IEC 60028: 1/58 ohm·mm²/m).
+COPPER_RESISTIVITY = 1.0 / 58e6
+
+DUT_SCHEMA: dict[str, dict[str, Key]] = {
+    "coil": {
+        "inductance": Key("H", positive=True),
+        "dc_resistance": Key("ohm", None),
+        "capacitance": Key("F", 0.0),
+        "ac_corner_frequency": Key("Hz", None, positive=True),
+        "ac_exponent": Key("", 0.5),
+        "core_loss_tangent": Key("", 0.0),
+        "core_relaxation_frequency": Key("Hz", None, positive=True),
+        "wire_diameter": Key("m", None, positive=True),
+        "wire_length": Key("m", None, positive=True),
+        "resistivity": Key("ohm m", COPPER_RESISTIVITY, positive=True),
+        "proximity_factor": Key("", 1.0),
+    },
+    "resistor": {
+        "resistance": Key("ohm"),
+        "series_inductance": Key("H", 0.0),
+        "parallel_capacitance": Key("F", 0.0),
+    },
+    "capacitor": {
+        "capacitance": Key("F", positive=True),
+        "series_resistance": Key("ohm", 0.0),
+        "series_inductance": Key("H", 0.0),
+    },
+    "open": {},
+    "short": {},
+}
+DUT_SCHEMA["load"] = DUT_SCHEMA["resistor"]
+
+
+def coil_winding(path: Path, values: dict[str, float | None]) -> None:
+    """Check the coil's winding is described one way, and fill in its DC resistance."""
+    wire, length, rdc = values["wire_diameter"], values["wire_length"], values["dc_resistance"]
+    if wire is not None and values["ac_corner_frequency"] is not None:
+        raise ProfileError(
+            f"{path}: give either 'wire_diameter' (round-wire physics) or "
+            "'ac_corner_frequency' (a resistance law), not both"
+        )
+    if length is not None:
+        if wire is None:
+            raise ProfileError(f"{path}: 'wire_length' needs 'wire_diameter' (m)")
+        if rdc is not None:
+            raise ProfileError(
+                f"{path}: give either 'wire_length' or 'dc_resistance', not both "
+                "(the DC resistance follows from the wire)"
+            )
+        values["dc_resistance"] = values["resistivity"] * length / (math.pi * (wire / 2) ** 2)
+    elif rdc is None:
+        raise ProfileError(
+            f"{path}: missing key 'dc_resistance' (ohm), or give 'wire_diameter' and 'wire_length'"
+        )
+
+
+FIXTURE_SCHEMA = {
+    "series_resistance": Key("ohm"),
+    "series_inductance": Key("H"),
+    "shunt_capacitance": Key("F"),
+    "shunt_conductance": Key("S"),
+}
+LINE_SCHEMA = {
+    "impedance": Key("ohm", positive=True),
+    "length": Key("m"),
+    "velocity_factor": Key("", 0.66, positive=True),
+}
+METER_SCHEMA = {
+    "accuracy_class": Key("", positive=True),
+    "low_impedance_corner": Key("ohm", positive=True),
+    "high_impedance_corner": Key("ohm", positive=True),
+    "frequency_corner": Key("Hz", positive=True),
+    "max_impedance": Key("ohm", positive=True),
+    "reference_level": Key("V", positive=True),
+    "minimum_reading_time": Key("s", positive=True),
+    "reference_periods": Key("", positive=True),
+    "systematic_accuracy": Key("", 0.0),
+}
+METER_TEXT = ("manufacturer", "model", "serial", "firmware")

@@ -81,6 +81,13 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print("acquire: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:
+        # The reader of our output went away (`acquire predict | head`): stop quietly, as the
+        # Python documentation's note on SIGPIPE advises, so the interpreter's final flush of
+        # stdout does not fail again.
+        devnull = os.open(os.devnull, os.O_WRONLY)
+        os.dup2(devnull, sys.stdout.fileno())
+        return 1
     except Exception as exc:  # noqa: BLE001 - turned into one line; --debug re-raises
         if debug or not _is_user_error(exc):
             raise

@@ -18,6 +18,7 @@ from datetime import UTC, datetime, timedelta
 
 import numpy as np
 import pytest
+from store_support import store_location
 
 from acquire.compensation import ReferenceSet
 from acquire.errors import StoreError
@@ -26,7 +27,6 @@ from acquire.store import (
     open_store,
     plan_hash,
 )
-from acquire.store.testing import store_location
 from acquire.store.url import parse_store_url
 
 
@@ -137,11 +137,20 @@ def test_reference_set_round_trip(store):
 
 def test_sweep_round_trip(store):
     settings = {"level": np.float64(1.0), "speed": "slow", "plan": np.array([1e2, 1e3])}
+    u = np.array([[0.02, 0.004], [0.02, 0.01]])
     with store.begin_sweep("demo-coil", settings=settings) as writer:
-        writer.add_points([1e2, 1e3], [4.8 + 0.2j, 4.8 + 2.1j], [4.7 + 0.1j, 4.7 + 2.0j])
+        writer.add_points(
+            [1e2, 1e3], [4.8 + 0.2j, 4.8 + 2.1j], [4.7 + 0.1j, 4.7 + 2.0j], u, ["", "overrange"]
+        )
         assert store.sweep_info(writer.id).status == "running"
         writer.add_points(np.array([1e4]), np.array([complex(np.nan, np.nan)]), None)
-        writer.add_points([1e5], [complex(np.inf, np.inf)], [complex(np.inf, np.inf)])
+        writer.add_points(
+            [1e5],
+            [complex(np.inf, np.inf)],
+            [complex(np.inf, np.inf)],
+            uncertainty=np.array([[np.inf, np.nan]]),
+            flags=["overrange,beyond-accuracy"],
+        )
     info = store.sweep_info(writer.id)
     assert (info.status, info.recorded_status, info.points, info.dut) == (
         "complete",
@@ -152,16 +161,32 @@ def test_sweep_round_trip(store):
     assert info.settings == {"level": 1.0, "speed": "slow", "plan": [100.0, 1000.0]}
     assert info.finished_at >= info.started_at
     points = store.sweep_points(writer.id)
-    assert list(points.columns) == ["frequency", "raw_r", "raw_x", "corrected_r", "corrected_x"]
+    numbers = ["frequency", "raw_r", "raw_x", "corrected_r", "corrected_x", "u_r", "u_x"]
+    assert list(points.columns) == [*numbers, "flags"]
+    nan, inf = np.nan, np.inf
     expected = np.array(
         [
-            [1e2, 4.8, 0.2, 4.7, 0.1],
-            [1e3, 4.8, 2.1, 4.7, 2.0],
-            [1e4, np.nan, np.nan, np.nan, np.nan],
-            [1e5, np.inf, np.inf, np.inf, np.inf],
+            [1e2, 4.8, 0.2, 4.7, 0.1, 0.02, 0.004],
+            [1e3, 4.8, 2.1, 4.7, 2.0, 0.02, 0.01],
+            [1e4, nan, nan, nan, nan, nan, nan],
+            [1e5, inf, inf, inf, inf, inf, nan],
         ]
     )
-    assert np.array_equal(points.to_numpy(), expected, equal_nan=True)
+    assert np.array_equal(points[numbers].to_numpy(), expected, equal_nan=True)
+    assert points["flags"].tolist() == ["", "overrange", "", "overrange,beyond-accuracy"]
+    with store.engine.connect() as conn:
+        stored = conn.exec_driver_sql(
+            f"SELECT u_r, flags FROM sweep_points WHERE sweep_id = {writer.id} AND idx = 2"
+        ).one()
+    assert tuple(stored) == (None, "")
+    bad = store.begin_sweep()
+    with pytest.raises(StoreError, match=r"shape \(2, 2\)"):
+        bad.add_points([1, 2], [1j, 1j], [1j, 1j], uncertainty=[0.1, 0.1])
+    with pytest.raises(StoreError, match="2 strings"):
+        bad.add_points([1, 2], [1j, 1j], [1j, 1j], flags=["overrange"])
+    with pytest.raises(StoreError, match="one string per point"):
+        bad.add_points([1, 2], [1j, 1j], [1j, 1j], flags="ok")
+    bad.finish("interrupted")
     with pytest.raises(StoreError, match="already complete"):
         writer.add_points([1e6], [1j], [1j])
     with pytest.raises(StoreError, match="matching"):

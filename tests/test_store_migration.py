@@ -658,3 +658,13 @@ def test_stations_upgrading_at_once_do_it_once(place):
     assert _raw(url, schema, "SELECT version FROM schema_version ORDER BY version") == [(2,), (3,)]
     with open_store(url, schema=schema) as store:
         check_example(store)
+
+
+def test_declared_revision_is_the_newest_migration():
+    """schema.SCHEMA_REVISION (what the code reads and writes) names the last migration file."""
+    from alembic.script import ScriptDirectory
+
+    script = ScriptDirectory(str(migrate_module.MIGRATIONS))
+    assert script.get_heads() == [SCHEMA_REVISION]
+    files = sorted(p.name for p in (migrate_module.MIGRATIONS / "versions").glob("0*.py"))
+    assert files[-1].startswith(SCHEMA_REVISION + "_")

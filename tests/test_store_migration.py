@@ -668,3 +668,17 @@ def test_declared_revision_is_the_newest_migration():
     assert script.get_heads() == [SCHEMA_REVISION]
     files = sorted(p.name for p in (migrate_module.MIGRATIONS / "versions").glob("0*.py"))
     assert files[-1].startswith(SCHEMA_REVISION + "_")
+
+
+def test_opening_a_current_store_does_not_load_alembic(tmp_path):
+    """Alembic takes a good part of a second to import; a command opening an up-to-date store
+    (every command but the first after an upgrade) should not pay for it."""
+    url = f"sqlite:///{tmp_path / 'current.db'}"
+    open_store(url).close()
+    probe = (
+        "import sys; from acquire.store import open_store; "
+        f"open_store({url!r}).close(); print('alembic' in sys.modules)"
+    )
+    done = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, timeout=60)
+    assert done.returncode == 0, done.stderr
+    assert done.stdout.strip() == "False"

@@ -22,21 +22,23 @@ from __future__ import annotations
 
 from functools import cache
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-from alembic import command
-from alembic.config import Config
-from alembic.runtime.migration import MigrationContext
-from alembic.script import ScriptDirectory
 from sqlalchemy import Connection, inspect, text
 
 from acquire.errors import StoreError
 from acquire.store.engine import Database
 from acquire.store.schema import SCHEMA_REVISION, TABLES
 
+if TYPE_CHECKING:
+    from alembic.config import Config
+
 #: PostgreSQL advisory lock key taken while a store is created or migrated.
 _LOCK_KEY = 0x61637175  # "acqu"
 #: Where the migration scripts are (shipped inside the package).
 MIGRATIONS = Path(__file__).with_name("migrations")
+#: Alembic's table of the revision a store is at.
+VERSION_TABLE = "alembic_version"
 #: The ``schema_version`` the first release wrote, whose layout is revision 0001.
 RELEASED_VERSION = 2
 #: Marks a store found with the first release's layout (see :func:`stored_revision`).
@@ -45,6 +47,8 @@ RELEASED_LAYOUT = "released"
 
 def alembic_config(connection: Connection | None = None) -> Config:
     """An Alembic configuration for the store's migrations (running on ``connection``)."""
+    from alembic.config import Config
+
     config = Config()
     config.set_main_option("script_location", str(MIGRATIONS).replace("%", "%%"))
     config.attributes["connection"] = connection
@@ -54,6 +58,8 @@ def alembic_config(connection: Connection | None = None) -> Config:
 @cache
 def known_revisions() -> frozenset[str]:
     """Every revision id this program's migrations know."""
+    from alembic.script import ScriptDirectory
+
     script = ScriptDirectory.from_config(alembic_config())
     return frozenset(s.revision for s in script.walk_revisions())
 
@@ -61,8 +67,11 @@ def known_revisions() -> frozenset[str]:
 def stored_revision(conn: Connection) -> str | None:
     """The revision of the store on ``conn``: an Alembic revision id, :data:`RELEASED_LAYOUT`
     for a store of the first release, or None when there is no store (or something else) there.
-    Raises StoreError for a store this program cannot open."""
-    heads = MigrationContext.configure(conn).get_current_heads()
+    Raises StoreError for a store this program cannot open. Plain SQL: Alembic (slow to import)
+    is loaded only when there is work to do."""
+    heads: list[str] = []
+    if inspect(conn).has_table(VERSION_TABLE):
+        heads = list(conn.execute(text(f"SELECT version_num FROM {VERSION_TABLE}")).scalars())
     if len(heads) > 1:
         raise StoreError(
             f"the store is at several schema revisions at once ({', '.join(sorted(heads))}): "
@@ -96,6 +105,8 @@ def _check_known(found: str | None, where: str) -> None:
 
 def upgrade(conn: Connection, target: str = "head") -> None:
     """Run the migrations on ``conn`` (inside its transaction) up to ``target``."""
+    from alembic import command
+
     command.upgrade(alembic_config(conn), target)
 
 
@@ -104,9 +115,9 @@ def ensure_schema(db: Database) -> tuple[bool, str | None]:
     the revision being :data:`RELEASED_LAYOUT` for a store of the first release."""
     where = db.location.shown
     found = db.read("reading the schema revision", stored_revision)
-    _check_known(found, where)
     if found == SCHEMA_REVISION:
         return False, found
+    _check_known(found, where)
 
     def work(conn: Connection) -> tuple[bool, str | None]:
         if db.is_postgres:
@@ -124,6 +135,8 @@ def ensure_schema(db: Database) -> tuple[bool, str | None]:
                     "database, another file, or (PostgreSQL) another schema."
                 )
         if found == RELEASED_LAYOUT:
+            from alembic import command
+
             command.stamp(alembic_config(conn), "0001")
         if found != SCHEMA_REVISION:
             upgrade(conn)

@@ -388,7 +388,9 @@ def test_reference_uncertainty_and_repeats_round_trip(store):
     base = _refs()
     n = base.frequency.size
     short_u = np.array([np.nan, 1e-4, 2e-4, np.inf, 5e-4])
-    refs = dataclasses.replace(base, open_u=np.full(n, 30.0), short_u=short_u, repeats=8)
+    refs = dataclasses.replace(
+        base, open_u=np.full(n, 30.0), short_u=short_u, repeats=8, grid_spacing="log"
+    )
     ref_id = store.save_reference_set(refs)
     plain = store.save_reference_set(base)
     with store.engine.connect() as conn:
@@ -408,8 +410,9 @@ def test_reference_uncertainty_and_repeats_round_trip(store):
     back = store.load_reference_set(ref_id)
     assert np.array_equal(back.open_u, np.full(n, 30.0))
     assert np.array_equal(back.short_u, short_u, equal_nan=True)
-    assert back.load_u is None and back.repeats == 8
+    assert back.load_u is None and back.repeats == 8 and back.grid_spacing == "log"
     again = store.load_reference_set(plain)
     assert again.open_u is None and again.short_u is None and again.repeats == 1
+    assert again.grid_spacing == ""
     with pytest.raises((StoreError, CompensationError)):
         store.save_reference_set(dataclasses.replace(refs, open_u=np.ones(n + 1)))

@@ -482,6 +482,7 @@ def check_new_columns(url: str, schema: str | None) -> None:
         (None, None, None)
     ]
     assert _raw(url, schema, "SELECT DISTINCT repeats FROM reference_sets") == [(1,)]
+    assert _raw(url, schema, "SELECT DISTINCT grid_spacing FROM reference_sets") == [("",)]
     assert _raw(url, schema, "SELECT version_num FROM alembic_version") == [(SCHEMA_REVISION,)]
     versions = _raw(url, schema, "SELECT version FROM schema_version ORDER BY version")
     assert versions == [(2,), (3,)]

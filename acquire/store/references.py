@@ -97,6 +97,7 @@ def save_reference_set(
         "points": int(f.size),
         "saved_at": utc_now(),
         "repeats": int(getattr(refs, "repeats", 1) or 1),
+        "grid_spacing": str(getattr(refs, "grid_spacing", "") or ""),
     }
     columns: dict[str, list] = {"frequency": f.tolist()}
     for std in _ARRAYS:
@@ -217,6 +218,8 @@ def load_reference_set(db: Database, ref_id: int) -> ReferenceSet:
             arrays[name] = u.copy()
     if head.repeats != 1 and "repeats" in fields:
         arrays["repeats"] = head.repeats
+    if head.grid_spacing and "grid_spacing" in fields:
+        arrays["grid_spacing"] = head.grid_spacing
     return ReferenceSet(
         table[:, 0].copy(),
         **arrays,

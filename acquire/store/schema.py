@@ -22,7 +22,9 @@ A sweep point's ``u_r`` and ``u_x`` are the expanded uncertainty (k = 2, ohm) of
 and X, NULL when unknown; its ``flags`` is "" for a measured value, else comma-separated words
 (``overrange``, ``beyond-accuracy``, ...). A reference point's ``open_u``, ``short_u`` and
 ``load_u`` are the standard uncertainty (ohm, per component) of that standard's mean reading, NULL
-when it was read once; ``reference_sets.repeats`` says how many readings were averaged.
+when it was read once; ``reference_sets.repeats`` says how many readings were averaged, and
+``grid_spacing`` how the capture's frequencies were laid out (``log``, ``linear``, ``list``, or ''
+when not known), so a set with missing grid points can be told from an irregular list.
 
 Revisions: the layout is changed only by Alembic migrations (:mod:`acquire.store.migrations`);
 this module describes the newest revision, :data:`SCHEMA_REVISION`. Revision 0001 is the layout
@@ -161,6 +163,7 @@ def build_metadata() -> MetaData:
         Column("points", Integer, nullable=False),
         Column("saved_at", UtcDateTime, nullable=False),
         Column("repeats", Integer, nullable=False, default=1, server_default=text("1")),
+        Column("grid_spacing", Text, nullable=False, default="", server_default=""),
     )
     Table(
         "reference_points",

@@ -3,7 +3,7 @@
 ``sweep_points`` gains ``u_r`` and ``u_x`` (expanded uncertainty of the corrected R and X, ohm,
 NULL when unknown) and ``flags`` ('' for a measured value); ``reference_points`` gains
 ``open_u``, ``short_u`` and ``load_u`` (NULL when unknown); ``reference_sets`` gains ``repeats``
-(1 for every set stored before). ``schema_version`` gets version 3, so that a release from before
+(1 for every set stored before) and ``grid_spacing`` ('' for every set stored before: not known). ``schema_version`` gets version 3, so that a release from before
 the migrations refuses the store instead of writing rows that lack these values.
 
 Revision ID: 0002
@@ -42,6 +42,10 @@ def upgrade() -> None:
         "reference_sets",
         sa.Column("repeats", sa.Integer, nullable=False, server_default=sa.text("1")),
     )
+    op.add_column(
+        "reference_sets",
+        sa.Column("grid_spacing", sa.Text, nullable=False, server_default=""),
+    )
     op.get_bind().execute(
         _VERSIONS.insert(),
         {"version": 3, "applied_at": datetime.now(UTC), "note": "kept by Alembic from here on"},
@@ -50,6 +54,7 @@ def upgrade() -> None:
 
 def downgrade() -> None:
     op.get_bind().execute(_VERSIONS.delete().where(_VERSIONS.c.version == 3))
+    op.drop_column("reference_sets", "grid_spacing")
     op.drop_column("reference_sets", "repeats")
     for standard in ("open", "short", "load"):
         op.drop_column("reference_points", f"{standard}_u")

@@ -101,7 +101,7 @@ class ConsoleOperator:
 
 def _new_findings(before: ReferenceSet | None, after: ReferenceSet, severity: str) -> list[str]:
     """Findings of ``severity`` on ``after`` that ``before`` did not have (messages)."""
-    old = Counter()
+    old: Counter[tuple[str, str]] = Counter()
     if before is not None:
         old = Counter((f.standard, f.message) for f in before.check() if f.severity == severity)
     out = []

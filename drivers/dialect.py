@@ -16,7 +16,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal
 
 from drivers.errors import DialectError
 
@@ -142,7 +142,7 @@ class Dialect:
     list_min_points: int = 1
     settle: float = 0.0
     transfer: str = "ascii"
-    datatype: str = "d"
+    datatype: Literal["d", "f"] = "d"
     big_endian: bool = True
     write_termination: str = "\n"
     read_termination: str = "\n"

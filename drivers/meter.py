@@ -12,6 +12,7 @@ reply is retried after a reconnect (see :mod:`drivers.session`).
 
 from __future__ import annotations
 
+import functools
 import logging
 from collections.abc import Callable
 from typing import Any
@@ -225,8 +226,9 @@ class ImpedanceMeter:
         old = scpi.drain_errors(self._next_error, d.warning_codes)
         if old:
             log.info("%s: discarded errors queued before this session: %s", self.resource, old)
-        steps = [(d.operations["setup"], {})] if d.has("setup") else []
-        steps += self._transfer_steps(self._transfer)
+        steps = self._transfer_steps(self._transfer)
+        if d.has("setup"):
+            steps.insert(0, (d.operations["setup"], {}))
         if steps:
             self._io.run(steps)
         try:
@@ -324,7 +326,7 @@ class ImpedanceMeter:
             context = {"frequency": _number(fi)}
             chunk = self._session.call(
                 f"measuring at {fi:g} Hz",
-                lambda c=context: point(c),
+                functools.partial(point, context),
                 all(o.idempotent for o in full),
             )
             values[2 * i : 2 * i + 2] = chunk
@@ -341,13 +343,12 @@ class ImpedanceMeter:
         for start, stop in _chunks(f.size, d.list_max_points):
             part = f[start:stop]
             context = {"frequencies": ",".join(map(_number, part)), "count": str(part.size)}
+            sent = [(op, context) for op in steps]
             timeout = self._timeout(part.size)
             self._mode_known = False
             values = self._session.call(
                 f"list sweep of {part.size} points from {part[0]:g} Hz",
-                lambda c=context, n=part.size, t=timeout: self._io.readings(
-                    [(op, c) for op in steps], n, t, self._binary
-                ),
+                functools.partial(self._io.readings, sent, part.size, timeout, self._binary),
                 all(op.idempotent for op in steps),
             )
             z = readings.from_flat(d.pair, part, values, d.qd_sign)

@@ -15,6 +15,14 @@ from __future__ import annotations
 import os
 import select
 import socket
+from typing import Protocol
+
+
+class BufferedSession(Protocol):
+    """What :class:`RawSocket` uses of a pyvisa-py session: its read-ahead buffer."""
+
+    @property
+    def _pending_buffer(self) -> bytearray: ...
 
 
 class Closed(OSError):
@@ -24,7 +32,7 @@ class Closed(OSError):
 class RawSocket:
     """The socket and read buffer of one pyvisa-py session."""
 
-    def __init__(self, sock: socket.socket, session: object) -> None:
+    def __init__(self, sock: socket.socket, session: BufferedSession) -> None:
         self._sock = sock
         self._session = session
 
@@ -72,7 +80,7 @@ class RawSocket:
     #: The connected TCP socket (owned by pyvisa-py; never closed here).
     _sock: socket.socket
     #: pyvisa-py's session object, whose ``_pending_buffer`` holds bytes read ahead.
-    _session: object
+    _session: BufferedSession
 
 
 def find(resource) -> RawSocket | None:
@@ -80,7 +88,7 @@ def find(resource) -> RawSocket | None:
     sessions = getattr(getattr(resource, "visalib", None), "sessions", {})
     raw = sessions.get(getattr(resource, "session", None))
     sock = getattr(raw, "interface", None)
-    if not isinstance(sock, socket.socket):
+    if raw is None or not isinstance(sock, socket.socket):
         return None
     if not isinstance(getattr(raw, "_pending_buffer", None), bytearray):
         return None

@@ -212,7 +212,11 @@ def find_block(raw: bytes | bytearray) -> tuple[int, int, int]:
 
 
 def block_values(
-    raw: bytes | bytearray, offset: int, length: int, datatype: str = "d", big_endian: bool = True
+    raw: bytes | bytearray,
+    offset: int,
+    length: int,
+    datatype: visa_util.BINARY_DATATYPES = "d",
+    big_endian: bool = True,
 ) -> np.ndarray:
     """The numbers held in a block's data (pyvisa's :func:`pyvisa.util.from_binary_block`)."""
     size = np.dtype(datatype).itemsize
@@ -221,5 +225,14 @@ def block_values(
             f"binary block of {length} bytes does not hold whole {size}-byte values "
             f"or was cut short ({len(raw) - offset} bytes received)"
         )
-    values = visa_util.from_binary_block(raw, offset, length, datatype, big_endian, np.array)
+    # pyvisa documents np.array as a container (and reads it with np.frombuffer), but its
+    # annotation asks for a Sequence, which an ndarray is not.
+    values = visa_util.from_binary_block(
+        raw,
+        offset,
+        length,
+        datatype,
+        big_endian,
+        np.array,  # type: ignore[arg-type]
+    )
     return np.array(values, dtype=float)

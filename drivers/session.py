@@ -27,6 +27,7 @@ from typing import TypeVar
 import pyvisa
 from pyvisa import constants
 from pyvisa.errors import VisaIOError
+from pyvisa.resources import MessageBasedResource
 
 from drivers import rawsocket, scpi
 from drivers.errors import ConnectionLost, InstrumentError, MeterTimeout, ReplyError
@@ -72,7 +73,7 @@ class Session:
         self.on_reopen = on_reopen
         self.reconnects = 0
         self._manager: pyvisa.ResourceManager | None = None
-        self._resource = None
+        self._resource: MessageBasedResource | None = None
         self._socket: rawsocket.RawSocket | None = None
         self._visa_timeout: float | None = None
         self._suspect = False
@@ -85,7 +86,7 @@ class Session:
         try:
             if self._manager is None:
                 self._manager = pyvisa.ResourceManager(self.backend)
-            self._resource = self._manager.open_resource(
+            resource = self._manager.open_resource(
                 self.resource_name,
                 read_termination=self.read_termination,
                 write_termination=self.write_termination,
@@ -101,17 +102,22 @@ class Session:
         except Exception as exc:  # noqa: BLE001 - pyvisa-py raises bare Exception on refusal
             self._resource = None
             raise ConnectionLost(f"cannot open {self.resource_name}: {exc}") from exc
+        if not isinstance(resource, MessageBasedResource):
+            self._resource = None
+            resource.close()
+            raise ConnectionLost(f"{self.resource_name}: not message-based; use INSTR or SOCKET")
+        self._resource = resource
         self._visa_timeout = None
         self._suspect = False
         self._find_socket()
         if self._socket is not None:
-            self._check_connected()
+            self._check_connected(self._socket)
         return self
 
-    def _check_connected(self) -> None:
+    def _check_connected(self, sock: rawsocket.RawSocket) -> None:
         """pyvisa-py reports success on a refused connection; ask the socket itself."""
         try:
-            self._socket.check_connected()
+            sock.check_connected()
         except OSError as exc:
             self._drop_resource()
             raise ConnectionLost(
@@ -275,7 +281,7 @@ class Session:
         self._set_timeout(wait)
         for _ in range(limit):
             try:
-                stale = self._resource.read_raw()
+                stale = self._require().read_raw()
             except (VisaIOError, OSError):
                 return
             log.info("%s: discarded a reply nobody asked for: %r", self.resource_name, stale[:40])
@@ -308,7 +314,7 @@ class Session:
 
     # -- internals -----------------------------------------------------------------------------
 
-    def _require(self):
+    def _require(self) -> MessageBasedResource:
         if self._resource is None:
             raise ConnectionLost(f"{self.resource_name} is not open")
         return self._resource
@@ -316,7 +322,7 @@ class Session:
     def _set_timeout(self, seconds: float) -> None:
         seconds = max(seconds, 0.001)
         if self._visa_timeout != seconds:
-            self._resource.timeout = seconds * 1000.0
+            self._require().timeout = seconds * 1000.0
             self._visa_timeout = seconds
 
     def _ask(self, message: str, timeout: float | None) -> bytes:
@@ -330,7 +336,7 @@ class Session:
         step = seconds / 8
         self._set_timeout(math.ceil(max(deadline - time.monotonic(), 0.0) / step) * step)
         try:
-            return self._resource.read_raw()
+            return self._require().read_raw()
         except VisaIOError as exc:
             raise self._visa_failure(exc, message, seconds) from exc
         except OSError as exc:
@@ -338,7 +344,7 @@ class Session:
 
     def _read_rest(self) -> bytes:
         try:
-            return self._resource.read_raw()
+            return self._require().read_raw()
         except VisaIOError as exc:
             raise self._visa_failure(exc, "(rest of a reply)") from exc
         except OSError as exc:
@@ -346,7 +352,7 @@ class Session:
 
     def _read_bytes(self, count: int) -> bytes:
         try:
-            return self._resource.read_bytes(count)
+            return self._require().read_bytes(count)
         except VisaIOError as exc:
             raise self._visa_failure(exc, "(rest of a binary block)") from exc
         except OSError as exc:

@@ -187,9 +187,9 @@ _PAIRS = (("L", "L"), ("Rdc", "Rdc"), ("C", "Cp"), ("SRF", "SRF"))
 _AGREEMENT = "agrees: |difference| ≤ √(accuracy² + (2σ)²); differs: by that many times"
 
 
-def comparison_rows(prediction: Prediction, fit: CoilFit) -> list[tuple[str, ...]]:
+def comparison_rows(prediction: Prediction, fit: CoilFit) -> list[tuple[str, str, str, str, str]]:
     """Rows of (quantity, predicted ± accuracy, fitted ± 1σ, difference, agreement)."""
-    rows = []
+    rows: list[tuple[str, str, str, str, str]] = []
     for pkey, fkey in _PAIRS:
         e, v = prediction.get(pkey), fit.get(fkey)
         predicted = estimate_value(e)

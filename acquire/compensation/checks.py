@@ -58,6 +58,7 @@ from acquire.compensation import dut_checks, formulas
 from acquire.compensation import grid as grids
 from acquire.compensation.findings import (
     Finding,
+    Severity,
     alike,
     hz,
     most,
@@ -200,7 +201,7 @@ def _load_presence(refs: References) -> list[Finding]:
 
 
 def _distinct_findings(refs: References, grid: np.ndarray) -> list[Finding]:
-    found = []
+    found: list[Finding] = []
     for later, earlier in (("short", "open"), ("load", "open"), ("load", "short")):
         a, b = getattr(refs, later), getattr(refs, earlier)
         if a is None or b is None or any(x.standard == later for x in found):
@@ -271,7 +272,8 @@ def _load_findings(refs: References, grid: np.ndarray) -> list[Finding]:
         if other is not None:
             usable &= ~alike(refs.load, other, refs.load_u, getattr(refs, f"{name}_u"))
     judged &= usable
-    for severity, limit in (("error", LOAD_ERROR), ("warning", LOAD_WARNING)):
+    limits: tuple[tuple[Severity, float], ...] = (("error", LOAD_ERROR), ("warning", LOAD_WARNING))
+    for severity, limit in limits:
         far = judged & (off > limit)
         if np.any(far):
             i = worst(far, off, largest=True)

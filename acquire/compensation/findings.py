@@ -15,6 +15,9 @@ ALIKE_RELATIVE = 0.05
 #: choice: with 3 repeats the scatter itself is known only roughly).
 SCATTER_COVERAGE = 5.0
 
+#: How serious a finding is.
+Severity = Literal["error", "warning"]
+
 
 @dataclass(frozen=True)
 class Finding:
@@ -26,7 +29,7 @@ class Finding:
     or None when the finding is not about one frequency.
     """
 
-    severity: Literal["error", "warning"]
+    severity: Severity
     standard: str
     message: str
     frequency: float | None = None

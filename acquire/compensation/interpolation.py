@@ -131,7 +131,11 @@ def interpolate(
     return np.where(at.exact, z[at.index], z_at)
 
 
-def standards_at(grid: np.ndarray, at: Placement, zo, zs, zl, zt) -> tuple[np.ndarray | None, ...]:
+#: Open, short, load and the load's true value; each None when the set does not have it.
+Standards = tuple[np.ndarray | None, np.ndarray | None, np.ndarray | None, np.ndarray | None]
+
+
+def standards_at(grid: np.ndarray, at: Placement, zo, zs, zl, zt) -> Standards:
     """Open, short, load and load's true value (each None or on ``grid``) at the placed frequencies.
 
     Each standard is interpolated with the fixture effects the ones before it describe taken
@@ -140,8 +144,11 @@ def standards_at(grid: np.ndarray, at: Placement, zo, zs, zl, zt) -> tuple[np.nd
     L-section model misses), in impedance, then put back through the interpolated open and
     short. The load's true value is interpolated in impedance.
     """
-    zs_at = None if zs is None else interpolate(grid, zs, at, admittance=False)
-    series = None if zs is None else (zs, zs_at)
+    zs_at: np.ndarray | None = None
+    series: tuple[np.ndarray, np.ndarray] | None = None
+    if zs is not None:
+        zs_at = interpolate(grid, zs, at, admittance=False)
+        series = (zs, zs_at)
     zo_at = None if zo is None else interpolate(grid, zo, at, admittance=True, series=series)
     zt_at = None if zt is None else interpolate(grid, zt, at, admittance=False)
     if zl is None or (zo is None and zs is None) or at.on_grid:

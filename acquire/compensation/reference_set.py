@@ -61,7 +61,8 @@ class ReferenceSet:
     open: np.ndarray | None = None
     short: np.ndarray | None = None
     load: np.ndarray | None = None
-    load_true: np.ndarray | complex | None = None
+    #: Stored as an array on the grid; one number given at construction is broadcast.
+    load_true: np.ndarray | None = None
     captured_at: datetime | None = None
     fixture: str = ""
     meter: str = ""
@@ -177,12 +178,19 @@ class ReferenceSet:
         """
         f = _array(f, float, "frequency")
         at = place(self._grid, np.atleast_1d(f))
-        moved = dict(
-            zip(IMPEDANCE_FIELDS, standards_at(self._grid, at, *self._impedances), strict=True)
+        zo, zs, zl, zt = standards_at(self._grid, at, *self._impedances)
+        return dataclasses.replace(
+            self,
+            frequency=at.f,
+            grid_spacing="list",
+            open=zo,
+            short=zs,
+            load=zl,
+            load_true=zt,
+            open_u=uncertainty_at(self._grid, self.open_u, at),
+            short_u=uncertainty_at(self._grid, self.short_u, at),
+            load_u=uncertainty_at(self._grid, self.load_u, at),
         )
-        for name in UNCERTAINTY_FIELDS:
-            moved[name] = uncertainty_at(self._grid, getattr(self, name), at)
-        return dataclasses.replace(self, frequency=at.f, grid_spacing="list", **moved)
 
     def check(self, dut=None, f=None) -> list[Finding]:
         """Findings a user can act on, about these references and, if given, a DUT's readings.

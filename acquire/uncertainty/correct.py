@@ -110,7 +110,7 @@ def correct_with_uncertainty(
     settings = {"level": level, "speed": speed, "averaging": averaging}
     repeats = max(1, int(getattr(refs, "repeats", 1) or 1))
     z_std = {name: getattr(at, name) for name in STANDARD_NAMES}
-    u_std = {}
+    u_std: dict[str, np.ndarray | None] = {}
     for name, z in z_std.items():
         if z is None:
             u_std[name] = None

@@ -95,7 +95,8 @@ class _Armed:
 
     def __init__(self, spec: FaultSpec) -> None:
         self.spec = spec
-        self.remaining = spec.n
+        #: Events still to count before it fires (None for a fault with a rate).
+        self.remaining: int | None = spec.n
 
 
 class Faults:
@@ -139,6 +140,8 @@ class Faults:
             if armed.spec.rate is not None:
                 fired |= bool(self._rng.random() < armed.spec.rate)
                 continue
+            if armed.remaining is None:
+                continue
             armed.remaining -= 1
             if armed.remaining == 0:
                 self._armed.remove(armed)
@@ -148,9 +151,11 @@ class Faults:
     def message_arrived(self) -> tuple[bool, list[int]]:
         """Count a message: (close the connection now?, error codes to push before it runs)."""
         drop = self._fire("drop")
-        errors = [a.spec.code for a in self._armed if a.spec.kind == "error"]
+        errors = [
+            a.spec.code for a in self._armed if a.spec.kind == "error" and a.spec.code is not None
+        ]
         self._armed = [a for a in self._armed if a.spec.kind != "error"]
-        return drop, errors  # type: ignore[return-value]
+        return drop, errors
 
     def reply(self, data: bytes) -> bytes | None:
         """Count a reply line (without its LF): ``None`` to send nothing, else what to send."""
@@ -184,7 +189,7 @@ class Faults:
         f = np.asarray(f, dtype=float)
         mask = np.zeros(f.shape, dtype=bool)
         for armed in self._armed:
-            if armed.spec.kind == "overrange":
-                f0 = armed.spec.frequency
+            f0 = armed.spec.frequency
+            if armed.spec.kind == "overrange" and f0 is not None:
                 mask |= np.abs(f - f0) <= OVERRANGE_TOLERANCE * f0
         return mask

@@ -110,6 +110,8 @@ def winding_impedance(
     f = np.asarray(f, dtype=float)
     if wire_radius is None:
         return ac_resistance(f, dc_resistance, corner_frequency, exponent).astype(complex)
+    if resistivity is None:
+        raise ValueError("a round wire (wire_radius) needs its resistivity")
     ratio = round_wire_ratio(f, wire_radius, resistivity)
     return dc_resistance * (1.0 + proximity_factor * (ratio.real - 1.0) + 1j * ratio.imag)
 

@@ -65,6 +65,7 @@ def coil_winding(path: Path, values: dict[str, float | None]) -> None:
             "'ac_corner_frequency' (a resistance law), not both"
         )
     if length is not None:
+        resistivity = values["resistivity"]
         if wire is None:
             raise ProfileError(f"{path}: 'wire_length' needs 'wire_diameter' (m)")
         if rdc is not None:
@@ -72,7 +73,9 @@ def coil_winding(path: Path, values: dict[str, float | None]) -> None:
                 f"{path}: give either 'wire_length' or 'dc_resistance', not both "
                 "(the DC resistance follows from the wire)"
             )
-        values["dc_resistance"] = values["resistivity"] * length / (math.pi * (wire / 2) ** 2)
+        if resistivity is None:
+            raise ProfileError(f"{path}: 'wire_length' needs 'resistivity' (ohm m)")
+        values["dc_resistance"] = resistivity * length / (math.pi * (wire / 2) ** 2)
     elif rdc is None:
         raise ProfileError(
             f"{path}: missing key 'dc_resistance' (ohm), or give 'wire_diameter' and 'wire_length'"

@@ -14,6 +14,7 @@ from typing import Any
 
 import numpy as np
 
+from drivers.errors import ProfileError
 from drivers.simulator import physics
 from drivers.simulator.faults import FaultSpec
 
@@ -42,19 +43,27 @@ class DutProfile:
             f"{type(self).__name__} of kind {self.__dict__.get('kind')!r} has no {key!r}"
         )
 
+    def number(self, key: str) -> float:
+        """The value of ``key``, one its kind always has (its schema gives it a default or
+        requires it); raises :class:`ProfileError` if this profile has none."""
+        value = self.values.get(key)
+        if value is None:
+            raise ProfileError(f"profile {self.name!r} ({self.kind}) has no value for {key!r}")
+        return value
+
     def impedance(self, f: np.ndarray | float) -> np.ndarray:
         """Exact impedance (complex ohm) at ``f``; ``inf`` for an open, ``nan`` for ``none``."""
         f = np.atleast_1d(np.asarray(f, dtype=float))
-        v = self.values
+        n = self.number
         if self.kind == "coil":
             return self._coil_impedance(f)
         if self.kind in ("resistor", "load"):
             return physics.resistor_impedance(
-                f, v["resistance"], v["series_inductance"], v["parallel_capacitance"]
+                f, n("resistance"), n("series_inductance"), n("parallel_capacitance")
             )
         if self.kind == "capacitor":
             return physics.capacitor_impedance(
-                f, v["capacitance"], v["series_resistance"], v["series_inductance"]
+                f, n("capacitance"), n("series_resistance"), n("series_inductance")
             )
         if self.kind == "open":
             return physics.open_impedance(f)
@@ -63,19 +72,20 @@ class DutProfile:
         return np.full(f.shape, complex(np.nan, np.nan))
 
     def _coil_impedance(self, f: np.ndarray) -> np.ndarray:
-        v = self.values
+        v, n = self.values, self.number
         diameter = v.get("wire_diameter")
+        proximity = v.get("proximity_factor")
         return physics.coil_impedance(
             f,
-            v["inductance"],
-            v["dc_resistance"],
-            v["capacitance"],
+            n("inductance"),
+            n("dc_resistance"),
+            n("capacitance"),
             v["ac_corner_frequency"],
-            v["ac_exponent"],
-            v["core_loss_tangent"],
+            n("ac_exponent"),
+            n("core_loss_tangent"),
             wire_radius=None if diameter is None else diameter / 2.0,
             resistivity=v.get("resistivity"),
-            proximity_factor=v.get("proximity_factor", 1.0),
+            proximity_factor=1.0 if proximity is None else proximity,
             core_relaxation_frequency=v.get("core_relaxation_frequency"),
         )
 
@@ -91,30 +101,30 @@ class DutProfile:
         """
         if self.kind != "coil":
             raise AttributeError(f"{self.name!r} is a {self.kind}, not a coil: no true values")
-        v = self.values
-        inductance = float(v["inductance"])
-        if v.get("wire_diameter") is not None:
+        n = self.number
+        inductance = n("inductance")
+        diameter = self.values.get("wire_diameter")
+        if diameter is not None:
             inductance += physics.internal_inductance(
-                v["dc_resistance"], v["wire_diameter"] / 2.0, v["resistivity"]
+                n("dc_resistance"), diameter / 2.0, n("resistivity")
             )
         srf = None
-        if v["capacitance"]:
+        if n("capacitance"):
             srf = physics.phase_zero(self._coil_impedance, 1.0, f_high)
         return {
             "L": inductance,
-            "Rdc": float(v["dc_resistance"]),
-            "Cp": float(v["capacitance"]),
+            "Rdc": n("dc_resistance"),
+            "Cp": n("capacitance"),
             "SRF": srf,
         }
 
     @property
     def dc_value(self) -> float:
         """Resistance at DC in ohm (``inf`` for an open or a capacitor, ``nan`` for ``none``)."""
-        v = self.values
         if self.kind == "coil":
-            return float(v["dc_resistance"])
+            return self.number("dc_resistance")
         if self.kind in ("resistor", "load"):
-            return float(v["resistance"])
+            return self.number("resistance")
         if self.kind in ("open", "capacitor"):
             return math.inf
         if self.kind == "short":

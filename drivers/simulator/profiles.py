@@ -141,13 +141,30 @@ def _values(
         raise ProfileError(f"{path}: unknown key {where}{unknown[0]!r} (allowed: {allowed})")
     out: dict[str, float | None] = {}
     for key, spec in schema.items():
+        default = spec.default
         if key in table:
             out[key] = _number(path, where, key, table[key], spec)
-        elif spec.required:
+        elif isinstance(default, str):  # the marker of a required key
             unit = f" ({spec.unit})" if spec.unit else ""
             raise ProfileError(f"{path}: missing key {where}{key!r}{unit}")
         else:
-            out[key] = spec.default  # type: ignore[assignment]
+            out[key] = default
+    return out
+
+
+def _numbers(
+    path: Path,
+    table: Mapping[str, Any],
+    schema: Mapping[str, Key],
+    where: str = "",
+    extra: tuple[str, ...] = (),
+) -> dict[str, float]:
+    """:func:`_values` for a schema whose every key is required or has a numeric default."""
+    out: dict[str, float] = {}
+    for key, value in _values(path, table, schema, where, extra).items():
+        if value is None:
+            raise ProfileError(f"{path}: {where}{key!r} has no default; give it a value")
+        out[key] = value
     return out
 
 
@@ -231,18 +248,18 @@ def fixture_from_dict(
     """Build and validate a fixture profile from parsed TOML ``data``."""
     where_path = path or Path(f"<{name}>")
     _kind(where_path, data, ("fixture",))
-    values = _values(where_path, data, FIXTURE_SCHEMA, extra=("kind", "description", "line"))
+    values = _numbers(where_path, data, FIXTURE_SCHEMA, extra=("kind", "description", "line"))
     line = None
     if "line" in data:
         if not isinstance(data["line"], dict):
             raise ProfileError(f"{where_path}: 'line' must be a table")
-        line = LineSpec(**_values(where_path, data["line"], LINE_SCHEMA, where="line."))
+        line = LineSpec(**_numbers(where_path, data["line"], LINE_SCHEMA, where="line."))
     return FixtureProfile(
         name=name,
         line=line,
         description=_text(where_path, data, "description", ""),
         path=path,
-        **values,  # type: ignore[arg-type]
+        **values,
     )
 
 
@@ -251,7 +268,7 @@ def meter_from_dict(data: Mapping[str, Any], name: str, path: Path | None = None
     where_path = path or Path(f"<{name}>")
     _kind(where_path, data, ("meter",))
     extra = ("kind", "description", *METER_TEXT)
-    values = _values(where_path, data, METER_SCHEMA, extra=extra)
+    values = _numbers(where_path, data, METER_SCHEMA, extra=extra)
     identity = {key: _text(where_path, data, key) for key in METER_TEXT}
     for key, value in identity.items():
         if any(c in value for c in ',;"\n'):
@@ -260,8 +277,11 @@ def meter_from_dict(data: Mapping[str, Any], name: str, path: Path | None = None
         name=name,
         description=_text(where_path, data, "description", ""),
         path=path,
-        **identity,
-        **values,  # type: ignore[arg-type]
+        manufacturer=identity["manufacturer"],
+        model=identity["model"],
+        serial=identity["serial"],
+        firmware=identity["firmware"],
+        **values,
     )
 
 
@@ -320,11 +340,12 @@ def draw_unit(profile: DutProfile, rng: np.random.Generator) -> DutProfile:
     """
     values = dict(profile.values)
     for key in values:
+        value = values[key]
         sigma = profile.spread.get(key, 0.0)
-        if sigma == 0.0 or values[key] is None:
+        if sigma == 0.0 or value is None:
             continue
         for _ in range(100):
-            candidate = values[key] * (1.0 + sigma * rng.standard_normal())
+            candidate = value * (1.0 + sigma * rng.standard_normal())
             if candidate > 0:
                 values[key] = candidate
                 break

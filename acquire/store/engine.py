@@ -109,10 +109,12 @@ def insert_ignoring_duplicates(conn: Connection, table: Table, index_elements: l
 @cache
 def insert_ignoring(dialect: str, table: Table, index_elements: tuple[str, ...]):
     if dialect == "postgresql":
-        from sqlalchemy.dialects.postgresql import insert
-    else:
-        from sqlalchemy.dialects.sqlite import insert
-    return insert(table).on_conflict_do_nothing(index_elements=list(index_elements))
+        from sqlalchemy.dialects.postgresql import insert as postgresql_insert
+
+        return postgresql_insert(table).on_conflict_do_nothing(index_elements=list(index_elements))
+    from sqlalchemy.dialects.sqlite import insert as sqlite_insert
+
+    return sqlite_insert(table).on_conflict_do_nothing(index_elements=list(index_elements))
 
 
 def finite_or_none(value: float | None) -> float | None:
@@ -128,7 +130,7 @@ def float_column(values: np.ndarray) -> list[float | None]:
     values = np.asarray(values, dtype=float)
     out: list[float | None] = values.tolist()
     if np.isnan(values).any():
-        out = [None if math.isnan(v) else v for v in out]
+        out = [None if v is None or math.isnan(v) else v for v in out]
     return out
 
 
@@ -194,7 +196,10 @@ class Database:
 
     def _sqlite_begin(self, conn: Connection) -> None:
         immediate = getattr(self._local, "write", False)
-        conn.connection.driver_connection.execute("BEGIN IMMEDIATE" if immediate else "BEGIN")
+        raw = conn.connection.driver_connection
+        if raw is None:
+            raise StoreError("the SQLite connection was closed under the store; open it again")
+        raw.execute("BEGIN IMMEDIATE" if immediate else "BEGIN")
 
     def _once(self, work: Callable[[Connection], T], write: bool, check: bool) -> T:
         conn = self._connection()

@@ -12,7 +12,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Iterable
-from functools import cache
+from functools import cache, partial
 from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import Connection, and_, case, func, select
@@ -157,7 +157,7 @@ def save_units(
         if not chunk:
             return stored
         part = list(chunk.values())
-        n, lots = db.write("saving units", lambda c, b=part: work(c, b), idempotent=True)
+        n, lots = db.write("saving units", partial(_with_chunk, work, part), idempotent=True)
         stored += n
         lot_cache.update(lots)
         chunk = {}
@@ -231,14 +231,14 @@ def lot_units(db: Database, lot: str) -> pd.DataFrame:
 
     def work(conn: Connection) -> list:
         query = select(*(units.c[n] for n in names)).where(units.c.lot_id == _lot_id(conn, lot))
-        return conn.execute(query.order_by(units.c.id)).all()
+        return list(conn.execute(query.order_by(units.c.id)).all())
 
     rows = db.read("reading a lot", work)
     return pd.DataFrame([tuple(r) for r in rows], columns=names)
 
 
-SUMMARY_COLUMNS = ("parameter", "frequency", "unit", "count", "valid", "passed", "yield")
-SUMMARY_COLUMNS += ("mean", "std", "min", "max")
+SUMMARY_COLUMNS: tuple[str, ...] = ("parameter", "frequency", "unit", "count", "valid")
+SUMMARY_COLUMNS += ("passed", "yield", "mean", "std", "min", "max")
 
 
 def lot_summary(db: Database, lot: str) -> pd.DataFrame:
@@ -286,7 +286,7 @@ def lot_summary(db: Database, lot: str) -> pd.DataFrame:
             .scalar_subquery()
         )
         query = select(g, spread.label("ss")).order_by(g.c.parameter, g.c.frequency, g.c.si_unit)
-        return conn.execute(query).all()
+        return list(conn.execute(query).all())
 
     rows = db.read("summarising a lot", work)
     out = []
@@ -329,3 +329,8 @@ def lot_yield(db: Database, lot: str) -> LotYield:
     return LotYield(
         lot, int(r.attempts), int(r.serials or 0), int(r.first_pass or 0), int(r.final_pass or 0)
     )
+
+
+def _with_chunk(work: Any, chunk: list[UnitRecord], conn: Connection) -> Any:
+    """``work(conn, chunk)``: a unit batch's write, in the form the store's retry loop calls."""
+    return work(conn, chunk)

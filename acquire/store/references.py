@@ -53,7 +53,7 @@ def _arrays(refs: Any) -> tuple[np.ndarray, dict[str, np.ndarray]]:
 
 
 def _uncertainties(refs: Any, f: np.ndarray) -> dict[str, list[float | None]]:
-    columns = {}
+    columns: dict[str, list[float | None]] = {}
     for name in _UNCERTAINTIES:
         u = getattr(refs, name, None)
         if u is None:
@@ -193,7 +193,7 @@ def load_reference_set(db: Database, ref_id: int) -> ReferenceSet:
         rows = conn.execute(
             query.where(points.c.reference_set_id == ref_id).order_by(points.c.idx)
         ).all()
-        return head, rows
+        return head, list(rows)
 
     head, rows = db.read("loading a reference set", work)
     if head is None:

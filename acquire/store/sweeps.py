@@ -18,6 +18,7 @@ import os
 import socket
 from collections.abc import Sequence
 from datetime import datetime, timedelta
+from functools import partial
 from types import TracebackType
 from typing import TYPE_CHECKING, Any
 
@@ -224,7 +225,8 @@ class SweepWriter:
         if exc is None:
             self.finish("complete")
         else:
-            reason = f"{kind.__name__}: {exc}" if str(exc) else kind.__name__
+            name = type(exc).__name__
+            reason = f"{name}: {exc}" if str(exc) else name
             self.finish("interrupted", note=f"stopped by {reason}")
 
 
@@ -314,7 +316,7 @@ def sweep_points(db: Database, sweep_id: int) -> pd.DataFrame:
 
     def work(conn: Connection) -> tuple[int, list]:
         known = conn.execute(select(func.count()).where(sweeps.c.id == sweep_id)).scalar_one()
-        return known, conn.execute(query).all()
+        return known, list(conn.execute(query).all())
 
     known, rows = db.read("reading sweep points", work)
     if not known:
@@ -339,6 +341,11 @@ def close_abandoned_sweeps(db: Database, stale_after: float = STALE_AFTER_S) -> 
             .where(sweeps.c.last_write_at == info.last_write_at)
             .values(status="interrupted", note=info.note, finished_at=utc_now())
         )
-        if db.write("closing an abandoned sweep", lambda c, m=mark: c.execute(m).rowcount):
+        if db.write("closing an abandoned sweep", partial(_rows_changed, mark)):
             closed.append(info.id)
     return closed
+
+
+def _rows_changed(statement: Any, conn: Connection) -> int:
+    """Run ``statement`` on ``conn`` and say how many rows it changed."""
+    return int(conn.execute(statement).rowcount)

@@ -1,10 +1,11 @@
 """Per-point uncertainty and flags; Type A uncertainty of the reference standards.
 
 ``sweep_points`` gains ``u_r`` and ``u_x`` (expanded uncertainty of the corrected R and X, ohm,
-NULL when unknown) and ``flags`` ('' for a measured value); ``reference_points`` gains
-``open_u``, ``short_u`` and ``load_u`` (NULL when unknown); ``reference_sets`` gains ``repeats``
-(1 for every set stored before) and ``grid_spacing`` ('' for every set stored before: not known). ``schema_version`` gets version 3, so that a release from before
-the migrations refuses the store instead of writing rows that lack these values.
+NULL when unknown) and ``flags`` ('' for a measured value); ``reference_points`` gains ``open_u``,
+``short_u`` and ``load_u`` (NULL when unknown); ``reference_sets`` gains ``repeats`` (1 for every
+set stored before) and ``grid_spacing`` ('' for every set stored before: not known).
+``schema_version`` gets version 3, so that a release from before the migrations refuses the store
+instead of writing rows that lack these values.
 
 Revision ID: 0002
 Revises: 0001

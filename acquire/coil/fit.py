@@ -55,6 +55,7 @@ from numpy.typing import ArrayLike
 from scipy.optimize import brentq, minimize_scalar
 
 from acquire.coil.circuit import SKIN_EXPONENT, impedance_from_parameters, low_frequency_inductance
+from acquire.coil.fitcov import data_covariance
 from acquire.coil.fitresult import CoilFit, FittedValue
 from acquire.coil.fitsolve import LAWS, Candidate, Solution, propagate, solve, unpack
 from acquire.coil.fitstart import StartValues, clean_sweep, start_values
@@ -121,6 +122,7 @@ def fit_sweep(
     impedance: ArrayLike,
     *,
     sigma: ArrayLike | None = None,
+    systematic: ArrayLike | None = None,
     core_loss: bool | None = None,
     resistance_law: str | None = None,
 ) -> CoilFit:
@@ -128,16 +130,35 @@ def fit_sweep(
 
     ``sigma``: each point's standard uncertainty (ohm) of R and X, shape ``(n,)`` (the same for
     both) or ``(n, 2)``; None estimates a noise proportional to ``|Z|`` from the data (see the
-    module docstring). ``core_loss``: True forces the core loss tangent in, False leaves it out,
+    module docstring). ``systematic``: the part of each point's uncertainty that comes from the
+    meter's stated accuracy (same shapes, correlated between points as
+    :mod:`acquire.coil.fitcov` says, or their ``(2n, 2n)`` covariance for ``[R₁…Rₙ, X₁…Xₙ]``);
+    ``sigma`` is then the independent part only. Without ``systematic``, ``sigma`` is taken as
+    the total of an unknown split, and the fit counts all of it both ways (independent and
+    correlated); ``systematic=0`` says the errors are all independent. ``core_loss``: True
+    forces the core loss tangent in, False leaves it out,
     None lets the data decide. ``resistance_law``: one of :data:`LAWS` or None (decided by the
     data). Raises :class:`ModelError` when the sweep cannot support a coil model at all.
     """
     if resistance_law is not None and resistance_law not in LAWS:
         raise ModelError(f"resistance law must be one of {', '.join(LAWS)}")
-    f, z, weights, dropped = clean_sweep(frequency, impedance, sigma)
+    if systematic is not None and sigma is None:
+        raise ModelError("a systematic uncertainty needs the independent one too: give sigma")
+    f, z, weights, bias, dropped = clean_sweep(frequency, impedance, sigma, systematic)
     known = weights is not None
+    data_cov = None
+    split = "estimated"
     if not known:
         weights = np.repeat(np.abs(z)[:, None], 2, axis=1)
+    elif bias is None:
+        split = "total"
+        data_cov = data_covariance(f, z, weights, weights)
+    elif np.any(bias > 0):
+        split = "split"
+        data_cov = data_covariance(f, z, weights, bias)
+        weights = np.sqrt(np.diagonal(data_cov).reshape(2, -1).T)
+    else:
+        split = "independent"
     s = start_values(f, z)
     laws = (resistance_law,) if resistance_law else AUTO_LAWS
     cores = (core_loss,) if core_loss is not None else (False, True)
@@ -145,11 +166,11 @@ def fit_sweep(
     solutions = [
         sol
         for law, cap, core in product(laws, caps, cores)
-        if (sol := solve(Candidate(law, cap, core), s, f, z, weights)) is not None
+        if (sol := solve(Candidate(law, cap, core), s, f, z, weights, data_cov)) is not None
     ]
     if not solutions:
         raise ModelError("the sweep has too few points for the model: sweep more frequencies")
-    return _report(solutions, known, s, f, z, dropped)
+    return _report(solutions, known, s, f, z, dropped, split)
 
 
 def _weights(solutions: list[Solution], known: bool) -> tuple[np.ndarray, float]:
@@ -205,7 +226,17 @@ def _param(key):
     return func
 
 
-def _report(solutions, known, s: StartValues, f, z, dropped: int) -> CoilFit:
+_SPLIT_NOTES = {
+    "total": "the uncertainty given was not split into noise and the meter's systematic error: "
+    "all of it is counted as independent noise and again as a systematic error correlated "
+    "across the sweep (the safe side)",
+    "split": "the meter's systematic error is counted as correlated across the sweep "
+    "(correlation falling to 1/e over 0.35 decade of frequency or of |Z|)",
+    "independent": "every point's error is taken as independent of the others",
+}
+
+
+def _report(solutions, known, s: StartValues, f, z, dropped: int, split: str) -> CoilFit:
     weights, c_hat = _weights(solutions, known)
     best = solutions[int(np.argmax(weights))]
     names, theta = best.names, best.theta
@@ -221,11 +252,14 @@ def _report(solutions, known, s: StartValues, f, z, dropped: int) -> CoilFit:
     if not known:
         notes.append(
             "no per-point uncertainty given: the noise is taken as a constant fraction of |Z|, "
-            f"estimated from the scatter about the fit ({math.sqrt(best.reduced_chi2):.2g} of |Z|)"
+            f"estimated from the scatter about the fit ({math.sqrt(best.reduced_chi2):.2g} of "
+            "|Z|); the meter's calibration error is not included"
         )
-    elif best.reduced_chi2 > 1.0 + 3.0 * math.sqrt(2.0 / best.dof):
+    else:
+        notes.append(_SPLIT_NOTES[split])
+    if known and best.reduced_chi2 > 1.0 + 3.0 * math.sqrt(2.0 / best.dof):
         notes.append(
-            f"the circuit does not describe the sweep within its noise (χ²/ν = "
+            f"the circuit does not describe the sweep within its uncertainty (χ²/E[χ²] = "
             f"{best.reduced_chi2:.3g}): uncertainties are scaled by √(χ²/ν) = "
             f"{math.sqrt(best.reduced_chi2):.3g} (Birge ratio)"
         )

@@ -11,6 +11,14 @@ with ``ν = 2n − k`` degrees of freedom when the model is right and the uncert
 fitted as logarithms so henry, ohm and farad are equally well scaled. The covariance of the
 parameters is ``(JᵀWJ)⁻¹`` from the Jacobian of the weighted residuals at the solution
 (Numerical Recipes, section 15.4); a parameter held at a bound counts as fixed.
+
+Where the points' errors are correlated (the meter's systematic error, :mod:`acquire.coil.fitcov`)
+the estimate is still the weighted least-squares one, a function of the data whose sensitivity
+to them is ``G = (JᵀWJ)⁻¹JᵀW``; its covariance is then ``G·V·Gᵀ`` with ``V`` the data's full
+covariance (the law of propagation of uncertainty for correlated inputs, JCGM 100:2008 5.2.2, in
+matrix form, JCGM 102:2011 6.2.1.3). With ``V = W⁻¹`` this is ``(JᵀWJ)⁻¹`` again. The χ²
+expected when the model is right is then ``tr((I − H)·W^½VW^½)`` with ``H`` the hat matrix
+``J·G`` (``2n − k`` for ``V = W⁻¹``), and ``χ²`` over it is the Birge ratio squared.
 """
 
 from __future__ import annotations
@@ -63,7 +71,8 @@ class Candidate:
 @dataclass(frozen=True)
 class Solution:
     """A fitted candidate: its parameters (log scale except ``n``), the unscaled covariance
-    ``(JᵀWJ)⁻¹`` of those, χ² and the degrees of freedom."""
+    (the data's covariance carried through the fit, ``G·V·Gᵀ``) of those, χ², the degrees of
+    freedom and the χ² expected when the model and the covariance are right."""
 
     candidate: Candidate
     theta: np.ndarray
@@ -71,6 +80,7 @@ class Solution:
     chi2: float
     dof: int
     at_limit: np.ndarray
+    expected_chi2: float = math.nan
 
     @property
     def names(self) -> tuple[str, ...]:
@@ -83,7 +93,9 @@ class Solution:
 
     @property
     def reduced_chi2(self) -> float:
-        return self.chi2 / self.dof
+        """χ² over its expected value (χ²/ν for independent errors)."""
+        expected = self.expected_chi2 if self.expected_chi2 > 0 else self.dof
+        return self.chi2 / expected
 
 
 def unpack(names: tuple[str, ...], theta: np.ndarray) -> dict[str, float]:
@@ -120,10 +132,16 @@ def _initial(names: tuple[str, ...], s: StartValues, f: np.ndarray):
 
 
 def solve(
-    candidate: Candidate, s: StartValues, f: np.ndarray, z: np.ndarray, sigma: np.ndarray
+    candidate: Candidate,
+    s: StartValues,
+    f: np.ndarray,
+    z: np.ndarray,
+    sigma: np.ndarray,
+    data_cov: np.ndarray | None = None,
 ) -> Solution | None:
     """Fit ``candidate`` to the points weighted by ``sigma`` ((n, 2), ohm); None when the sweep
-    has too few points for it."""
+    has too few points for it. ``data_cov`` is the covariance (ohm²) of the residuals
+    ``[R₁…Rₙ, X₁…Xₙ]`` when it is not ``diag(sigma²)`` (correlated errors)."""
     names = candidate.names
     m = 2 * f.size
     if m <= len(names) + 1:
@@ -136,10 +154,20 @@ def solve(
     free = ~at_limit
     cov = np.zeros((x0.size, x0.size))
     jac = result.jac[:, free]
-    cov[np.ix_(free, free)] = np.linalg.pinv(jac.T @ jac)
+    inverse = np.linalg.pinv(jac.T @ jac)
     dof = max(m - int(np.count_nonzero(free)), 1)
+    expected = float(dof)
+    if data_cov is None:
+        cov[np.ix_(free, free)] = inverse
+    else:
+        w = np.concatenate([sigma[:, 0], sigma[:, 1]])
+        scaled = data_cov / np.outer(w, w)
+        gain = inverse @ jac.T
+        cov[np.ix_(free, free)] = gain @ scaled @ gain.T
+        residual_maker = np.eye(m) - jac @ gain
+        expected = max(float(np.trace(residual_maker @ scaled)), 1e-12)
     chi2 = float(np.sum(result.fun**2))
-    return Solution(candidate, result.x, cov, chi2, dof, at_limit)
+    return Solution(candidate, result.x, cov, chi2, dof, at_limit, expected)
 
 
 def propagate(func, theta: np.ndarray, cov: np.ndarray) -> float | None:

@@ -45,24 +45,43 @@ def per_point_sigma(sigma, n: int) -> np.ndarray | None:
     return np.array(s)
 
 
-def clean_sweep(frequency, impedance, sigma=None):
-    """Sorted finite points of a sweep, their uncertainties (``(n, 2)`` or None) and how many
-    non-finite (overrange, invalid) points, or points without a positive uncertainty, were
-    dropped."""
+def clean_sweep(frequency, impedance, sigma=None, systematic=None):
+    """Sorted finite points of a sweep, their uncertainties (``(n, 2)`` or None), their
+    systematic uncertainties (the same, or a ``(2n, 2n)`` covariance) and how many non-finite
+    (overrange, invalid) points, or points without a positive uncertainty, were dropped."""
     f = np.asarray(frequency, dtype=float).ravel()
     z = np.asarray(impedance, dtype=complex).ravel()
     if f.shape != z.shape:
         raise ModelError(f"{f.size} frequencies but {z.size} impedances: the sweep is malformed")
     s = per_point_sigma(sigma, f.size)
+    matrix = (
+        systematic is not None
+        and np.ndim(systematic) == 2
+        and np.shape(systematic)
+        == (
+            2 * f.size,
+            2 * f.size,
+        )
+    )
+    b = np.asarray(systematic, dtype=float) if matrix else per_point_sigma(systematic, f.size)
     keep = np.isfinite(f) & np.isfinite(z.real) & np.isfinite(z.imag) & (f > 0)
     if s is not None:
         keep &= np.all(np.isfinite(s) & (s > 0), axis=1)
+    if b is not None:
+        usable = np.diagonal(b).reshape(2, -1).T if matrix else b
+        keep &= np.all(np.isfinite(usable) & (usable >= 0), axis=1)
     dropped = int(f.size - np.count_nonzero(keep))
     f, z = f[keep], z[keep]
     order = np.argsort(f)
     f, z = f[order], z[order]
     if s is not None:
         s = s[keep][order]
+    if b is not None and matrix:
+        index = np.flatnonzero(keep)[order]
+        both = np.concatenate([index, index + keep.size])
+        b = b[np.ix_(both, both)]
+    elif b is not None:
+        b = b[keep][order]
     if f.size < MIN_POINTS:
         raise ModelError(
             f"only {f.size} usable points: the fit needs at least {MIN_POINTS}; "
@@ -70,7 +89,7 @@ def clean_sweep(frequency, impedance, sigma=None):
         )
     if np.any(np.diff(f) <= 0):
         raise ModelError("the sweep repeats a frequency: give each frequency once")
-    return f, z, s, dropped
+    return f, z, s, b, dropped
 
 
 def find_resonance(f: np.ndarray, z: np.ndarray) -> float | None:

@@ -11,6 +11,10 @@ A unit in square brackets after a header is honoured, with an SI prefix (``[kHz]
 ``[mohm]``, ``[kΩ]``, ``[uH]``/``[µH]``, ``[deg]``/``[rad]``); a header without one is taken in
 SI units (hertz, ohm, henry, degrees for an angle). A unit that does not fit the column
 refuses the file, naming the column.
+
+Columns ``U(R) [ohm]`` and ``U(X) [ohm]`` (the expanded uncertainty, k = 2, of the corrected R
+and X, as `acquire sweep` writes them) are read too; their halves are handed to the fit as each
+point's standard uncertainty when every point has one.
 """
 
 from __future__ import annotations
@@ -63,6 +67,18 @@ class SweepSource:
     frequency: np.ndarray
     impedance: np.ndarray
     description: str
+    #: Standard uncertainty (ohm, ``(n, 2)``: R and X) of each point, or None when not known.
+    sigma: np.ndarray | None = None
+
+
+def half_expanded(u_r, u_x, z: np.ndarray) -> np.ndarray | None:
+    """``[U_R, U_X] / 2`` as an ``(n, 2)`` array when every finite point has a positive finite
+    U of both parts, else None (the fit then estimates its noise)."""
+    u = np.column_stack([np.asarray(u_r, dtype=float), np.asarray(u_x, dtype=float)])
+    usable = np.isfinite(z)
+    if u.shape[0] == 0 or not np.all(np.isfinite(u[usable]) & (u[usable] > 0)):
+        return None
+    return u / 2.0
 
 
 def _key(header: str) -> str:
@@ -115,7 +131,10 @@ def read_csv_sweep(path: str | Path, raw: bool = False) -> SweepSource:
     f_scale = unit_scale(header[f_col], "Hz")
     a_scale = unit_scale(header[a_col], units[0])
     b_scale = unit_scale(header[b_col], units[1])
-    f, z = [], []
+    plain = [re.sub(r"\[.*?\]", "", h).strip().lower().replace(" ", "") for h in header]
+    u_cols = [plain.index(k) if k in plain else None for k in ("u(r)", "u(x)")]
+    u_scale = [1.0 if c is None else unit_scale(header[c], "ohm") for c in u_cols]
+    f, z, u = [], [], []
     for line, row in enumerate(rows[1:], start=2):
         if len(row) <= max(f_col, a_col, b_col):
             raise InputError(f"line {line} of {path} has too few columns")
@@ -128,7 +147,20 @@ def read_csv_sweep(path: str | Path, raw: bool = False) -> SweepSource:
             a, b = a * math.cos(b), a * math.sin(b)
         f.append(freq)
         z.append(complex(a, b))
-    return SweepSource(np.array(f), np.array(z), f"{path}: {len(f)} points, {what}")
+        u.append([_optional(row, c, line) * k for c, k in zip(u_cols, u_scale, strict=True)])
+    zs = np.array(z)
+    sigma = None
+    if not raw and None not in u_cols and what == "corrected readings":
+        values = np.array(u, dtype=float).reshape(-1, 2)
+        sigma = half_expanded(values[:, 0], values[:, 1], zs)
+    return SweepSource(np.array(f), zs, f"{path}: {len(f)} points, {what}", sigma)
+
+
+def _optional(row: list[str], col: int | None, line: int) -> float:
+    """A number from an optional column; NaN when the column or the cell is missing or empty."""
+    if col is None or col >= len(row) or not row[col].strip():
+        return math.nan
+    return _number(row[col], line)
 
 
 __all__ = ["SweepSource", "read_csv_sweep", "unit_scale"]

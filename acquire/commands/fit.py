@@ -15,7 +15,13 @@ determined" with the reason: without a self-resonance inside the sweep there is 
 SOURCE is a sweep id in the results store (see --store), or a CSV file with a frequency column
 and R and X columns (headers such as "frequency [Hz]", "corrected R [ohm]", "corrected X
 [ohm]", or "f", "R", "X"). The corrected readings are fitted; --raw fits the uncorrected ones,
-fixture included. Give the coil's geometry (as for `acquire predict`) to print the prediction
+fixture included. The corrected readings' expanded uncertainties (the store's U of R and X,
+or a CSV file's "U(R) [ohm]" and "U(X) [ohm]" columns) are used when every point has them: their
+halves are each point's standard uncertainty. Neither says which part is the meter's noise and
+which its systematic error, so the fit counts all of it both ways, as independent noise and as a
+systematic error correlated across the sweep: the safe side (up to √2 more than with the split
+known). Without them the fit estimates the noise from the scatter and says so. Give the coil's
+geometry (as for `acquire predict`) to print the prediction
 beside the fit.
 """
 
@@ -65,9 +71,16 @@ def read_store_sweep(store_url: str, sweep_id: int, raw: bool = False):
     with open_store(store_url) as store:
         info = store.sweep_info(sweep_id)
         points = store.sweep_points(sweep_id)
+    from acquire.coil.sweepfile import half_expanded
+
     prefix = "raw" if raw else "corrected"
     r = points[f"{prefix}_r"].to_numpy(dtype=float)
     x = points[f"{prefix}_x"].to_numpy(dtype=float)
+    sigma = None
+    if not raw and "u_r" in points and "u_x" in points:
+        sigma = half_expanded(
+            points["u_r"].to_numpy(dtype=float), points["u_x"].to_numpy(dtype=float), r + 1j * x
+        )
     if not raw and points.shape[0] and np.all(np.isnan(r)):
         raise InputError(
             f"sweep {sweep_id} was stored without a reference set, so it has no corrected "
@@ -78,7 +91,8 @@ def read_store_sweep(store_url: str, sweep_id: int, raw: bool = False):
     description = (
         f"sweep {sweep_id}{dut} in {store_url}{status}: {len(r)} points, {prefix} readings"
     )
-    return SweepSource(points["frequency"].to_numpy(dtype=float), r + 1j * x, description)
+    frequency = points["frequency"].to_numpy(dtype=float)
+    return SweepSource(frequency, r + 1j * x, description, sigma)
 
 
 def read_sweep(source: str, store_url: str, raw: bool = False):
@@ -129,6 +143,7 @@ def run(args: argparse.Namespace) -> int:
     fit = fit_sweep(
         source.frequency,
         source.impedance,
+        sigma=source.sigma,
         resistance_law=None if args.law == "auto" else args.law,
         core_loss={"auto": None, "yes": True, "no": False}[args.core_loss],
     )

@@ -8,8 +8,8 @@
    same rows into an identical empty store, one transaction per unit (``execute`` for the unit,
    ``executemany`` for its measurements, same pragmas). Rounds alternate between the two and the
    median round counts. Goal: at least 0.5x the baseline and at least 1,000 units/s.
-2. Four station processes writing units to PostgreSQL at once (``python -m
-   acquire.store.testing``), against one such process alone. Goal: at least 1,000 units/s
+2. Four station processes writing units to PostgreSQL at once (``python
+   tests/store_support.py``), against one such process alone. Goal: at least 1,000 units/s
    together.
 3. Lot summary (count, yield, mean, standard deviation per parameter) over 100,000 stored units
    (1,000,000 measurements) in SQL, against loading the same measurement rows into pandas and
@@ -18,7 +18,7 @@
 
 The PostgreSQL server is ``ACQUIRE_TEST_POSTGRES`` (default
 postgresql://postgres@127.0.0.1:5432/test); each run uses its own schema and drops it.
-Unit values are demo data of our own invention (``acquire.store.testing``).
+Unit values are demo data of our own invention (``tests/store_support.py``).
 """
 
 from __future__ import annotations
@@ -31,18 +31,23 @@ import subprocess
 import sys
 import tempfile
 import time
+from collections.abc import Iterator
 from pathlib import Path
 
+import numpy as np
 import pandas as pd
 from sqlalchemy import text
 
-from acquire.store import open_store
+from acquire.store import UnitRecord, open_store
 from acquire.store.production import MEASUREMENT_COLUMNS, _measurement_rows, _unit_row
 from acquire.store.schema import TABLES
-from acquire.store.testing import (
+
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
+from store_support import (  # noqa: E402 - the tests' helpers, found through the path above
+    STATION,
+    make_unit,
     postgres_unreachable,
     postgres_url,
-    synthetic_units,
     temporary_schema,
 )
 
@@ -51,6 +56,16 @@ ROWS: list[tuple[str, str, str, str, str]] = []
 
 def report(case: str, ours: str, baseline: str, ratio: str, goal: str, met: bool | None) -> None:
     ROWS.append((case, ours, baseline, ratio, goal, {True: "yes", False: "NO", None: "-"}[met]))
+
+
+def synthetic_units(
+    count: int, lot: str = "LOT-1", worker: int = 0, measurements: int = 10, seed: int = 0
+) -> Iterator[UnitRecord]:
+    """``count`` synthetic units like the tests' ``synthetic_unit`` (other values, drawn in one
+    go: faster for the large loads here)."""
+    z = np.random.default_rng([seed, worker, count, 1]).standard_normal((count, measurements))
+    for index in range(count):
+        yield make_unit(index, lot, worker, z[index].tolist(), seed)
 
 
 def _sqlite_rows(unit):
@@ -63,7 +78,8 @@ def _sqlite_rows(unit):
         v = row[name]
         process = units.c[name].type.bind_processor(_DIALECT)
         values.append(process(v) if process else v)
-    return names, tuple(values), [m[1:] for m in _measurement_rows(0, unit, None)]
+    rows = _measurement_rows(0, unit, None)
+    return names, tuple(values), [tuple(m[c] for c in MEASUREMENT_COLUMNS[1:]) for m in rows]
 
 
 def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
@@ -114,8 +130,7 @@ def _stations(url: str, schema: str, count: int, per_station: int, first_worker:
         subprocess.Popen(
             [
                 sys.executable,
-                "-m",
-                "acquire.store.testing",
+                STATION,
                 url,
                 "--schema",
                 schema,

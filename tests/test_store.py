@@ -18,6 +18,8 @@ from datetime import UTC, datetime, timedelta
 
 import numpy as np
 import pytest
+from sqlalchemy import text
+from store_support import store_location
 
 from acquire.compensation import ReferenceSet
 from acquire.errors import StoreError
@@ -26,7 +28,6 @@ from acquire.store import (
     open_store,
     plan_hash,
 )
-from acquire.store.testing import store_location
 from acquire.store.url import parse_store_url
 
 
@@ -137,11 +138,20 @@ def test_reference_set_round_trip(store):
 
 def test_sweep_round_trip(store):
     settings = {"level": np.float64(1.0), "speed": "slow", "plan": np.array([1e2, 1e3])}
+    u = np.array([[0.02, 0.004], [0.02, 0.01]])
     with store.begin_sweep("demo-coil", settings=settings) as writer:
-        writer.add_points([1e2, 1e3], [4.8 + 0.2j, 4.8 + 2.1j], [4.7 + 0.1j, 4.7 + 2.0j])
+        writer.add_points(
+            [1e2, 1e3], [4.8 + 0.2j, 4.8 + 2.1j], [4.7 + 0.1j, 4.7 + 2.0j], u, ["", "overrange"]
+        )
         assert store.sweep_info(writer.id).status == "running"
         writer.add_points(np.array([1e4]), np.array([complex(np.nan, np.nan)]), None)
-        writer.add_points([1e5], [complex(np.inf, np.inf)], [complex(np.inf, np.inf)])
+        writer.add_points(
+            [1e5],
+            [complex(np.inf, np.inf)],
+            [complex(np.inf, np.inf)],
+            uncertainty=np.array([[np.inf, np.nan]]),
+            flags=["overrange,beyond-accuracy"],
+        )
     info = store.sweep_info(writer.id)
     assert (info.status, info.recorded_status, info.points, info.dut) == (
         "complete",
@@ -152,16 +162,32 @@ def test_sweep_round_trip(store):
     assert info.settings == {"level": 1.0, "speed": "slow", "plan": [100.0, 1000.0]}
     assert info.finished_at >= info.started_at
     points = store.sweep_points(writer.id)
-    assert list(points.columns) == ["frequency", "raw_r", "raw_x", "corrected_r", "corrected_x"]
+    numbers = ["frequency", "raw_r", "raw_x", "corrected_r", "corrected_x", "u_r", "u_x"]
+    assert list(points.columns) == [*numbers, "flags"]
+    nan, inf = np.nan, np.inf
     expected = np.array(
         [
-            [1e2, 4.8, 0.2, 4.7, 0.1],
-            [1e3, 4.8, 2.1, 4.7, 2.0],
-            [1e4, np.nan, np.nan, np.nan, np.nan],
-            [1e5, np.inf, np.inf, np.inf, np.inf],
+            [1e2, 4.8, 0.2, 4.7, 0.1, 0.02, 0.004],
+            [1e3, 4.8, 2.1, 4.7, 2.0, 0.02, 0.01],
+            [1e4, nan, nan, nan, nan, nan, nan],
+            [1e5, inf, inf, inf, inf, inf, nan],
         ]
     )
-    assert np.array_equal(points.to_numpy(), expected, equal_nan=True)
+    assert np.array_equal(points[numbers].to_numpy(), expected, equal_nan=True)
+    assert points["flags"].tolist() == ["", "overrange", "", "overrange,beyond-accuracy"]
+    with store.engine.connect() as conn:
+        stored = conn.exec_driver_sql(
+            f"SELECT u_r, flags FROM sweep_points WHERE sweep_id = {writer.id} AND idx = 2"
+        ).one()
+    assert tuple(stored) == (None, "")
+    bad = store.begin_sweep()
+    with pytest.raises(StoreError, match=r"shape \(2, 2\)"):
+        bad.add_points([1, 2], [1j, 1j], [1j, 1j], uncertainty=[0.1, 0.1])
+    with pytest.raises(StoreError, match="2 strings"):
+        bad.add_points([1, 2], [1j, 1j], [1j, 1j], flags=["overrange"])
+    with pytest.raises(StoreError, match="one string per point"):
+        bad.add_points([1, 2], [1j, 1j], [1j, 1j], flags="ok")
+    bad.finish("interrupted")
     with pytest.raises(StoreError, match="already complete"):
         writer.add_points([1e6], [1j], [1j])
     with pytest.raises(StoreError, match="matching"):
@@ -289,3 +315,116 @@ def test_process_check_sees_own_process():
     assert not writer_gone(socket.gethostname(), os.getpid(), now, now, 60.0)
     assert writer_gone(socket.gethostname(), os.getpid(), now - timedelta(hours=2), now, 60.0)
     assert not writer_gone("another-host", 1, now, now, 60.0)
+
+
+def _refs_201() -> ReferenceSet:
+    """A 201-point open-short set on a log grid (values computed from a 8 pF / 300 nH fixture)."""
+    f = np.geomspace(100.0, 1e7, 201)
+    w = 2 * np.pi * f
+    return ReferenceSet(
+        f,
+        open=1 / (1e-7 + 1j * w * 8e-12),
+        short=0.02 + 1j * w * 3e-7,
+        captured_at=datetime(2026, 2, 3, 4, 5, 6, tzinfo=UTC),
+        fixture="bench-leads",
+    )
+
+
+def _delete_points(store, ref_id: int) -> None:
+    """Delete 11 of the 201 points (idx 5, 24, ..., 195: every 19th from 5) behind the API."""
+    with store.engine.begin() as conn:
+        conn.execute(
+            text(
+                "DELETE FROM reference_points WHERE reference_set_id = :r "
+                "AND idx - (idx / 19) * 19 = 5"
+            ),
+            {"r": ref_id},
+        )
+
+
+DAMAGED = (
+    "reference set {} is damaged: 11 of its 201 points are missing; capture the references again"
+)
+
+
+def test_reference_set_with_missing_points_is_refused(store):
+    ref_id = store.save_reference_set(_refs_201(), "morning")
+    kept = store.save_reference_set(_refs_201(), "evening")
+    _delete_points(store, ref_id)
+    with pytest.raises(StoreError) as caught:
+        store.load_reference_set(ref_id)
+    assert str(caught.value) == DAMAGED.format(ref_id)
+    assert store.load_reference_set(kept).frequency.size == 201
+    with store.engine.begin() as conn:
+        conn.exec_driver_sql(
+            f"UPDATE reference_points SET idx = idx + 1000 WHERE reference_set_id = {kept} "
+            "AND idx = 200"
+        )
+    with pytest.raises(StoreError, match=f"reference set {kept} is damaged: 1 of its 201"):
+        store.load_reference_set(kept)
+
+
+def test_reference_check_command_reports_a_damaged_set(place, capsys):
+    from acquire.cli import main
+
+    url, schema = place
+    with open_store(url, schema=schema) as store:
+        ref_id = store.save_reference_set(_refs_201(), "morning")
+        _delete_points(store, ref_id)
+    where = url if schema is None else f"{url}?schema={schema}"
+    capsys.readouterr()
+    code = main(["reference", "check", "--store", where, str(ref_id)])
+    out, err = capsys.readouterr()
+    assert code == 2
+    assert err.strip().splitlines() == [f"acquire reference: error: {DAMAGED.format(ref_id)}"]
+    assert "no problems found" not in out
+
+
+def test_reference_uncertainty_and_repeats_round_trip(store, monkeypatch):
+    """A set carrying per-standard uncertainty and a repeat count (fields the capture code adds
+    to ReferenceSet) is stored column by column and given back only to a class that has them."""
+    import dataclasses
+
+    import acquire.compensation as compensation
+
+    @dataclasses.dataclass(frozen=True, eq=False, repr=False)
+    class WithUncertainty(ReferenceSet):
+        open_u: np.ndarray | None = None
+        short_u: np.ndarray | None = None
+        load_u: np.ndarray | None = None
+        repeats: int = 1
+
+    base = _refs()
+    n = base.frequency.size
+    short_u = np.array([np.nan, 1e-4, 2e-4, np.inf, 5e-4])
+    refs = WithUncertainty(
+        base.frequency, open=base.open, short=base.short, load=base.load, load_true=100.0,
+        open_u=np.full(n, 30.0), short_u=short_u, repeats=8,
+    )  # fmt: skip
+    ref_id = store.save_reference_set(refs)
+    plain = store.save_reference_set(base)
+    with store.engine.connect() as conn:
+        rows = conn.exec_driver_sql(
+            f"SELECT open_u, short_u, load_u FROM reference_points WHERE reference_set_id = "
+            f"{ref_id} ORDER BY idx"
+        ).all()
+        repeats = conn.exec_driver_sql("SELECT id, repeats FROM reference_sets ORDER BY id").all()
+    assert [tuple(r) for r in rows] == [
+        (30.0, None, None),
+        (30.0, 1e-4, None),
+        (30.0, 2e-4, None),
+        (30.0, np.inf, None),
+        (30.0, 5e-4, None),
+    ]
+    assert [tuple(r) for r in repeats] == [(ref_id, 8), (plain, 1)]
+    back = store.load_reference_set(ref_id)
+    assert type(back) is ReferenceSet and not hasattr(back, "open_u")
+    monkeypatch.setattr(compensation, "ReferenceSet", WithUncertainty)
+    back = store.load_reference_set(ref_id)
+    assert np.array_equal(back.open_u, np.full(n, 30.0))
+    assert np.array_equal(back.short_u, short_u, equal_nan=True)
+    assert back.load_u is None and back.repeats == 8
+    again = store.load_reference_set(plain)
+    assert again.open_u is None and again.short_u is None and again.repeats == 1
+    with pytest.raises(StoreError, match="open_u array"):
+        store.save_reference_set(dataclasses.replace(refs, open_u=np.ones(n + 1)))

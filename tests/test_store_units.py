@@ -1,7 +1,7 @@
 """Results store: production units (round trip, attempt ids), hostile text, lot statistics.
 
 Both engines; the PostgreSQL cases skip when the server is unreachable (fail when CI=true), as
-described in ``acquire.store.testing``.
+described in ``tests/store_support.py``.
 """
 
 from __future__ import annotations
@@ -13,11 +13,11 @@ from datetime import UTC, datetime, timedelta, timezone
 import numpy as np
 import pytest
 from sqlalchemy import text
+from store_support import store_location, synthetic_unit
 
 from acquire.compensation import ReferenceSet
 from acquire.errors import StoreError
 from acquire.store import MeasurementRecord, UnitRecord, new_attempt_id, open_store
-from acquire.store.testing import store_location, synthetic_unit
 
 HOSTILE = [
     "Robert'); DROP TABLE units;--",

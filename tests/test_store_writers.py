@@ -1,6 +1,6 @@
 """Store under stress: a writer killed with SIGKILL mid-stream, several station processes at once,
 and a connection lost between two units. Writers are real processes
-(``python -m acquire.store.testing``), the way stations are."""
+(``python tests/store_support.py``), the way stations are."""
 
 from __future__ import annotations
 
@@ -13,9 +13,9 @@ import time
 
 import pytest
 from sqlalchemy import text
+from store_support import STATION, attempt_id, store_location, synthetic_unit
 
 from acquire.store import open_store
-from acquire.store.testing import attempt_id, store_location, synthetic_unit
 
 MEASUREMENTS = 100
 
@@ -27,7 +27,7 @@ def place(request, tmp_path):
 
 
 def _writer(url: str, schema: str | None, *args: str) -> subprocess.Popen:
-    command = [sys.executable, "-m", "acquire.store.testing", url, *args]
+    command = [sys.executable, STATION, url, *args]
     if schema is not None:
         command += ["--schema", schema]
     return subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)

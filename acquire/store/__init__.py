@@ -14,17 +14,19 @@ writes to at once; one schema and one code path (SQLAlchemy Core) serve both::
 Every record is written in one transaction; SQLite runs in WAL mode with ``synchronous=FULL``
 (a unit reported saved survives a power cut; see :mod:`~acquire.store.engine`). A unit's
 ``attempt_id`` makes a repeated write store it once. A sweep left "running" by a process that
-died is reported as interrupted (see :mod:`~acquire.store.sweeps`). Opening an older store
-migrates it; a newer one is refused.
+died is reported as interrupted (see :mod:`~acquire.store.sweeps`).
+
+The layout changes only through Alembic migrations shipped in the package
+(:mod:`~acquire.store.migrations`): opening a store made by an older release runs the revisions it
+lacks, under a lock so that stations opening it together do the work once; a store at a revision
+this program does not know (a newer release wrote it) is refused and left untouched.
 
 Modules: :mod:`~acquire.store.url` (store URLs), :mod:`~acquire.store.engine` (connections,
-transactions, SQLite durability settings), :mod:`~acquire.store.schema` (tables and versions),
-:mod:`~acquire.store.migrate`, :mod:`~acquire.store.records` (dataclasses),
-:mod:`~acquire.store.driver_insert` (the inserts on the hot path of saving units),
+transactions, SQLite durability settings), :mod:`~acquire.store.schema` (the tables of the
+newest revision), :mod:`~acquire.store.migrate` (creating and upgrading),
+:mod:`~acquire.store.migrations` (the revisions), :mod:`~acquire.store.records` (dataclasses),
 :mod:`~acquire.store.catalog` (meters, fixtures, plans, lots), :mod:`~acquire.store.references`,
-:mod:`~acquire.store.sweeps`, :mod:`~acquire.store.production` (units, lot statistics),
-:mod:`~acquire.store.legacy` (stores of older versions, for tests) and
-:mod:`~acquire.store.testing` (helpers for tests and benchmarks).
+:mod:`~acquire.store.sweeps` and :mod:`~acquire.store.production` (units, lot statistics).
 """
 
 from acquire.store.catalog import plan_hash
@@ -42,12 +44,12 @@ from acquire.store.records import (
     UnitRecord,
     new_attempt_id,
 )
-from acquire.store.schema import SCHEMA_VERSION
+from acquire.store.schema import SCHEMA_REVISION
 from acquire.store.sweeps import SweepWriter
 
 __all__ = [
     "PASS",
-    "SCHEMA_VERSION",
+    "SCHEMA_REVISION",
     "FixtureInfo",
     "LotInfo",
     "LotYield",

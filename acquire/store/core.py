@@ -23,7 +23,7 @@ from acquire.store.records import (
     SweepInfo,
     UnitRecord,
 )
-from acquire.store.schema import SCHEMA_VERSION
+from acquire.store.schema import SCHEMA_REVISION
 from acquire.store.sweeps import STALE_AFTER_S, SweepWriter
 from acquire.store.url import parse_store_url
 
@@ -34,13 +34,13 @@ if TYPE_CHECKING:
 
 
 def open_store(url: str, *, schema: str | None = None, stale_after: float = STALE_AFTER_S) -> Store:
-    """Open (creating or migrating as needed) the results store at ``url``.
+    """Open (creating or upgrading as needed) the results store at ``url``.
 
     ``url`` is ``sqlite:///path/file.db`` (or a bare file path) or ``postgresql://user@host/db``
     (see :mod:`acquire.store.url`); ``schema`` puts a PostgreSQL store's tables in that schema;
     ``stale_after`` is how many seconds without a write make a running sweep count as abandoned.
     Raises :class:`~acquire.errors.StoreError` when the store cannot be reached, is not a store,
-    or was written by a newer release.
+    or is at a schema revision this program does not know (a newer release wrote it).
     """
     location = parse_store_url(url, schema)
     if location.path is not None and not location.path.parent.is_dir():
@@ -66,10 +66,10 @@ class Store:
     process that forks should open its own store rather than use its parent's.
     """
 
-    def __init__(self, db: Database, created: bool, found_version: int, stale_after: float):
+    def __init__(self, db: Database, created: bool, found: str | None, stale_after: float):
         self._db = db
         self._created = created
-        self._found_version = found_version
+        self._found = found
         self._stale_after = stale_after
         self._lots: dict[str, int] = {}
 
@@ -94,15 +94,15 @@ class Store:
         return self._created
 
     @property
-    def migrated_from(self) -> int | None:
-        """The older schema version this store was migrated from when opened, else None."""
-        return (
-            None if self._created or self._found_version == SCHEMA_VERSION else self._found_version
-        )
+    def migrated_from(self) -> str | None:
+        """The older schema revision this store was upgraded from when opened ("released" for a
+        store of the first release, which had no revision record), else None."""
+        return None if self._created or self._found == SCHEMA_REVISION else self._found
 
     @property
-    def schema_version(self) -> int:
-        return SCHEMA_VERSION
+    def schema_revision(self) -> str:
+        """The schema revision the store is at (the newest this program knows)."""
+        return SCHEMA_REVISION
 
     @property
     def engine(self) -> Engine:

@@ -3,20 +3,22 @@
 ``save_unit`` writes a unit and all its measurements in one transaction, keyed by its attempt
 id: a second write of the same attempt (a retry after a lost connection, a replay after a
 restart) stores nothing and returns False. ``save_units`` does the same for many units at once,
-a batch per transaction (for imports).
+a batch per transaction (for imports). Both use SQLAlchemy Core's own bulk path: a list of rows
+given to one ``execute`` becomes multi-row INSERTs ("insertmanyvalues") on PostgreSQL and the
+driver's ``executemany`` on SQLite.
 """
 
 from __future__ import annotations
 
 import math
 from collections.abc import Iterable
+from functools import cache
 from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import Connection, and_, case, func, select
 
 from acquire.errors import StoreError
 from acquire.store.catalog import get_or_create, lot_row
-from acquire.store.driver_insert import DriverInsert, DriverRowsInsert
 from acquire.store.engine import (
     Database,
     finite_or_none,
@@ -61,16 +63,26 @@ def _split(value: float) -> tuple[float | None, str]:
     return (value, "") if math.isfinite(value) else (None, repr(value))
 
 
-def _measurement_rows(unit_id: int, unit: UnitRecord, lot_id: int | None) -> list[tuple]:
-    """The unit's measurement rows, values in the order of ``MEASUREMENT_COLUMNS``."""
+def _measurement_rows(unit_id: int, unit: UnitRecord, lot_id: int | None) -> list[dict]:
+    """The unit's measurement rows (one dict of ``MEASUREMENT_COLUMNS`` per measurement)."""
     rows = []
     for seq, m in enumerate(unit.measurements):
         value, special = _split(m.value)
         frequency = DC if m.frequency is None else finite_or_none(m.frequency)
-        low, high = finite_or_none(m.low), finite_or_none(m.high)
         rows.append(
-            (unit_id, seq, m.parameter, frequency, value, m.unit, low, high, m.verdict)
-            + (lot_id, special)
+            {
+                "unit_id": unit_id,
+                "seq": seq,
+                "parameter": m.parameter,
+                "frequency": frequency,
+                "value": value,
+                "si_unit": m.unit,
+                "low_limit": finite_or_none(m.low),
+                "high_limit": finite_or_none(m.high),
+                "verdict": m.verdict,
+                "lot_id": lot_id,
+                "value_special": special,
+            }
         )
     return rows
 
@@ -82,30 +94,16 @@ def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> d
     return found
 
 
-_UNIT_COLUMNS = (*_UNIT_FIELDS, "serial_key", "lot_id", "saved_at")
 #: The columns of a measurement row, in the table's order.
 MEASUREMENT_COLUMNS = tuple(c.name for c in TABLES["measurements"].columns)
 
 
-def _unit_inserts() -> dict[str, Any]:
-    units, measurements = TABLES["units"], TABLES["measurements"]
-    found = {}
-    for dialect in ("sqlite", "postgresql"):
-        ignoring = insert_ignoring(dialect, units, ("attempt_id",)).returning(units.c.id)
-        found[dialect] = DriverInsert(ignoring, units, _UNIT_COLUMNS)
-    found["measurements"] = DriverRowsInsert(measurements, MEASUREMENT_COLUMNS, plain=True)
-    found["units"] = DriverRowsInsert(
-        units,
-        _UNIT_COLUMNS,
-        per_statement=50,
-        statement=lambda dialect: insert_ignoring(dialect, units, ("attempt_id",)).returning(
-            units.c.id, units.c.attempt_id
-        ),
-    )
-    return found
-
-
-_INSERTS = _unit_inserts()
+@cache
+def _new_unit(dialect: str, *returning: str) -> Any:
+    """INSERT of a unit that skips an attempt id already stored, returning ``returning``."""
+    units = TABLES["units"]
+    ignoring = insert_ignoring(dialect, units, ("attempt_id",))
+    return ignoring.returning(*(units.c[name] for name in returning))
 
 
 def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool:
@@ -114,11 +112,13 @@ def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool
     def work(conn: Connection) -> tuple[bool, dict[str, int]]:
         lots = _lot_ids(conn, [unit.lot], lot_cache)
         lot_id = lots.get(unit.lot)
-        unit_id = _INSERTS[conn.dialect.name].returning_one(conn, _unit_row(unit, lot_id))
+        insert = _new_unit(conn.dialect.name, "id")
+        unit_id = conn.execute(insert, _unit_row(unit, lot_id)).scalar()
         if unit_id is None:
             return False, lots
         if unit.measurements:
-            _INSERTS["measurements"].many(conn, _measurement_rows(unit_id, unit, lot_id))
+            rows = _measurement_rows(unit_id, unit, lot_id)
+            conn.execute(TABLES["measurements"].insert(), rows)
         return True, lots
 
     stored, lots = db.write("saving a unit", work, idempotent=True)
@@ -133,18 +133,17 @@ def save_units(
 
     def work(conn: Connection, chunk: list[UnitRecord]) -> tuple[int, dict[str, int]]:
         lots = _lot_ids(conn, (u.lot for u in chunk), lot_cache)
-        heads = []
-        for u in chunk:
-            row = _unit_row(u, lots.get(u.lot))
-            heads.append(tuple(row[c] for c in _UNIT_COLUMNS))
-        new = dict((a, i) for i, a in _INSERTS["units"].many(conn, heads))
+        heads = [_unit_row(u, lots.get(u.lot)) for u in chunk]
+        insert = _new_unit(conn.dialect.name, "id", "attempt_id")
+        new = {a: i for i, a in conn.execute(insert, heads)}
         rows = [
             r
             for u in chunk
             if u.attempt_id in new
             for r in _measurement_rows(new[u.attempt_id], u, lots.get(u.lot))
         ]
-        _INSERTS["measurements"].many(conn, rows)
+        if rows:
+            conn.execute(TABLES["measurements"].insert(), rows)
         return len(new), lots
 
     stored = 0

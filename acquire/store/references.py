@@ -2,12 +2,16 @@
 
 Each row holds the open, short and load readings and the load standard's true impedance at one
 frequency, as real and imaginary parts in ohm (NULL where a standard was not captured or a
-reading was invalid). The header keeps the metadata of the set (fixture, meter, capture time,
-temperature, notes) and the names of the arrays it holds.
+reading was invalid), and the standard uncertainty of each standard's mean reading (``open_u``,
+``short_u``, ``load_u``, ohm per component; NULL when the standard was read once). The header
+keeps the metadata of the set (fixture, meter, capture time, temperature, notes, how many
+readings were averaged) and the names of the arrays it holds, and its number of points: a set
+whose stored rows do not match it is reported as damaged rather than used.
 """
 
 from __future__ import annotations
 
+import dataclasses
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -24,6 +28,8 @@ if TYPE_CHECKING:
 #: The standards a reference set may hold, in the order they are reported.
 STANDARDS = ("open", "short", "load")
 _ARRAYS = (*STANDARDS, "load_true")
+#: The per-standard uncertainty arrays (optional fields of a reference set).
+_UNCERTAINTIES = tuple(f"{std}_u" for std in STANDARDS)
 
 
 def _arrays(refs: Any) -> tuple[np.ndarray, dict[str, np.ndarray]]:
@@ -44,6 +50,24 @@ def _arrays(refs: Any) -> tuple[np.ndarray, dict[str, np.ndarray]]:
             )
         found[name] = z
     return f, found
+
+
+def _uncertainties(refs: Any, f: np.ndarray) -> dict[str, list[float | None]]:
+    columns = {}
+    for name in _UNCERTAINTIES:
+        u = getattr(refs, name, None)
+        if u is None:
+            columns[name] = [None] * f.size
+            continue
+        u = np.asarray(u, dtype=float)
+        u = np.broadcast_to(u, f.shape) if u.ndim == 0 else u
+        if u.shape != f.shape:
+            raise StoreError(
+                f"the {name} array of the reference set has shape {u.shape}, "
+                f"not that of its {f.size}-point frequency grid"
+            )
+        columns[name] = float_column(u)
+    return columns
 
 
 def save_reference_set(
@@ -72,12 +96,14 @@ def save_reference_set(
         "standards": ",".join(found),
         "points": int(f.size),
         "saved_at": utc_now(),
+        "repeats": int(getattr(refs, "repeats", 1) or 1),
     }
     columns: dict[str, list] = {"frequency": f.tolist()}
     for std in _ARRAYS:
         z = found.get(std)
         columns[f"{std}_r"] = [None] * f.size if z is None else float_column(z.real)
         columns[f"{std}_x"] = [None] * f.size if z is None else float_column(z.imag)
+    columns.update(_uncertainties(refs, f))
     sets, points = TABLES["reference_sets"], TABLES["reference_points"]
 
     def work(conn: Connection) -> int:
@@ -131,16 +157,38 @@ def reference_set_info(db: Database, ref_id: int) -> ReferenceSetInfo:
     return _info(row)
 
 
+def _check_complete(ref_id: int, points: int, indexes: list[int]) -> None:
+    """Raise StoreError if the stored rows of a set are not exactly its points 0..points-1."""
+    present = set(indexes)
+    missing = points - len(present & set(range(points)))
+    extra = len(present) - (points - missing)
+    if missing:
+        raise StoreError(
+            f"reference set {ref_id} is damaged: {missing} of its {points} points are missing; "
+            "capture the references again"
+        )
+    if extra:
+        raise StoreError(
+            f"reference set {ref_id} is damaged: it holds {extra} points beyond its {points}; "
+            "capture the references again"
+        )
+
+
 def load_reference_set(db: Database, ref_id: int) -> ReferenceSet:
-    """Reference set ``ref_id`` as a :class:`acquire.compensation.ReferenceSet`."""
+    """Reference set ``ref_id`` as a :class:`acquire.compensation.ReferenceSet`.
+
+    Raises StoreError when the set is not in the store, or when its stored points are not the
+    ones its header counts (rows deleted or added by hand).
+    """
     from acquire.compensation import ReferenceSet
 
     sets, points = TABLES["reference_sets"], TABLES["reference_points"]
     names = ["frequency"] + [f"{std}_{part}" for std in _ARRAYS for part in "rx"]
+    names += list(_UNCERTAINTIES)
 
     def work(conn: Connection) -> tuple[Any, list]:
         head = conn.execute(select(sets).where(sets.c.id == ref_id)).first()
-        query = select(*(points.c[n] for n in names))
+        query = select(points.c.idx, *(points.c[n] for n in names))
         rows = conn.execute(
             query.where(points.c.reference_set_id == ref_id).order_by(points.c.idx)
         ).all()
@@ -149,9 +197,10 @@ def load_reference_set(db: Database, ref_id: int) -> ReferenceSet:
     head, rows = db.read("loading a reference set", work)
     if head is None:
         raise StoreError(f"there is no reference set {ref_id} in the store")
-    table = np.array([tuple(r) for r in rows], dtype=float).reshape(len(rows), len(names))
+    _check_complete(ref_id, head.points, [r[0] for r in rows])
+    table = np.array([tuple(r[1:]) for r in rows], dtype=float).reshape(len(rows), len(names))
     held = set(head.standards.split(","))
-    arrays: dict[str, np.ndarray | None] = {}
+    arrays: dict[str, Any] = {}
     for k, std in enumerate(_ARRAYS):
         if std in held:
             z = np.empty(len(rows), dtype=complex)
@@ -159,6 +208,15 @@ def load_reference_set(db: Database, ref_id: int) -> ReferenceSet:
             arrays[std] = z
         else:
             arrays[std] = None
+    fields = {f.name for f in dataclasses.fields(ReferenceSet)}
+    first_u = 1 + 2 * len(_ARRAYS)
+    for k, name in enumerate(_UNCERTAINTIES):
+        u = table[:, first_u + k]
+        stored = any(r[1 + first_u + k] is not None for r in rows)
+        if stored and name in fields:
+            arrays[name] = u.copy()
+    if head.repeats != 1 and "repeats" in fields:
+        arrays["repeats"] = head.repeats
     return ReferenceSet(
         table[:, 0].copy(),
         **arrays,

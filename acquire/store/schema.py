@@ -1,4 +1,4 @@
-"""The tables of a results store, for every schema version this program can create.
+"""The tables of a results store at its newest schema revision.
 
 The store's layout is an interface in its own right: points and measurements are plain rows, so
 a query tool or a spreadsheet connected to the database can answer questions directly
@@ -18,11 +18,17 @@ one index (``ix_measurements_lot_summary``) instead of joining every unit.
 Names that identify a record (a meter's identity, a fixture's or lot's name, a serial number)
 may be of any length; their uniqueness and look-ups go through a SHA-256 ``key`` column.
 
-Versions: 1 kept a unit's lot as free text on the unit, stored non-finite measurement values in
-the value column and DC frequencies as NULL, and knew nothing of who was writing a sweep.
-2 (this release) adds the ``lots`` table (units and measurements point to it by ``lot_id``),
-``value_special``, and the writing process and its last write on each sweep, so a sweep whose
-writer died can be told from one still running.
+A sweep point's ``u_r`` and ``u_x`` are the expanded uncertainty (k = 2, ohm) of its corrected R
+and X, NULL when unknown; its ``flags`` is "" for a measured value, else comma-separated words
+(``overrange``, ``beyond-accuracy``, ...). A reference point's ``open_u``, ``short_u`` and
+``load_u`` are the standard uncertainty (ohm, per component) of that standard's mean reading, NULL
+when it was read once; ``reference_sets.repeats`` says how many readings were averaged.
+
+Revisions: the layout is changed only by Alembic migrations (:mod:`acquire.store.migrations`);
+this module describes the newest revision, :data:`SCHEMA_REVISION`. Revision 0001 is the layout
+of the first released program (which marked its stores with ``schema_version`` 2); 0002 adds the
+uncertainty and flag columns above. ``schema_version`` is kept only so that releases from before
+the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
 
 from __future__ import annotations
@@ -45,10 +51,11 @@ from sqlalchemy import (
     Table,
     Text,
     TypeDecorator,
+    text,
 )
 
-#: The schema version this program writes.
-SCHEMA_VERSION = 2
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0002_*.py``).
+SCHEMA_REVISION = "0002"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
 
@@ -101,10 +108,13 @@ def _real(name: str) -> Column:
     return Column(name, Double, nullable=True)
 
 
-def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
-    """The tables of schema ``version`` (1 or 2), for creating a store of that version."""
-    if version not in (1, 2):
-        raise ValueError(f"no schema version {version}")
+def build_metadata() -> MetaData:
+    """The tables of the newest schema revision (:data:`SCHEMA_REVISION`).
+
+    The store's code reads and writes through these tables. A store's tables are made by the
+    migrations (:mod:`acquire.store.migrations`), never from here: a test checks that running every
+    migration from an empty database gives exactly this layout.
+    """
     md = MetaData()
     Table(
         "schema_version",
@@ -150,6 +160,7 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
         _text("standards"),
         Column("points", Integer, nullable=False),
         Column("saved_at", UtcDateTime, nullable=False),
+        Column("repeats", Integer, nullable=False, default=1, server_default=text("1")),
     )
     Table(
         "reference_points",
@@ -162,15 +173,9 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
             for std in ("open", "short", "load", "load_true")
             for part in "rx"
         ),
+        *(_real(f"{std}_u") for std in ("open", "short", "load")),
         sqlite_with_rowid=False,
     )
-    sweep_extra = []
-    if version >= 2:
-        sweep_extra = [
-            Column("last_write_at", UtcDateTime, nullable=True),
-            Column("writer_host", Text, nullable=True),
-            Column("writer_pid", Integer, nullable=True),
-        ]
     Table(
         "sweeps",
         md,
@@ -185,7 +190,9 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
         Column("points", Integer, nullable=False, default=0),
         Column("started_at", UtcDateTime, nullable=False),
         Column("finished_at", UtcDateTime, nullable=True),
-        *sweep_extra,
+        Column("last_write_at", UtcDateTime, nullable=True),
+        Column("writer_host", Text, nullable=True),
+        Column("writer_pid", Integer, nullable=True),
         CheckConstraint(
             "status IN ('running', 'complete', 'interrupted')", name="ck_sweeps_status"
         ),
@@ -197,6 +204,9 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
         Column("idx", Integer, primary_key=True, autoincrement=False),
         Column("frequency", Double, nullable=False),
         *(_real(name) for name in ("raw_r", "raw_x", "corrected_r", "corrected_x")),
+        _real("u_r"),
+        _real("u_x"),
+        Column("flags", Text, nullable=False, default="", server_default=""),
         sqlite_with_rowid=False,
     )
     Table(
@@ -208,21 +218,15 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
         Column("text", Text, nullable=False),
         Column("created_at", UtcDateTime, nullable=False),
     )
-    if version >= 2:
-        Table(
-            "lots",
-            md,
-            _id(),
-            Column("key", String(64), nullable=False, unique=True),
-            _text("name"),
-            _text("notes"),
-            Column("created_at", UtcDateTime, nullable=False),
-        )
-        lot_column = _ref("lot_id", "lots")
-        lot_index = Index("ix_units_lot_id", "lot_id")
-    else:
-        lot_column = _text("lot")
-        lot_index = Index("ix_units_lot", "lot")
+    Table(
+        "lots",
+        md,
+        _id(),
+        Column("key", String(64), nullable=False, unique=True),
+        _text("name"),
+        _text("notes"),
+        Column("created_at", UtcDateTime, nullable=False),
+    )
     Table(
         "units",
         md,
@@ -243,24 +247,9 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
         _text("bin"),
         _text("notes"),
         Column("saved_at", UtcDateTime, nullable=False),
-        lot_column,
-        lot_index,
+        _ref("lot_id", "lots"),
+        Index("ix_units_lot_id", "lot_id"),
     )
-    measurement_extra: list = []
-    if version >= 2:
-        measurement_extra = [
-            _ref("lot_id", "lots"),
-            Column("value_special", String(4), nullable=False, default=""),
-            Index(
-                "ix_measurements_lot_summary",
-                "lot_id",
-                "parameter",
-                "frequency",
-                "si_unit",
-                "value",
-                "verdict",
-            ),
-        ]
     Table(
         "measurements",
         md,
@@ -273,11 +262,21 @@ def build_metadata(version: int = SCHEMA_VERSION) -> MetaData:
         _real("low_limit"),
         _real("high_limit"),
         _text("verdict"),
-        *measurement_extra,
+        _ref("lot_id", "lots"),
+        Column("value_special", String(4), nullable=False, default=""),
+        Index(
+            "ix_measurements_lot_summary",
+            "lot_id",
+            "parameter",
+            "frequency",
+            "si_unit",
+            "value",
+            "verdict",
+        ),
         sqlite_with_rowid=False,
     )
     return md
 
 
-#: The tables of the current schema version.
-TABLES = build_metadata(SCHEMA_VERSION).tables
+#: The tables of the newest schema revision.
+TABLES = build_metadata().tables

@@ -16,6 +16,7 @@ from __future__ import annotations
 
 import os
 import socket
+from collections.abc import Sequence
 from datetime import datetime, timedelta
 from types import TracebackType
 from typing import TYPE_CHECKING, Any
@@ -33,7 +34,8 @@ if TYPE_CHECKING:
 
 #: Seconds without a write after which a running sweep is taken as abandoned.
 STALE_AFTER_S = 3600.0
-POINT_COLUMNS = ("frequency", "raw_r", "raw_x", "corrected_r", "corrected_x")
+#: The numeric columns of a sweep point, as ``sweep_points`` returns them (then ``flags``).
+POINT_COLUMNS = ("frequency", "raw_r", "raw_x", "corrected_r", "corrected_x", "u_r", "u_x")
 
 
 def _process_exists(pid: int) -> bool:
@@ -125,12 +127,20 @@ class SweepWriter:
         return self._finished
 
     def add_points(
-        self, frequency: np.ndarray, raw_z: np.ndarray, corrected_z: np.ndarray | None = None
+        self,
+        frequency: np.ndarray,
+        raw_z: np.ndarray,
+        corrected_z: np.ndarray | None = None,
+        uncertainty: np.ndarray | None = None,
+        flags: Sequence[str] | None = None,
     ) -> None:
         """Store a batch of points (Hz, complex ohm) in one transaction.
 
         ``corrected_z`` may be None when no reference set is applied; NaN readings are stored as
-        NULL, overrange (infinite) ones as infinity.
+        NULL, overrange (infinite) ones as infinity. ``uncertainty`` is an (n, 2) array of the
+        expanded uncertainty (k = 2, ohm) of the corrected R and X, or None when unknown;
+        ``flags`` is one string per point ('' for a measured value, else comma-separated words
+        such as ``overrange``), or None for all ''.
         """
         if self._finished is not None:
             raise StoreError(f"sweep {self._id} is already {self._finished}: begin a new sweep")
@@ -145,6 +155,8 @@ class SweepWriter:
                 f"sweep points need matching 1-D arrays, got frequency {f.shape}, "
                 f"raw {raw.shape}, corrected {cor.shape}"
             )
+        u = _uncertainty(uncertainty, f.size)
+        marks = _flags(flags, f.size)
         if f.size == 0:
             return
         columns = (
@@ -153,10 +165,14 @@ class SweepWriter:
             float_column(raw.imag),
             float_column(cor.real),
             float_column(cor.imag),
+            float_column(u[:, 0]),
+            float_column(u[:, 1]),
+            marks,
         )
         start = self._points
+        names = (*POINT_COLUMNS, "flags")
         rows = [
-            {"sweep_id": self._id, "idx": start + i, **dict(zip(POINT_COLUMNS, v, strict=True))}
+            {"sweep_id": self._id, "idx": start + i, **dict(zip(names, v, strict=True))}
             for i, v in enumerate(zip(*columns, strict=True))
         ]
         sweeps, points = TABLES["sweeps"], TABLES["sweep_points"]
@@ -212,6 +228,29 @@ class SweepWriter:
             self.finish("interrupted", note=f"stopped by {reason}")
 
 
+def _uncertainty(uncertainty: np.ndarray | None, n: int) -> np.ndarray:
+    if uncertainty is None:
+        return np.full((n, 2), np.nan)
+    u = np.asarray(uncertainty, dtype=float)
+    if u.shape != (n, 2):
+        raise StoreError(
+            f"the uncertainty of {n} sweep points must be an array of shape ({n}, 2) "
+            f"(U of R and of X per point), not {u.shape}"
+        )
+    return u
+
+
+def _flags(flags: Sequence[str] | None, n: int) -> list[str]:
+    if flags is None:
+        return [""] * n
+    if isinstance(flags, str):
+        raise StoreError("give the flags of sweep points as one string per point, not one string")
+    marks = list(flags)
+    if len(marks) != n or not all(isinstance(m, str) for m in marks):
+        raise StoreError(f"give the flags of {n} sweep points as {n} strings ('' for none)")
+    return marks
+
+
 def _sweep_info(row: Any, now: datetime, stale_after: float) -> SweepInfo:
     status, note = row.status, row.note
     if status == "running" and writer_gone(
@@ -260,13 +299,15 @@ def sweep_info(db: Database, sweep_id: int, stale_after: float = STALE_AFTER_S) 
 
 
 def sweep_points(db: Database, sweep_id: int) -> pd.DataFrame:
-    """The points of a sweep in order, columns ``frequency, raw_r, raw_x, corrected_r,
-    corrected_x`` (float; NaN where a reading was invalid or no correction was applied)."""
+    """The points of a sweep in order, float columns ``frequency, raw_r, raw_x, corrected_r,
+    corrected_x, u_r, u_x`` (NaN where a reading was invalid, no correction was applied or the
+    uncertainty is unknown) and the text column ``flags`` ('' for a measured value; read it as
+    ``points["flags"]``, since ``DataFrame.flags`` is an attribute of pandas' own)."""
     import pandas as pd
 
     sweeps, points = TABLES["sweeps"], TABLES["sweep_points"]
     query = (
-        select(*(points.c[n] for n in POINT_COLUMNS))
+        select(*(points.c[n] for n in POINT_COLUMNS), points.c.flags)
         .where(points.c.sweep_id == sweep_id)
         .order_by(points.c.idx)
     )
@@ -278,8 +319,11 @@ def sweep_points(db: Database, sweep_id: int) -> pd.DataFrame:
     known, rows = db.read("reading sweep points", work)
     if not known:
         raise StoreError(f"there is no sweep {sweep_id} in the store")
-    table = np.array([tuple(r) for r in rows], dtype=float).reshape(len(rows), len(POINT_COLUMNS))
-    return pd.DataFrame(table, columns=list(POINT_COLUMNS))
+    width = len(POINT_COLUMNS)
+    table = np.array([tuple(r[:width]) for r in rows], dtype=float).reshape(len(rows), width)
+    frame = pd.DataFrame(table, columns=list(POINT_COLUMNS))
+    frame["flags"] = pd.Series([r[width] for r in rows], dtype=object)
+    return frame
 
 
 def close_abandoned_sweeps(db: Database, stale_after: float = STALE_AFTER_S) -> list[int]:

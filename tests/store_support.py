@@ -1,13 +1,14 @@
-"""Helpers for testing and benchmarking the store (used by ``tests/test_store*.py`` and
-``benchmarks/bench_store.py``; nothing here is needed to use a store).
+"""Helpers for the store's tests (``tests/test_store*.py``; ``benchmarks/bench_store.py`` borrows
+the station process and the synthetic units). Not part of the installed program.
 
 - The PostgreSQL server for tests is ``ACQUIRE_TEST_POSTGRES`` (default
   ``postgresql://postgres@127.0.0.1:5432/test``); :func:`require_postgres` skips a test when it
   cannot be reached, or fails it when the environment has ``CI=true``.
 - :func:`temporary_schema` gives a run its own PostgreSQL schema and drops it afterwards.
 - :func:`synthetic_unit` makes a deterministic unit (demo values, our own invention).
-- ``python -m acquire.store.testing URL --worker K --count N`` is a station process writing
-  units, for the crash and concurrency tests and the benchmark; it prints a JSON summary.
+- ``python tests/store_support.py URL --worker K --count N`` (:data:`STATION`) is a station
+  process writing units, for the crash and concurrency tests and the benchmark; it prints a JSON
+  summary.
 """
 
 from __future__ import annotations
@@ -26,6 +27,8 @@ from pathlib import Path
 
 from acquire.store.records import MeasurementRecord, UnitRecord
 
+#: The station process: ``[sys.executable, STATION, url, ...]``.
+STATION = str(Path(__file__).resolve())
 DEFAULT_TEST_POSTGRES = "postgresql://postgres@127.0.0.1:5432/test"
 _NAMESPACE = uuid.UUID("6f1d7c2e-3b1a-4c55-9a0e-2f4b8d6c1a90")
 _T0 = datetime(2026, 3, 2, 8, 0, tzinfo=UTC)
@@ -114,21 +117,12 @@ def synthetic_unit(
     import numpy as np
 
     z = np.random.default_rng([seed, worker, index]).standard_normal(measurements)
-    return _unit(index, lot, worker, z, seed)
+    return make_unit(index, lot, worker, z, seed)
 
 
-def synthetic_units(
-    count: int, lot: str = "LOT-1", worker: int = 0, measurements: int = 10, seed: int = 0
-) -> Iterator[UnitRecord]:
-    """``count`` units like :func:`synthetic_unit` (other values, drawn in one go: faster)."""
-    import numpy as np
-
-    z = np.random.default_rng([seed, worker, count, 1]).standard_normal((count, measurements))
-    for index in range(count):
-        yield _unit(index, lot, worker, z[index].tolist(), seed)
-
-
-def _unit(index: int, lot: str, worker: int, z, seed: int) -> UnitRecord:
+def make_unit(index: int, lot: str, worker: int, z, seed: int = 0) -> UnitRecord:
+    """Unit ``index`` of ``worker`` whose measurements lie ``z`` (standard normal draws) from
+    their nominal values."""
     records = []
     for k, zk in enumerate(z):
         name, f, unit, nominal, sigma = _PARAMETERS[k % len(_PARAMETERS)]

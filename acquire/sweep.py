@@ -64,7 +64,8 @@ class SweepOutcome:
 
     ``corrected`` is None when no reference set was used. ``uncertainty`` is the (n, 2)
     expanded uncertainty (k = 2, ohm) [U_R, U_X] of the shown (corrected, else raw) impedance,
-    NaN where unknown; ``flags`` the (n,) flags texts ('' for a measured value, else words
+    NaN where unknown, and ``cov`` the (n, 2, 2) covariance of R and X (ohm²) it comes from;
+    ``flags`` the (n,) flags texts ('' for a measured value, else words
     such as ``beyond-accuracy``). ``status`` is ``"complete"`` or
     ``"interrupted"``; ``reason`` says why it stopped early (the driver's message for a meter
     fault); ``error`` is the exception that stopped it, if any.
@@ -80,6 +81,7 @@ class SweepOutcome:
     error: BaseException | None = None
     uncertainty: np.ndarray | None = None
     flags: np.ndarray | None = None
+    cov: np.ndarray | None = None
 
     @property
     def interrupted(self) -> bool:
@@ -252,6 +254,7 @@ def run_sweep(
         error=error,
         uncertainty=state.expanded[:n].copy() if known else None,
         flags=state.flags[:n].copy() if known else None,
+        cov=state.cov[:n].copy() if known else None,
     )
 
 

@@ -131,10 +131,10 @@ class SweepState:
                 self.first_flagged = float(f[flagged][0])
             self.flagged += int(flagged.sum())
 
-    def hidden(self, name: str) -> np.ndarray:
-        """Per point so far, True where ``name``'s value is beyond accuracy on a flagged point
-        (so it is shown as a marker, never as a number)."""
-        n = self.count
+    def hidden(self, name: str, n: int | None = None) -> np.ndarray:
+        """Per point of the first ``n`` (default: all so far), True where ``name``'s value is
+        beyond accuracy on a flagged point (shown as a marker, never as a number)."""
+        n = self.count if n is None else n
         bad = self.beyond.get(name)
         if bad is None:
             return np.zeros(n, dtype=bool)

@@ -123,8 +123,8 @@ def capture(run: DemoRun) -> None:
         refs, name=f"demo {run.fixture}", meter_id=meter_id, fixture_id=fixture_id
     )
     run.console.print(
-        f"saved reference set {run.reference_id} ({refs.method}, each standard read {REPEATS} "
-        "times: the mean is kept and its scatter counted in every point's uncertainty) in the store"
+        f"saved reference set {run.reference_id} ({refs.method}) in the store; each standard "
+        f"read {REPEATS} times: the mean is kept, its scatter counts in every point's uncertainty"
     )
 
 

@@ -148,7 +148,7 @@ def _capture(args: argparse.Namespace) -> int:
         ref_id = store.save_reference_set(refs, name=name, meter_id=meter_id, fixture_id=fixture_id)
         console.print(
             f"saved reference set {ref_id} ({name!r}, {refs.method}, {refs.frequency.size} "
-            f"points, each standard read {args.repeats} time(s)) in {store.url}",
+            f"points) in {store.url}; each standard read {args.repeats} time(s)",
             soft_wrap=True,
         )
     return 0

@@ -255,3 +255,27 @@ def test_type_a_only_when_the_dialect_states_no_accuracy():
     # read three times: the readings agree exactly, so their scatter (Type A) is zero
     thrice = run_sweep(meter, plan, repeats=3)
     assert np.all(thrice.uncertainty == 0)
+
+
+@pytest.mark.parametrize("repeats", [1, 4])
+def test_reference_capture_repeats_reads_each_standard_n_times(repeats, tmp_path, monkeypatch):
+    url = f"sqlite:///{tmp_path / 'r.db'}"
+    with running(dut="open", fixture="bench-leads", seed=9, measure_time=0) as sim:
+
+        def operator_at_the_keyboard(prompt: str) -> str:
+            for standard in ("open", "short"):
+                if f"measure the {standard}" in prompt:
+                    sim.insert(standard)
+            return ""
+
+        monkeypatch.setattr("builtins.input", operator_at_the_keyboard)
+        code = main(["reference", "capture", "--resource", sim.resource, "--store", url,
+                     "--fixture", "bench-leads", "--list", "1kHz, 100kHz",
+                     "--repeats", str(repeats)])  # fmt: skip
+    assert code == 0
+    with open_store(url) as store:
+        refs = store.load_reference_set(1)
+    assert refs.repeats == repeats
+    # the scatter of the readings is kept only when there is more than one
+    assert (refs.open_u is None) == (repeats == 1)
+    assert (refs.short_u is None) == (repeats == 1)

@@ -14,8 +14,8 @@ at the dialect's reference conditions) and the quantities the sweep shows. Its
   uncertainty (NaN).
 
 Each point's flags text is ``beyond-accuracy`` where a shown quantity is past what the tool can
-measure (:func:`acquire.uncertainty.point_flags`), ``overrange`` or ``invalid`` where the meter
-gave no usable reading, else ''. Everything is vectorised over the chunk.
+measure (as :func:`acquire.uncertainty.point_flags` judges it), ``overrange`` or ``invalid``
+where the meter gave no usable reading, else ''. Everything is vectorised over the chunk.
 """
 
 from __future__ import annotations
@@ -27,11 +27,11 @@ from typing import Any
 import numpy as np
 
 from acquire.uncertainty import (
+    BEYOND_ACCURACY,
     as_covariance,
     beyond_accuracy,
     correct_with_uncertainty,
     expanded,
-    point_flags,
     reading_uncertainty,
     repeatability,
 )
@@ -136,9 +136,11 @@ class PointUncertainty:
                 cov = self._raw_cov(f, raw, u_m, settings)
             z = raw if corrected is None else corrected
             judge = np.where(np.isfinite(cov), cov, 0.0)
-            flags = point_flags(f, z, judge, self.names).astype(object)
             judged = tuple(dict.fromkeys((*self.names, *ALSO_JUDGED)))
             beyond = beyond_accuracy(f, z, judge, judged)
+        # what point_flags(f, z, judge, self.names) gives, from the one judgement made above
+        shown_bad = np.logical_or.reduce([beyond[name] for name in self.names])
+        flags = np.where(shown_bad, BEYOND_ACCURACY, "").astype(object)
         flags[np.isinf(raw.real) | np.isinf(raw.imag)] = OVERRANGE
         flags[np.isnan(raw.real) | np.isnan(raw.imag)] = INVALID
         return PointValues(corrected, cov, expanded(cov), flags, beyond)

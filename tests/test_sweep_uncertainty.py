@@ -279,3 +279,18 @@ def test_reference_capture_repeats_reads_each_standard_n_times(repeats, tmp_path
     # the scatter of the readings is kept only when there is more than one
     assert (refs.open_u is None) == (repeats == 1)
     assert (refs.short_u is None) == (repeats == 1)
+
+
+def test_the_sweeps_flags_are_what_point_flags_judges():
+    from acquire.sweep_uncertainty import PointUncertainty
+    from acquire.uncertainty import point_flags
+    from drivers.dialect_file import load_dialect
+
+    f = np.geomspace(1e3, 2e7, 60)
+    w = 2 * np.pi * f
+    z = 1 / (1 / (0.05 + 1j * w * 10e-6) + 1j * w * 5e-12) - 0.5 * (f / 2e7) ** 2  # Rs < 0 at top
+    model = PointUncertainty(load_dialect("simulated").accuracy, names=("Ls", "Rs", "Q"))
+    values = model.evaluate(f, z)
+    expected = point_flags(f, z, values.cov, ("Ls", "Rs", "Q"))
+    assert list(values.flags) == list(expected)
+    assert "beyond-accuracy" in list(values.flags) and "" in list(values.flags)

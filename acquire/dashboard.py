@@ -7,6 +7,11 @@ turns from inductive to capacitive). It is a pure function of the state; :class:
 redraws it on a timer thread at a bounded rate, so acquisition never waits for the screen.
 Without a terminal, :class:`PlainProgress` prints a progress line at most every few seconds.
 At the end, :func:`summary` shows selected points raw and corrected.
+
+A value the sweep flagged beyond the tool's accuracy is never printed as a number: the latest
+point, the summary table and the progress lines say "beyond accuracy" instead, the plots leave
+it out, and a warning line says how many points were flagged and from which frequency. With
+``state.show_uncertainty`` the values carry their expanded uncertainty (k = 2): ``± U``.
 """
 
 from __future__ import annotations
@@ -25,11 +30,12 @@ from rich.progress_bar import ProgressBar
 from rich.table import Table
 from rich.text import Text
 
-from acquire.display import UNITS, format_duration, format_value
+from acquire.display import UNITS, format_duration, format_measured
 from acquire.impedance import quantities
 from acquire.resonance import self_resonance, summary_frequencies
 from acquire.sweep_state import SweepState
 from acquire.textplot import draw, x_axis, y_labels
+from acquire.uncertainty import quantity_uncertainty
 from acquire.units import format_si
 
 COLOURS = ("cyan", "magenta", "green", "yellow", "blue", "red")
@@ -73,7 +79,7 @@ def render(
     side = width >= 80
     plot_width = width - (SIDE_WIDTH + 1 if side else 0)
     plots = _plots(state, f, q, srf, plot_width, height)
-    status = _side(state, f, q, srf, now)
+    status = _side(state, f, z, q, srf, now)
     body: Table | Group
     if side:
         body = Table.grid(padding=(0, 1))
@@ -103,6 +109,8 @@ def _header(state: SweepState, now: datetime | None) -> Text:
         text.append("\nreference set: none (raw readings, fixture not removed)", style="yellow")
     if state.destination:
         text.append(f"\npoints go to: {state.destination}")
+    if state.show_uncertainty and state.uncertainty_note:
+        text.append(f"\n{state.uncertainty_note}", style="dim")
     return text
 
 
@@ -144,7 +152,7 @@ def _plots(
     for k, name in enumerate(names):
         colour = COLOURS[k % len(COLOURS)]
         unit = UNITS.get(name, "")
-        y = q[name] if q is not None else np.empty(0)
+        y = np.where(state.hidden(name, f.size), np.nan, q[name]) if q is not None else np.empty(0)
         label_width = 9
         plot = draw(
             f, y, width - label_width - 1, rows_each, x_range, markers=(srf,) if srf else ()
@@ -165,6 +173,7 @@ def _plots(
 def _side(
     state: SweepState,
     f: np.ndarray,
+    z: np.ndarray,
     q: dict[str, np.ndarray] | None,
     srf: float | None,
     now: datetime | None,
@@ -174,10 +183,18 @@ def _side(
     latest.add_column(justify="right")
     if q is not None and f.size:
         latest.add_row("f", format_si(float(f[-1]), "Hz"))
-        for name in dict.fromkeys((*state.quantities, "Z", "theta")):
+        names = tuple(dict.fromkeys((*state.quantities, "Z", "theta")))
+        last = slice(f.size - 1, f.size)
+        u = point_u(state, f, z, last, names)
+        for name in names:
             latest.add_row(
                 "|Z|" if name == "Z" else "θ" if name == "theta" else name,
-                format_value(name, float(q[name][-1])),
+                format_measured(
+                    name,
+                    float(q[name][-1]),
+                    None if u is None else float(u[name][0]),
+                    bool(state.hidden(name, f.size)[-1]),
+                ),
             )
     else:
         latest.add_row("", "no points yet")
@@ -192,6 +209,14 @@ def _side(
             )
         )
     return Group(*parts)
+
+
+def point_u(state: SweepState, f: np.ndarray, z: np.ndarray, part, names):
+    """Expanded uncertainty of ``names`` at the points ``part`` of ``f`` and the shown ``z`` (the
+    state's first ``f.size`` points), or None when the view does not show uncertainty."""
+    if not state.show_uncertainty:
+        return None
+    return quantity_uncertainty(f[part], z[part], state.cov[: f.size][part], names)
 
 
 def summary(state: SweepState, count: int = 6) -> Group:
@@ -242,6 +267,8 @@ def _summary_table(
     fp = f[picks]
     qr = quantities(fp, raw[picks])
     qc = quantities(fp, corrected[picks]) if corrected is not None else None
+    u = point_u(state, f, raw if corrected is None else corrected, picks, state.quantities)
+    hidden = {name: state.hidden(name, f.size)[picks] for name in state.quantities}
     title = "raw vs corrected" if qc is not None else "selected points (raw)"
     table = Table(title=title, title_justify="left")
     table.add_column("f", justify="right")
@@ -254,9 +281,16 @@ def _summary_table(
     for j in range(fp.size):
         row = [format_si(float(fp[j]), "Hz")]
         for name in state.quantities:
-            row.append(format_value(name, float(qr[name][j])))
-            if qc is not None:
-                row.append(format_value(name, float(qc[name][j])))
+            shown = format_measured(
+                name,
+                float((qr if qc is None else qc)[name][j]),
+                None if u is None else float(u[name][j]),
+                bool(hidden[name][j]),
+            )
+            if qc is None:
+                row.append(shown)
+            else:
+                row += [format_measured(name, float(qr[name][j])), shown]
         table.add_row(*row)
     return table
 
@@ -324,7 +358,18 @@ class PlainProgress:
         if f.size:
             z = raw if corrected is None else corrected
             q = quantities(f[-1:], z[-1:])
-            values = "  ".join(f"{n}={format_value(n, float(q[n][0]))}" for n in s.quantities)
+            last = slice(f.size - 1, f.size)
+            u = point_u(s, f, z, last, s.quantities)
+            values = "  ".join(
+                f"{n}="
+                + format_measured(
+                    n,
+                    float(q[n][0]),
+                    None if u is None else float(u[n][0]),
+                    bool(s.hidden(n, f.size)[-1]),
+                )
+                for n in s.quantities
+            )
             text += f"  f={format_si(float(f[-1]), 'Hz')}  {values}"
         left = s.remaining()
         if left is not None:

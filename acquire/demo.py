@@ -27,6 +27,7 @@ from acquire.plan import FrequencyPlan, log_plan
 from acquire.sweep import SweepOutcome, run_sweep
 from acquire.sweep_setup import begin, prepare_state, review_readings
 from acquire.sweep_state import SweepState
+from acquire.sweep_uncertainty import PointUncertainty
 from acquire.units import format_si
 
 #: What the demo measures: a coil and a fixture of our own invention (sim_profiles/).
@@ -36,6 +37,8 @@ FIXTURE = "bench-leads"
 MEASURE_TIME = 0.01
 #: Frequencies at which the demo compares raw and corrected Ls with the simulated coil's own.
 CHECK_FREQUENCIES = (1e3, 1e5, 1e6, 2e6)
+#: Readings of each reference standard (their mean is kept, their scatter is its Type A).
+REPEATS = 3
 
 
 class SimulatedOperator:
@@ -104,6 +107,7 @@ def capture(run: DemoRun) -> None:
         fixture=run.fixture,
         meter_name=str(run.identity),
         notes="captured by acquire demo",
+        repeats=REPEATS,
     )
     ident = run.identity
     meter_id = run.store.record_meter(
@@ -118,7 +122,10 @@ def capture(run: DemoRun) -> None:
     run.reference_id = run.store.save_reference_set(
         refs, name=f"demo {run.fixture}", meter_id=meter_id, fixture_id=fixture_id
     )
-    run.console.print(f"saved reference set {run.reference_id} ({refs.method}) in the store")
+    run.console.print(
+        f"saved reference set {run.reference_id} ({refs.method}) in the store; each standard "
+        f"read {REPEATS} times: the mean is kept, its scatter counts in every point's uncertainty"
+    )
 
 
 def sweep(run: DemoRun) -> None:
@@ -129,11 +136,17 @@ def sweep(run: DemoRun) -> None:
         run.plan, run.identity, run.references, run.reference_id, run.fixture, run.dut,
         ("Ls", "Rs", "Q"),
     )  # fmt: skip
+    model = PointUncertainty.for_meter(run.meter, state.quantities)
+    state.show_uncertainty = True
+    state.uncertainty_note = model.note()
     writer = begin(run.store, run.meter, run.identity, run.fixture, run.dut, run.reference_id,
-                   run.plan, state.quantities, references=run.references)  # fmt: skip
+                   run.plan, state.quantities, {"uncertainty": model.describe()},
+                   references=run.references)  # fmt: skip
     state.destination = f"sweep {writer.id} in {run.store.url}"
     with open_view(state, live=run.live, console=run.console) as view:
-        run.outcome = run_sweep(run.meter, run.plan, run.references, writer, state, view.update)
+        run.outcome = run_sweep(
+            run.meter, run.plan, run.references, writer, state, view.update, uncertainty=model
+        )
         review_readings(state, run.references)
     run.state = state
     run.console.print(summary(state))
@@ -141,32 +154,46 @@ def sweep(run: DemoRun) -> None:
 
 def compare_with_truth(run: DemoRun) -> None:
     """How far raw and corrected Ls are from the simulated coil's own, at a few frequencies."""
-    from acquire.impedance import quantities
-
     out = run.outcome
     if out is None or out.corrected is None or out.frequency.size == 0:
         return
     table = Table(
-        title="what the fixture does to Ls, against the simulated coil's true value",
+        title="what the fixture does to Ls, against the simulated coil's true value "
+        "(U: expanded uncertainty, k = 2)",
         title_justify="left",
     )
-    for col in ("f", "true Ls", "raw Ls", "raw error", "corrected Ls", "corrected error"):
+    columns = ("f", "true Ls", "raw Ls", "raw error", "corrected Ls ± U(Ls)", "corrected error",
+               "true Ls within ± U")  # fmt: skip
+    for col in columns:
         table.add_column(col, justify="right")
     for target in CHECK_FREQUENCIES:
-        i = int(np.argmin(np.abs(np.log(out.frequency / target))))
-        f = out.frequency[i : i + 1]
-        true = quantities(f, run.sim.dut_impedance(f))["Ls"][0]
-        raw = quantities(f, out.raw[i : i + 1])["Ls"][0]
-        cor = quantities(f, out.corrected[i : i + 1])["Ls"][0]
-        table.add_row(
-            format_si(float(f[0]), "Hz"),
-            format_si(true, "H"),
-            format_si(raw, "H"),
-            f"{(raw - true) / true:+.2%}",
-            format_si(cor, "H"),
-            f"{(cor - true) / true:+.2%}",
-        )
+        table.add_row(*truth_row(run, out, target))
     run.console.print(table)
+
+
+def truth_row(run: DemoRun, out: SweepOutcome, target: float) -> list[str]:
+    """One row of the comparison with the simulated coil's true Ls, at the point nearest
+    ``target``: a corrected value flagged beyond accuracy is not printed as a number."""
+    from acquire.display import BEYOND, format_measured
+    from acquire.impedance import quantities
+    from acquire.uncertainty import beyond_accuracy, quantity_uncertainty
+
+    i = int(np.argmin(np.abs(np.log(out.frequency / target))))
+    f = out.frequency[i : i + 1]
+    true = quantities(f, run.sim.dut_impedance(f))["Ls"][0]
+    raw = quantities(f, out.raw[i : i + 1])["Ls"][0]
+    zc = out.corrected[i : i + 1]
+    cor = quantities(f, zc)["Ls"][0]
+    row = [format_si(float(f[0]), "Hz"), format_si(true, "H"), format_si(raw, "H"),
+           f"{(raw - true) / true:+.2%}"]  # fmt: skip
+    if out.cov is None:
+        return row + [format_si(cor, "H"), f"{(cor - true) / true:+.2%}", "—"]
+    cov = np.nan_to_num(out.cov[i : i + 1], nan=0.0)
+    u = float(quantity_uncertainty(f, zc, cov, ("Ls",))["Ls"][0])
+    if out.flags is not None and out.flags[i] and beyond_accuracy(f, zc, cov, ("Ls",))["Ls"][0]:
+        return row + [BEYOND, "—", "—"]
+    within = "yes" if abs(cor - true) <= u else "no"
+    return row + [format_measured("Ls", cor, u), f"{(cor - true) / true:+.2%}", within]
 
 
 def predict_and_fit(run: DemoRun) -> None:

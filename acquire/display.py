@@ -10,6 +10,11 @@ import math
 
 from acquire.units import format_si
 
+#: What is shown in place of a value past the tool's accuracy (never a number).
+BEYOND = "beyond accuracy"
+#: SI prefixes by power of a thousand, for a value and its uncertainty printed alike.
+_PREFIXES = {12: "T", 9: "G", 6: "M", 3: "k", 0: "", -3: "m", -6: "µ", -9: "n", -12: "p", -15: "f"}
+
 #: The SI unit of each quantity of :func:`acquire.impedance.quantities`.
 UNITS = {
     "Ls": "H", "Lp": "H", "Rs": "Ω", "Rp": "Ω", "Cs": "F", "Cp": "F", "Q": "", "D": "",
@@ -44,3 +49,32 @@ def format_duration(seconds: float | None) -> str:
     if s < 86400 * 2:
         return f"{s / 3600:.1f} h"
     return f"{s / 86400:.1f} days"
+
+
+def format_measured(name: str, value: float, u: float | None = None, beyond: bool = False) -> str:
+    """A value for people with its expanded uncertainty: ``344.12 µH ± 0.31 µH``, ``85.3 ± 1.2``.
+
+    ``beyond`` (a value past the tool's accuracy) gives :data:`BEYOND`, never a number. The
+    uncertainty is rounded to two significant digits and the value to the same decimal place
+    (JCGM 100:2008 7.2.6); both share the value's SI prefix. Without a finite ``u`` the value is
+    formatted as :func:`format_value` does.
+    """
+    if beyond:
+        return BEYOND
+    if u is None or not (math.isfinite(u) and math.isfinite(value)) or u < 0:
+        return format_value(name, value)
+    unit = UNITS.get(name, "")
+    if name in ("Q", "D", "theta") or value == 0:
+        power, prefix = 0, ""
+    else:
+        power = min(max(3 * math.floor(math.log10(abs(value)) / 3), -15), 12)
+        prefix = _PREFIXES[power]
+    scale = 10.0**power
+    scaled_u = u / scale
+    if scaled_u == 0:
+        return f"{format_value(name, value)} ± 0"
+    decimals = min(max(1 - math.floor(math.log10(scaled_u)), 0), 12)
+    if name == "theta":
+        return f"{value:.{decimals}f}° ± {scaled_u:.{decimals}f}°"
+    suffix = f" {prefix}{unit}".rstrip()
+    return f"{value / scale:.{decimals}f}{suffix} ± {scaled_u:.{decimals}f}{suffix}"

@@ -2,11 +2,12 @@
 
 :func:`run_sweep` asks the meter for the plan's frequencies (``meter.sweep(frequencies,
 on_points=...)`` of :class:`drivers.meter.ImpedanceMeter`), corrects every chunk of points that
-arrives with the reference set in use, appends it to a :class:`acquire.sweep_state.SweepState`
-for the live view, and hands it to the store's sweep writer. Writes are grouped: the points
-that arrived since the last write go to the store in one transaction at most every
-``flush_interval`` seconds and at the end, so a fast meter is not held up by one transaction
-per point while a crash loses at most that interval.
+arrives with the reference set in use, evaluates each point's expanded uncertainty and flags
+(:class:`acquire.sweep_uncertainty.PointUncertainty`, vectorised per chunk), appends it to a
+:class:`acquire.sweep_state.SweepState` for the live view, and hands it to the store's sweep
+writer. Writes are grouped: the points that arrived since the last write go to the store in one
+transaction at most every ``flush_interval`` seconds and at the end, so a fast meter is not held
+up by one transaction per point while a crash loses at most that interval.
 
 Ctrl-C and meter faults end the sweep the same way: the points completed so far are written,
 the sweep is marked ``interrupted`` with the reason, and the outcome says so. Any other error
@@ -23,9 +24,11 @@ from typing import Any, Protocol
 import numpy as np
 
 from acquire.compensation.interpolation import END_TOLERANCE
-from acquire.errors import CompensationError
+from acquire.errors import CompensationError, InputError
 from acquire.plan import FrequencyPlan, check_range
 from acquire.sweep_state import SweepState
+from acquire.sweep_uncertainty import PointUncertainty
+from acquire.uncertainty import mean_of_repeats
 from acquire.units import format_si
 from drivers.errors import InstrumentError
 
@@ -44,7 +47,12 @@ class Writer(Protocol):
     id: int
 
     def add_points(
-        self, frequency: np.ndarray, raw_z: np.ndarray, corrected_z: np.ndarray | None
+        self,
+        frequency: np.ndarray,
+        raw_z: np.ndarray,
+        corrected_z: np.ndarray | None,
+        uncertainty: np.ndarray | None = None,
+        flags: Any = None,
     ) -> None: ...
 
     def finish(self, status: str = "complete", note: str = "") -> None: ...
@@ -54,7 +62,11 @@ class Writer(Protocol):
 class SweepOutcome:
     """What a sweep produced: the completed points, how it ended, and where it was stored.
 
-    ``corrected`` is None when no reference set was used. ``status`` is ``"complete"`` or
+    ``corrected`` is None when no reference set was used. ``uncertainty`` is the (n, 2)
+    expanded uncertainty (k = 2, ohm) [U_R, U_X] of the shown (corrected, else raw) impedance,
+    NaN where unknown, and ``cov`` the (n, 2, 2) covariance of R and X (ohm²) it comes from;
+    ``flags`` the (n,) flags texts ('' for a measured value, else words
+    such as ``beyond-accuracy``). ``status`` is ``"complete"`` or
     ``"interrupted"``; ``reason`` says why it stopped early (the driver's message for a meter
     fault); ``error`` is the exception that stopped it, if any.
     """
@@ -67,6 +79,9 @@ class SweepOutcome:
     reason: str = ""
     sweep_id: int | None = None
     error: BaseException | None = None
+    uncertainty: np.ndarray | None = None
+    flags: np.ndarray | None = None
+    cov: np.ndarray | None = None
 
     @property
     def interrupted(self) -> bool:
@@ -117,23 +132,28 @@ class _Sink:
         writer: Writer | None,
         on_progress: Callable[[], None] | None,
         flush_interval: float,
+        uncertainty: PointUncertainty | None,
     ) -> None:
         self.state = state
         self.references = references
+        self.uncertainty = uncertainty
         self.writer = writer
         self.on_progress = on_progress
         self.flush_interval = flush_interval
         self.written = 0
         self.last_flush = time.monotonic()
 
-    def __call__(self, f_chunk: np.ndarray, z_chunk: np.ndarray) -> None:
+    def __call__(self, f_chunk: np.ndarray, z_chunk: np.ndarray, u_m: Any = None) -> None:
         f = np.asarray(f_chunk, dtype=float).reshape(-1)
         z = np.asarray(z_chunk, dtype=complex).reshape(-1)
-        corrected = None
-        if self.references is not None:
+        corrected, values = None, None
+        if self.uncertainty is not None:
+            values = self.uncertainty.evaluate(f, z, self.references, u_m)
+            corrected = values.corrected
+        elif self.references is not None:
             with np.errstate(all="ignore"):
                 corrected = np.asarray(self.references.correct(f, z), dtype=complex)
-        self.state.add(f, z, corrected)
+        self.state.add(f, z, corrected, values)
         if self.writer is not None and time.monotonic() - self.last_flush >= self.flush_interval:
             self.flush()
         if self.on_progress is not None:
@@ -146,8 +166,13 @@ class _Sink:
             return
         f, raw, corrected = self.state.points()
         part = slice(self.written, n)
+        known = self.uncertainty is not None
         self.writer.add_points(
-            f[part].copy(), raw[part].copy(), None if corrected is None else corrected[part].copy()
+            f[part].copy(),
+            raw[part].copy(),
+            None if corrected is None else corrected[part].copy(),
+            uncertainty=self.state.expanded[part].copy() if known else None,
+            flags=[str(x) for x in self.state.flags[part]] if known else None,
         )
         self.written = n
         self.last_flush = time.monotonic()
@@ -163,6 +188,8 @@ def run_sweep(
     flush_interval: float = 0.25,
     block: int | str | None = "auto",
     block_seconds: float = 0.25,
+    uncertainty: PointUncertainty | str | None = "auto",
+    repeats: int = 1,
 ) -> SweepOutcome:
     """Sweep ``meter`` over ``plan``; see the module docstring for how it streams and stops.
 
@@ -175,18 +202,35 @@ def run_sweep(
     (the default) sizes the blocks from the time per point seen so far to take about
     ``block_seconds`` each, and None sends the whole plan in one call.
     The plan is checked against ``meter.frequency_range`` before anything is sent.
+
+    ``uncertainty`` says how each point's uncertainty is evaluated: ``"auto"`` (the default)
+    takes the meter's dialect accuracy and settings and the state's quantities
+    (:meth:`PointUncertainty.for_meter`), None skips it (no uncertainty, no flags). With
+    ``repeats`` of 2 or more every block is read that many times; each point keeps the mean and
+    the Type A standard uncertainty of it (JCGM 100:2008 4.2.3), and points stream per block.
     """
+    if type(repeats) is not int or repeats < 1:
+        raise InputError(f"repeats must be a whole number of 1 or more, not {repeats!r}")
     check_range(plan, tuple(meter.frequency_range))
     if references is not None:
         check_coverage(plan, references)
     if state is None:
         state = SweepState(plan, corrected_too=references is not None)
-    sink = _Sink(state, references, writer, on_progress, flush_interval)
+    if uncertainty == "auto":
+        uncertainty = PointUncertainty.for_meter(meter, state.quantities)
+    elif isinstance(uncertainty, str):
+        raise InputError(f"uncertainty must be 'auto', None or a PointUncertainty: {uncertainty!r}")
+    sink = _Sink(state, references, writer, on_progress, flush_interval, uncertainty)
     reason, error = "", None
     state.start()
     try:
         for frequencies in _blocks(plan, block, block_seconds):
-            meter.sweep(np.array(frequencies), on_points=sink)
+            if repeats == 1:
+                meter.sweep(np.array(frequencies), on_points=sink)
+                continue
+            readings = [meter.sweep(np.array(frequencies)) for _ in range(repeats)]
+            mean, u_m = mean_of_repeats(np.asarray(readings, dtype=complex))
+            sink(np.asarray(frequencies), mean, u_m)
     except KeyboardInterrupt as exc:
         reason, error = "stopped with Ctrl-C", exc
     except InstrumentError as exc:
@@ -197,6 +241,8 @@ def run_sweep(
     status = "interrupted" if error is not None else "complete"
     _close(sink, writer, state, status, reason)
     f, raw, corrected = state.points()
+    n = f.size
+    known = uncertainty is not None
     return SweepOutcome(
         frequency=f.copy(),
         raw=raw.copy(),
@@ -206,6 +252,9 @@ def run_sweep(
         reason=reason,
         sweep_id=getattr(writer, "id", None),
         error=error,
+        uncertainty=state.expanded[:n].copy() if known else None,
+        flags=state.flags[:n].copy() if known else None,
+        cov=state.cov[:n].copy() if known else None,
     )
 
 

@@ -12,10 +12,12 @@ import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from datetime import datetime
+from typing import Any
 
 import numpy as np
 
 from acquire.plan import FrequencyPlan
+from acquire.uncertainty import BEYOND_ACCURACY
 from acquire.units import format_si
 
 STATUSES = ("waiting", "running", "complete", "interrupted")
@@ -31,7 +33,8 @@ class SweepState:
     are stored. ``quantities`` names the quantities plotted (keys of
     :func:`acquire.impedance.quantities`). ``reference_override`` is the operator's reason for
     using a reference set that fails its check ('' when it passes); ``open_fixture`` says why
-    the readings look like an empty fixture ('' when they do not).
+    the readings look like an empty fixture ('' when they do not). ``show_uncertainty`` asks
+    the view to print ± U beside values; ``uncertainty_note`` says what the uncertainty counts.
     """
 
     plan: FrequencyPlan
@@ -54,15 +57,27 @@ class SweepState:
     ended: float | None = None
     warnings: list[str] = field(default_factory=list)
     open_fixture: str = ""
+    show_uncertainty: bool = False
+    uncertainty_note: str = ""
+    flagged: int = 0
+    first_flagged: float | None = None
     frequency: np.ndarray = field(init=False, repr=False)
     raw: np.ndarray = field(init=False, repr=False)
     corrected: np.ndarray | None = field(init=False, repr=False)
+    cov: np.ndarray = field(init=False, repr=False)
+    expanded: np.ndarray = field(init=False, repr=False)
+    flags: np.ndarray = field(init=False, repr=False)
+    beyond: dict[str, np.ndarray] = field(init=False, repr=False)
 
     def __post_init__(self) -> None:
         n = len(self.plan)
         self.frequency = np.full(n, np.nan)
         self.raw = np.full(n, complex(np.nan, np.nan))
         self.corrected = np.full(n, complex(np.nan, np.nan)) if self.corrected_too else None
+        self.cov = np.full((n, 2, 2), np.nan)
+        self.expanded = np.full((n, 2), np.nan)
+        self.flags = np.full(n, "", dtype=object)
+        self.beyond = {}
 
     @property
     def planned(self) -> int:
@@ -73,8 +88,18 @@ class SweepState:
         self.started = self.clock()
         self.status = "running"
 
-    def add(self, f: np.ndarray, raw: np.ndarray, corrected: np.ndarray | None = None) -> None:
-        """Append a chunk of points (frequency in Hz, raw and corrected complex Z in ohm)."""
+    def add(
+        self,
+        f: np.ndarray,
+        raw: np.ndarray,
+        corrected: np.ndarray | None = None,
+        values: Any = None,
+    ) -> None:
+        """Append a chunk of points (frequency in Hz, raw and corrected complex Z in ohm).
+
+        ``values`` is the chunk's :class:`acquire.sweep_uncertainty.PointValues` (None when
+        its uncertainty was not evaluated: it stays unknown and nothing is flagged).
+        """
         i, k = self.count, len(f)
         if i + k > self.planned:
             raise ValueError(f"{i + k} points received for a plan of {self.planned}")
@@ -82,6 +107,8 @@ class SweepState:
         self.raw[i : i + k] = raw
         if self.corrected is not None and corrected is not None:
             self.corrected[i : i + k] = corrected
+        if values is not None:
+            self._add_values(i, k, np.asarray(f), values)
         over = np.isinf(raw.real) | np.isinf(raw.imag)
         if over.any():
             if self.first_overrange is None:
@@ -89,6 +116,29 @@ class SweepState:
             self.overrange += int(over.sum())
         self.invalid += int((np.isnan(raw.real) | np.isnan(raw.imag)).sum())
         self.count = i + k
+
+    def _add_values(self, i: int, k: int, f: np.ndarray, values: Any) -> None:
+        self.cov[i : i + k] = values.cov
+        self.expanded[i : i + k] = values.expanded
+        self.flags[i : i + k] = values.flags
+        for name, bad in values.beyond.items():
+            if name not in self.beyond:
+                self.beyond[name] = np.zeros(self.planned, dtype=bool)
+            self.beyond[name][i : i + k] = bad
+        flagged = np.asarray(values.flags == BEYOND_ACCURACY, dtype=bool)
+        if flagged.any():
+            if self.first_flagged is None:
+                self.first_flagged = float(f[flagged][0])
+            self.flagged += int(flagged.sum())
+
+    def hidden(self, name: str, n: int | None = None) -> np.ndarray:
+        """Per point of the first ``n`` (default: all so far), True where ``name``'s value is
+        beyond accuracy on a flagged point (shown as a marker, never as a number)."""
+        n = self.count if n is None else n
+        bad = self.beyond.get(name)
+        if bad is None:
+            return np.zeros(n, dtype=bool)
+        return bad[:n] & (self.flags[:n] == BEYOND_ACCURACY)
 
     def finish(self, status: str, reason: str = "") -> None:
         """Mark the sweep as ``complete`` or ``interrupted`` (with the reason shown)."""
@@ -132,4 +182,10 @@ class SweepState:
             lines.append(f"{self.overrange} point(s) overrange, the first at {where}")
         if self.invalid:
             lines.append(f"{self.invalid} point(s) invalid (the meter gave no reading)")
+        if self.flagged:
+            where = format_si(self.first_flagged or float("nan"), "Hz")
+            lines.append(
+                f"{self.flagged} point(s) beyond the tool's accuracy, the first at {where}: "
+                "their flagged values are not shown as numbers"
+            )
         return lines

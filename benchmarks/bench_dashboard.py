@@ -1,11 +1,13 @@
 """Does the live view slow acquisition? Ratios measured in one run against the simulated meter.
 
 The simulated meter runs in its own process (``acquire sim``), as a bench meter would be its own
-box, and the sweep runs exactly as ``acquire sweep`` runs it: points corrected with nothing,
-streamed into an SQLite store, with or without the live view redrawing on its timer thread into
-a terminal-sized console (written to the null device).
+box, and the sweep runs as ``acquire sweep --reference ... --uncertainty`` (and the demo) runs
+it: points corrected with an open/short reference set, each point's expanded uncertainty and
+flags evaluated as it arrives, streamed into an SQLite store, with or without the live view
+(showing ± U) redrawing on its timer thread into a terminal-sized console (written to the null
+device).
 
-Goals (issue 6): with 5 ms per point, a 401-point sweep with the live view takes at most 5 %
+Goals: with 5 ms per point, a 401-point sweep with the live view takes at most 5 %
 longer than without; with 0 ms per point, throughput with the live view stays at or above 1,000
 points per second. Also printed: the cost of drawing one frame of 401 points.
 
@@ -22,13 +24,16 @@ import tempfile
 import time
 from pathlib import Path
 
+import numpy as np
 from rich.console import Console
 
+from acquire.compensation import ReferenceSet
 from acquire.dashboard import DashboardView, LiveDashboard
 from acquire.plan import log_plan
 from acquire.store import open_store
 from acquire.sweep import run_sweep
 from acquire.sweep_state import SweepState
+from acquire.sweep_uncertainty import PointUncertainty
 from drivers.meter import ImpedanceMeter
 
 POINTS = 401
@@ -54,42 +59,60 @@ def terminal() -> Console:
     )
 
 
-def one_sweep(meter, store, live: bool) -> float:
+def references(meter) -> ReferenceSet:
+    """Open and short read on the simulated fixture (three times each), then the coil put back."""
+    f = log_plan("100Hz", "10MHz", POINTS).frequencies
+    readings = {}
+    for standard in ("OPEN", "SHORT"):
+        meter.session.write(f"SIMulate:DUT {standard}")
+        readings[standard] = np.mean([meter.sweep(f) for _ in range(3)], axis=0)
+    meter.session.write("SIMulate:DUT demo-coil")
+    return ReferenceSet(frequency=f, open=readings["OPEN"], short=readings["SHORT"], repeats=3)
+
+
+def one_sweep(meter, store, live: bool, refs: ReferenceSet) -> float:
     plan = log_plan("100Hz", "10MHz", POINTS)
-    state = SweepState(plan, dut="demo-coil", meter="simulated", quantities=("Ls", "Rs", "Q"))
+    state = SweepState(
+        plan, dut="demo-coil", meter="simulated", quantities=("Ls", "Rs", "Q"),
+        corrected_too=True, show_uncertainty=True,
+    )  # fmt: skip
     writer = store.begin_sweep(dut="demo-coil", settings={"benchmark": True})
     began = time.perf_counter()
     if live:
         with LiveDashboard(state, terminal(), rate=4.0) as view:
-            outcome = run_sweep(meter, plan, writer=writer, state=state, on_progress=view.update)
+            outcome = run_sweep(
+                meter, plan, refs, writer=writer, state=state, on_progress=view.update
+            )
     else:
-        outcome = run_sweep(meter, plan, writer=writer, state=state)
+        outcome = run_sweep(meter, plan, refs, writer=writer, state=state)
     elapsed = time.perf_counter() - began
     assert outcome.status == "complete" and outcome.frequency.size == POINTS
+    assert outcome.uncertainty is not None and np.isfinite(outcome.uncertainty).all()
     return elapsed
 
 
-def compare(meter, store, per_point: float) -> tuple[float, float]:
+def compare(meter, store, per_point: float, refs: ReferenceSet) -> tuple[float, float]:
     meter.session.write(f"SIMulate:TIME {per_point}")
-    one_sweep(meter, store, live=False)  # warm up both paths
-    one_sweep(meter, store, live=True)
+    one_sweep(meter, store, False, refs)  # warm up both paths
+    one_sweep(meter, store, True, refs)
     plain, live = [], []
     for _ in range(REPEATS):
-        plain.append(one_sweep(meter, store, live=False))
-        live.append(one_sweep(meter, store, live=True))
+        plain.append(one_sweep(meter, store, False, refs))
+        live.append(one_sweep(meter, store, True, refs))
     return statistics.median(plain), statistics.median(live)
 
 
 def frame_cost() -> float:
-    import numpy as np
+    from drivers.dialect_file import load_dialect
 
     plan = log_plan("100Hz", "10MHz", POINTS)
-    state = SweepState(plan, dut="demo-coil", corrected_too=True)
+    state = SweepState(plan, dut="demo-coil", corrected_too=True, show_uncertainty=True)
     f = plan.frequencies
     w = 2 * np.pi * f
     z = 1 / (1 / (4.8 + 1j * w * 340e-6) + 1j * w * 1.5e-12)
+    values = PointUncertainty(load_dialect("simulated").accuracy).evaluate(f, z)
     state.start()
-    state.add(f, z, z)
+    state.add(f, z, z, values)
     console = terminal()
     view = DashboardView(state)
     console.print(view)
@@ -108,8 +131,10 @@ def main() -> int:
             open_store(f"sqlite:///{Path(tmp) / 'bench.db'}") as store,
             ImpedanceMeter.open(resource, dialect="simulated") as meter,
         ):
-            slow_plain, slow_live = compare(meter, store, 0.005)
-            fast_plain, fast_live = compare(meter, store, 0.0)
+            meter.session.write("SIMulate:TIME 0")
+            refs = references(meter)
+            slow_plain, slow_live = compare(meter, store, 0.005, refs)
+            fast_plain, fast_live = compare(meter, store, 0.0, refs)
     finally:
         proc.terminate()
         proc.wait(timeout=10)

@@ -8,13 +8,18 @@ otherwise. Cases, all at log-spaced frequencies from 10 Hz to 30 MHz:
     delayed-ACK stall; timed on a few points only, it is that slow);
 (b) a bare pyvisa loop of one combined query ``FREQ f;READ?`` per point;
 (c) the driver point by point (``sweep(mode="points")``);
-(d) the driver's list sweep in ASCII; (e) in binary (IEEE 754 float64 blocks).
+(d) the driver's list sweep in ASCII; (e) in binary (IEEE 754 float64 blocks);
+(f) the path ``acquire sweep --reference ...`` takes (:func:`acquire.sweep.run_sweep`): blocks
+    sized as it sizes them, each chunk corrected with an open/short reference set, without the
+    per-point uncertainty; (g) the same with each point's expanded uncertainty and flags, as the
+    command now runs it.
 
-Goals: (c) at least 0.7x the rate of (b); (d) at least 20x (c); with 5 ms per point simulated,
-the list sweep within 2 % of points x 5 ms; a 100,001-point sweep (in a process of its own)
-under 200 MB peak memory. (b) and (c) run interleaved five times, (d) and (e) five times;
-the best of each counts (the machine may be busy with other work). The goals are for the
-full run; --quick only shows the shape.
+Goals: (c) at least 0.7x the rate of (b); (d) at least 20x (c); (g) at least 0.7x (f) (the
+uncertainty may cost at most 30 % of the rate with a meter that takes no time per point); with
+5 ms per point simulated, the list sweep within 2 % of points x 5 ms; a 100,001-point sweep (in
+a process of its own) under 200 MB peak memory. (b) and (c) run interleaved five times, (d), (e),
+(f) and (g) five times; the best of each counts (the machine may be busy with other work). The
+goals are for the full run; --quick only shows the shape.
 
     python benchmarks/bench_sweep.py            # 1,601 points
     python benchmarks/bench_sweep.py --quick    # fewer points, a few seconds
@@ -112,6 +117,28 @@ def driver(resource: str, f: np.ndarray, mode: str, transfer: str = "ascii") -> 
     return elapsed
 
 
+def command_path(resource: str, f: np.ndarray, uncertainty: bool) -> float:
+    """(f)/(g): run_sweep as the sweep command runs it, with an open/short reference set."""
+    from acquire.compensation import ReferenceSet
+    from acquire.plan import list_plan
+    from acquire.sweep import run_sweep
+
+    with ImpedanceMeter.open(resource) as meter:
+        readings = {}
+        for standard in ("OPEN", "SHORT"):
+            meter.session.write(f"SIMulate:DUT {standard}")
+            readings[standard] = meter.sweep(f)
+        meter.session.write("SIMulate:DUT air-core-coil")
+        refs = ReferenceSet(frequency=f, open=readings["OPEN"], short=readings["SHORT"])
+        plan = list_plan(", ".join(repr(float(x)) for x in f))
+        start = time.perf_counter()
+        outcome = run_sweep(meter, plan, refs, uncertainty="auto" if uncertainty else None)
+        elapsed = time.perf_counter() - start
+    assert outcome.status == "complete" and outcome.frequency.size == f.size
+    assert (outcome.uncertainty is not None) == uncertainty
+    return elapsed
+
+
 def memory_child(resource: str, points: int) -> dict:
     """Run a long sweep in a fresh interpreter; it reports its own peak memory."""
     code = f"""
@@ -179,6 +206,14 @@ def main() -> int:
         print(f"\n(c)/(b) = {c_over_b:.2f}  (goal >= 0.7)  {'ok' if c_over_b >= 0.7 else 'MISSED'}")
         print(f"(d)/(c) = {d_over_c:.1f}  (goal >= 20)   {'ok' if d_over_c >= 20 else 'MISSED'}")
         print(f"(e)/(d) = {t_d / t_e:.2f}")
+
+        t_f = min(command_path(resource, f, False) for _ in range(5))
+        t_g = min(command_path(resource, f, True) for _ in range(5))
+        print(f"\n{'case':<44} {'points':>7} {'seconds':>9} {'points/s':>11} {'vs (b)':>10}")
+        print(row("(f) run_sweep, corrected, no uncertainty", n, t_f, base))
+        print(row("(g) run_sweep, corrected, with uncertainty", n, t_g, base))
+        g_over_f = t_f / t_g
+        print(f"(g)/(f) = {g_over_f:.2f}  (goal >= 0.7)  {'ok' if g_over_f >= 0.7 else 'MISSED'}")
 
         per_point = 0.005
         set_time(resource, per_point)

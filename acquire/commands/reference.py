@@ -71,6 +71,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     cap.add_argument("--temperature", type=float, help="fixture temperature in °C, if known")
     cap.add_argument("--notes", default="", help="free text kept with the set")
     cap.add_argument("--attempts", type=int, default=3, help="readings allowed per standard")
+    cap.add_argument(
+        "--repeats",
+        type=int,
+        default=3,
+        metavar="N",
+        help="read each standard N times and keep the mean and its scatter (the scatter is the "
+        "standard's Type A uncertainty, carried into every corrected point; default 3)",
+    )
     lst = actions.add_parser("list", help="list the stored reference sets")
     add_store(lst)
     show = actions.add_parser("show", help="show one stored reference set")
@@ -96,6 +104,8 @@ def _capture(args: argparse.Namespace) -> int:
     from drivers.meter import ImpedanceMeter
 
     plan = plan_from_args(args)
+    if args.repeats < 1:
+        raise InputError("--repeats must be 1 or more (readings of each standard)")
     chosen = args.standards or ("open,short,load" if args.load_value else "open,short")
     standards = [s.strip().lower() for s in chosen.split(",") if s.strip()]
     load_true = None
@@ -124,6 +134,7 @@ def _capture(args: argparse.Namespace) -> int:
                 temperature=args.temperature,
                 notes=args.notes,
                 attempts=args.attempts,
+                repeats=args.repeats,
             )
             meter_id = store.record_meter(
                 identity.manufacturer,
@@ -137,7 +148,7 @@ def _capture(args: argparse.Namespace) -> int:
         ref_id = store.save_reference_set(refs, name=name, meter_id=meter_id, fixture_id=fixture_id)
         console.print(
             f"saved reference set {ref_id} ({name!r}, {refs.method}, {refs.frequency.size} "
-            f"points) in {store.url}",
+            f"points) in {store.url}; each standard read {args.repeats} time(s)",
             soft_wrap=True,
         )
     return 0

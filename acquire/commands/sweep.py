@@ -16,6 +16,13 @@ Lp, Rp, Cp (parallel equivalents), Q, D = 1/Q (dissipation factor), Z (|Z|), the
 degrees), X, G and B (conductance and susceptance). A coil's self-resonance, where its reactance
 turns from inductive to capacitive, is marked on the plots.
 
+Each point carries its expanded uncertainty (k = 2: about 95 % coverage) for R, X and the
+quantities derived from them, from the meter's stated accuracy (the dialect's [accuracy]
+table) and the scatter of repeated readings; --uncertainty shows it as ± U beside the values.
+A value past what the tool can measure (its uncertainty as large as the value, or a negative
+Rs or Q, which a passive part cannot have) is flagged and shown as "beyond accuracy", never as
+a number, in the live view, the summary, the CSV file and the store.
+
 Every point goes to the results store as it arrives. Ctrl-C, or a fault on the meter, ends the
 sweep with the completed points saved and marked interrupted; the command says where.
 
@@ -72,6 +79,20 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help="use a reference set that fails its check anyway; the reason is stored with the "
         "sweep and shown on the view (the corrected values may be wrong)",
     )
+    parser.add_argument(
+        "--uncertainty",
+        action="store_true",
+        help="show each value with its expanded uncertainty (k = 2) as ± U in the live view, "
+        "the progress lines and the summary (the store and the CSV file always carry it)",
+    )
+    parser.add_argument(
+        "--repeats",
+        type=int,
+        default=1,
+        metavar="N",
+        help="read every point N times and keep the mean, with the scatter of the readings as "
+        "its Type A uncertainty (default 1: one reading, the meter's stated repeatability)",
+    )
     parser.add_argument("--csv", help="also write the sweep to this CSV file")
     parser.add_argument(
         "--no-live", action="store_true", help="print plain progress lines instead of the live view"
@@ -112,6 +133,7 @@ def run(args: argparse.Namespace) -> int:
     from acquire.commands.options import plan_from_args
     from acquire.csvout import write_sweep_csv
     from acquire.dashboard import open_view, summary
+    from acquire.errors import InputError
     from acquire.plan import check_range
     from acquire.store import open_store
     from acquire.sweep import check_coverage, run_sweep
@@ -122,11 +144,14 @@ def run(args: argparse.Namespace) -> int:
         review_readings,
         warn_about_references,
     )
+    from acquire.sweep_uncertainty import PointUncertainty
     from acquire.units import parse_quantity
     from drivers.meter import ImpedanceMeter
 
     plan = plan_from_args(args)
     show = parse_show(args.show)
+    if args.repeats < 1:
+        raise InputError("--repeats must be 1 or more (readings per point)")
     if args.csv:
         check_csv_destination(args.csv)
     override = _override(args.use_despite_problems)
@@ -148,20 +173,33 @@ def run(args: argparse.Namespace) -> int:
             identity = meter.identify()
             state = prepare_state(plan, identity, refs, ref_id, args.fixture, args.dut, show, used)
             warn_about_references(state, refs, str(identity), args.fixture, args.max_reference_age)
-            measurement = {"level": args.level, "speed": args.speed, "averaging": args.averaging}
+            model = PointUncertainty.for_meter(meter, show)
+            state.show_uncertainty = args.uncertainty
+            state.uncertainty_note = model.note()
+            measurement = {
+                "level": args.level,
+                "speed": args.speed,
+                "averaging": args.averaging,
+                "repeats": args.repeats if args.repeats > 1 else None,
+                "uncertainty": model.describe(),
+            }
             writer = begin(store, meter, identity, args.fixture, args.dut, ref_id, plan, show,
                            measurement, references=refs, override=used)  # fmt: skip
             state.destination = f"sweep {writer.id} in {store.url}"
             started = datetime.now(UTC)
             with open_view(state, live=not args.no_live, console=console) as view:
-                outcome = run_sweep(meter, plan, refs, writer, state, on_progress=view.update)
+                outcome = run_sweep(
+                    meter, plan, refs, writer, state, on_progress=view.update,
+                    uncertainty=model, repeats=args.repeats,
+                )  # fmt: skip
                 review_readings(state, refs)
         console.print(summary(state))
         if args.csv:
             about = csv_heading(state, args, started, outcome)
             path = write_sweep_csv(
-                args.csv, outcome.frequency, outcome.raw, outcome.corrected, show, about
-            )
+                args.csv, outcome.frequency, outcome.raw, outcome.corrected, show, about,
+                cov=outcome.cov, flags=outcome.flags,
+            )  # fmt: skip
             console.print(f"CSV written to {path}", soft_wrap=True)
         line = outcome.message(store.url)
     if state.open_fixture:
@@ -208,6 +246,10 @@ def csv_heading(state, args: argparse.Namespace, started, outcome) -> dict[str, 
     }
     if state.reference_override:
         about["reference override"] = state.reference_override
+    if state.uncertainty_note:
+        about["uncertainty"] = state.uncertainty_note.removeprefix("uncertainty: ")
+    if state.flagged:
+        about["flagged"] = next(w for w in state.all_warnings() if "beyond" in w)
     if state.open_fixture:
         about["warning"] = state.open_fixture
     if state.destination:

@@ -1,0 +1,160 @@
+"""Each sweep point's expanded uncertainty and flags, evaluated chunk by chunk as points arrive.
+
+:class:`PointUncertainty` holds what the evaluation needs besides the readings: the meter's
+stated accuracy (a dialect's ``[accuracy]`` table, or None when the dialect states none), the
+meter settings the readings were taken at (test level, speed, averaging; those not set are taken
+at the dialect's reference conditions) and the quantities the sweep shows. Its
+:meth:`~PointUncertainty.evaluate` turns a chunk of readings into :class:`PointValues`:
+
+- with a reference set: the corrected impedance, its covariance and expanded uncertainty from
+  :func:`acquire.uncertainty.correct_with_uncertainty` (readings, standards and their repeats);
+- without one: the raw reading's own Type B (the stated accuracy) and Type A (the scatter of
+  repeated readings, else the stated repeatability of one reading);
+- without a stated accuracy, only Type A is counted; a reading taken once then has no known
+  uncertainty (NaN).
+
+Each point's flags text is ``beyond-accuracy`` where a shown quantity is past what the tool can
+measure (as :func:`acquire.uncertainty.point_flags` judges it), ``overrange`` or ``invalid``
+where the meter gave no usable reading, else ''. Everything is vectorised over the chunk.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from acquire.uncertainty import (
+    BEYOND_ACCURACY,
+    as_covariance,
+    beyond_accuracy,
+    correct_with_uncertainty,
+    expanded,
+    reading_uncertainty,
+    repeatability,
+)
+
+#: Quantities judged for the display besides the shown ones (the latest-point panel's |Z| and
+#: theta; the corrected R and X of the CSV).
+ALSO_JUDGED = ("Rs", "X", "Z", "theta")
+OVERRANGE, INVALID = "overrange", "invalid"
+
+
+@dataclass(frozen=True, eq=False)
+class PointValues:
+    """One chunk's uncertainty: ``cov`` (n, 2, 2) ohm², ``expanded`` (n, 2) [U_R, U_X] (k = 2,
+    NaN where unknown), ``flags`` (n,) texts and ``beyond`` (name -> (n,) bool) per judged
+    quantity."""
+
+    corrected: np.ndarray | None
+    cov: np.ndarray
+    expanded: np.ndarray
+    flags: np.ndarray
+    beyond: dict[str, np.ndarray]
+
+
+@dataclass(frozen=True)
+class PointUncertainty:
+    """How a sweep's points get their uncertainty: accuracy, settings and the shown quantities.
+
+    ``level`` (V rms), ``speed`` (a speed word) and ``averaging`` are the meter settings of the
+    sweep; None where the sweep set none (the accuracy's reference conditions hold there).
+    """
+
+    accuracy: Any = None
+    level: float | None = None
+    speed: str | None = None
+    averaging: int | None = None
+    names: tuple[str, ...] = ("Ls", "Rs", "Q")
+
+    @classmethod
+    def for_meter(cls, meter: Any, names: Sequence[str] = ("Ls", "Rs", "Q")) -> PointUncertainty:
+        """From a meter: its dialect's accuracy and the settings last applied to it."""
+        accuracy = getattr(getattr(meter, "dialect", None), "accuracy", None)
+        settings = dict(getattr(meter, "settings", None) or {})
+        return cls(
+            accuracy=accuracy,
+            level=settings.get("level"),
+            speed=settings.get("speed"),
+            averaging=settings.get("averaging"),
+            names=tuple(names),
+        )
+
+    @property
+    def unset(self) -> list[str]:
+        """The settings the sweep did not set (taken at the dialect's reference conditions)."""
+        values = {"level": self.level, "speed": self.speed, "averaging": self.averaging}
+        return [name for name, value in values.items() if value is None]
+
+    def note(self) -> str:
+        """One line saying what the uncertainty counts (for the view and the stored settings)."""
+        if self.accuracy is None:
+            return "uncertainty: Type A only (the dialect states no accuracy)"
+        text = "uncertainty: expanded, k = 2, from the meter's stated accuracy and repeatability"
+        unset = self.unset
+        if unset:
+            words = ", ".join(unset[:-1]) + (" and " if len(unset) > 1 else "") + unset[-1]
+            meant = {
+                "level": f"test level {self.accuracy.reference_level:g} V",
+                "speed": "the stated repeatability",
+                "averaging": "one reading per point",
+            }
+            text += (
+                f"; {words} not set: the dialect's reference conditions are assumed "
+                f"({', '.join(meant[name] for name in unset)})"
+            )
+        return text
+
+    def describe(self) -> dict[str, Any]:
+        """What the sweep's stored settings say about its uncertainty."""
+        out: dict[str, Any] = {"coverage_factor": 2, "note": self.note()}
+        if self.accuracy is not None and self.unset:
+            out["reference_conditions_assumed"] = self.unset
+        return out
+
+    def _settings(self) -> dict[str, Any]:
+        return {"level": self.level, "speed": self.speed, "averaging": self.averaging or 1}
+
+    def evaluate(self, f, raw, references: Any = None, u_m=None) -> PointValues:
+        """The chunk's corrected impedance (with ``references``), uncertainty and flags.
+
+        ``u_m`` is the Type A standard uncertainty of the readings (from repeats; None for a
+        single reading each)."""
+        f = np.asarray(f, dtype=float)
+        raw = np.asarray(raw, dtype=complex)
+        settings = self._settings()
+        corrected = None
+        with np.errstate(all="ignore"):
+            if references is not None:
+                cp = correct_with_uncertainty(f, raw, u_m, references, self.accuracy, **settings)
+                corrected, cov = cp.z, cp.cov
+                if self.accuracy is None and u_m is None and not _has_type_a(references):
+                    cov = np.full(cov.shape, np.nan)
+            else:
+                cov = self._raw_cov(f, raw, u_m, settings)
+            z = raw if corrected is None else corrected
+            judge = np.where(np.isfinite(cov), cov, 0.0)
+            judged = tuple(dict.fromkeys((*self.names, *ALSO_JUDGED)))
+            beyond = beyond_accuracy(f, z, judge, judged)
+        # what point_flags(f, z, judge, self.names) gives, from the one judgement made above
+        shown_bad = np.logical_or.reduce([beyond[name] for name in self.names])
+        flags = np.where(shown_bad, BEYOND_ACCURACY, "").astype(object)
+        flags[np.isinf(raw.real) | np.isinf(raw.imag)] = OVERRANGE
+        flags[np.isnan(raw.real) | np.isnan(raw.imag)] = INVALID
+        return PointValues(corrected, cov, expanded(cov), flags, beyond)
+
+    def _raw_cov(self, f, raw, u_m, settings) -> np.ndarray:
+        shape = raw.shape
+        if self.accuracy is None:
+            if u_m is None:
+                return np.full(shape + (2, 2), np.nan)
+            return as_covariance(u_m, shape)
+        type_a = u_m if u_m is not None else repeatability(f, raw, self.accuracy, **settings)
+        type_b = reading_uncertainty(f, raw, self.accuracy, **settings)
+        return as_covariance(type_a, shape) + as_covariance(type_b, shape)
+
+
+def _has_type_a(references: Any) -> bool:
+    return any(getattr(references, f"{s}_u", None) is not None for s in ("open", "short", "load"))

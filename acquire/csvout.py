@@ -88,7 +88,7 @@ def write_rows(
     names: Sequence[str] = ("Ls", "Rs", "Q"),
     about: Mapping[str, object] | None = None,
     cov: np.ndarray | None = None,
-    flags: Sequence[str] | None = None,
+    flags: Sequence[str] | np.ndarray | None = None,
 ) -> int:
     """Write ``about`` as comment lines, the header and one row per point to ``out``; returns
     the number of rows. ``cov`` (n, 2, 2) and ``flags`` (n texts) are the sweep's uncertainty
@@ -151,7 +151,7 @@ def write_sweep_csv(
     names: Sequence[str] = ("Ls", "Rs", "Q"),
     about: Mapping[str, object] | None = None,
     cov: np.ndarray | None = None,
-    flags: Sequence[str] | None = None,
+    flags: Sequence[str] | np.ndarray | None = None,
 ) -> Path:
     """Write a sweep to the CSV file at ``path`` (replaced if it exists); returns the path.
 

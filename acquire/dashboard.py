@@ -20,7 +20,7 @@ import math
 import sys
 import time
 from datetime import UTC, datetime
-from typing import TextIO
+from typing import IO
 
 import numpy as np
 from rich.console import Console, ConsoleOptions, Group, RenderResult
@@ -330,7 +330,9 @@ class LiveDashboard:
 class PlainProgress:
     """Plain progress lines for pipes and scripts, at most one every ``interval`` seconds."""
 
-    def __init__(self, state: SweepState, out: TextIO | None = None, interval: float = 2.0) -> None:
+    def __init__(
+        self, state: SweepState, out: IO[str] | None = None, interval: float = 2.0
+    ) -> None:
         self.state = state
         self.out = out or sys.stdout
         self.interval = interval

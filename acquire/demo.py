@@ -23,6 +23,7 @@ from rich.table import Table
 
 from acquire.capture import SAFETY, capture_references
 from acquire.dashboard import open_view, summary
+from acquire.errors import AcquireError
 from acquire.plan import FrequencyPlan, log_plan
 from acquire.sweep import SweepOutcome, run_sweep
 from acquire.sweep_setup import begin, prepare_state, review_readings
@@ -85,6 +86,13 @@ class DemoRun:
     notes: list[str] = field(default_factory=list)
 
 
+def _plan(run: DemoRun) -> FrequencyPlan:
+    """The demo's frequency plan, which the first step makes."""
+    if run.plan is None:
+        raise AcquireError("the demo's steps run in order: introduce() makes the plan first")
+    return run.plan
+
+
 def introduce(run: DemoRun) -> None:
     """Say what the demo does, with the bench safety cautions."""
     run.console.print(
@@ -101,7 +109,7 @@ def capture(run: DemoRun) -> None:
     """Capture open, short and load on the fixture and save the set in the store."""
     refs = capture_references(
         run.meter,
-        run.plan,
+        _plan(run),
         SimulatedOperator(run.sim, run.console),
         load_true=run.sim.load_true,
         fixture=run.fixture,
@@ -133,19 +141,19 @@ def sweep(run: DemoRun) -> None:
     run.sim.insert(run.dut)
     run.console.print(f"\n[bold]Sweeping {run.dut}[/] through the fixture, corrected live")
     state = prepare_state(
-        run.plan, run.identity, run.references, run.reference_id, run.fixture, run.dut,
+        _plan(run), run.identity, run.references, run.reference_id, run.fixture, run.dut,
         ("Ls", "Rs", "Q"),
     )  # fmt: skip
     model = PointUncertainty.for_meter(run.meter, state.quantities)
     state.show_uncertainty = True
     state.uncertainty_note = model.note()
     writer = begin(run.store, run.meter, run.identity, run.fixture, run.dut, run.reference_id,
-                   run.plan, state.quantities, {"uncertainty": model.describe()},
+                   _plan(run), state.quantities, {"uncertainty": model.describe()},
                    references=run.references)  # fmt: skip
     state.destination = f"sweep {writer.id} in {run.store.url}"
     with open_view(state, live=run.live, console=run.console) as view:
         run.outcome = run_sweep(
-            run.meter, run.plan, run.references, writer, state, view.update, uncertainty=model
+            run.meter, _plan(run), run.references, writer, state, view.update, uncertainty=model
         )
         review_readings(state, run.references)
     run.state = state
@@ -182,6 +190,8 @@ def truth_row(run: DemoRun, out: SweepOutcome, target: float) -> list[str]:
     f = out.frequency[i : i + 1]
     true = quantities(f, run.sim.dut_impedance(f))["Ls"][0]
     raw = quantities(f, out.raw[i : i + 1])["Ls"][0]
+    if out.corrected is None:
+        raise AcquireError("the demo's comparison needs the corrected sweep")
     zc = out.corrected[i : i + 1]
     cor = quantities(f, zc)["Ls"][0]
     row = [format_si(float(f[0]), "Hz"), format_si(true, "H"), format_si(raw, "H"),

@@ -36,7 +36,8 @@ from drivers.errors import InstrumentError
 class Meter(Protocol):
     """What a sweep needs of a meter (:class:`drivers.meter.ImpedanceMeter` provides it)."""
 
-    frequency_range: tuple[float, float]
+    @property
+    def frequency_range(self) -> tuple[float, float]: ...
 
     def sweep(self, frequencies: np.ndarray, on_points: Callable | None = None) -> np.ndarray: ...
 
@@ -211,7 +212,7 @@ def run_sweep(
     """
     if type(repeats) is not int or repeats < 1:
         raise InputError(f"repeats must be a whole number of 1 or more, not {repeats!r}")
-    check_range(plan, tuple(meter.frequency_range))
+    check_range(plan, meter.frequency_range)
     if references is not None:
         check_coverage(plan, references)
     if state is None:
@@ -221,7 +222,8 @@ def run_sweep(
     elif isinstance(uncertainty, str):
         raise InputError(f"uncertainty must be 'auto', None or a PointUncertainty: {uncertainty!r}")
     sink = _Sink(state, references, writer, on_progress, flush_interval, uncertainty)
-    reason, error = "", None
+    reason = ""
+    error: BaseException | None = None
     state.start()
     try:
         for frequencies in _blocks(plan, block, block_seconds):

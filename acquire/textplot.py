@@ -111,7 +111,9 @@ def draw(
                 column = rows[:, col]
                 column[grid[:, col] == 0] = MARKER
                 columns.append(col)
-    return Plot(["".join(r) for r in rows], x_range, tuple(y_range), y_log, tuple(columns))
+    return Plot(
+        ["".join(r) for r in rows], x_range, (y_range[0], y_range[1]), y_log, tuple(columns)
+    )
 
 
 def _join(px: np.ndarray, py: np.ndarray, ok: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

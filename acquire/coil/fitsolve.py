@@ -124,10 +124,11 @@ def _initial(names: tuple[str, ...], s: StartValues, f: np.ndarray):
     for n in names:
         start, low, high = guess[n]
         start = min(max(start, low * 1.001), high / 1.001)
-        if n in _LINEAR:
-            x0.append(start), lo.append(low), hi.append(high)
-        else:
-            x0.append(math.log(start)), lo.append(math.log(low)), hi.append(math.log(high))
+        if n not in _LINEAR:
+            start, low, high = math.log(start), math.log(low), math.log(high)
+        x0.append(start)
+        lo.append(low)
+        hi.append(high)
     return np.array(x0), (np.array(lo), np.array(hi))
 
 

@@ -132,8 +132,8 @@ def start_values(f: np.ndarray, z: np.ndarray) -> StartValues:
     resonance = find_resonance(f, z)
     span = math.log(f[-1] / f[0])
     limit = resonance / 5.0 if resonance else f[0] * math.exp(0.4 * span)
-    low = (f <= limit) & (x > 0)
-    if np.count_nonzero(low) < 2:
+    low = np.flatnonzero((f <= limit) & (x > 0))
+    if low.size < 2:
         low = np.flatnonzero(x > 0)[:3]
     omega = 2.0 * math.pi * f[low]
     inductance = float(np.sum(x[low] * omega) / np.sum(omega**2))

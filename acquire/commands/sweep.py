@@ -167,7 +167,7 @@ def run(args: argparse.Namespace) -> int:
         ) as meter:
             if level is not None or args.speed or args.averaging:
                 meter.configure(level=level, speed=args.speed, averaging=args.averaging)
-            check_range(plan, tuple(meter.frequency_range))
+            check_range(plan, meter.frequency_range)
             if refs is not None:
                 check_coverage(plan, refs)
             identity = meter.identify()

@@ -1,6 +1,6 @@
 """How fast does `acquire --help` start? A ratio against `python -c "import numpy"`, one run.
 
-Goal (issue 6): `acquire --help` takes at most twice as long as importing numpy, so command
+Goal: `acquire --help` takes at most twice as long as importing numpy, so command
 modules keep heavy imports (numpy, pandas, pyvisa, sqlalchemy, rich, scipy) inside ``run``.
 Also printed: each subcommand's own ``--help``. Medians of several fresh interpreter starts.
 

@@ -7,9 +7,7 @@ import signal
 import subprocess
 import sys
 
-import pytest
-
-pyvisa = pytest.importorskip("pyvisa")
+import pyvisa
 
 
 def start(*args: str) -> subprocess.Popen:

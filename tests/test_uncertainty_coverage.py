@@ -32,8 +32,6 @@ from drivers.meter import ImpedanceMeter
 from drivers.simulator import running
 from drivers.simulator.profiles import dut_from_dict
 
-pyvisa = pytest.importorskip("pyvisa")
-
 F = np.geomspace(1e3, 10e6, 31)
 REPEATS = 5
 SEEDS = range(50)

@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
+import dataclasses
 import re
+import tomllib
 from pathlib import Path
 
 import pytest
 
+import sim_profiles
 from drivers.dialect import DIRECTORY, OPERATIONS
 from drivers.dialect_file import list_dialects, load_dialect
 from drivers.errors import DialectError
@@ -47,6 +50,22 @@ def test_template_is_valid_and_documents_every_operation():
     text = (DIRECTORY / "template.toml").read_text()
     for key in ("write_termination", "per_point_timeout", "max_points", "qd_sign", "settle"):
         assert key in text
+
+
+def test_the_template_as_shipped_states_the_simulated_meter(tmp_path):
+    # The template says it drives the simulated meter as shipped; its accuracy table must then
+    # be the meter's own, read here from the meter's profile (sim_profiles/simulated-meter.toml),
+    # and every other setting the simulated dialect's.
+    template, simulated = load_dialect("template"), load_dialect("simulated")
+    profile = tomllib.loads(
+        (Path(sim_profiles.__file__).parent / "simulated-meter.toml").read_text()
+    )
+    assert template.accuracy.reference_level == profile["reference_level"]
+    assert template.accuracy.relative == profile["systematic_accuracy"]
+    assert template.accuracy.repeatability == profile["accuracy_class"]
+    for field in dataclasses.fields(simulated):
+        if field.name not in ("name", "path", "description"):
+            assert getattr(template, field.name) == getattr(simulated, field.name), field.name
 
 
 def test_load_by_path_and_unknown_names(tmp_path):

@@ -3,8 +3,9 @@
 The driver talks to it through pyvisa exactly as to a bench meter. Start it from Python with
 :func:`running` (a background thread, an ephemeral port) or from the shell with ``acquire sim``.
 Its command set is in ``COMMANDS.md`` beside this file; the physics in :mod:`.physics`; the
-profiles (what is in the fixture, the fixture, the meter) in :mod:`.profiles`; faults in
-:mod:`.faults`. ``LIST_MAX`` is the most frequencies one list may hold.
+meter's own errors in :mod:`.reading_error`; the profiles (what is in the fixture, the fixture,
+the meter) in :mod:`.profiles`; faults in :mod:`.faults`. ``LIST_MAX`` is the most frequencies
+one list may hold.
 """
 
 from __future__ import annotations

@@ -1,6 +1,7 @@
 """Speed of open-short-load correction: this tool, bare numpy, and scikit-rf's OnePort.
 
-Run ``python benchmarks/bench_compensation.py [--points 1601 100000] [--repeat 5]``. For each
+Run ``python benchmarks/bench_compensation.py [--points 2000 100000] [--repeat 5]`` (by default
+one full list of the simulated meter, ``drivers.simulator.LIST_MAX``, and a long sweep). For each
 size, one run measures, on the same readings:
 
 - ``tool correct (grid)``: ``ReferenceSet.correct`` at the grid frequencies (the set is built
@@ -33,6 +34,7 @@ from collections.abc import Callable
 import numpy as np
 
 from acquire.compensation import ReferenceSet
+from drivers.simulator import LIST_MAX
 
 Z0 = 50.0
 Z_LOAD = 100.0
@@ -166,7 +168,7 @@ def _ms(seconds: float) -> str:
 
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
-    parser.add_argument("--points", type=int, nargs="+", default=[1601, 100_000])
+    parser.add_argument("--points", type=int, nargs="+", default=[LIST_MAX, 100_000])
     parser.add_argument("--repeat", type=int, default=5)
     args = parser.parse_args()
     print(f"numpy {np.__version__}; best of {args.repeat} rounds per entry")

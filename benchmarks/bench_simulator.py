@@ -21,7 +21,7 @@ import time
 import numpy as np
 import pyvisa
 
-from drivers.simulator import running
+from drivers.simulator import LIST_MAX, running
 
 REPEATS = 200
 
@@ -75,17 +75,18 @@ def main() -> int:
         idn = median_time(lambda: meter.query("*IDN?"))
         rows.append(("simulator *IDN? round trip", idn, idn / echo_rtt))
 
-        f = np.geomspace(10, 30e6, 1601)
+        n = LIST_MAX  # one full list of the simulated meter
+        f = np.geomspace(10, 30e6, n)
         direct = median_time(lambda: sim.seen_impedance(f), 50)
-        meter.query("LIST:FREQ:LOG 10,30e6,1601;FREQ:MODE LIST;FORM ASC;*OPC?")
+        meter.query(f"LIST:FREQ:LOG 10,30e6,{n};FREQ:MODE LIST;FORM ASC;*OPC?")
         ascii_sweep = median_time(lambda: meter.query("READ?"), 20)
         meter.query("FORM REAL;*OPC?")
         binary = median_time(
             lambda: meter.query_binary_values("READ?", datatype="d", is_big_endian=True), 20
         )
-        rows.append(("physics only, 1601 points", direct, 1.0))
-        rows.append(("READ? 1601 points, ASCII", ascii_sweep, ascii_sweep / direct))
-        rows.append(("READ? 1601 points, REAL,64", binary, binary / direct))
+        rows.append((f"physics only, {n} points", direct, 1.0))
+        rows.append((f"READ? {n} points, ASCII", ascii_sweep, ascii_sweep / direct))
+        rows.append((f"READ? {n} points, REAL,64", binary, binary / direct))
 
         other = rm.open_resource(sim.resource, read_termination="\n", write_termination="\n")
         idle = median_time(lambda: other.query("*IDN?"), 50)

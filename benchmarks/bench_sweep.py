@@ -21,7 +21,7 @@ a process of its own) under 200 MB peak memory. (b) and (c) run interleaved five
 (f) and (g) five times; the best of each counts (the machine may be busy with other work). The
 goals are for the full run; --quick only shows the shape.
 
-    python benchmarks/bench_sweep.py            # 1,601 points
+    python benchmarks/bench_sweep.py            # one full list (drivers.simulator.LIST_MAX)
     python benchmarks/bench_sweep.py --quick    # fewer points, a few seconds
 """
 
@@ -41,6 +41,7 @@ import numpy as np  # noqa: E402
 import pyvisa  # noqa: E402
 
 from drivers.meter import ImpedanceMeter  # noqa: E402
+from drivers.simulator import LIST_MAX  # noqa: E402
 
 FMIN, FMAX = 10.0, 30e6
 
@@ -176,7 +177,7 @@ def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="fewer points (a few seconds)")
     args = parser.parse_args()
-    n = 201 if args.quick else 1601
+    n = 201 if args.quick else LIST_MAX
     n_naive = 10 if args.quick else 40
     n_memory = 20001 if args.quick else 100001
     f = np.geomspace(FMIN, FMAX, n)

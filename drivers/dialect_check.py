@@ -301,8 +301,11 @@ class _Checker:
                 raise self.fail(
                     f"operations.{name}", f"missing; the driver needs it to {OPERATIONS[name]}"
                 )
-        for name, reason in dialect_problems({n: op.command for n, op in out.items()}):
-            raise self.fail(f"operations.{name}.command", reason)
+        problems = dialect_problems({n: op.command for n, op in out.items()})
+        if problems:
+            (name, reason), rest = problems[0], [f"operations.{n}.command" for n, _ in problems[1:]]
+            also = f"; retired words also in {', '.join(rest)}" if rest else ""
+            raise self.fail(f"operations.{name}.command", reason + also)
         return out
 
     def operation(self, name: str, spec: dict) -> Operation:

@@ -27,7 +27,7 @@ from acquire.open_fixture import open_fixture
 from acquire.plan import log_plan
 from drivers.meter import ImpedanceMeter
 from drivers.simulator import running
-from drivers.simulator.physics import noise_deviation
+from drivers.simulator.reading_error import noise_deviation
 
 PLAN = log_plan("1kHz", "1MHz", 16)
 
@@ -223,7 +223,7 @@ def test_cable_leads_capture_is_accepted_and_corrects_the_coil(cable, top):
     true = sim.dut_impedance(f)
     corrected = refs.correct(f, raw)
     # Within the noise: each reading's one-sigma noise from the simulator's own model
-    # (physics.noise_deviation), the references' divided by sqrt(2) for the mean of two, carried
+    # (noise_deviation), the references' divided by sqrt(2) for the mean of two, carried
     # through the correction by its derivatives (computed by finite differences). At 6 sigma.
     m = sim.meter
 

@@ -54,7 +54,8 @@ def test_fit_recovers_the_circuit(name):
     f = np.geomspace(f0, f1, 201)
     z = _noisy(_textbook(f, L, R, C, radius, tan_delta), seed=7)
     fit = fit_sweep(f, z)
-    # Issue 7: L within 1 %, Cp within 2 %, Rdc within 5 %.
+    # The project's own goal for the fit (no published source): L within 1 %, Cp within 2 %,
+    # Rdc within 5 %.
     assert fit.inductance == pytest.approx(L, rel=0.01)
     assert fit.rdc == pytest.approx(R, rel=0.05)
     srf = 1 / (2 * math.pi * math.sqrt(L * C))

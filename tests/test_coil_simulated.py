@@ -1,11 +1,11 @@
 """The fit on sweeps measured from the simulated meter through the driver, noise on.
 
-Issue 7: the fit recovers the simulated coil's L within 1 %, Cp within 2 % and Rdc within 5 %
-for each shipped coil profile. The true values come from the profiles' exact physics
-(``sim.dut.true_values()``: L at DC including the wire's internal inductance, the
-phase-zero SRF); the sweep comes over a real socket through pyvisa-py. The air-core coil
-resonates near 36 MHz, above the simulated meter's 30 MHz, so its Cp must come back as not
-determined rather than as a guess.
+The project's own goal (no published source): the fit recovers the simulated coil's L within
+1 %, Cp within 2 % and Rdc within 5 % for each shipped coil profile. The true values come from
+the profiles' exact physics (``sim.dut.true_values()``: L at DC including the wire's internal
+inductance, the phase-zero SRF); the sweep comes over a real socket through pyvisa-py. The
+air-core coil resonates near 36 MHz, above the simulated meter's 30 MHz, so its Cp must come
+back as not determined rather than as a guess.
 """
 
 from __future__ import annotations

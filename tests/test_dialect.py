@@ -2,14 +2,18 @@
 
 from __future__ import annotations
 
+import dataclasses
 import re
+import tomllib
 from pathlib import Path
 
 import pytest
 
+import sim_profiles
 from drivers.dialect import DIRECTORY, OPERATIONS
 from drivers.dialect_file import list_dialects, load_dialect
 from drivers.errors import DialectError
+from drivers.meter import ImpedanceMeter
 
 SIMULATED = DIRECTORY / "simulated.toml"
 
@@ -46,6 +50,22 @@ def test_template_is_valid_and_documents_every_operation():
     text = (DIRECTORY / "template.toml").read_text()
     for key in ("write_termination", "per_point_timeout", "max_points", "qd_sign", "settle"):
         assert key in text
+
+
+def test_the_template_as_shipped_states_the_simulated_meter(tmp_path):
+    # The template says it drives the simulated meter as shipped; its accuracy table must then
+    # be the meter's own, read here from the meter's profile (sim_profiles/simulated-meter.toml),
+    # and every other setting the simulated dialect's.
+    template, simulated = load_dialect("template"), load_dialect("simulated")
+    profile = tomllib.loads(
+        (Path(sim_profiles.__file__).parent / "simulated-meter.toml").read_text()
+    )
+    assert template.accuracy.reference_level == profile["reference_level"]
+    assert template.accuracy.relative == profile["systematic_accuracy"]
+    assert template.accuracy.repeatability == profile["accuracy_class"]
+    for field in dataclasses.fields(simulated):
+        if field.name not in ("name", "path", "description"):
+            assert getattr(template, field.name) == getattr(simulated, field.name), field.name
 
 
 def test_load_by_path_and_unknown_names(tmp_path):
@@ -290,3 +310,36 @@ def test_another_meter_family_may_keep_a_speed_header_of_that_spelling(tmp_path)
         ),
     }
     assert load_dialect(variant(tmp_path, edits)).operations["set_speed"].command == "SPE {speed}"
+
+
+def test_a_dialect_of_the_previous_release_names_every_rename_and_its_advice_works(tmp_path, sim):
+    # The previous release's simulated dialect, as it was shipped (its setup, speed and
+    # averaging lines; git history of drivers/dialects/simulated.toml).
+    old = {
+        r"^setup = .*$": 'setup = { command = "FORM:PAIR RX;FORM:BORD NORM" }',
+        r"^set_speed = .*$": (
+            'set_speed = { command = "SPE {speed}", '
+            'choices = { fast = "FAST", medium = "MED", slow = "SLOW" } }'
+        ),
+        r"^set_averaging = .*$": 'set_averaging = { command = "AVER:COUN {averaging}" }',
+    }
+    path = variant(tmp_path, old)
+    with pytest.raises(DialectError) as info:
+        load_dialect(path)
+    message = str(info.value)
+    assert "\n" not in message
+    assert "key 'operations.setup.command'" in message and "(RX)" in message
+    assert message.endswith("; retired words also in operations.set_speed.command")
+    # Do what the messages say: the pair's new spelling, then the speed line it gives.
+    pair = re.search(r"the simulator now says (.+?) \(see", message).group(1)
+    fixed = variant(tmp_path, old | {r"^setup = .*$": f'setup = {{ command = "{pair}" }}'})
+    with pytest.raises(DialectError) as info:
+        load_dialect(fixed)
+    speed_line = re.search(r": write (set_speed = .*)$", str(info.value)).group(1)
+    text = re.sub(r"^set_speed = .*$", speed_line, fixed.read_text(), flags=re.MULTILINE)
+    fixed.write_text(text)
+    with ImpedanceMeter.open(sim.resource, dialect=load_dialect(fixed)) as meter:
+        meter.configure(speed="slow")
+        z = meter.measure(1e3)
+    # R, X of what the simulator shows the meter (its exact impedance; noise is small).
+    assert z == pytest.approx(complex(sim.seen_impedance(1e3)), rel=0.01)

@@ -20,6 +20,17 @@ def _module_name(path: Path) -> str:
     return ".".join(parts[:-1] if parts[-1] == "__init__" else parts)
 
 
+def _absolute(importer: str, path: Path, module: str | None, level: int) -> str:
+    """The absolute name a ``from`` import names (``from . import x`` inside drivers too)."""
+    if level == 0:
+        return module or ""
+    base = importer.split(".")
+    if path.name != "__init__.py":
+        base = base[:-1]
+    base = base[: len(base) - (level - 1)]
+    return ".".join(base + ([module] if module else []))
+
+
 def import_graph() -> dict[str, set[str]]:
     """Which ``drivers`` modules each ``drivers`` module imports, anywhere in its source."""
     modules = {_module_name(p): p for p in ROOT.rglob("*.py")}
@@ -29,10 +40,11 @@ def import_graph() -> dict[str, set[str]]:
             targets: list[str] = []
             if isinstance(node, ast.Import):
                 targets = [a.name for a in node.names]
-            elif isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
+            elif isinstance(node, ast.ImportFrom):
+                base = _absolute(name, path, node.module, node.level)
                 # ``from package import module`` imports the module (the package is a folder).
-                subs = [f"{node.module}.{a.name}" for a in node.names]
-                targets = [s for s in subs if s in modules] or [node.module]
+                subs = [f"{base}.{a.name}" for a in node.names]
+                targets = [s for s in subs if s in modules] or [base]
             graph[name] |= {t for t in targets if t in modules and t != name}
     return graph
 
@@ -77,3 +89,21 @@ def test_scpi_knows_nothing_of_readings_or_dialects():
 def test_no_module_over_400_lines():
     long = {p.name: n for p in ROOT.rglob("*.py") if (n := len(p.read_text().splitlines())) > 400}
     assert long == {}
+
+
+def test_relative_imports_count(tmp_path, monkeypatch):
+    # Drawn by hand: a package whose two modules import each other with ``from . import``,
+    # one of them inside a function; the reader must see the circle.
+    package = tmp_path / "drivers"
+    (package / "inner").mkdir(parents=True)
+    (package / "__init__.py").write_text("")
+    (package / "inner" / "__init__.py").write_text("")
+    (package / "a.py").write_text("from . import b\n")
+    (package / "b.py").write_text("def f():\n    from .inner import c\n")
+    (package / "inner" / "c.py").write_text("from ..a import thing\n")
+    monkeypatch.setitem(globals(), "ROOT", package)
+    graph = import_graph()
+    assert graph["drivers.a"] == {"drivers.b"}
+    assert graph["drivers.b"] == {"drivers.inner.c"}
+    assert graph["drivers.inner.c"] == {"drivers.a"}
+    assert find_cycle(graph) == ["drivers.a", "drivers.b", "drivers.inner.c", "drivers.a"]

@@ -46,7 +46,7 @@ def _begin(store, dut="air-core-coil", ref_id=None):
 
 
 def test_corrected_ls_matches_the_simulated_coil_through_long_leads(store):
-    """The issue's main check: leads whose inductance is 15 % of the coil's are removed.
+    """Fixture correction's main check: leads with 15 % of the coil's inductance are removed.
 
     The truth is the simulator's own exact DUT impedance (`sim.dut_impedance`), which the meter
     never sees directly; the readings travel through pyvisa and a TCP socket like a bench meter's.

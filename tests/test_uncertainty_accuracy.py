@@ -26,7 +26,7 @@ from acquire.uncertainty import (
 )
 from drivers.dialect_file import load_dialect
 from drivers.errors import DialectError
-from drivers.simulator import physics
+from drivers.simulator import reading_error
 from drivers.simulator.profiles import load_meter
 
 ACC = load_dialect("simulated").accuracy
@@ -164,15 +164,15 @@ def test_template_documents_every_key():
 def test_simulated_systematic_error_stays_within_its_bound_and_is_fixed_per_session():
     f = np.geomspace(10.0, 30e6, 200)
     z = np.geomspace(1e-3, 1e9, 200) * np.exp(1j * np.linspace(-1.5, 1.5, 200))
-    bound = physics.error_bound(np.abs(z), f, 1e-3, 0.2, 1e7, 1e7)
+    bound = reading_error.error_bound(np.abs(z), f, 1e-3, 0.2, 1e7, 1e7)
     key = np.random.SeedSequence(4, spawn_key=(0,))
-    err = physics.systematic_error(z, f, bound, key)
+    err = reading_error.systematic_error(z, f, bound, key)
     assert np.all(np.abs(err.real) <= bound) and np.all(np.abs(err.imag) <= bound)
     # spread over the bound: a uniform draw has variance 1/3 (JCGM 100:2008 4.3.7)
     share = np.concatenate([err.real / bound, err.imag / bound])
     assert np.var(share) == pytest.approx(1 / 3, abs=0.1)
-    np.testing.assert_array_equal(err, physics.systematic_error(z, f, bound, key))
-    other = physics.systematic_error(z, f, bound, np.random.SeedSequence(5, spawn_key=(0,)))
+    np.testing.assert_array_equal(err, reading_error.systematic_error(z, f, bound, key))
+    other = reading_error.systematic_error(z, f, bound, np.random.SeedSequence(5, spawn_key=(0,)))
     assert not np.any(other == err)
 
 

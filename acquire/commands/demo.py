@@ -41,9 +41,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     from acquire.demo import run_demo
     from acquire.errors import InputError
+    from drivers.simulator import LIST_MAX
 
-    if not 2 <= args.points <= 1601:
-        raise InputError("--points must be between 2 and 1601")
+    if not 2 <= args.points <= LIST_MAX:
+        raise InputError(f"--points must be between 2 and {LIST_MAX} (the simulated meter's list)")
     result = run_demo(args.store, live=not args.no_live, points=args.points, seed=args.seed)
     if result.outcome is None:
         return 2

@@ -10,7 +10,7 @@ stated uncertainty honest) are two independent parts, both off with ``SIMulate:N
 
 - a *systematic* error per session (seed), per half-decade of frequency and per decade of
   ``|Z|``, uniform within ``±b`` on R and on X (:func:`error_bound`,
-  :func:`drivers.simulator.physics.systematic_error`); repeats and averaging do not remove it;
+  :func:`drivers.simulator.reading_error.systematic_error`); repeats and averaging do not remove it;
 - *noise*: normal, independent per reading and part, standard deviation ``σ``
   (:func:`noise_deviation`), divided by ``√n`` when the meter averages ``n`` readings.
 
@@ -31,7 +31,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from drivers.scpi import INVALID, OVERRANGE
-from drivers.simulator import physics
+from drivers.simulator import reading_error
 from drivers.simulator.profiles import DutProfile, FixtureProfile, MeterProfile
 from drivers.simulator.scpi_parser import block, format_number
 
@@ -89,7 +89,7 @@ def duration(conditions: Conditions) -> float:
 def noise_deviation(conditions: Conditions, magnitude: np.ndarray, f: np.ndarray) -> np.ndarray:
     """One-sigma noise in ohm for readings of ``magnitude`` at ``f`` under ``conditions``."""
     meter = conditions.meter
-    return physics.noise_deviation(
+    return reading_error.noise_deviation(
         magnitude,
         f,
         meter.accuracy_class,
@@ -105,7 +105,7 @@ def noise_deviation(conditions: Conditions, magnitude: np.ndarray, f: np.ndarray
 def error_bound(conditions: Conditions, magnitude: np.ndarray, f: np.ndarray) -> np.ndarray:
     """Bound in ohm on the systematic error of R and of X of readings of ``magnitude`` at ``f``."""
     meter = conditions.meter
-    return physics.error_bound(
+    return reading_error.error_bound(
         magnitude,
         f,
         meter.systematic_accuracy,
@@ -141,7 +141,9 @@ def read_impedance(
         magnitude = np.abs(z)
         deviation = noise_deviation(conditions, magnitude, f)
         bound = error_bound(conditions, magnitude, f)
-        z = physics.add_noise(z, deviation, normals) + physics.systematic_error(z, f, bound, key)
+        z = reading_error.add_noise(z, deviation, normals) + reading_error.systematic_error(
+            z, f, bound, key
+        )
     return Reading(frequency=f, z=z, overrange=overrange, invalid=invalid)
 
 

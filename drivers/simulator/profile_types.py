@@ -185,7 +185,7 @@ class FixtureProfile:
 
 @dataclass(frozen=True, kw_only=True)
 class MeterProfile:
-    """The simulated meter: identity, noise model (``physics.noise_deviation``), timing.
+    """The simulated meter: identity, noise model (``reading_error.noise_deviation``), timing.
 
     A reading lasts ``max(minimum_reading_time, periods / f)``; its noise scales as
     ``sqrt(reference_periods / periods)``, so the accuracy class holds at ``reference_periods``.

@@ -248,7 +248,9 @@ def _report(solutions, known, s: StartValues, f, z, dropped: int, split: str) ->
     band = f"{format_si(f_lo, 'Hz')} and {format_si(f_hi, 'Hz')}"
     notes: list[str] = []
     if dropped:
-        notes.append(f"{dropped} overrange or invalid point(s) left out of the fit")
+        notes.append(
+            f"{dropped} point(s) without a finite value (overrange, invalid or flagged) left out"
+        )
     if not known:
         notes.append(
             "no per-point uncertainty given: the noise is taken as a constant fraction of |Z|, "

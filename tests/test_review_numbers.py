@@ -1,0 +1,92 @@
+"""An independent checker's attacks on the numbers the tool reads and writes.
+
+Check values: SI prefixes milli = 1e-3 and mega = 1e6 (BIPM, The International System of Units,
+9th ed., 2019, table 7; the symbol's case is part of it: m is milli, M is mega). The coil of the
+round trip (L = 100 µH, R = 1 Ω, C = 10 pF, our own demo values) is computed here as
+1/(1/(R + jωL) + jωC).
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from acquire.coil.sweepfile import read_csv_sweep, unit_scale
+from acquire.csvout import write_sweep_csv
+from acquire.errors import InputError
+from acquire.uncertainty import BEYOND_ACCURACY, point_flags
+from acquire.units import parse_list, parse_quantity
+
+
+@pytest.mark.parametrize("text", ["1mhz", "1MHZ", "1Mhz", "2.5 mhz"])
+def test_a_frequency_whose_case_cannot_be_trusted_is_refused(text):
+    # "mhz" was read as 1 mHz (millihertz) where MHz was almost surely meant: 1e12 apart.
+    with pytest.raises(InputError, match="MHz for megahertz"):
+        parse_quantity(text, "Hz")
+    with pytest.raises(InputError, match="MHz for megahertz"):
+        parse_quantity(text)
+    with pytest.raises(InputError, match="MHz for megahertz"):
+        parse_list(f"1k, {text.replace(' ', '')}", "Hz")
+
+
+def test_si_cased_frequencies_keep_their_meaning():
+    assert parse_quantity("1mHz", "Hz") == pytest.approx(1e-3)  # SI table 7: milli
+    assert parse_quantity("1MHz", "Hz") == 1e6  # SI table 7: mega
+    assert parse_quantity("1khz", "Hz") == 1e3  # no m/M, no doubt
+    assert parse_quantity("1mohm", "ohm") == pytest.approx(1e-3)
+    assert parse_quantity("1Mohm", "ohm") == 1e6
+
+
+@pytest.mark.parametrize(("unit", "scale"), [("mHz", 1e-3), ("MHz", 1e6), ("Mohm", 1e6)])
+def test_csv_headers_honour_the_case_of_the_prefix(unit, scale):
+    base = "Hz" if unit.endswith("Hz") else "ohm"
+    assert unit_scale(f"x [{unit}]", base) == pytest.approx(scale)
+
+
+@pytest.mark.parametrize("unit", ["mhz", "Mhz", "MHZ"])
+def test_csv_headers_whose_case_cannot_be_trusted_are_refused(unit):
+    with pytest.raises(InputError, match="MHz"):
+        unit_scale(f"frequency [{unit}]", "Hz")
+
+
+def _coil():
+    f = np.geomspace(1e3, 20e6, 60)
+    w = 2 * math.pi * f
+    z = 1 / (1 / (1.0 + 1j * w * 100e-6) + 1j * w * 10e-12)
+    return f, z
+
+
+def test_a_sweep_csv_with_flagged_points_reads_back_through_acquire_fit(tmp_path):
+    """The CSV `acquire sweep` writes leaves a flagged value's cell empty; `acquire fit FILE`
+    (its own process) must read such a file, leave those points out and say so."""
+    f, z = _coil()
+    u = 1e-4 * np.abs(z)
+    rng = np.random.default_rng(11)
+    z = z + u * (rng.standard_normal(f.size) + 1j * rng.standard_normal(f.size))
+    cov = np.zeros(f.shape + (2, 2))
+    cov[:, 0, 0] = cov[:, 1, 1] = u**2
+    cov[5:8, 0, 0] = (10.0 * np.abs(z[5:8].real)) ** 2  # R unknown there: flagged
+    flags = point_flags(f, z, cov)
+    assert list(flags[5:8]) == [BEYOND_ACCURACY] * 3
+    path = write_sweep_csv(tmp_path / "s.csv", f, z * 1.01, z, about={"dut": "demo"}, cov=cov,
+                           flags=flags)  # fmt: skip
+    assert ",," in path.read_text(encoding="utf-8")  # the empty cells are there
+    src = read_csv_sweep(path)
+    flagged = int(np.count_nonzero(flags == BEYOND_ACCURACY))  # 3, and R above the resonance
+    assert np.count_nonzero(~np.isfinite(src.impedance)) == flagged
+    assert f"{flagged} with an empty cell" in src.description
+    done = subprocess.run(
+        [sys.executable, "-m", "acquire", "fit", str(path), "--json"],
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
+    assert done.returncode == 0, done.stderr
+    by_name = {q["name"]: q for q in json.loads(done.stdout)["quantities"]}
+    assert by_name["L"]["value"] == pytest.approx(100e-6, rel=2e-3)
+    assert by_name["Cp"]["value"] == pytest.approx(10e-12, rel=2e-2)

@@ -90,3 +90,49 @@ def test_a_sweep_csv_with_flagged_points_reads_back_through_acquire_fit(tmp_path
     by_name = {q["name"]: q for q in json.loads(done.stdout)["quantities"]}
     assert by_name["L"]["value"] == pytest.approx(100e-6, rel=2e-3)
     assert by_name["Cp"]["value"] == pytest.approx(10e-12, rel=2e-2)
+
+
+class _BareMeter:
+    """A meter that reads one impedance and whose dialect states no accuracy."""
+
+    frequency_range = (1.0, 1e8)
+
+    def __init__(self, z: complex) -> None:
+        self.z = z
+        self.dialect = type("Dialect", (), {"accuracy": None, "name": "bare"})()
+        self.settings: dict = {}
+
+    def sweep(self, frequencies, on_points=None):
+        f = np.asarray(frequencies, dtype=float)
+        z = np.full(f.shape, self.z)
+        if on_points is not None:
+            on_points(f, z)
+        return z
+
+
+def test_without_a_stated_accuracy_a_reading_without_type_a_leaves_u_unknown():
+    """No stated accuracy, the standards read 3 times, the DUT once: the DUT's own scatter is
+    not known, so U is not known either (it was the standards' scatter alone, 50x too small
+    here, computed: 2·0.001 Ω against a DUT whose readings could be off by anything)."""
+    from acquire.compensation import ReferenceSet
+    from acquire.plan import list_plan
+    from acquire.sweep import run_sweep
+
+    grid = np.array([1e3, 1e5])
+    refs = ReferenceSet(
+        frequency=grid,
+        open=np.array([-1e7j, -1e5j]),
+        short=np.array([0.05 + 0.01j, 0.05 + 1j]),
+        open_u=np.full(2, 1.0),
+        short_u=np.full(2, 0.001),
+        repeats=3,
+    )
+    plan = list_plan("1kHz, 10kHz")
+    once = run_sweep(_BareMeter(2 + 200j), plan, refs)
+    assert np.isnan(once.uncertainty).all()
+    # the DUT read three times (its scatter is zero here): every reading has a Type A now
+    thrice = run_sweep(_BareMeter(2 + 200j), plan, refs, repeats=3)
+    assert np.all(np.isfinite(thrice.uncertainty))
+    # the DUT read three times but the standards once: the standards' scatter is not known
+    bare = ReferenceSet(frequency=grid, open=refs.open, short=refs.short)
+    assert np.isnan(run_sweep(_BareMeter(2 + 200j), plan, bare, repeats=3).uncertainty).all()

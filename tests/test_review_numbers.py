@@ -136,3 +136,46 @@ def test_without_a_stated_accuracy_a_reading_without_type_a_leaves_u_unknown():
     # the DUT read three times but the standards once: the standards' scatter is not known
     bare = ReferenceSet(frequency=grid, open=refs.open, short=refs.short)
     assert np.isnan(run_sweep(_BareMeter(2 + 200j), plan, bare, repeats=3).uncertainty).all()
+
+
+def _through(abcd, zx):
+    """What a meter reads through a two-port with chain parameters ``abcd`` (computed)."""
+    a, b, c, d = abcd
+    with np.errstate(all="ignore"):
+        return (a * zx + b) / (c * zx + d)
+
+
+@pytest.mark.parametrize("layout", ["cable", "stray first", "stray last"])
+def test_open_short_states_its_model_error_for_any_reciprocal_fixture(layout):
+    """Open-short is exact only when the fixture's stray sits after its series part. Through a
+    1 m, 50 Ω cable (velocity factor 0.66; lossless line: A = D = cos βl, B = jZ0·sin βl,
+    C = j·sin βl/Z0, from memory of the telegrapher's solution) or leads whose stray capacitance
+    sits before their inductance, it was off by up to 10 % at 10 MHz with U = 0 (no meter error
+    here at all); the stated U must cover that model error."""
+    from acquire.uncertainty import correct_with_uncertainty
+
+    f = np.geomspace(1e3, 10e6, 25)
+    w = 2 * math.pi * f
+    if layout == "cable":
+        bl = w * 1.0 / (0.66 * 299792458.0)
+        abcd = (np.cos(bl), 1j * 50 * np.sin(bl), 1j * np.sin(bl) / 50, np.cos(bl))
+    else:
+        z, y = 0.02 + 1j * w * 0.3e-6, 1j * w * 8e-12
+        one = np.ones_like(f)
+        first = (one, z, y, 1 + y * z)  # [[1, 0], [Y, 1]]·[[1, Z], [0, 1]]
+        last = (1 + z * y, z, y, one)  # [[1, Z], [0, 1]]·[[1, 0], [Y, 1]]
+        abcd = first if layout == "stray first" else last
+    zx = 1.0 + 1j * w * 10e-6  # a 10 µH coil with 1 Ω (demo values)
+    refs = type("Refs", (), {})()
+    refs.frequency, refs.repeats = f, 1
+    refs.open, refs.short = abcd[0] / abcd[2], _through(abcd, 0 * f)  # Zo = A/C
+    refs.load, refs.load_true = None, None
+    refs.at = lambda grid: refs
+    pts = correct_with_uncertainty(f, _through(abcd, zx), None, refs, None)
+    err = pts.z - zx
+    if layout == "stray last":
+        assert np.allclose(err, 0, atol=1e-9 * np.abs(zx))
+    else:
+        assert np.max(np.abs(err) / np.abs(zx)) > 1e-3  # a real model error, not rounding
+    assert np.all(np.abs(err.real) <= pts.expanded[:, 0] + 1e-12)
+    assert np.all(np.abs(err.imag) <= pts.expanded[:, 1] + 1e-12)

@@ -10,8 +10,9 @@ at the dialect's reference conditions) and the quantities the sweep shows. Its
   :func:`acquire.uncertainty.correct_with_uncertainty` (readings, standards and their repeats);
 - without one: the raw reading's own Type B (the stated accuracy) and Type A (the scatter of
   repeated readings, else the stated repeatability of one reading);
-- without a stated accuracy, only Type A is counted; a reading taken once then has no known
-  uncertainty (NaN).
+- without a stated accuracy, only Type A is counted; unless every reading has one (the DUT read
+  with repeats, each standard of the set too) the uncertainty is not known (NaN), since a
+  reading without one would count as exact.
 
 Each point's flags text is ``beyond-accuracy`` where a shown quantity is past what the tool can
 measure (as :func:`acquire.uncertainty.point_flags` judges it), ``overrange`` or ``invalid``
@@ -130,7 +131,7 @@ class PointUncertainty:
             if references is not None:
                 cp = correct_with_uncertainty(f, raw, u_m, references, self.accuracy, **settings)
                 corrected, cov = cp.z, cp.cov
-                if self.accuracy is None and u_m is None and not _has_type_a(references):
+                if self.accuracy is None and not _all_type_a(references, u_m):
                     cov = np.full(cov.shape, np.nan)
             else:
                 cov = self._raw_cov(f, raw, u_m, settings)
@@ -156,5 +157,11 @@ class PointUncertainty:
         return as_covariance(type_a, shape) + as_covariance(type_b, shape)
 
 
-def _has_type_a(references: Any) -> bool:
-    return any(getattr(references, f"{s}_u", None) is not None for s in ("open", "short", "load"))
+def _all_type_a(references: Any, u_m) -> bool:
+    """Whether, without a stated accuracy, every reading has a Type A of its own: the DUT's
+    (``u_m``, from repeats) and each standard the set holds. A reading without one would count
+    as exact and the uncertainty would look smaller than it is, so it is then not known."""
+    if u_m is None:
+        return False
+    held = [s for s in ("open", "short", "load") if getattr(references, s, None) is not None]
+    return all(getattr(references, f"{s}_u", None) is not None for s in held)

@@ -94,8 +94,18 @@ def _suffix_scale(suffix: str, unit: str | None, text: str) -> float:
         prefix, rest = suffix[:cut], suffix[cut:]
         centi_ok = prefix != "c" or want == "m"
         if prefix in PREFIXES and centi_ok and (rest == "" or _canonical(rest) == want):
+            _refuse_ambiguous_case(prefix, rest, text)
             return PREFIXES[prefix]
     raise InputError(f"{text!r}: expected a value in {want} (for example 4.7k{want})")
+
+
+def _refuse_ambiguous_case(prefix: str, unit: str, text: str) -> None:
+    """Refuse ``mhz`` and ``MHZ``: with the hertz not in its own case (``Hz``), the case of the
+    prefix cannot be trusted either, and milli (``mHz``) and mega (``MHz``) differ by 10¹²."""
+    if prefix in ("m", "M") and _canonical(unit) == "Hz" and unit != "Hz":
+        raise InputError(
+            f"{text!r}: write MHz for megahertz or mHz for millihertz (the case of M matters)"
+        )
 
 
 def _free_scale(suffix: str, text: str) -> float:
@@ -106,6 +116,7 @@ def _free_scale(suffix: str, text: str) -> float:
         return 1.0
     rest = _canonical(suffix[1:])
     if suffix[0] in PREFIXES and rest in UNITS.values() and (suffix[0] != "c" or rest == "m"):
+        _refuse_ambiguous_case(suffix[0], suffix[1:], text)
         return PREFIXES[suffix[0]]
     raise InputError(f"{text!r}: unknown unit or prefix {suffix!r}")
 

@@ -248,7 +248,7 @@ def _report(solutions, known, s: StartValues, f, z, dropped: int, split: str) ->
     band = f"{format_si(f_lo, 'Hz')} and {format_si(f_hi, 'Hz')}"
     notes: list[str] = []
     if dropped:
-        notes.append(f"{dropped} overrange or invalid point(s) left out of the fit")
+        notes.append(f"{dropped} overrange, invalid or flagged point(s) left out of the fit")
     if not known:
         notes.append(
             "no per-point uncertainty given: the noise is taken as a constant fraction of |Z|, "

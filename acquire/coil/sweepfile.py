@@ -10,7 +10,8 @@ fitting raw readings is always an explicit choice.
 A unit in square brackets after a header is honoured, with an SI prefix (``[kHz]``,
 ``[mohm]``, ``[kΩ]``, ``[uH]``/``[µH]``, ``[deg]``/``[rad]``); a header without one is taken in
 SI units (hertz, ohm, henry, degrees for an angle). A unit that does not fit the column
-refuses the file, naming the column.
+refuses the file, naming the column. An empty R or X cell (how `acquire sweep` writes a value
+flagged beyond the tool's accuracy) makes that point unknown: the fit leaves it out and says so.
 
 Columns ``U(R) [ohm]`` and ``U(X) [ohm]`` (the expanded uncertainty, k = 2, of the corrected R
 and X, as `acquire sweep` writes them) are read too; their halves are handed to the fit as each
@@ -49,6 +50,11 @@ def unit_scale(header: str, base: str) -> float:
     else:
         for name in _BASE[base]:
             if unit.endswith(name) and unit[: -len(name)] in _PREFIX:
+                if name == "hz" and unit[: -len(name)] in ("m", "M"):
+                    raise InputError(
+                        f"column {header!r}: write MHz for megahertz or mHz for millihertz "
+                        "(the case of M matters)"
+                    )
                 return _PREFIX[unit[: -len(name)]]
     want = {"Hz": "Hz, kHz, MHz", "ohm": "ohm, mohm, kohm, Ω", "H": "H, mH, uH, nH"}
     raise InputError(
@@ -135,12 +141,14 @@ def read_csv_sweep(path: str | Path, raw: bool = False) -> SweepSource:
     u_cols = [plain.index(k) if k in plain else None for k in ("u(r)", "u(x)")]
     u_scale = [1.0 if c is None else unit_scale(header[c], "ohm") for c in u_cols]
     f, z, u = [], [], []
+    empty = 0
     for line, row in enumerate(rows[1:], start=2):
         if len(row) <= max(f_col, a_col, b_col):
             raise InputError(f"line {line} of {path} has too few columns")
         freq = _number(row[f_col], line) * f_scale
-        a = _number(row[a_col], line) * a_scale
-        b = _number(row[b_col], line) * b_scale
+        a = _optional(row, a_col, line) * a_scale
+        b = _optional(row, b_col, line) * b_scale
+        empty += not (row[a_col].strip() and row[b_col].strip())
         if kind == "RL":
             b = 2.0 * math.pi * freq * b
         elif kind == "Ztheta":
@@ -153,7 +161,10 @@ def read_csv_sweep(path: str | Path, raw: bool = False) -> SweepSource:
     if not raw and None not in u_cols and what == "corrected readings":
         values = np.array(u, dtype=float).reshape(-1, 2)
         sigma = half_expanded(values[:, 0], values[:, 1], zs)
-    return SweepSource(np.array(f), zs, f"{path}: {len(f)} points, {what}", sigma)
+    blank = (
+        f"; {empty} with an empty cell (a value flagged beyond accuracy) left out" if empty else ""
+    )
+    return SweepSource(np.array(f), zs, f"{path}: {len(f)} points, {what}{blank}", sigma)
 
 
 def _optional(row: list[str], col: int | None, line: int) -> float:

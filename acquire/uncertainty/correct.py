@@ -11,7 +11,10 @@ uncertainty (``k = 2``). What it counts, per reading (the DUT's and each standar
   (``u_m`` for the DUT; the set's ``open_u``, ``short_u``, ``load_u`` for the standards), else
   the stated one-reading repeatability divided by ``√repeats``
   (:func:`acquire.uncertainty.accuracy.repeatability`), when ``accuracy`` is given;
-- the load standard's own tolerance ``load_true_u`` (for example from its certificate).
+- the load standard's own tolerance ``load_true_u`` (for example from its certificate);
+- with open and short but no load, the correction's model error: it is exact only for a fixture
+  whose stray sits after its series part, and is off by up to about ``2·|Zs/Zo|`` of the value
+  for others (a cable, say); see :func:`_open_short_model`.
 
 The readings are taken as independent of each other. Where the meter's errors of two readings
 are in fact correlated (the same range, the same frequency) the correction cancels part of them
@@ -131,4 +134,23 @@ def correct_with_uncertainty(
         None if z_std["load"] is None else at.load_true,
         load_true_u,
     )
+    if z_std["open"] is not None and z_std["short"] is not None and z_std["load"] is None:
+        cov = cov + _open_short_model(zx, z_std["open"], z_std["short"])
     return CorrectedPoints(frequency=f, z=zx, cov=cov, expanded=expanded(cov))
+
+
+def _open_short_model(zx, zo, zs) -> np.ndarray:
+    """Covariance of the open-short correction's model error (Type B, rectangular).
+
+    For any reciprocal fixture with chain parameters A, B, C, D (AD − BC = 1) the open-short
+    correction returns ``Zx/D²`` (algebra: ``Zs = B/D``, ``Zo = A/C``). Open and short fix only
+    two of the three parameters; with ``t = Zs/Zo = BC/(AD)`` the relative error ``1/D² − 1`` is
+    0 for a fixture whose stray sits after its series part (D = 1), ``−t`` for a symmetric one
+    (A = D, a cable) and ``t² − 2t`` for one whose stray sits before its series part (A = 1).
+    So the relative error of Zx is taken as within ``|t|·(2 + |t|)`` for R and X each, standard
+    uncertainty that bound times ``|Zx|/√3`` (JCGM 100:2008 4.3.7). A load standard removes it.
+    """
+    with np.errstate(all="ignore"):
+        t = np.abs(np.asarray(zs) / np.asarray(zo))
+        a = t * (2.0 + t) * np.abs(zx)
+    return as_covariance(a / np.sqrt(3.0), np.shape(zx))

@@ -15,9 +15,11 @@ digits, so a float64 reads back exactly; an overrange reading is ``inf`` and an 
 When the sweep's uncertainty is known (its covariance of R and X per point), the expanded
 uncertainty (k = 2) follows: ``U(R) [ohm]`` and ``U(X) [ohm]`` after the corrected (else raw)
 R and X, and ``U(Ls) [H]`` and so on after each quantity (``nan`` where unknown), and a last
-column ``flags`` ('' for a measured value, else words such as ``beyond-accuracy``). A value
-flagged beyond the tool's accuracy is left empty, never written as a number: the quantity's
-cell, and the corrected R or X it comes from; the raw R and X stay.
+column ``flags`` ('' for a measured value, else words such as ``beyond-accuracy``). A quantity
+flagged beyond the tool's accuracy is left empty, never written as a number. The raw and the
+corrected R and X stay, each beside its expanded uncertainty and the point's flags: they are the
+measured impedance itself, which the store keeps too, and a fit of the file needs them (a
+self-resonance is found from X even where R is far below its uncertainty).
 """
 
 from __future__ import annotations
@@ -121,7 +123,7 @@ def write_rows(
         raise InputError("give one flags text per point")
     hide = _hidden(f, z, cov, marks, names)
     if zc is not None:
-        columns += [_blank(zc.real, hide["Rs"]), _blank(zc.imag, hide["X"])]
+        columns += [zc.real.tolist(), zc.imag.tolist()]
     u_rx = expanded(cov)
     columns += [u_rx[:, 0].tolist(), u_rx[:, 1].tolist()]
     u_q = quantity_uncertainty(f, z, cov, names)

@@ -62,8 +62,10 @@ def _coil():
 
 
 def test_a_sweep_csv_with_flagged_points_reads_back_through_acquire_fit(tmp_path):
-    """The CSV `acquire sweep` writes leaves a flagged value's cell empty; `acquire fit FILE`
-    (its own process) must read such a file, leave those points out and say so."""
+    """The CSV `acquire sweep` writes leaves a flagged quantity's cell empty but keeps the
+    corrected R and X beside their U; `acquire fit FILE` (its own process) reads every point, so
+    the self-resonance found from X is not lost. A file whose R or X cells are empty (edited by
+    hand, say) is read too: those points are left out and the description says so."""
     f, z = _coil()
     u = 1e-4 * np.abs(z)
     rng = np.random.default_rng(11)
@@ -75,9 +77,27 @@ def test_a_sweep_csv_with_flagged_points_reads_back_through_acquire_fit(tmp_path
     assert list(flags[5:8]) == [BEYOND_ACCURACY] * 3
     path = write_sweep_csv(tmp_path / "s.csv", f, z * 1.01, z, about={"dut": "demo"}, cov=cov,
                            flags=flags)  # fmt: skip
-    assert ",," in path.read_text(encoding="utf-8")  # the empty cells are there
+    text = path.read_text(encoding="utf-8")
+    assert ",," in text  # the flagged quantities' cells are empty
     src = read_csv_sweep(path)
+    assert np.all(np.isfinite(src.impedance)) and src.impedance.size == f.size
+    lines = text.splitlines()
+    comments = [line for line in lines if line.startswith("#")]
+    head, *rows = [line for line in lines if not line.startswith("#")]
+    columns = head.split(",")
+    r_col = columns.index("corrected R [ohm]")
+    edited = tmp_path / "edited.csv"
+    blanked = []
+    for row in rows:
+        cells = row.split(",")
+        if cells[-1] != BEYOND_ACCURACY:
+            blanked.append(row)
+            continue
+        cells[r_col] = ""
+        blanked.append(",".join(cells))
+    edited.write_text("\n".join([*comments, head, *blanked]) + "\n", encoding="utf-8")
     flagged = int(np.count_nonzero(flags == BEYOND_ACCURACY))  # 3, and R above the resonance
+    src = read_csv_sweep(edited)
     assert np.count_nonzero(~np.isfinite(src.impedance)) == flagged
     assert f"{flagged} with an empty cell" in src.description
     done = subprocess.run(

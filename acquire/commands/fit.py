@@ -163,7 +163,7 @@ def run(args: argparse.Namespace) -> int:
     from rich.console import Console
 
     console = Console()
-    console.print(source.description)
+    console.print(source.description, markup=False, emoji=False)  # names as the user typed them
     console.print(fit_table(fit))
     if prediction is not None:
         console.print(compare(prediction, fit))

@@ -94,10 +94,9 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _capture(args: argparse.Namespace) -> int:
-    from rich.console import Console
-
     from acquire.capture import SAFETY, ConsoleOperator, capture_references
     from acquire.commands.options import plan_from_args
+    from acquire.display import text_console
     from acquire.errors import InputError
     from acquire.store import open_store
     from acquire.units import parse_quantity
@@ -115,7 +114,7 @@ def _capture(args: argparse.Namespace) -> int:
         load_true = complex(
             parse_quantity(args.load_value, "ohm"), parse_quantity(args.load_reactance, "ohm")
         )
-    console = Console()
+    console = text_console()
     console.print(SAFETY, style="yellow")
     with open_store(args.store) as store:
         with ImpedanceMeter.open(
@@ -157,13 +156,12 @@ def _capture(args: argparse.Namespace) -> int:
 def _list(args: argparse.Namespace) -> int:
     from datetime import UTC, datetime
 
-    from rich.console import Console
     from rich.table import Table
 
-    from acquire.display import format_duration
+    from acquire.display import format_duration, text_console
     from acquire.store import open_store
 
-    console = Console()
+    console = text_console()
     with open_store(args.store) as store:
         infos = store.list_reference_sets()
         if not infos:
@@ -189,16 +187,16 @@ def _list(args: argparse.Namespace) -> int:
 
 
 def _show(args: argparse.Namespace) -> int:
-    from rich.console import Console
     from rich.table import Table
 
+    from acquire.display import text_console
     from acquire.impedance import quantities
     from acquire.resonance import summary_frequencies
     from acquire.store import open_store
     from acquire.sweep_setup import find_reference_set
     from acquire.units import format_si
 
-    console = Console()
+    console = text_console()
     with open_store(args.store) as store:
         ref_id, refs = find_reference_set(store, args.set)
     f = refs.frequency
@@ -230,12 +228,11 @@ def _show(args: argparse.Namespace) -> int:
 
 
 def _check(args: argparse.Namespace) -> int:
-    from rich.console import Console
-
+    from acquire.display import text_console
     from acquire.store import open_store
     from acquire.sweep_setup import find_reference_set
 
-    console = Console()
+    console = text_console()
     with open_store(args.store) as store:
         ref_id, refs = find_reference_set(store, args.set)
     findings = refs.check()

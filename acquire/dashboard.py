@@ -16,6 +16,7 @@ it out, and a warning line says how many points were flagged and from which freq
 
 from __future__ import annotations
 
+import io
 import math
 import sys
 import time
@@ -78,8 +79,15 @@ def render(
     srf = self_resonance(f, z) if f.size else None
     side = width >= 80
     plot_width = width - (SIDE_WIDTH + 1 if side else 0)
-    plots = _plots(state, f, q, srf, plot_width, height)
     status = _side(state, f, z, q, srf, now)
+    parts: list = [_header(state, now), _progress(state, width)]
+    warnings = state.all_warnings()
+    if warnings:
+        parts.append(Text("\n".join(f"warning: {w}" for w in warnings), style="yellow"))
+    room = height - sum(_height(part, width) for part in parts)
+    if not side:
+        room -= _height(status, width)
+    plots = _plots(state, f, q, srf, plot_width, room)
     body: Table | Group
     if side:
         body = Table.grid(padding=(0, 1))
@@ -88,11 +96,16 @@ def render(
         body.add_row(plots, status)
     else:
         body = Group(plots, status)
-    parts: list = [_header(state, now), _progress(state, width)]
-    warnings = state.all_warnings()
-    if warnings:
-        parts.append(Text("\n".join(f"warning: {w}" for w in warnings), style="yellow"))
     return Group(*parts, body)
+
+
+#: Measures how many lines a part of the view takes at a width (it writes nowhere).
+_RULER = Console(file=io.StringIO(), width=200, color_system=None)
+
+
+def _height(part, width: int) -> int:
+    """Lines ``part`` takes on a terminal ``width`` cells wide."""
+    return len(_RULER.render_lines(part, _RULER.options.update(width=width), pad=False))
 
 
 def _header(state: SweepState, now: datetime | None) -> Text:
@@ -115,9 +128,6 @@ def _header(state: SweepState, now: datetime | None) -> Text:
 
 
 def _progress(state: SweepState, width: int) -> Table:
-    grid = Table.grid(padding=(0, 1))
-    grid.add_column(width=max(min(width // 3, 40), 10))
-    grid.add_column()
     done = state.count
     share = 100.0 * done / max(state.planned, 1)
     words = {"waiting": "waiting", "running": "measuring"}.get(state.status, state.status)
@@ -129,6 +139,10 @@ def _progress(state: SweepState, width: int) -> Table:
         )
     elif state.reason:
         line += f" · {state.reason}"
+    grid = Table.grid(padding=(0, 1))
+    # the bar gives way to the words, so that they stay on one line
+    grid.add_column(width=max(min(width // 3, 40, width - len(line) - 1), 10))
+    grid.add_column()
     grid.add_row(ProgressBar(total=max(state.planned, 1), completed=done), Text(line))
     return grid
 
@@ -142,7 +156,8 @@ def _plots(
     height: int,
 ) -> Group:
     names = state.quantities
-    rows_each = max(min((height - 8) // max(len(names), 1) - 2, 12), 3)
+    # ``height`` is what is left below the header: each plot has a title and an axis line
+    rows_each = max(min(height // max(len(names), 1) - 2, 12), 2)
     x_range = (
         state.plan.start,
         state.plan.stop if state.plan.stop > state.plan.start else state.plan.start * 10,

@@ -75,3 +75,31 @@ def test_demo_prints_a_store_path_with_brackets_as_typed(tmp_path, monkeypatch, 
     assert f"Results go to {url}" in out
     assert f"look again with: acquire reference list --store {url}" in out
     assert (tmp_path / "lot [b]7 :x:.db").is_file()
+
+
+def _screen_lines(text: str) -> list[str]:
+    """The lines a terminal shows, with the escape sequences (colour, cursor moves) removed."""
+    import re
+
+    plain = re.sub(r"\x1b\[[0-9;?]*[A-Za-z]", "\n", text.replace("\r", "\n"))
+    return plain.split("\n")
+
+
+@pytest.mark.parametrize("size", [(80, 24), (120, 40)])
+def test_the_live_view_fits_the_terminal_with_uncertainty_shown(size, monkeypatch, capsys):
+    columns, lines = size
+    monkeypatch.setenv("COLUMNS", str(columns))
+    monkeypatch.setenv("LINES", str(lines))
+    monkeypatch.setenv("TTY_COMPATIBLE", "1")  # rich: treat the captured output as a terminal
+    monkeypatch.setenv("FORCE_COLOR", "1")
+    with running(dut="demo-coil", fixture="bench-leads", seed=2, measure_time=0.02) as sim:
+        code = main(["sweep", "--resource", sim.resource, "--store", "sqlite://",
+                     "--points", "21", "--uncertainty", "--dut", "proto-7"])  # fmt: skip
+    out = capsys.readouterr().out
+    assert code == 0
+    shown = _screen_lines(out)
+    assert any(line.startswith("Sweep of proto-7") for line in shown)  # the live view was drawn
+    # rich marks a view taller than the terminal by cutting it with a line "..."
+    assert not [line for line in shown if line.strip() == "..."]
+    # the progress line is one line: its end is not wrapped onto a line of its own
+    assert not [line for line in shown if line.strip() in ("left", "s left")]

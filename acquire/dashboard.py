@@ -253,17 +253,17 @@ def summary(state: SweepState, count: int = 6) -> Group:
     if f.size:
         parts.append(_summary_table(state, f, raw, corrected, count))
         srf_raw = self_resonance(f, raw)
+        # the points measured, not the plan: an interrupted sweep may stop short of a resonance
+        none = f"none between {format_si(float(f[0]), 'Hz')} and {format_si(float(f[-1]), 'Hz')}"
         lines = []
         if corrected is not None:
             srf_cor = self_resonance(f, corrected)
             lines.append(
-                f"self-resonance: raw {format_si(srf_raw, 'Hz') if srf_raw else 'none in range'}, "
-                f"corrected {format_si(srf_cor, 'Hz') if srf_cor else 'none in range'}"
+                f"self-resonance: raw {format_si(srf_raw, 'Hz') if srf_raw else none}, "
+                f"corrected {format_si(srf_cor, 'Hz') if srf_cor else none}"
             )
         else:
-            lines.append(
-                f"self-resonance: {format_si(srf_raw, 'Hz') if srf_raw else 'none in range'}"
-            )
+            lines.append(f"self-resonance: {format_si(srf_raw, 'Hz') if srf_raw else none}")
         parts.append(Text("\n".join(lines)))
     warnings = state.all_warnings()
     if warnings:

@@ -46,6 +46,7 @@ def test_names_with_brackets_and_colons_are_printed_as_typed(tmp_path, monkeypat
         assert code == 0
         assert f"on fixture {FIXTURE} over 9 points" in out
         assert f"saved reference set 1 ({SET_NAME!r}" in out
+        assert out.rstrip().endswith("each standard read once")  # not "1 time(s)"
 
         for action in ("list", "show", "check"):
             args = ["reference", action, "--store", url] + ([] if action == "list" else ["1"])
@@ -62,6 +63,9 @@ def test_names_with_brackets_and_colons_are_printed_as_typed(tmp_path, monkeypat
         out = capsys.readouterr().out
         assert code == 0
         assert f"CSV written to {csv_path}" in out
+        # the air-core coil resonates far above 100 kHz: said for the span measured
+        none = "none between 1.000 kHz and 100.0 kHz"
+        assert f"self-resonance: raw {none}, corrected {none}" in out
 
         assert main(["fit", "1", "--store", url]) == 0
         assert f"sweep 1 of {DUT} in" in capsys.readouterr().out

@@ -147,7 +147,8 @@ def _capture(args: argparse.Namespace) -> int:
         ref_id = store.save_reference_set(refs, name=name, meter_id=meter_id, fixture_id=fixture_id)
         console.print(
             f"saved reference set {ref_id} ({name!r}, {refs.method}, {refs.frequency.size} "
-            f"points) in {store.url}; each standard read {args.repeats} time(s)",
+            f"points) in {store.url}; each standard read "
+            + ("once" if args.repeats == 1 else f"{args.repeats} times"),
             soft_wrap=True,
         )
     return 0
@@ -243,5 +244,9 @@ def _check(args: argparse.Namespace) -> int:
         style = "red" if finding.severity == "error" else "yellow"
         console.print(f"{finding.severity}: {finding.standard}: {finding.message}", style=style)
     errors = sum(1 for finding in findings if finding.severity == "error")
-    console.print(f"reference set {ref_id}: {errors} error(s), {len(findings) - errors} warning(s)")
+    warnings = len(findings) - errors
+    console.print(
+        f"reference set {ref_id}: {errors} error{'' if errors == 1 else 's'}, "
+        f"{warnings} warning{'' if warnings == 1 else 's'}"
+    )
     return 1 if errors else 0

@@ -107,3 +107,14 @@ def test_the_live_view_fits_the_terminal_with_uncertainty_shown(size, monkeypatc
     assert not [line for line in shown if line.strip() == "..."]
     # the progress line is one line: its end is not wrapped onto a line of its own
     assert not [line for line in shown if line.strip() in ("left", "s left")]
+
+
+@pytest.mark.parametrize(
+    "command", [["reference", "list"], ["reference", "check", "latest"], ["fit", "1"]]
+)
+def test_reading_from_a_store_that_is_not_there_says_so_and_makes_none(command, tmp_path, capsys):
+    typo = tmp_path / "acquier.db"
+    assert main([*command, "--store", f"sqlite:///{typo}"]) == 2
+    err = capsys.readouterr().err
+    assert f"there is no results store at {typo}" in err
+    assert not typo.exists()

@@ -159,11 +159,11 @@ def _list(args: argparse.Namespace) -> int:
 
     from rich.table import Table
 
+    from acquire.commands.options import open_existing_store
     from acquire.display import format_duration, text_console
-    from acquire.store import open_store
 
     console = text_console()
-    with open_store(args.store) as store:
+    with open_existing_store(args.store) as store:
         infos = store.list_reference_sets()
         if not infos:
             console.print(f"no reference sets in {store.url}")
@@ -190,15 +190,15 @@ def _list(args: argparse.Namespace) -> int:
 def _show(args: argparse.Namespace) -> int:
     from rich.table import Table
 
+    from acquire.commands.options import open_existing_store
     from acquire.display import text_console
     from acquire.impedance import quantities
     from acquire.resonance import summary_frequencies
-    from acquire.store import open_store
     from acquire.sweep_setup import find_reference_set
     from acquire.units import format_si
 
     console = text_console()
-    with open_store(args.store) as store:
+    with open_existing_store(args.store) as store:
         ref_id, refs = find_reference_set(store, args.set)
     f = refs.frequency
     console.print(
@@ -229,12 +229,12 @@ def _show(args: argparse.Namespace) -> int:
 
 
 def _check(args: argparse.Namespace) -> int:
+    from acquire.commands.options import open_existing_store
     from acquire.display import text_console
-    from acquire.store import open_store
     from acquire.sweep_setup import find_reference_set
 
     console = text_console()
-    with open_store(args.store) as store:
+    with open_existing_store(args.store) as store:
         ref_id, refs = find_reference_set(store, args.set)
     findings = refs.check()
     if not findings:

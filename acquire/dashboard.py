@@ -16,7 +16,6 @@ it out, and a warning line says how many points were flagged and from which freq
 
 from __future__ import annotations
 
-import io
 import math
 import sys
 import time
@@ -31,7 +30,7 @@ from rich.progress_bar import ProgressBar
 from rich.table import Table
 from rich.text import Text
 
-from acquire.display import UNITS, format_duration, format_measured
+from acquire.display import UNITS, format_duration, format_measured, lines_taken
 from acquire.impedance import quantities
 from acquire.resonance import self_resonance, summary_frequencies
 from acquire.sweep_state import SweepState
@@ -84,9 +83,9 @@ def render(
     warnings = state.all_warnings()
     if warnings:
         parts.append(Text("\n".join(f"warning: {w}" for w in warnings), style="yellow"))
-    room = height - sum(_height(part, width) for part in parts)
+    room = height - sum(lines_taken(part, width) for part in parts)
     if not side:
-        room -= _height(status, width)
+        room -= lines_taken(status, width)
     plots = _plots(state, f, q, srf, plot_width, room)
     body: Table | Group
     if side:
@@ -97,15 +96,6 @@ def render(
     else:
         body = Group(plots, status)
     return Group(*parts, body)
-
-
-#: Measures how many lines a part of the view takes at a width (it writes nowhere).
-_RULER = Console(file=io.StringIO(), width=200, color_system=None)
-
-
-def _height(part, width: int) -> int:
-    """Lines ``part`` takes on a terminal ``width`` cells wide."""
-    return len(_RULER.render_lines(part, _RULER.options.update(width=width), pad=False))
 
 
 def _header(state: SweepState, now: datetime | None) -> Text:

@@ -89,3 +89,13 @@ def text_console(**options):
     from rich.console import Console
 
     return Console(markup=False, emoji=False, **options)
+
+
+def lines_taken(part, width: int) -> int:
+    """How many lines the rich renderable ``part`` takes on a terminal ``width`` cells wide."""
+    import io
+
+    from rich.console import Console
+
+    ruler = Console(file=io.StringIO(), width=width, color_system=None)
+    return len(ruler.render_lines(part, ruler.options, pad=False))

@@ -30,7 +30,7 @@ from rich.progress_bar import ProgressBar
 from rich.table import Table
 from rich.text import Text
 
-from acquire.display import UNITS, format_duration, format_measured
+from acquire.display import UNITS, format_duration, format_measured, lines_taken
 from acquire.impedance import quantities
 from acquire.resonance import self_resonance, summary_frequencies
 from acquire.sweep_state import SweepState
@@ -78,8 +78,15 @@ def render(
     srf = self_resonance(f, z) if f.size else None
     side = width >= 80
     plot_width = width - (SIDE_WIDTH + 1 if side else 0)
-    plots = _plots(state, f, q, srf, plot_width, height)
     status = _side(state, f, z, q, srf, now)
+    parts: list = [_header(state, now), _progress(state, width)]
+    warnings = state.all_warnings()
+    if warnings:
+        parts.append(Text("\n".join(f"warning: {w}" for w in warnings), style="yellow"))
+    room = height - sum(lines_taken(part, width) for part in parts)
+    if not side:
+        room -= lines_taken(status, width)
+    plots = _plots(state, f, q, srf, plot_width, room)
     body: Table | Group
     if side:
         body = Table.grid(padding=(0, 1))
@@ -88,10 +95,6 @@ def render(
         body.add_row(plots, status)
     else:
         body = Group(plots, status)
-    parts: list = [_header(state, now), _progress(state, width)]
-    warnings = state.all_warnings()
-    if warnings:
-        parts.append(Text("\n".join(f"warning: {w}" for w in warnings), style="yellow"))
     return Group(*parts, body)
 
 
@@ -115,9 +118,6 @@ def _header(state: SweepState, now: datetime | None) -> Text:
 
 
 def _progress(state: SweepState, width: int) -> Table:
-    grid = Table.grid(padding=(0, 1))
-    grid.add_column(width=max(min(width // 3, 40), 10))
-    grid.add_column()
     done = state.count
     share = 100.0 * done / max(state.planned, 1)
     words = {"waiting": "waiting", "running": "measuring"}.get(state.status, state.status)
@@ -129,6 +129,10 @@ def _progress(state: SweepState, width: int) -> Table:
         )
     elif state.reason:
         line += f" · {state.reason}"
+    grid = Table.grid(padding=(0, 1))
+    # the bar gives way to the words, so that they stay on one line
+    grid.add_column(width=max(min(width // 3, 40, width - len(line) - 1), 10))
+    grid.add_column()
     grid.add_row(ProgressBar(total=max(state.planned, 1), completed=done), Text(line))
     return grid
 
@@ -142,7 +146,8 @@ def _plots(
     height: int,
 ) -> Group:
     names = state.quantities
-    rows_each = max(min((height - 8) // max(len(names), 1) - 2, 12), 3)
+    # ``height`` is what is left below the header: each plot has a title and an axis line
+    rows_each = max(min(height // max(len(names), 1) - 2, 12), 2)
     x_range = (
         state.plan.start,
         state.plan.stop if state.plan.stop > state.plan.start else state.plan.start * 10,
@@ -238,17 +243,17 @@ def summary(state: SweepState, count: int = 6) -> Group:
     if f.size:
         parts.append(_summary_table(state, f, raw, corrected, count))
         srf_raw = self_resonance(f, raw)
+        # the points measured, not the plan: an interrupted sweep may stop short of a resonance
+        none = f"none between {format_si(float(f[0]), 'Hz')} and {format_si(float(f[-1]), 'Hz')}"
         lines = []
         if corrected is not None:
             srf_cor = self_resonance(f, corrected)
             lines.append(
-                f"self-resonance: raw {format_si(srf_raw, 'Hz') if srf_raw else 'none in range'}, "
-                f"corrected {format_si(srf_cor, 'Hz') if srf_cor else 'none in range'}"
+                f"self-resonance: raw {format_si(srf_raw, 'Hz') if srf_raw else none}, "
+                f"corrected {format_si(srf_cor, 'Hz') if srf_cor else none}"
             )
         else:
-            lines.append(
-                f"self-resonance: {format_si(srf_raw, 'Hz') if srf_raw else 'none in range'}"
-            )
+            lines.append(f"self-resonance: {format_si(srf_raw, 'Hz') if srf_raw else none}")
         parts.append(Text("\n".join(lines)))
     warnings = state.all_warnings()
     if warnings:

@@ -20,6 +20,7 @@ from typing import Any
 import numpy as np
 from rich.console import Console
 from rich.table import Table
+from rich.text import Text
 
 from acquire.capture import SAFETY, capture_references
 from acquire.dashboard import open_view, summary
@@ -96,8 +97,11 @@ def _plan(run: DemoRun) -> FrequencyPlan:
 def introduce(run: DemoRun) -> None:
     """Say what the demo does, with the bench safety cautions."""
     run.console.print(
-        "[bold]Demo[/]: a simulated impedance meter, a simulated fixture and the demo coil "
-        f"({run.dut}); no hardware is touched.\nResults go to {run.store_url}"
+        Text.assemble(
+            ("Demo", "bold"),
+            ": a simulated impedance meter, a simulated fixture and the demo coil "
+            f"({run.dut}); no hardware is touched.\nResults go to {run.store_url}",
+        )
     )
     run.console.print(SAFETY, style="dim")
     run.identity = run.meter.identify()
@@ -237,6 +241,8 @@ def finish(run: DemoRun) -> None:
         f"store: {where}\n"
         f"look again with: acquire reference list --store {run.store_url}",
         soft_wrap=True,
+        markup=False,
+        emoji=False,
     )
 
 

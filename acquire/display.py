@@ -78,3 +78,24 @@ def format_measured(name: str, value: float, u: float | None = None, beyond: boo
         return f"{value:.{decimals}f}° ± {scaled_u:.{decimals}f}°"
     suffix = f" {prefix}{unit}".rstrip()
     return f"{value / scale:.{decimals}f}{suffix} ± {scaled_u:.{decimals}f}{suffix}"
+
+
+def text_console(**options):
+    """A rich console that prints strings as given: no markup, no emoji codes.
+
+    What the commands print holds names the user typed (fixture, DUT, reference set, file
+    paths); ``[red]`` or ``:x:`` in them is text, not a style or an emoji. Renderables (tables,
+    :class:`rich.text.Text`) draw as usual."""
+    from rich.console import Console
+
+    return Console(markup=False, emoji=False, **options)
+
+
+def lines_taken(part, width: int) -> int:
+    """How many lines the rich renderable ``part`` takes on a terminal ``width`` cells wide."""
+    import io
+
+    from rich.console import Console
+
+    ruler = Console(file=io.StringIO(), width=width, color_system=None)
+    return len(ruler.render_lines(part, ruler.options, pad=False))

@@ -10,6 +10,7 @@ import pytest
 from acquire.cli import main
 from acquire.coil import DEMO_COIL, fit_sweep, predict
 from acquire.csvout import write_sweep_csv
+from acquire.store import open_store
 from acquire.units import format_si
 
 DEMO_ARGS = [
@@ -144,7 +145,6 @@ def test_fit_of_raw_only_csv_needs_the_raw_option(tmp_path, capsys):
 
 
 def test_fit_reads_a_stored_sweep_and_compares_with_the_geometry(tmp_path, capsys):
-    from acquire.store import open_store
 
     f, z = _sweep()
     url = f"sqlite:///{tmp_path / 'fit.db'}"
@@ -165,6 +165,9 @@ def test_fit_refuses_a_missing_file_and_a_missing_sweep(tmp_path, capsys):
     assert main(["fit", str(tmp_path / "none.csv")]) == 2
     assert "is not a file" in capsys.readouterr().err
     url = f"sqlite:///{tmp_path / 'empty.db'}"
+    assert main(["fit", "7", "--store", url]) == 2
+    assert "there is no results store" in capsys.readouterr().err
+    open_store(url).close()
     assert main(["fit", "7", "--store", url]) == 2
     assert "no sweep 7" in capsys.readouterr().err
 

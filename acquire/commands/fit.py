@@ -65,10 +65,10 @@ def read_store_sweep(store_url: str, sweep_id: int, raw: bool = False):
     import numpy as np
 
     from acquire.coil.sweepfile import SweepSource
+    from acquire.commands.options import open_existing_store
     from acquire.errors import InputError
-    from acquire.store import open_store
 
-    with open_store(store_url) as store:
+    with open_existing_store(store_url) as store:
         info = store.sweep_info(sweep_id)
         points = store.sweep_points(sweep_id)
     from acquire.coil.sweepfile import half_expanded
@@ -163,7 +163,7 @@ def run(args: argparse.Namespace) -> int:
     from rich.console import Console
 
     console = Console()
-    console.print(source.description)
+    console.print(source.description, markup=False, emoji=False)  # names as the user typed them
     console.print(fit_table(fit))
     if prediction is not None:
         console.print(compare(prediction, fit))

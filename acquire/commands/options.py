@@ -73,3 +73,19 @@ def plan_from_args(args: argparse.Namespace):
 
         raise InputError("--points goes with --start and --stop, not with --list or --file")
     return make_plan(start=args.start, stop=args.stop, values=args.values, file=args.file)
+
+
+def open_existing_store(url: str):
+    """Open the results store at ``url`` to read from it; an SQLite file that does not exist is
+    refused, since a typo in --store would otherwise make a new, empty store and find nothing."""
+    from acquire.errors import InputError
+    from acquire.store import open_store
+    from acquire.store.url import parse_store_url
+
+    path = parse_store_url(url).path
+    if path is not None and not path.exists():
+        raise InputError(
+            f"there is no results store at {path} (--store {url}): check the path or "
+            "ACQUIRE_STORE; `acquire reference capture` and `acquire sweep` create one"
+        )
+    return open_store(url)

@@ -94,10 +94,9 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _capture(args: argparse.Namespace) -> int:
-    from rich.console import Console
-
     from acquire.capture import SAFETY, ConsoleOperator, capture_references
     from acquire.commands.options import plan_from_args
+    from acquire.display import text_console
     from acquire.errors import InputError
     from acquire.store import open_store
     from acquire.units import parse_quantity
@@ -115,7 +114,7 @@ def _capture(args: argparse.Namespace) -> int:
         load_true = complex(
             parse_quantity(args.load_value, "ohm"), parse_quantity(args.load_reactance, "ohm")
         )
-    console = Console()
+    console = text_console()
     console.print(SAFETY, style="yellow")
     with open_store(args.store) as store:
         with ImpedanceMeter.open(
@@ -148,7 +147,8 @@ def _capture(args: argparse.Namespace) -> int:
         ref_id = store.save_reference_set(refs, name=name, meter_id=meter_id, fixture_id=fixture_id)
         console.print(
             f"saved reference set {ref_id} ({name!r}, {refs.method}, {refs.frequency.size} "
-            f"points) in {store.url}; each standard read {args.repeats} time(s)",
+            f"points) in {store.url}; each standard read "
+            + ("once" if args.repeats == 1 else f"{args.repeats} times"),
             soft_wrap=True,
         )
     return 0
@@ -157,14 +157,13 @@ def _capture(args: argparse.Namespace) -> int:
 def _list(args: argparse.Namespace) -> int:
     from datetime import UTC, datetime
 
-    from rich.console import Console
     from rich.table import Table
 
-    from acquire.display import format_duration
-    from acquire.store import open_store
+    from acquire.commands.options import open_existing_store
+    from acquire.display import format_duration, text_console
 
-    console = Console()
-    with open_store(args.store) as store:
+    console = text_console()
+    with open_existing_store(args.store) as store:
         infos = store.list_reference_sets()
         if not infos:
             console.print(f"no reference sets in {store.url}")
@@ -189,17 +188,17 @@ def _list(args: argparse.Namespace) -> int:
 
 
 def _show(args: argparse.Namespace) -> int:
-    from rich.console import Console
     from rich.table import Table
 
+    from acquire.commands.options import open_existing_store
+    from acquire.display import text_console
     from acquire.impedance import quantities
     from acquire.resonance import summary_frequencies
-    from acquire.store import open_store
     from acquire.sweep_setup import find_reference_set
     from acquire.units import format_si
 
-    console = Console()
-    with open_store(args.store) as store:
+    console = text_console()
+    with open_existing_store(args.store) as store:
         ref_id, refs = find_reference_set(store, args.set)
     f = refs.frequency
     console.print(
@@ -230,13 +229,12 @@ def _show(args: argparse.Namespace) -> int:
 
 
 def _check(args: argparse.Namespace) -> int:
-    from rich.console import Console
-
-    from acquire.store import open_store
+    from acquire.commands.options import open_existing_store
+    from acquire.display import text_console
     from acquire.sweep_setup import find_reference_set
 
-    console = Console()
-    with open_store(args.store) as store:
+    console = text_console()
+    with open_existing_store(args.store) as store:
         ref_id, refs = find_reference_set(store, args.set)
     findings = refs.check()
     if not findings:
@@ -246,5 +244,9 @@ def _check(args: argparse.Namespace) -> int:
         style = "red" if finding.severity == "error" else "yellow"
         console.print(f"{finding.severity}: {finding.standard}: {finding.message}", style=style)
     errors = sum(1 for finding in findings if finding.severity == "error")
-    console.print(f"reference set {ref_id}: {errors} error(s), {len(findings) - errors} warning(s)")
+    warnings = len(findings) - errors
+    console.print(
+        f"reference set {ref_id}: {errors} error{'' if errors == 1 else 's'}, "
+        f"{warnings} warning{'' if warnings == 1 else 's'}"
+    )
     return 1 if errors else 0

@@ -128,11 +128,10 @@ def parse_show(text: str) -> tuple[str, ...]:
 def run(args: argparse.Namespace) -> int:
     from datetime import UTC, datetime
 
-    from rich.console import Console
-
     from acquire.commands.options import plan_from_args
     from acquire.csvout import write_sweep_csv
     from acquire.dashboard import open_view, summary
+    from acquire.display import text_console
     from acquire.errors import InputError
     from acquire.plan import check_range
     from acquire.store import open_store
@@ -156,7 +155,7 @@ def run(args: argparse.Namespace) -> int:
         check_csv_destination(args.csv)
     override = _override(args.use_despite_problems)
     level = parse_quantity(args.level, "V") if args.level else None
-    console = Console()
+    console = text_console()
     with open_store(args.store) as store:
         ref_id, refs = (None, None)
         if args.reference:

@@ -225,11 +225,24 @@ def predict_and_fit(run: DemoRun) -> None:
         f"{format_si(g.length, 'm')} long"
     )
     try:
-        fit = fit_sweep(out.frequency, out.corrected)
+        fit = fit_sweep(out.frequency, out.corrected, **_fit_uncertainty(run, out))
     except ModelError as exc:
         run.console.print(f"the equivalent circuit could not be fitted: {exc}")
         return
     run.console.print(compare(predict(g), fit))
+
+
+def _fit_uncertainty(run: DemoRun, out: SweepOutcome) -> dict:
+    """The fit's inputs for the sweep's uncertainty, split into the readings' noise and the
+    meter's calibration error (correlated across the sweep), from the meter's stated accuracy;
+    empty (the fit then estimates the noise, and says so) when the dialect states none."""
+    from acquire.coil.fitcov import split_uncertainty
+
+    accuracy = getattr(getattr(run.meter, "dialect", None), "accuracy", None)
+    if accuracy is None:
+        return {}
+    sigma, systematic = split_uncertainty(out.frequency, out.raw, run.references, accuracy)
+    return {"sigma": sigma, "systematic": systematic}
 
 
 def finish(run: DemoRun) -> None:

@@ -349,3 +349,18 @@ def test_a_coil_in_the_fixture_is_not_called_open(bench, capsys, with_reference)
     assert code == 0
     assert "open fixture" not in out
     assert "Sweep complete: 31 of 31 points" in " ".join(out.split())
+
+
+def test_an_averaging_of_zero_is_refused_not_ignored(tmp_path, capsys):
+    """`--averaging 0` used to be dropped silently (0 is false) while the sweep's stored
+    settings said 0; it is now given to the meter, which refuses it before anything is measured."""
+    url = f"sqlite:///{tmp_path / 'a.db'}"
+    with running(dut="demo-coil", measure_time=0) as sim:
+        code = main(
+            ["sweep", "--resource", sim.resource, "--store", url, "--points", "5",
+             "--averaging", "0", "--no-live"]
+        )  # fmt: skip
+    assert code == 2
+    assert "averaging" in capsys.readouterr().err
+    with open_store(url) as store:
+        assert store.list_sweeps() == []

@@ -55,3 +55,24 @@ def test_demo_steps_are_one_list_to_extend():
     names = [step.__name__ for step in STEPS]
     assert names[0] == "introduce" and names[-1] == "finish"
     assert names.index("capture") < names.index("sweep") < names.index("compare_with_truth")
+
+
+def test_the_demos_fit_uses_the_sweeps_own_uncertainty(tmp_path):
+    """The demo fits with the per-point uncertainty split into noise and the meter's correlated
+    calibration error (so the fit does not estimate its noise from the scatter), and the true
+    values of the simulated coil (its profile's own, `true_values`) lie within 3 sigma."""
+    from acquire.coil import fit_sweep
+    from acquire.demo import _fit_uncertainty
+
+    run = run_demo(
+        f"sqlite:///{tmp_path / 'd.db'}", live=False, console=Console(file=io.StringIO())
+    )
+    inputs = _fit_uncertainty(run, run.outcome)
+    n = run.outcome.frequency.size
+    assert inputs["sigma"].shape == (n, 2) and inputs["systematic"].shape == (2 * n, 2 * n)
+    fit = fit_sweep(run.outcome.frequency, run.outcome.corrected, **inputs)
+    assert not any("scatter" in note for note in fit.notes)
+    truth = load_dut("demo-coil").true_values()
+    for value in fit.values:
+        if value.key in ("L", "Rdc", "Cp", "SRF") and value.determined:
+            assert abs(value.value - truth[value.key]) <= 3 * value.sigma, value

@@ -164,7 +164,7 @@ def run(args: argparse.Namespace) -> int:
         with ImpedanceMeter.open(
             args.resource, dialect=args.dialect, backend=args.backend
         ) as meter:
-            if level is not None or args.speed or args.averaging:
+            if level is not None or args.speed or args.averaging is not None:
                 meter.configure(level=level, speed=args.speed, averaging=args.averaging)
             check_range(plan, meter.frequency_range)
             if refs is not None:

@@ -79,7 +79,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return int(args._module.run(args) or 0)
     except KeyboardInterrupt:
-        print("acquire: interrupted", file=sys.stderr)
+        # On its own line: Ctrl-C often comes at a prompt, whose line the terminal leaves open.
+        print("\nacquire: interrupted", file=sys.stderr)
         return 130
     except BrokenPipeError:
         # The reader of our output went away (`acquire predict | head`): stop quietly, as the

@@ -364,3 +364,18 @@ def test_an_averaging_of_zero_is_refused_not_ignored(tmp_path, capsys):
     assert "averaging" in capsys.readouterr().err
     with open_store(url) as store:
         assert store.list_sweeps() == []
+
+
+def test_an_override_on_a_set_that_passes_is_named_and_not_recorded(bench):
+    """Asking to use a set "despite problems" when it has none is said, not silently ignored,
+    and no override is stored with the sweep."""
+    sim, url, _ = bench
+    sim.insert("demo-coil")
+    result = acquire(
+        "sweep", "--resource", sim.resource, "--store", url, *PLAN, "--reference", "good",
+        "--use-despite-problems", "just in case", "--no-live",
+    )  # fmt: skip
+    assert result.returncode == 0, result.stderr
+    assert "--use-despite-problems is not needed" in " ".join(result.stdout.split())
+    with open_store(url) as store:
+        assert "reference_override" not in (store.sweep_info(1).settings or {})

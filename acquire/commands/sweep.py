@@ -161,6 +161,14 @@ def run(args: argparse.Namespace) -> int:
         if args.reference:
             ref_id, refs = find_reference_set(store, args.reference)
         used = _usable(refs, ref_id, override)
+        if override and not used:
+            what = (
+                "no reference set is used" if refs is None else "the reference set passes its check"
+            )
+            console.print(
+                f"note: {what}, so --use-despite-problems is not needed and nothing is recorded",
+                soft_wrap=True,
+            )
         with ImpedanceMeter.open(
             args.resource, dialect=args.dialect, backend=args.backend
         ) as meter:

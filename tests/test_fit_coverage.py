@@ -17,12 +17,18 @@ part, which the fit counts as correlated across the sweep. Nothing of the simula
 model is written here.
 
 The goal is 68 % ± 10 points per parameter over the seeds. The binomial standard deviation of a
-coverage over n seeds is ``√(0.683·0.317/n)`` (4.7 points for the 100 seeds here, computed), so
-the band is about two of them. Measured (100 seeds): before the split, with every error taken as
-independent, no fixture L 45 %, Rdc 39 %, Cp 50 %, SRF 65 %; after it, no fixture L 63 %,
-Rdc 61 %, Cp 60 %, SRF 67 %, through the leads L 81 %, Rdc 68 %, Cp 72 %, SRF 72 %.
-Through the leads L is covered more often than 78 %: on the safe side, so that bound is relaxed
-there (see the test).
+coverage over n seeds is ``√(0.683·0.317/n)`` (2.7 points for the 300 seeds here, computed), so
+the band is almost four of them. Measured before the split (100 seeds), with every error taken
+as independent: no fixture L 45 %, Rdc 39 %, Cp 50 %, SRF 65 %. After it (seeds 0-299): no
+fixture L 65 %, Rdc 65 %, Cp 61 %, SRF 66 %; through the leads L 79 %, Rdc 70 %, Cp 72 %,
+SRF 73 % (on seeds 100-399: L 77 %, Rdc 73 %, Cp 69 %, SRF 71 %).
+
+L through the leads sits at the band's upper edge, on the safe side, for a known reason: the
+simulated meter's calibration error is the same for every reading in one decade of |Z| and half
+a decade of frequency, so where the coil's readings share the 100 Ω load's decade the
+open-short-load correction cancels it completely, while the fit's correlation model (which does
+not know any meter's range layout) counts that cancellation only in part. The test allows that
+one case up to 84 %.
 """
 
 from __future__ import annotations
@@ -41,7 +47,7 @@ from drivers.meter import ImpedanceMeter
 from drivers.simulator import running
 from drivers.simulator.profiles import load_dut
 
-SEEDS = range(100)
+SEEDS = range(300)
 POINTS = 41
 F = np.geomspace(100.0, 10e6, POINTS)
 KEYS = ("L", "Rdc", "Cp", "SRF")
@@ -109,8 +115,9 @@ def coverage(sweeps, truth, which: int, split: bool = True) -> dict[str, float]:
     return {k: hits[k] / len(sweeps) for k in KEYS}
 
 
-#: Through the leads L is covered about 81 % of the time (safe side): the upper bound there.
-UPPER = {(1, "L"): 0.88}
+#: The one case above the band, on the safe side (see the module docstring): L through the leads
+#: is covered 79 % of these 300 seeds (77 % of seeds 100-399), where the band ends at 78 %.
+UPPER = {(1, "L"): 0.84}
 
 
 @pytest.mark.parametrize(("which", "label"), [(0, "no fixture"), (1, "through bench leads")])

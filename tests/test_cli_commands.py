@@ -13,6 +13,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from bench_support import PutsEachStandardIn
 
 from acquire.cli import main
 from acquire.store import open_store
@@ -219,23 +220,6 @@ def test_a_bad_reference_age_in_the_environment_is_one_line_naming_it(monkeypatc
     assert "ACQUIRE_MAX_REFERENCE_AGE" in err and "Traceback" not in err
 
 
-class _PutsEachStandardIn:
-    """An operator for capture_references that puts each standard in the simulated fixture."""
-
-    def __init__(self, sim):
-        self.sim = sim
-
-    def tell(self, text):
-        pass
-
-    def ready(self, standard, instruction):
-        self.sim.insert(standard)
-        return True
-
-    def retry(self, standard, problems):
-        return False
-
-
 PLAN = ["--start", "1kHz", "--stop", "1MHz", "--points", "31"]
 
 
@@ -257,7 +241,7 @@ def bench(tmp_path):
             refs = capture_references(
                 meter,
                 log_plan("1kHz", "1MHz", 31),
-                _PutsEachStandardIn(sim),
+                PutsEachStandardIn(sim),
                 load_true=sim.load_true,
                 fixture="bench-leads",
                 meter_name=identity,

@@ -15,6 +15,7 @@ import sys
 
 import numpy as np
 import pytest
+from bench_support import FixedMeter
 
 from acquire.coil.sweepfile import read_csv_sweep, unit_scale
 from acquire.csvout import write_sweep_csv
@@ -112,24 +113,6 @@ def test_a_sweep_csv_with_flagged_points_reads_back_through_acquire_fit(tmp_path
     assert by_name["Cp"]["value"] == pytest.approx(10e-12, rel=2e-2)
 
 
-class _BareMeter:
-    """A meter that reads one impedance and whose dialect states no accuracy."""
-
-    frequency_range = (1.0, 1e8)
-
-    def __init__(self, z: complex) -> None:
-        self.z = z
-        self.dialect = type("Dialect", (), {"accuracy": None, "name": "bare"})()
-        self.settings: dict = {}
-
-    def sweep(self, frequencies, on_points=None):
-        f = np.asarray(frequencies, dtype=float)
-        z = np.full(f.shape, self.z)
-        if on_points is not None:
-            on_points(f, z)
-        return z
-
-
 def test_without_a_stated_accuracy_a_reading_without_type_a_leaves_u_unknown():
     """No stated accuracy, the standards read 3 times, the DUT once: the DUT's own scatter is
     not known, so U is not known either (it was the standards' scatter alone, 50x too small
@@ -148,14 +131,16 @@ def test_without_a_stated_accuracy_a_reading_without_type_a_leaves_u_unknown():
         repeats=3,
     )
     plan = list_plan("1kHz, 10kHz")
-    once = run_sweep(_BareMeter(2 + 200j), plan, refs)
+    once = run_sweep(FixedMeter(2 + 200j, None, name="bare"), plan, refs)
     assert np.isnan(once.uncertainty).all()
     # the DUT read three times (its scatter is zero here): every reading has a Type A now
-    thrice = run_sweep(_BareMeter(2 + 200j), plan, refs, repeats=3)
+    thrice = run_sweep(FixedMeter(2 + 200j, None, name="bare"), plan, refs, repeats=3)
     assert np.all(np.isfinite(thrice.uncertainty))
     # the DUT read three times but the standards once: the standards' scatter is not known
     bare = ReferenceSet(frequency=grid, open=refs.open, short=refs.short)
-    assert np.isnan(run_sweep(_BareMeter(2 + 200j), plan, bare, repeats=3).uncertainty).all()
+    assert np.isnan(
+        run_sweep(FixedMeter(2 + 200j, None, name="bare"), plan, bare, repeats=3).uncertainty
+    ).all()
 
 
 def _through(abcd, zx):

@@ -13,6 +13,7 @@ import math
 
 import numpy as np
 import pytest
+from bench_support import FixedMeter, PutsEachStandardIn
 from rich.console import Console
 
 from acquire.cli import main
@@ -45,24 +46,6 @@ def table_row(text: str, first_cell: str) -> list[str]:
 
 
 # -- a hand computation ------------------------------------------------------------------------
-
-
-class FixedMeter:
-    """A meter that reads one known impedance, with a stated accuracy (no repeatability)."""
-
-    frequency_range = (1.0, 1e8)
-
-    def __init__(self, z: complex, accuracy: MeterAccuracy) -> None:
-        self.z = z
-        self.dialect = type("Dialect", (), {"accuracy": accuracy, "name": "fixed"})()
-        self.settings: dict = {}
-
-    def sweep(self, frequencies, on_points=None):
-        f = np.asarray(frequencies, dtype=float)
-        z = np.full(f.shape, self.z)
-        if on_points is not None:
-            on_points(f, z)
-        return z
 
 
 def test_u_of_ls_after_a_short_only_correction_matches_a_hand_computation():
@@ -128,21 +111,6 @@ def test_demo_flags_the_corrected_rs_at_10_mhz_and_prints_no_number_for_it(
 # -- acquire sweep: CSV, store, plain lines ----------------------------------------------------
 
 
-class Operator:
-    def __init__(self, sim):
-        self.sim = sim
-
-    def tell(self, text):
-        pass
-
-    def ready(self, standard, instruction):
-        self.sim.insert(standard)
-        return True
-
-    def retry(self, standard, problems):
-        return False
-
-
 def test_sweep_csv_and_store_carry_u_and_flags(tmp_path, capsys, monkeypatch):
     from acquire.capture import capture_references
     from drivers.meter import ImpedanceMeter
@@ -153,7 +121,7 @@ def test_sweep_csv_and_store_carry_u_and_flags(tmp_path, capsys, monkeypatch):
     plan = log_plan("100Hz", "10MHz", 21)
     with running(dut="open", fixture="bench-leads", seed=5, measure_time=0) as sim:
         with ImpedanceMeter.open(sim.resource, dialect="simulated") as meter, open_store(url) as st:
-            refs = capture_references(meter, plan, Operator(sim), load_true=sim.load_true)
+            refs = capture_references(meter, plan, PutsEachStandardIn(sim), load_true=sim.load_true)
             st.save_reference_set(refs, name="t")
         sim.insert("demo-coil")
         code = main(["sweep", "--resource", sim.resource, "--store", url, "--reference",
@@ -243,10 +211,7 @@ def test_live_view_shows_plus_minus_and_hides_flagged_values():
 
 
 def test_type_a_only_when_the_dialect_states_no_accuracy():
-    class Bare(FixedMeter):
-        pass
-
-    meter = Bare(2 + 200j, None)
+    meter = FixedMeter(2 + 200j, None, name="bare")
     plan = list_plan("1kHz, 10kHz")
     once = run_sweep(meter, plan)
     assert np.isnan(once.uncertainty).all() and list(once.flags) == ["", ""]

@@ -1,0 +1,45 @@
+"""Stand-ins the sweep and capture tests share: an operator that puts each standard in the
+simulated fixture, and a meter that always reads one known impedance."""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+
+
+class PutsEachStandardIn:
+    """An operator for ``capture_references`` that puts each standard in the simulated fixture
+    and never asks to measure again."""
+
+    def __init__(self, sim: Any) -> None:
+        self.sim = sim
+
+    def tell(self, text: str) -> None:
+        pass
+
+    def ready(self, standard: str, instruction: str) -> bool:
+        self.sim.insert(standard)
+        return True
+
+    def retry(self, standard: str, problems: list[str]) -> bool:
+        return False
+
+
+class FixedMeter:
+    """A meter that reads one known impedance ``z`` at every frequency, whose dialect states
+    ``accuracy`` (None: no accuracy stated) and no repeatability of its own."""
+
+    frequency_range = (1.0, 1e8)
+
+    def __init__(self, z: complex, accuracy: Any = None, name: str = "fixed") -> None:
+        self.z = z
+        self.dialect = type("Dialect", (), {"accuracy": accuracy, "name": name})()
+        self.settings: dict = {}
+
+    def sweep(self, frequencies: Any, on_points: Any = None) -> np.ndarray:
+        f = np.asarray(frequencies, dtype=float)
+        z = np.full(f.shape, self.z)
+        if on_points is not None:
+            on_points(f, z)
+        return z

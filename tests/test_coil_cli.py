@@ -178,3 +178,28 @@ def test_fit_options_force_the_model(tmp_path, capsys):
     assert main(["fit", str(path), "--law", "constant", "--core-loss", "no", "--plain"]) == 0
     out = capsys.readouterr().out
     assert "constant R" in out and "no core-loss term" in out
+
+
+def test_fit_law_wire_recovers_the_simulated_round_wire_coil(tmp_path, capsys):
+    """`--law wire` (offered on the command line, not only by default) fits exact readings of
+    the simulated demo coil, whose winding is a round wire with Bessel-function skin effect, and
+    finds the profile's own true L, Rdc and Cp (`DutProfile.true_values`, computed)."""
+    import json
+
+    import numpy as np
+
+    from drivers.simulator.profiles import load_dut
+
+    dut = load_dut("demo-coil")
+    f = np.geomspace(100.0, 10e6, 101)
+    z = dut.impedance(f)
+    path = tmp_path / "exact.csv"
+    rows = ["frequency [Hz],R [ohm],X [ohm]"] + [
+        f"{float(a)!r},{float(b.real)!r},{float(b.imag)!r}" for a, b in zip(f, z, strict=True)
+    ]
+    path.write_text("\n".join(rows) + "\n", encoding="utf-8")
+    assert main(["fit", str(path), "--law", "wire", "--json"]) == 0
+    got = {q["name"]: q["value"] for q in json.loads(capsys.readouterr().out)["quantities"]}
+    truth = dut.true_values()
+    for key in ("L", "Rdc", "Cp"):
+        assert got[key] == pytest.approx(truth[key], rel=1e-4), key

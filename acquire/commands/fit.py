@@ -2,9 +2,12 @@
 
 The model: inductance L in series with the winding resistance R(f), both in parallel with the
 self-capacitance Cp; optionally a magnetic core's loss as a loss tangent tan δ (the core's
-complex permeability µ''/µ'). R(f) = Rdc·(1 + (f/fc)²)^(n/2): flat below the corner frequency
-fc, rising as f^n above it (n = 1/2 for skin effect, more where the neighbouring turns add
-proximity loss). The fit picks the simplest law the data needs.
+complex permeability µ''/µ'). The winding's resistance follows one of these laws:
+constant; the round wire's exact skin effect, Rdc·(ka/2)·J0(ka)/J1(ka) with the frequency fw
+where the skin depth equals the wire's radius and a proximity factor (its imaginary part is the
+wire's internal inductance); or R(f) = Rdc·(1 + (f/fc)²)^(n/2), flat below the corner fc and
+rising as f^n above it (n = 1/2, "skin", or fitted, "power"). By default the fit weighs the
+constant and the round-wire law by the data (--law picks one).
 
 Printed: L, Rdc (resistance at DC), the corner fc and exponent n, Cp, the self-resonant frequency
 (SRF, where the phase crosses zero and the coil turns capacitive), the maximum of Q = X/R and
@@ -43,9 +46,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     )
     parser.add_argument(
         "--law",
-        choices=("auto", "constant", "skin", "power"),
+        choices=("auto", "constant", "wire", "skin", "power"),
         default="auto",
-        help="resistance law: constant R, skin (n = 1/2), power (n fitted); default auto",
+        help="resistance law: constant R, wire (the round wire's exact skin effect), skin "
+        "(corner law with n = 1/2), power (n fitted); default auto (constant or wire, by the data)",
     )
     parser.add_argument(
         "--core-loss",

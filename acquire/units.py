@@ -90,6 +90,13 @@ def _suffix_scale(suffix: str, unit: str | None, text: str) -> float:
     if unit is None:
         return _free_scale(suffix, text)
     want = _canonical(unit)
+    if suffix in PREFIXES and suffix != want and suffix.lower() == want.lower():
+        # "10f" with farads, "10a" with amperes: femto or the unit itself?
+        number = text.strip()[:-1].strip()
+        raise InputError(
+            f"{text!r} could be {number} {suffix}{want} or {number} {want} ({suffix} is also an "
+            f"SI prefix): write {number}{suffix}{want} or {number}{want}"
+        )
     for cut in range(len(suffix) + 1):
         prefix, rest = suffix[:cut], suffix[cut:]
         centi_ok = prefix != "c" or want == "m"

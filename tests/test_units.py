@@ -173,3 +173,17 @@ def test_round_trip_through_text():
     for value in (1.0, 4.7e-6, 2.2e-3, 8.2e5, 3.3e-12):
         text = format_si(value, "H", digits=6).replace(" ", "")
         assert parse_quantity(text, "H") == pytest.approx(value, rel=1e-5)
+
+
+@pytest.mark.parametrize(("text", "unit"), [("10f", "F"), ("10 f", "F"), ("3a", "A")])
+def test_a_letter_that_is_both_a_prefix_and_the_unit_is_refused(text, unit):
+    # SI brochure (BIPM, 9th edition, 2019), tables 5 and 7: f is femto and F the farad, a is atto
+    # and A the ampere; a lower-case f after a number cannot say which was meant.
+    with pytest.raises(InputError, match="could be"):
+        parse_quantity(text, unit)
+
+
+def test_the_unit_in_its_own_case_and_a_prefixed_unit_still_read():
+    assert parse_quantity("10F", "F") == 10.0
+    assert parse_quantity("10fF", "F") == pytest.approx(10e-15)
+    assert parse_quantity("2A", "A") == 2.0

@@ -28,13 +28,12 @@ from typing import Any
 import numpy as np
 
 from acquire.uncertainty import (
-    BEYOND_ACCURACY,
-    as_covariance,
+    COVERAGE_FACTOR,
     beyond_accuracy,
     correct_with_uncertainty,
     expanded,
-    reading_uncertainty,
-    repeatability,
+    flags_from,
+    reading_covariance,
 )
 
 #: Quantities judged for the display besides the shown ones (the latest-point panel's |Z| and
@@ -110,7 +109,7 @@ class PointUncertainty:
 
     def describe(self) -> dict[str, Any]:
         """What the sweep's stored settings say about its uncertainty."""
-        out: dict[str, Any] = {"coverage_factor": 2, "note": self.note()}
+        out: dict[str, Any] = {"coverage_factor": COVERAGE_FACTOR, "note": self.note()}
         if self.accuracy is not None and self.unset:
             out["reference_conditions_assumed"] = self.unset
         return out
@@ -139,22 +138,15 @@ class PointUncertainty:
             judge = np.where(np.isfinite(cov), cov, 0.0)
             judged = tuple(dict.fromkeys((*self.names, *ALSO_JUDGED)))
             beyond = beyond_accuracy(f, z, judge, judged)
-        # what point_flags(f, z, judge, self.names) gives, from the one judgement made above
-        shown_bad = np.logical_or.reduce([beyond[name] for name in self.names])
-        flags = np.where(shown_bad, BEYOND_ACCURACY, "").astype(object)
+        flags = flags_from(beyond, self.names).astype(object)
         flags[np.isinf(raw.real) | np.isinf(raw.imag)] = OVERRANGE
         flags[np.isnan(raw.real) | np.isnan(raw.imag)] = INVALID
         return PointValues(corrected, cov, expanded(cov), flags, beyond)
 
     def _raw_cov(self, f, raw, u_m, settings) -> np.ndarray:
-        shape = raw.shape
-        if self.accuracy is None:
-            if u_m is None:
-                return np.full(shape + (2, 2), np.nan)
-            return as_covariance(u_m, shape)
-        type_a = u_m if u_m is not None else repeatability(f, raw, self.accuracy, **settings)
-        type_b = reading_uncertainty(f, raw, self.accuracy, **settings)
-        return as_covariance(type_a, shape) + as_covariance(type_b, shape)
+        if self.accuracy is None and u_m is None:
+            return np.full(raw.shape + (2, 2), np.nan)
+        return reading_covariance(f, raw, u_m, self.accuracy, settings)
 
 
 def _all_type_a(references: Any, u_m) -> bool:

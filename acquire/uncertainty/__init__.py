@@ -18,14 +18,21 @@ does it all for readings and a reference set.
 """
 
 from acquire.uncertainty.accuracy import half_width, reading_uncertainty, repeatability
-from acquire.uncertainty.correct import CorrectedPoints, correct_with_uncertainty
-from acquire.uncertainty.flags import BEYOND_ACCURACY, beyond_accuracy, point_flags
-from acquire.uncertainty.propagation import as_covariance, expanded, propagate, sensitivities
+from acquire.uncertainty.correct import (
+    CorrectedPoints,
+    correct_with_uncertainty,
+    reading_covariance,
+)
+from acquire.uncertainty.flags import BEYOND_ACCURACY, beyond_accuracy, flags_from, point_flags
+from acquire.uncertainty.propagation import (
+    COVERAGE_FACTOR,
+    as_covariance,
+    expanded,
+    propagate,
+    sensitivities,
+)
 from acquire.uncertainty.quantities import quantity_uncertainty
 from acquire.uncertainty.repeats import mean_of_repeats
-
-#: The coverage factor of every expanded uncertainty here (about 95 % for a normal distribution).
-COVERAGE_FACTOR = 2.0
 
 __all__ = [
     "BEYOND_ACCURACY",
@@ -35,11 +42,13 @@ __all__ = [
     "beyond_accuracy",
     "correct_with_uncertainty",
     "expanded",
+    "flags_from",
     "half_width",
     "mean_of_repeats",
     "point_flags",
     "propagate",
     "quantity_uncertainty",
+    "reading_covariance",
     "reading_uncertainty",
     "repeatability",
     "sensitivities",

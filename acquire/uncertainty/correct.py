@@ -70,8 +70,9 @@ def _standard_u(refs, at, name: str, f: np.ndarray) -> np.ndarray | None:
     return np.stack([np.interp(x, grid, u[:, i]) for i in range(u.shape[1])], axis=-1)
 
 
-def _reading_cov(f, z, u_a, accuracy, settings, repeats: int) -> np.ndarray:
-    """Covariance of one reading: its Type A (or the stated repeatability) plus its Type B."""
+def reading_covariance(f, z, u_a, accuracy, settings, repeats: int = 1) -> np.ndarray:
+    """Covariance of readings ``z``: their Type A ``u_a`` (or, without it, the stated
+    repeatability of the mean of ``repeats`` readings) plus their Type B; zero without either."""
     shape = z.shape
     if u_a is not None:
         cov = as_covariance(u_a, shape)
@@ -120,8 +121,8 @@ def correct_with_uncertainty(
             continue
         z = np.asarray(z, dtype=complex)
         u_a = _standard_u(refs, at, name, f)
-        u_std[name] = _reading_cov(f, z, u_a, accuracy, settings, repeats)
-    u_dut = _reading_cov(f, zm, u_m, accuracy, settings, 1)
+        u_std[name] = reading_covariance(f, z, u_a, accuracy, settings, repeats)
+    u_dut = reading_covariance(f, zm, u_m, accuracy, settings, 1)
     zx, cov = propagate(
         zm,
         u_dut,

@@ -48,9 +48,11 @@ def point_flags(f, z, cov, names=DEFAULT_NAMES) -> np.ndarray:
 
     An array of strings, ready for the store's ``flags`` column.
     """
-    bad = beyond_accuracy(f, z, cov, names)
-    shape = np.broadcast_shapes(np.shape(f), np.shape(z))
-    anyone = np.zeros(shape, dtype=bool)
-    for b in bad.values():
-        anyone |= b
+    return flags_from(beyond_accuracy(f, z, cov, names), names)
+
+
+def flags_from(beyond: dict[str, np.ndarray], names=DEFAULT_NAMES) -> np.ndarray:
+    """Per point, ``"beyond-accuracy"`` where :func:`beyond_accuracy`'s judgement ``beyond``
+    marks any quantity in ``names``, else ``""``."""
+    anyone = np.logical_or.reduce([np.asarray(beyond[name], dtype=bool) for name in names])
     return np.where(anyone, BEYOND_ACCURACY, "")

@@ -36,6 +36,9 @@ from acquire.errors import InputError
 
 NAMES = ("zm", "zo", "zs", "zl", "zt")
 
+#: The coverage factor of every expanded uncertainty here (about 95 % for a normal distribution).
+COVERAGE_FACTOR = 2.0
+
 
 def as_covariance(u, shape: tuple[int, ...]) -> np.ndarray:
     """The ``shape + (2, 2)`` covariance (ohm²) of the real and imaginary parts from ``u``.
@@ -170,7 +173,7 @@ def propagate(
     return zx, cov
 
 
-def expanded(cov, k: float = 2.0) -> np.ndarray:
+def expanded(cov, k: float = COVERAGE_FACTOR) -> np.ndarray:
     """Expanded uncertainty ``k·√diag`` of R and of X, shape ``(..., 2)``, from covariances."""
     cov = np.asarray(cov, dtype=float)
     with np.errstate(invalid="ignore"):

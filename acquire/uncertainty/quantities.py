@@ -24,6 +24,7 @@ import numpy as np
 
 from acquire.errors import InputError
 from acquire.impedance import KEYS
+from acquire.uncertainty.propagation import COVERAGE_FACTOR
 
 
 def _gradients(w: np.ndarray, r: np.ndarray, x: np.ndarray) -> dict[str, tuple]:
@@ -52,7 +53,9 @@ def _gradients(w: np.ndarray, r: np.ndarray, x: np.ndarray) -> dict[str, tuple]:
     }
 
 
-def quantity_uncertainty(f, z, cov, names=KEYS, k: float = 2.0) -> dict[str, np.ndarray]:
+def quantity_uncertainty(
+    f, z, cov, names=KEYS, k: float = COVERAGE_FACTOR
+) -> dict[str, np.ndarray]:
     """Expanded uncertainty (``k = 2``) of each quantity in ``names`` (keys of
     :data:`acquire.impedance.KEYS`), in that quantity's unit, per point.
 

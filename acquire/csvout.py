@@ -135,13 +135,13 @@ def write_rows(
 
 
 def _hidden(f, z, cov, marks, names) -> dict[str, np.ndarray]:
-    """Per quantity of ``names`` and for R (``Rs``) and X: True where the point is flagged
-    beyond accuracy and that value is past the tool's accuracy (the sweep's own judgement,
+    """Per quantity of ``names``: True where the point is flagged beyond accuracy and that value
+    is past the tool's accuracy (the sweep's own judgement,
     :func:`acquire.uncertainty.beyond_accuracy`, with an unknown covariance taken as 0)."""
     judge = np.where(np.isfinite(cov), cov, 0.0)
     flagged = marks == BEYOND_ACCURACY
     with np.errstate(all="ignore"):
-        bad = beyond_accuracy(f, z, judge, tuple(dict.fromkeys((*names, "Rs", "X"))))
+        bad = beyond_accuracy(f, z, judge, tuple(names))
     return {name: b & flagged for name, b in bad.items()}
 
 

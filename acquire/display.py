@@ -8,12 +8,10 @@ from __future__ import annotations
 
 import math
 
-from acquire.units import format_si
+from acquire.units import format_si, si_prefix
 
 #: What is shown in place of a value past the tool's accuracy (never a number).
 BEYOND = "beyond accuracy"
-#: SI prefixes by power of a thousand, for a value and its uncertainty printed alike.
-_PREFIXES = {12: "T", 9: "G", 6: "M", 3: "k", 0: "", -3: "m", -6: "µ", -9: "n", -12: "p", -15: "f"}
 
 #: The SI unit of each quantity of :func:`acquire.impedance.quantities`.
 UNITS = {
@@ -65,11 +63,9 @@ def format_measured(name: str, value: float, u: float | None = None, beyond: boo
         return format_value(name, value)
     unit = UNITS.get(name, "")
     if name in ("Q", "D", "theta") or value == 0:
-        power, prefix = 0, ""
+        scale, prefix = 1.0, ""
     else:
-        power = min(max(3 * math.floor(math.log10(abs(value)) / 3), -15), 12)
-        prefix = _PREFIXES[power]
-    scale = 10.0**power
+        scale, prefix = si_prefix(value)
     scaled_u = u / scale
     if scaled_u == 0:
         return f"{format_value(name, value)} ± 0"

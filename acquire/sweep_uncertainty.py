@@ -37,8 +37,8 @@ from acquire.uncertainty import (
 )
 
 #: Quantities judged for the display besides the shown ones (the latest-point panel's |Z| and
-#: theta; the corrected R and X of the CSV).
-ALSO_JUDGED = ("Rs", "X", "Z", "theta")
+#: theta).
+ALSO_JUDGED = ("Z", "theta")
 OVERRANGE, INVALID = "overrange", "invalid"
 
 

@@ -184,6 +184,12 @@ def parse_list(text: str, unit: str | None = None) -> list[float]:
     return [parse_quantity(item, unit) for item in items]
 
 
+def si_prefix(value: float) -> tuple[float, str]:
+    """The SI prefix a value is shown with, and its scale: ``(1e-6, "µ")`` for 4.7e-6; from
+    femto to tera (smaller values in femto, larger in tera)."""
+    return next(((s, p) for s, p in _FORMAT_PREFIXES if abs(value) >= s), (1e-15, "f"))
+
+
 def format_si(value: float, unit: str = "", digits: int = 4) -> str:
     """Format ``value`` with an SI prefix and ``digits`` significant digits: ``4.700 µH``."""
     if value is None or (isinstance(value, float) and math.isnan(value)):
@@ -193,7 +199,7 @@ def format_si(value: float, unit: str = "", digits: int = 4) -> str:
     if value == 0:
         return f"{0:.{max(digits - 1, 0)}f} {unit}".rstrip()
     value = float(f"{value:.{digits}g}")
-    scale, prefix = next(((s, p) for s, p in _FORMAT_PREFIXES if abs(value) >= s), (1e-15, "f"))
+    scale, prefix = si_prefix(value)
     scaled = value / scale
     decimals = max(digits - 1 - int(math.floor(math.log10(abs(scaled)))), 0) if scaled else 0
     return f"{scaled:.{decimals}f} {prefix}{unit}".rstrip()

@@ -27,9 +27,8 @@ from acquire.dashboard import open_view, summary
 from acquire.errors import AcquireError
 from acquire.plan import FrequencyPlan, log_plan
 from acquire.sweep import SweepOutcome, run_sweep
-from acquire.sweep_setup import begin, prepare_state, review_readings
+from acquire.sweep_setup import begin, prepare_state, review_readings, uncertainty_model
 from acquire.sweep_state import SweepState
-from acquire.sweep_uncertainty import PointUncertainty
 from acquire.units import format_si
 
 #: What the demo measures: a coil and a fixture of our own invention (sim_profiles/).
@@ -148,9 +147,7 @@ def sweep(run: DemoRun) -> None:
         _plan(run), run.identity, run.references, run.reference_id, run.fixture, run.dut,
         ("Ls", "Rs", "Q"),
     )  # fmt: skip
-    model = PointUncertainty.for_meter(run.meter, state.quantities)
-    state.show_uncertainty = True
-    state.uncertainty_note = model.note()
+    model = uncertainty_model(run.meter, state, show=True)
     writer = begin(run.store, run.meter, run.identity, run.fixture, run.dut, run.reference_id,
                    _plan(run), state.quantities, {"uncertainty": model.describe()},
                    references=run.references)  # fmt: skip

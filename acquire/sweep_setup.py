@@ -12,6 +12,7 @@ from typing import Any
 from acquire.errors import CompensationError, InputError
 from acquire.plan import FrequencyPlan
 from acquire.sweep_state import SweepState
+from acquire.sweep_uncertainty import PointUncertainty
 
 #: How many of a refused reference set's problems the refusal names.
 PROBLEMS_NAMED = 2
@@ -121,6 +122,15 @@ def warn_about_references(
     max_age = None if max_hours is None or max_hours <= 0 else max_hours * 3600.0
     for w in reference_warnings(refs, meter_name, fixture, max_age):
         state.warn(w)
+
+
+def uncertainty_model(meter: Any, state: SweepState, show: bool) -> PointUncertainty:
+    """How the sweep's points get their uncertainty (from ``meter``'s dialect and settings),
+    with the view told what it rests on and whether to show ``± U`` beside the values."""
+    model = PointUncertainty.for_meter(meter, state.quantities)
+    state.show_uncertainty = show
+    state.uncertainty_note = model.note()
+    return model
 
 
 def begin(

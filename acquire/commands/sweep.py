@@ -141,9 +141,9 @@ def run(args: argparse.Namespace) -> int:
         find_reference_set,
         prepare_state,
         review_readings,
+        uncertainty_model,
         warn_about_references,
     )
-    from acquire.sweep_uncertainty import PointUncertainty
     from acquire.units import parse_quantity
     from drivers.meter import ImpedanceMeter
 
@@ -180,9 +180,7 @@ def run(args: argparse.Namespace) -> int:
             identity = meter.identify()
             state = prepare_state(plan, identity, refs, ref_id, args.fixture, args.dut, show, used)
             warn_about_references(state, refs, str(identity), args.fixture, args.max_reference_age)
-            model = PointUncertainty.for_meter(meter, show)
-            state.show_uncertainty = args.uncertainty
-            state.uncertainty_note = model.note()
+            model = uncertainty_model(meter, state, args.uncertainty)
             measurement = {
                 "level": args.level,
                 "speed": args.speed,

@@ -29,6 +29,7 @@ from acquire.compensation import STANDARDS, ReferenceSet
 from acquire.display import format_duration
 from acquire.errors import CompensationError
 from acquire.plan import FrequencyPlan, check_range
+from acquire.uncertainty.repeats import mean_of_repeats
 from acquire.units import format_si
 
 INSTRUCTIONS = {
@@ -195,14 +196,11 @@ def mean_reading(readings: np.ndarray) -> tuple[np.ndarray, np.ndarray | None]:
     ``s/sqrt(n)``, with the variances of the real and imaginary parts pooled,
     ``s**2 = (s_R**2 + s_X**2)/2``: one number per frequency that holds for R and X alike.
     """
-    readings = np.atleast_2d(np.asarray(readings, dtype=complex))
-    n = readings.shape[0]
     with np.errstate(invalid="ignore"):
-        mean = readings.mean(axis=0)
-        if n < 2:
-            return mean, None
-        pooled = (readings.real.var(axis=0, ddof=1) + readings.imag.var(axis=0, ddof=1)) / 2
-    return mean, np.sqrt(pooled / n)
+        mean, u = mean_of_repeats(np.atleast_2d(np.asarray(readings, dtype=complex)))
+    if u is None:
+        return mean, None
+    return mean, np.sqrt((u**2).mean(axis=1))
 
 
 def _capture_one(

@@ -31,7 +31,6 @@ ABSOLUTE_ZERO_C = -273.15
 _NUMBER = re.compile(r"^\s*([+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?)\s*(\S*)\s*$", re.ASCII)
 _SPACES = str.maketrans({"\u00a0": " ", "\u2009": " ", "\u202f": " "})
 _CELSIUS = {"", "c", "°c", "ºc", "degc", "celsius"}
-_KELVIN = {"k", "kelvin"}
 
 _FORMAT_PREFIXES = [
     (1e12, "T"), (1e9, "G"), (1e6, "M"), (1e3, "k"), (1.0, ""), (1e-3, "m"),

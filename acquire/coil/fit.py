@@ -57,14 +57,13 @@ from scipy.optimize import brentq, minimize_scalar
 from acquire.coil.circuit import SKIN_EXPONENT, impedance_from_parameters, low_frequency_inductance
 from acquire.coil.fitcov import data_covariance
 from acquire.coil.fitresult import CoilFit, FittedValue
-from acquire.coil.fitsolve import LAWS, Candidate, Solution, propagate, solve, unpack
+from acquire.coil.fitsolve import LAWS, LINEAR, Candidate, Solution, propagate, solve, unpack
 from acquire.coil.fitstart import StartValues, clean_sweep, start_values
 from acquire.errors import ModelError
 from acquire.units import format_si
 
 _LIMITS = {"L": 0.2, "Rdc": 0.25, "Cp": 0.2, "fc": 0.5, "n": 0.5, "fw": 0.5, "kp": 0.5}
 _LIMITS["tand"] = 0.5
-_LINEAR = {"n"}
 _GRID = 4000
 _MIN_WEIGHT = 1e-4
 #: The laws tried when none is named: the round wire (with its internal inductance), and the
@@ -284,7 +283,7 @@ def _report(solutions, known, s: StartValues, f, z, dropped: int, split: str) ->
             return FittedValue(
                 key, label, None, None, unit, "not determined: the fit ran to the edge of its range"
             )
-        sig = sigma_log[i] if key in _LINEAR else p[key] * sigma_log[i]
+        sig = sigma_log[i] if key in LINEAR else p[key] * sigma_log[i]
         return checked(key, label, unit, p[key], sig, note)
 
     def averaged(key, label, unit, func, note=""):

@@ -33,7 +33,7 @@ from acquire.coil.circuit import SKIN_EXPONENT, impedance_from_parameters
 from acquire.coil.fitstart import StartValues
 
 LAWS = ("constant", "skin", "power", "wire")
-_LINEAR = {"n"}
+LINEAR = {"n"}
 
 
 @dataclass(frozen=True)
@@ -87,11 +87,6 @@ class Solution:
         return self.candidate.names
 
     @property
-    def parameters(self) -> dict[str, float]:
-        """The parameters in SI units."""
-        return unpack(self.names, self.theta)
-
-    @property
     def reduced_chi2(self) -> float:
         """χ² over its expected value (χ²/ν for independent errors)."""
         expected = self.expected_chi2 if self.expected_chi2 > 0 else self.dof
@@ -100,7 +95,7 @@ class Solution:
 
 def unpack(names: tuple[str, ...], theta: np.ndarray) -> dict[str, float]:
     """Parameters in SI units from the fit's vector (logarithms except ``n``)."""
-    return {n: float(t if n in _LINEAR else math.exp(t)) for n, t in zip(names, theta, strict=True)}
+    return {n: float(t if n in LINEAR else math.exp(t)) for n, t in zip(names, theta, strict=True)}
 
 
 def _residuals(theta, names, f, z, sigma) -> np.ndarray:
@@ -124,7 +119,7 @@ def _initial(names: tuple[str, ...], s: StartValues, f: np.ndarray):
     for n in names:
         start, low, high = guess[n]
         start = min(max(start, low * 1.001), high / 1.001)
-        if n not in _LINEAR:
+        if n not in LINEAR:
             start, low, high = math.log(start), math.log(low), math.log(high)
         x0.append(start)
         lo.append(low)

@@ -57,6 +57,7 @@ import numpy as np
 from acquire.compensation import dut_checks, formulas
 from acquire.compensation import grid as grids
 from acquire.compensation.findings import (
+    ACCURACY_RATIO,
     Finding,
     Severity,
     alike,
@@ -70,8 +71,6 @@ from acquire.compensation.protocol import References
 
 __all__ = ["Finding", "check"]
 
-#: The 10x rule of thumb for DUTs and for open against short (common practice, no published source).
-ACCURACY_RATIO = 10.0
 #: Phase error (degrees) a reading may have before its negative R counts as not passive.
 PHASE_MARGIN = 1.0
 #: Coverage factor on the Type A uncertainty in the passivity rule.

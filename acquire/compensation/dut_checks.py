@@ -15,13 +15,10 @@ from __future__ import annotations
 
 import numpy as np
 
-from acquire.compensation.findings import Finding, where, worst
+from acquire.compensation.findings import ACCURACY_RATIO, Finding, where, worst
 from acquire.compensation.interpolation import place, standards_at
 from acquire.compensation.protocol import References
 from acquire.errors import CompensationError
-
-#: The 10x rule of thumb (common practice, no published source).
-ACCURACY_RATIO = 10.0
 
 
 def dut_findings(refs: References, dut, f, grid_ok: bool) -> list[Finding]:

@@ -76,6 +76,11 @@ def ohm(z: complex) -> str:
     return f"{format_si(float(abs(z)), 'Ω')} at {degrees:.1f}°"
 
 
+#: The 10x rule of thumb for losing accuracy (common practice, no published source): a part
+#: within 10x of the short residual, or an open within 10x of the part (or of the short).
+ACCURACY_RATIO = 10.0
+
+
 def hz(value: float) -> str:
     """A frequency for messages."""
     return format_si(float(value), "Hz")

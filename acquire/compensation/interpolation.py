@@ -38,8 +38,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from acquire.compensation import formulas
+from acquire.compensation.findings import hz
 from acquire.errors import CompensationError
-from acquire.units import format_si
 
 #: Relative distance from a grid end still taken as that end.
 END_TOLERANCE = 1e-12
@@ -71,12 +71,12 @@ def place(grid: np.ndarray, f: np.ndarray) -> Placement:
     if np.any(below) or np.any(above):
         outside = f[below | above]
         what = (
-            f"{_hz(outside[0])} lies"
+            f"{hz(outside[0])} lies"
             if outside.size == 1
-            else f"{outside.size} frequencies ({_hz(outside.min())} to {_hz(outside.max())}) lie"
+            else f"{outside.size} frequencies ({hz(outside.min())} to {hz(outside.max())}) lie"
         )
         raise CompensationError(
-            f"{what} outside the reference grid ({_hz(lo)} to {_hz(hi)}); references are never "
+            f"{what} outside the reference grid ({hz(lo)} to {hz(hi)}); references are never "
             "extrapolated: capture them over the whole range of the sweep"
         )
     f = np.clip(f, lo, hi)
@@ -159,10 +159,6 @@ def standards_at(grid: np.ndarray, at: Placement, zo, zs, zl, zt) -> Standards:
         zl_at = formulas.correction(zo_at, zs_at, None, None).reading(bare_at)
         zl_at = np.where(at.exact, zl[at.index], zl_at)
     return zo_at, zs_at, zl_at, zt_at
-
-
-def _hz(value: float) -> str:
-    return format_si(float(value), "Hz")
 
 
 def uncertainty_at(grid: np.ndarray, u: np.ndarray | None, at: Placement) -> np.ndarray | None:

@@ -91,3 +91,17 @@ def test_fit_json_has_the_shared_format(tmp_path, capsys):
     assert by_name["L"]["unit"] == "H"
     assert by_name["Cp"]["value"] == pytest.approx(10e-12, rel=1e-2)
     assert by_name["Rdc"]["value"] == pytest.approx(1.0, rel=2e-2)
+
+
+def test_a_self_resonance_above_the_sweep_is_given_as_a_lower_bound(capsys, tmp_path):
+    # L = 100 uH, C = 10 pF resonate near 5.03 MHz (1/(2 pi sqrt(LC)), computed); a sweep that
+    # stops at 1 MHz shows only that the resonance lies above its top frequency.
+    f = np.geomspace(1e3, 1e6, 60)
+    w = 2 * math.pi * f
+    z = 1 / (1 / (1 + 1j * w * 100e-6) + 1j * w * 10e-12)
+    rows = ["frequency [Hz],R [ohm],X [ohm]"]
+    rows += [f"{a:.12g},{b.real:.12g},{b.imag:.12g}" for a, b in zip(f, z, strict=True)]
+    assert main(["fit", str(write(tmp_path, "\n".join(rows) + "\n")), "--json"]) == 0
+    srf = {q["name"]: q for q in json.loads(capsys.readouterr().out)["quantities"]}["SRF"]
+    assert srf["value"] is None and srf["relative_accuracy"] is None
+    assert srf["lower_bound"] == pytest.approx(1e6)

@@ -357,6 +357,7 @@ def _report(solutions, known, s: StartValues, f, z, dropped: int, split: str) ->
                 f"not in the sweep: above {format_si(f_hi, 'Hz')}"
                 if s.resonance is None
                 else "not determined",
+                lower_bound=f_hi if s.resonance is None else None,
             )  # fmt: skip
         )
     else:

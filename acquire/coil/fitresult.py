@@ -14,7 +14,9 @@ from acquire.coil.fitstart import StartValues
 
 @dataclass(frozen=True)
 class FittedValue:
-    """One reported result; ``value`` None means not determined (``note`` says why)."""
+    """One reported result; ``value`` None means not determined (``note`` says why), and
+    ``lower_bound`` is then what the sweep does show of it, if anything (a self-resonance above
+    the sweep is at least its top frequency)."""
 
     key: str
     label: str
@@ -22,6 +24,7 @@ class FittedValue:
     sigma: float | None
     unit: str
     note: str = ""
+    lower_bound: float | None = None
 
     @property
     def determined(self) -> bool:

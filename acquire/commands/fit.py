@@ -113,23 +113,19 @@ def fit_json(fit) -> dict:
     """The fit as the JSON document shared with `acquire predict --json`."""
     quantities = []
     for v in fit.values:
-        rel = None if v.value is None or v.sigma is None or v.value == 0 else abs(v.sigma / v.value)
         method = "equivalent-circuit fit: weighted least squares, averaged over circuits"
         if v.value is not None and v.sigma is None:
             method += "; no uncertainty stated"
         if v.note:
             method = f"{method}; {v.note}"
-        lower = None
-        if v.value is None and v.note.startswith("not in the sweep: above"):
-            lower = fit.frequency_range[1]
         quantities.append(
             {
                 "name": v.key,
                 "label": v.label,
                 "value": v.value,
                 "unit": v.unit,
-                "relative_accuracy": rel,
-                "lower_bound": lower,
+                "relative_accuracy": v.relative_sigma,
+                "lower_bound": v.lower_bound,
                 "method": method,
                 "standard_uncertainty": v.sigma,
             }

@@ -6,14 +6,12 @@ that every mistake names the file, the key and the reason in the same words.
 
 from __future__ import annotations
 
-import math
 from typing import Any
 
 from drivers.dialect import MeterAccuracy, Operation
 
 #: Marks a key that has no default (it must be given); the checker uses the same marker.
 MISSING: Any = object()
-_MISSING = MISSING
 
 
 def check_accuracy(checker: Any, operations: dict[str, Operation]) -> MeterAccuracy | None:
@@ -30,14 +28,14 @@ def check_accuracy(checker: Any, operations: dict[str, Operation]) -> MeterAccur
     checker.unknown(t, "accuracy.", floors | {"reference_level", "repeatability", "speed_factors"})
     values = {}
     for key, default, zero in (
-        ("relative", _MISSING, True),
-        ("low_impedance", _MISSING, True),
-        ("high_impedance", _MISSING, False),
-        ("frequency_corner", _MISSING, False),
+        ("relative", MISSING, True),
+        ("low_impedance", MISSING, True),
+        ("high_impedance", MISSING, False),
+        ("frequency_corner", MISSING, False),
         ("reference_level", 1.0, False),
         ("repeatability", 0.0, True),
     ):
-        values[key] = _finite(checker, t, f"accuracy.{key}", default, zero)
+        values[key] = checker.positive(t, f"accuracy.{key}", default, zero)
     table = checker.get(t, "accuracy.speed_factors", dict, {})
     words = operations["set_speed"].choices if "set_speed" in operations else {}
     factors = {}
@@ -46,16 +44,8 @@ def check_accuracy(checker: Any, operations: dict[str, Operation]) -> MeterAccur
         if words and word not in words:
             known = ", ".join(words)
             raise checker.fail(key, f"not a speed word of operations.set_speed (known: {known})")
-        factors[word] = _finite(checker, table, key, _MISSING, False)
+        factors[word] = checker.positive(table, key, MISSING)
     missing = [w for w in words if w not in factors]  # no set_speed: any words, unused
     if factors and missing:
         raise checker.fail("accuracy.speed_factors", f"missing the speed word {missing[0]!r}")
     return MeterAccuracy(speed_factors=dict(factors), **values)
-
-
-def _finite(checker: Any, table: dict, key: str, default: Any, allow_zero: bool) -> float:
-    """A finite number, above 0 (or at least 0 with ``allow_zero``)."""
-    value = checker.get(table, key, float, default)
-    if not math.isfinite(value):
-        raise checker.fail(key, f"must be a finite number, got {value}")
-    return checker.positive(table, key, default, allow_zero)

@@ -9,6 +9,7 @@ return a reading. :func:`drivers.dialect_file.load_dialect` is the way in.
 
 from __future__ import annotations
 
+import math
 import string
 from pathlib import Path
 from typing import Any
@@ -36,9 +37,6 @@ def check_dialect(path: Path, data: dict[str, Any]) -> Dialect:
     return _Checker(path, data).dialect()
 
 
-_MISSING = MISSING
-
-
 class _Checker:
     """Reads the parsed TOML table key by key, failing with file, key and reason."""
 
@@ -50,8 +48,8 @@ class _Checker:
         return DialectError(f"{self.path}: key {key!r}: {reason}")
 
     def table(self, key: str, required: bool = False) -> dict[str, Any]:
-        value = self.data.get(key, _MISSING)
-        if value is _MISSING:
+        value = self.data.get(key, MISSING)
+        if value is MISSING:
             if required:
                 raise self.fail(key, "missing table")
             return {}
@@ -59,11 +57,11 @@ class _Checker:
             raise self.fail(key, "must be a table ([" + key + "])")
         return value
 
-    def get(self, table: dict, key: str, kind: type | tuple, default: Any = _MISSING) -> Any:
+    def get(self, table: dict, key: str, kind: type | tuple, default: Any = MISSING) -> Any:
         section, _, leaf = key.rpartition(".")
-        value = table.get(leaf, _MISSING)
-        if value is _MISSING:
-            if default is _MISSING:
+        value = table.get(leaf, MISSING)
+        if value is MISSING:
+            if default is MISSING:
                 raise self.fail(key, "missing")
             return default
         kinds = kind if isinstance(kind, tuple) else (kind,)
@@ -82,7 +80,11 @@ class _Checker:
                 raise self.fail(f"{prefix}{key}", f"unknown key (allowed here: {hint})")
 
     def positive(self, table: dict, key: str, default: Any, allow_zero: bool = False) -> float:
+        """A finite number above 0 (at least 0 with ``allow_zero``): a time, a frequency, a
+        factor; NaN and infinity are refused (a timeout of ``inf`` would never end)."""
         value = self.get(table, key, float, default)
+        if not math.isfinite(value):
+            raise self.fail(key, f"must be a finite number, got {value}")
         if value < 0 or (value == 0 and not allow_zero):
             raise self.fail(key, f"must be {'>= 0' if allow_zero else '> 0'}, got {value}")
         return value
@@ -167,8 +169,8 @@ class _Checker:
     def frequency(self) -> tuple[float, float]:
         t = self.table("frequency", required=True)
         self.unknown(t, "frequency.", {"min", "max"})
-        fmin = self.positive(t, "frequency.min", _MISSING)
-        fmax = self.positive(t, "frequency.max", _MISSING)
+        fmin = self.positive(t, "frequency.min", MISSING)
+        fmax = self.positive(t, "frequency.max", MISSING)
         if fmax <= fmin:
             raise self.fail("frequency.max", f"must be above frequency.min ({fmin} Hz)")
         return fmin, fmax

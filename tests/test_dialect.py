@@ -343,3 +343,18 @@ def test_a_dialect_of_the_previous_release_names_every_rename_and_its_advice_wor
         z = meter.measure(1e3)
     # R, X of what the simulator shows the meter (its exact impedance; noise is small).
     assert z == pytest.approx(complex(sim.seen_impedance(1e3)), rel=0.01)
+
+
+@pytest.mark.parametrize(
+    ("pattern", "line", "key"),
+    [
+        (r"^timeout = .*$", "timeout = inf", "connection.timeout"),
+        (r"^max = .*$", "max = nan", "frequency.max"),
+        (r"^settle = .*$", "settle = inf", "sequence.settle"),
+    ],
+)
+def test_times_and_frequencies_must_be_finite(tmp_path, pattern, line, key):
+    # A timeout of inf would never end, a NaN limit compares false with everything: both are
+    # refused on load, like any other impossible value, naming the key.
+    with pytest.raises(DialectError, match=rf"{key}.*finite"):
+        load_dialect(variant(tmp_path, {pattern: line}))

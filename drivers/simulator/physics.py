@@ -49,8 +49,6 @@ stray shunt ``G_p + jωC_p`` across the DUT's terminals. The meter sees
 from __future__ import annotations
 
 import numpy as np
-from scipy.optimize import brentq
-from scipy.special import jve
 
 #: Speed of light in vacuum, m/s (exact, SI definition).
 SPEED_OF_LIGHT = 299_792_458.0
@@ -78,6 +76,8 @@ def ac_resistance(
 
 def round_wire_ratio(f: np.ndarray | float, radius: float, resistivity: float) -> np.ndarray:
     """``Z_wire/R_dc = (ka/2)·J0(ka)/J1(ka)`` of a round wire, ``k = (1 − j)/δ`` (complex)."""
+    from scipy.special import jve  # imported here: most readings need no scipy at start-up
+
     f = np.asarray(f, dtype=float)
     x = radius * np.sqrt(np.pi * f * MU0 / resistivity)
     ka = (1.0 - 1.0j) * x
@@ -152,6 +152,8 @@ def internal_inductance(dc_resistance: float, wire_radius: float, resistivity: f
 def phase_zero(impedance, f_low: float, f_high: float, points: int = 4000) -> float | None:
     """Lowest frequency in ``[f_low, f_high]`` where ``impedance(f)``'s reactance turns from
     positive to negative (the self-resonance), to 1e-12 relative; None if it does not."""
+    from scipy.optimize import brentq  # imported here: only the true values need it
+
     grid = np.geomspace(f_low, f_high, points)
     x = impedance(grid).imag
     change = np.flatnonzero((x[:-1] > 0) & (x[1:] <= 0))

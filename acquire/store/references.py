@@ -11,7 +11,6 @@ whose stored rows do not match it is reported as damaged rather than used.
 
 from __future__ import annotations
 
-import dataclasses
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -53,20 +52,11 @@ def _arrays(refs: Any) -> tuple[np.ndarray, dict[str, np.ndarray]]:
 
 
 def _uncertainties(refs: Any, f: np.ndarray) -> dict[str, list[float | None]]:
+    """The set's per-standard uncertainty columns (its constructor checked their shapes)."""
     columns: dict[str, list[float | None]] = {}
     for name in _UNCERTAINTIES:
-        u = getattr(refs, name, None)
-        if u is None:
-            columns[name] = [None] * f.size
-            continue
-        u = np.asarray(u, dtype=float)
-        u = np.broadcast_to(u, f.shape) if u.ndim == 0 else u
-        if u.shape != f.shape:
-            raise StoreError(
-                f"the {name} array of the reference set has shape {u.shape}, "
-                f"not that of its {f.size}-point frequency grid"
-            )
-        columns[name] = float_column(u)
+        u = getattr(refs, name)
+        columns[name] = [None] * f.size if u is None else float_column(u)
     return columns
 
 
@@ -96,8 +86,8 @@ def save_reference_set(
         "standards": ",".join(found),
         "points": int(f.size),
         "saved_at": utc_now(),
-        "repeats": int(getattr(refs, "repeats", 1) or 1),
-        "grid_spacing": str(getattr(refs, "grid_spacing", "") or ""),
+        "repeats": refs.repeats,
+        "grid_spacing": refs.grid_spacing,
     }
     columns: dict[str, list] = {"frequency": f.tolist()}
     for std in _ARRAYS:
@@ -209,20 +199,15 @@ def load_reference_set(db: Database, ref_id: int) -> ReferenceSet:
             arrays[std] = z
         else:
             arrays[std] = None
-    fields = {f.name for f in dataclasses.fields(ReferenceSet)}
     first_u = 1 + 2 * len(_ARRAYS)
     for k, name in enumerate(_UNCERTAINTIES):
         u = table[:, first_u + k]
-        stored = any(r[1 + first_u + k] is not None for r in rows)
-        if stored and name in fields:
-            arrays[name] = u.copy()
-    if head.repeats != 1 and "repeats" in fields:
-        arrays["repeats"] = head.repeats
-    if head.grid_spacing and "grid_spacing" in fields:
-        arrays["grid_spacing"] = head.grid_spacing
+        arrays[name] = None if np.isnan(u).all() else u.copy()  # NULL reads back as NaN
     return ReferenceSet(
         table[:, 0].copy(),
         **arrays,
+        repeats=head.repeats,
+        grid_spacing=head.grid_spacing,
         captured_at=head.captured_at,
         fixture=head.fixture,
         meter=head.meter,

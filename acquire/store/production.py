@@ -131,7 +131,7 @@ def save_units(
 ) -> int:
     """Store many units, ``batch`` per transaction; return how many were new."""
 
-    def work(conn: Connection, chunk: list[UnitRecord]) -> tuple[int, dict[str, int]]:
+    def work(chunk: list[UnitRecord], conn: Connection) -> tuple[int, dict[str, int]]:
         lots = _lot_ids(conn, (u.lot for u in chunk), lot_cache)
         heads = [_unit_row(u, lots.get(u.lot)) for u in chunk]
         insert = _new_unit(conn.dialect.name, "id", "attempt_id")
@@ -157,7 +157,7 @@ def save_units(
         if not chunk:
             return stored
         part = list(chunk.values())
-        n, lots = db.write("saving units", partial(_with_chunk, work, part), idempotent=True)
+        n, lots = db.write("saving units", partial(work, part), idempotent=True)
         stored += n
         lot_cache.update(lots)
         chunk = {}
@@ -330,7 +330,3 @@ def lot_yield(db: Database, lot: str) -> LotYield:
         lot, int(r.attempts), int(r.serials or 0), int(r.first_pass or 0), int(r.final_pass or 0)
     )
 
-
-def _with_chunk(work: Any, chunk: list[UnitRecord], conn: Connection) -> Any:
-    """``work(conn, chunk)``: a unit batch's write, in the form the store's retry loop calls."""
-    return work(conn, chunk)

@@ -15,12 +15,8 @@ from drivers.errors import ProfileError
 @dataclass(frozen=True)
 class Key:
     unit: str
-    default: float | None | str = "required"
+    default: float | None | str = "required"  # the text marks a key that must be given
     positive: bool = False
-
-    @property
-    def required(self) -> bool:
-        return self.default == "required"
 
 
 #: Resistivity of annealed copper at 20 °C, ohm·m (IEC 60028: 1/58 ohm·mm²/m).

@@ -171,13 +171,16 @@ class Commands(SimulateCommands):
     def _frequency(self, text: str) -> float:
         return number(text, "HZ", state.FREQUENCY_MIN, state.FREQUENCY_MAX, state.FREQUENCY_DEFAULT)
 
-    def _limit_query(self, params, low: float, high: float, default: float, value: float) -> str:
+    def _limit_query(
+        self, params, low: float, high: float, default: float, value: float, fmt=format_number
+    ) -> str:
+        """The setting's ``value``, or its MINimum, MAXimum or DEFault, as ``fmt`` writes it."""
         expect(params, 0, 1)
         if params:
             value = {"MIN": low, "MAX": high, "DEF": default}[
                 keyword(params[0], ("MINimum", "MAXimum", "DEFault"))
             ]
-        return format_number(value)
+        return fmt(value)
 
     async def frequency(self, session: Session, params) -> None:
         expect(params, 1)
@@ -234,12 +237,9 @@ class Commands(SimulateCommands):
         self.instrument.settings.periods = integer(params[0], low, high, state.PERIODS_DEFAULT)
 
     async def periods_query(self, session: Session, params) -> str:
-        expect(params, 0, 1)
-        if params:
-            word = keyword(params[0], ("MINimum", "MAXimum", "DEFault"))
-            low, high, default = state.PERIODS_MIN, state.PERIODS_MAX, state.PERIODS_DEFAULT
-            return str({"MIN": low, "MAX": high, "DEF": default}[word])
-        return str(self.instrument.settings.periods)
+        low, high, default = state.PERIODS_MIN, state.PERIODS_MAX, state.PERIODS_DEFAULT
+        now = self.instrument.settings.periods
+        return self._limit_query(params, low, high, default, now, fmt=str)
 
     async def old_speed(self, session: Session, params) -> None:
         raise ScpiError(-113, f"the speed header was renamed: use {NEW_SPEED}")
@@ -257,11 +257,8 @@ class Commands(SimulateCommands):
         self.instrument.settings.averaging = integer(params[0], 1, state.AVERAGING_MAX, 1)
 
     async def averaging_query(self, session: Session, params) -> str:
-        expect(params, 0, 1)
-        if params:
-            word = keyword(params[0], ("MINimum", "MAXimum", "DEFault"))
-            return str(state.AVERAGING_MAX if word == "MAX" else 1)
-        return str(self.instrument.settings.averaging)
+        now = self.instrument.settings.averaging
+        return self._limit_query(params, 1, state.AVERAGING_MAX, 1, now, fmt=str)
 
     # Trigger and measurement
 

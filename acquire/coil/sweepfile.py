@@ -29,11 +29,9 @@ from pathlib import Path
 import numpy as np
 
 from acquire.errors import InputError
+from acquire.units import PREFIXES, parse_quantity
 
 _FREQUENCY = ("frequency", "freq", "f", "frequency_hz")
-_PREFIX = {"": 1.0, "p": 1e-12, "n": 1e-9, "u": 1e-6, "µ": 1e-6, "μ": 1e-6, "m": 1e-3}
-_PREFIX |= {"k": 1e3, "M": 1e6, "G": 1e9}
-_BASE = {"Hz": ("Hz", "hz"), "ohm": ("ohm", "Ω", "Ohm", "ohms", "Ω"), "H": ("H",)}
 
 
 def unit_scale(header: str, base: str) -> float:
@@ -47,19 +45,14 @@ def unit_scale(header: str, base: str) -> float:
             return table[unit]
     elif not unit:
         return 1.0
-    else:
-        for name in _BASE[base]:
-            if unit.endswith(name) and unit[: -len(name)] in _PREFIX:
-                if name == "hz" and unit[: -len(name)] in ("m", "M"):
-                    raise InputError(
-                        f"column {header!r}: write MHz for megahertz or mHz for millihertz "
-                        "(the case of M matters)"
-                    )
-                return _PREFIX[unit[: -len(name)]]
     want = {"Hz": "Hz, kHz, MHz", "ohm": "ohm, mohm, kohm, Ω", "H": "H, mH, uH, nH"}
-    raise InputError(
-        f"column {header!r}: unit {unit!r} is not understood (use {want.get(base, 'deg or rad')})"
-    )
+    use = want.get(base, "deg or rad")
+    if base != "angle" and unit not in PREFIXES:  # a prefix alone names no unit
+        try:
+            return parse_quantity("1" + unit, base)
+        except InputError as exc:
+            raise InputError(f"column {header!r}: {exc} (use {use})") from None
+    raise InputError(f"column {header!r}: unit {unit!r} is not understood (use {use})")
 
 
 _PLAIN_R = ("r", "rs", "resistance")

@@ -60,6 +60,13 @@ class Placement:
     exact: np.ndarray
     on_grid: bool
 
+    def lerp(self, values: np.ndarray) -> np.ndarray:
+        """``values`` (one per grid point) carried linearly, by ``weight``, to the placed
+        frequencies: the value at ``index`` plus its share of the step to the next point."""
+        upper = np.minimum(self.index + 1, values.shape[0] - 1)
+        a = values[self.index]
+        return a + self.weight * (values[upper] - a)
+
 
 def place(grid: np.ndarray, f: np.ndarray) -> Placement:
     """Locate 1-D frequencies ``f`` on the strictly increasing ``grid``; refuse any outside it."""
@@ -120,9 +127,7 @@ def interpolate(
         if admittance:
             v = 1.0 / v
         flat = v.real + 1j * (v.imag / grid)
-        upper = np.minimum(at.index + 1, grid.size - 1)
-        a, b = flat[at.index], flat[upper]
-        mid = a + at.weight * (b - a)
+        mid = at.lerp(flat)
         z_at = mid.real + 1j * (mid.imag * at.f)
         if admittance:
             z_at = 1.0 / z_at
@@ -170,7 +175,5 @@ def uncertainty_at(grid: np.ndarray, u: np.ndarray | None, at: Placement) -> np.
     """
     if u is None or at.on_grid:
         return None if u is None else u[at.index]
-    upper = np.minimum(at.index + 1, grid.size - 1)
-    a, b = u[at.index], u[upper]
     with np.errstate(invalid="ignore"):
-        return np.where(at.exact, a, a + at.weight * (b - a))
+        return np.where(at.exact, u[at.index], at.lerp(u))

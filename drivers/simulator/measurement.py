@@ -120,16 +120,13 @@ def read_impedance(
     conditions: Conditions,
     normals: np.ndarray,
     forced_overrange: np.ndarray,
-    key: np.random.SeedSequence | None = None,
+    key: np.random.SeedSequence,
 ) -> Reading:
     """The reading at ``conditions.frequency``: DUT through fixture, plus the meter's errors, flags.
 
     ``normals`` holds one pair of standard normal draws per frequency (see
-    :mod:`drivers.simulator.streams`); ``key`` fixes the session's systematic errors (seed 0's
-    when not given).
+    :mod:`drivers.simulator.streams`); ``key`` fixes the session's systematic errors.
     """
-    if key is None:
-        key = np.random.SeedSequence(0)
     f = np.asarray(conditions.frequency, dtype=float)
     seen = conditions.fixture.seen(f, conditions.dut.impedance(f))
     invalid = np.isnan(seen)

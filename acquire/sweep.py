@@ -28,7 +28,7 @@ from acquire.errors import CompensationError, InputError
 from acquire.plan import FrequencyPlan, check_range
 from acquire.sweep_state import SweepState
 from acquire.sweep_uncertainty import PointUncertainty
-from acquire.uncertainty import mean_of_repeats
+from acquire.uncertainty import expanded, mean_of_repeats
 from acquire.units import format_si
 from drivers.errors import InstrumentError
 
@@ -80,9 +80,13 @@ class SweepOutcome:
     reason: str = ""
     sweep_id: int | None = None
     error: BaseException | None = None
-    uncertainty: np.ndarray | None = None
     flags: np.ndarray | None = None
     cov: np.ndarray | None = None
+
+    @property
+    def uncertainty(self) -> np.ndarray | None:
+        """The (n, 2) expanded uncertainty [U_R, U_X] that ``cov`` gives (None without it)."""
+        return None if self.cov is None else expanded(self.cov)
 
     @property
     def interrupted(self) -> bool:
@@ -172,7 +176,7 @@ class _Sink:
             f[part].copy(),
             raw[part].copy(),
             None if corrected is None else corrected[part].copy(),
-            uncertainty=self.state.expanded[part].copy() if known else None,
+            uncertainty=expanded(self.state.cov[part]) if known else None,
             flags=[str(x) for x in self.state.flags[part]] if known else None,
         )
         self.written = n
@@ -254,7 +258,6 @@ def run_sweep(
         reason=reason,
         sweep_id=getattr(writer, "id", None),
         error=error,
-        uncertainty=state.expanded[:n].copy() if known else None,
         flags=state.flags[:n].copy() if known else None,
         cov=state.cov[:n].copy() if known else None,
     )

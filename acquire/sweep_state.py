@@ -65,7 +65,6 @@ class SweepState:
     raw: np.ndarray = field(init=False, repr=False)
     corrected: np.ndarray | None = field(init=False, repr=False)
     cov: np.ndarray = field(init=False, repr=False)
-    expanded: np.ndarray = field(init=False, repr=False)
     flags: np.ndarray = field(init=False, repr=False)
     beyond: dict[str, np.ndarray] = field(init=False, repr=False)
 
@@ -75,7 +74,6 @@ class SweepState:
         self.raw = np.full(n, complex(np.nan, np.nan))
         self.corrected = np.full(n, complex(np.nan, np.nan)) if self.corrected_too else None
         self.cov = np.full((n, 2, 2), np.nan)
-        self.expanded = np.full((n, 2), np.nan)
         self.flags = np.full(n, "", dtype=object)
         self.beyond = {}
 
@@ -119,7 +117,6 @@ class SweepState:
 
     def _add_values(self, i: int, k: int, f: np.ndarray, values: Any) -> None:
         self.cov[i : i + k] = values.cov
-        self.expanded[i : i + k] = values.expanded
         self.flags[i : i + k] = values.flags
         for name, bad in values.beyond.items():
             if name not in self.beyond:

@@ -31,7 +31,6 @@ from acquire.uncertainty import (
     COVERAGE_FACTOR,
     beyond_accuracy,
     correct_with_uncertainty,
-    expanded,
     flags_from,
     reading_covariance,
 )
@@ -44,13 +43,12 @@ OVERRANGE, INVALID = "overrange", "invalid"
 
 @dataclass(frozen=True, eq=False)
 class PointValues:
-    """One chunk's uncertainty: ``cov`` (n, 2, 2) ohm², ``expanded`` (n, 2) [U_R, U_X] (k = 2,
-    NaN where unknown), ``flags`` (n,) texts and ``beyond`` (name -> (n,) bool) per judged
-    quantity."""
+    """One chunk's uncertainty: ``cov`` (n, 2, 2) ohm² (NaN where unknown; its expanded
+    uncertainty is :func:`acquire.uncertainty.expanded` of it), ``flags`` (n,) texts and
+    ``beyond`` (name -> (n,) bool) per judged quantity."""
 
     corrected: np.ndarray | None
     cov: np.ndarray
-    expanded: np.ndarray
     flags: np.ndarray
     beyond: dict[str, np.ndarray]
 
@@ -141,7 +139,7 @@ class PointUncertainty:
         flags = flags_from(beyond, self.names).astype(object)
         flags[np.isinf(raw.real) | np.isinf(raw.imag)] = OVERRANGE
         flags[np.isnan(raw.real) | np.isnan(raw.imag)] = INVALID
-        return PointValues(corrected, cov, expanded(cov), flags, beyond)
+        return PointValues(corrected, cov, flags, beyond)
 
     def _raw_cov(self, f, raw, u_m, settings) -> np.ndarray:
         if self.accuracy is None and u_m is None:

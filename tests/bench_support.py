@@ -43,3 +43,16 @@ class FixedMeter:
         if on_points is not None:
             on_points(f, z)
         return z
+
+
+def keyboard_putting_in(sim: Any, standards: tuple[str, ...] = ("open", "short")) -> Any:
+    """A stand-in for ``input`` at `acquire reference capture`'s prompts: on each "measure the
+    <standard>" prompt it puts that standard in the simulated fixture, then presses Enter."""
+
+    def answer(prompt: str) -> str:
+        for standard in standards:
+            if f"measure the {standard}" in prompt:
+                sim.insert(standard)
+        return ""
+
+    return answer

@@ -9,6 +9,7 @@ from __future__ import annotations
 import os
 
 import pytest
+from bench_support import keyboard_putting_in
 
 from acquire.cli import main
 from drivers.simulator import running
@@ -30,14 +31,7 @@ def _no_bench_environment(monkeypatch):
 def test_names_with_brackets_and_colons_are_printed_as_typed(tmp_path, monkeypatch, capsys):
     url = f"sqlite:///{tmp_path / 'bench.db'}"
     with running(dut="open", fixture="bench-leads", seed=4, measure_time=0) as sim:
-
-        def operator(prompt: str) -> str:
-            for standard in ("open", "short"):
-                if f"measure the {standard}" in prompt:
-                    sim.insert(standard)
-            return ""
-
-        monkeypatch.setattr("builtins.input", operator)
+        monkeypatch.setattr("builtins.input", keyboard_putting_in(sim))
         common = ["--resource", sim.resource, "--store", url]
         plan = ["--start", "1kHz", "--stop", "100kHz", "--points", "9"]
         code = main(["reference", "capture", *common, *plan, "--fixture", FIXTURE,

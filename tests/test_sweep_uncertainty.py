@@ -13,7 +13,7 @@ import math
 
 import numpy as np
 import pytest
-from bench_support import FixedMeter, PutsEachStandardIn
+from bench_support import FixedMeter, PutsEachStandardIn, keyboard_putting_in
 from rich.console import Console
 
 from acquire.cli import main
@@ -229,14 +229,7 @@ def test_type_a_only_when_the_dialect_states_no_accuracy():
 def test_reference_capture_repeats_reads_each_standard_n_times(repeats, tmp_path, monkeypatch):
     url = f"sqlite:///{tmp_path / 'r.db'}"
     with running(dut="open", fixture="bench-leads", seed=9, measure_time=0) as sim:
-
-        def operator_at_the_keyboard(prompt: str) -> str:
-            for standard in ("open", "short"):
-                if f"measure the {standard}" in prompt:
-                    sim.insert(standard)
-            return ""
-
-        monkeypatch.setattr("builtins.input", operator_at_the_keyboard)
+        monkeypatch.setattr("builtins.input", keyboard_putting_in(sim))
         code = main(["reference", "capture", "--resource", sim.resource, "--store", url,
                      "--fixture", "bench-leads", "--list", "1kHz, 100kHz",
                      "--repeats", str(repeats)])  # fmt: skip

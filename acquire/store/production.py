@@ -329,4 +329,3 @@ def lot_yield(db: Database, lot: str) -> LotYield:
     return LotYield(
         lot, int(r.attempts), int(r.serials or 0), int(r.first_pass or 0), int(r.final_pass or 0)
     )
-

@@ -1,0 +1,190 @@
+"""Run a production test station: scan a serial, measure, judge, bin, record; repeat.
+
+The test plan (--plan, a TOML file: `acquire plan check FILE` shows what it does) says which
+frequencies and quantities are judged against which limits, with which decision rule (simple or
+guard-banded acceptance), how passing units are sorted into bins, which serials are valid, and
+when a serial may be tested again. At the prompt the operator scans (or types) a serial and
+presses Enter; when standard input is not a terminal, one serial per line is read until its end.
+
+Each unit is measured in one list sweep plus its DC resistance, corrected with the newest
+reference set of the plan's fixture (or --reference), judged, and recorded in one transaction
+with the plan's text and hash, the meter, fixture, reference set, operator, station, attempt
+number, outcome, bin, and every value with its expanded uncertainty (k = 2) and the limits
+applied. A unit shows as recorded only once the store committed it; while the store cannot be
+reached, units wait in a local outbox file beside the store (--outbox) and are written, once
+each, when it is back. A meter fault makes the attempt's outcome "error"; scan the serial again
+to retry. References older than the plan allows, or captured on another meter or fixture, stop
+the station until new ones are captured (--use-stale-references REASON goes on anyway and
+records the reason on every unit). Ctrl-C or the end of input ends the session with its summary.
+
+Safety: measure only discharged parts that are not connected to any supply; an inductor that
+carried DC bias stores energy. Mains-powered fixtures must be set up as local codes, the meter
+maker's instructions and licensed practice require.
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+
+from acquire.commands.options import add_dialect, add_resource, add_store
+
+HELP = "production testing: scan serials, measure, judge, bin and record each unit"
+
+
+def add_arguments(parser: argparse.ArgumentParser) -> None:
+    add_resource(parser)
+    add_dialect(parser)
+    add_store(parser)
+    parser.add_argument("--plan", required=True, help="test plan file (TOML)")
+    parser.add_argument("--lot", required=True, help="lot (batch) the units belong to")
+    parser.add_argument("--operator", required=True, help="who is testing")
+    parser.add_argument(
+        "--station",
+        default=os.environ.get("ACQUIRE_STATION"),
+        required="ACQUIRE_STATION" not in os.environ,
+        help="name of this station (env ACQUIRE_STATION)",
+    )
+    parser.add_argument(
+        "--reference",
+        help="reference set to correct with: its id or name (default: the newest captured on "
+        "the plan's fixture)",
+    )
+    parser.add_argument(
+        "--temperature",
+        help="winding temperature for the DC resistance correction, e.g. 23C, when the plan "
+        "takes it per lot",
+    )
+    parser.add_argument(
+        "--use-stale-references",
+        metavar="REASON",
+        help="go on with references the station would stop for (too old, another meter or "
+        "fixture, failing their check); the reason is recorded on every unit",
+    )
+    parser.add_argument(
+        "--outbox",
+        help="local file where units wait while the store is away (default: beside the store, "
+        "acquire-outbox-<station>.db)",
+    )
+    parser.add_argument("--no-bell", action="store_true", help="do not ring on a fail")
+
+
+def _reason(text: str | None) -> str:
+    from acquire.errors import InputError
+
+    if text is None:
+        return ""
+    reason = " ".join(text.split())
+    if not reason:
+        raise InputError('--use-stale-references needs a reason, e.g. "fixture unchanged, line down"')
+    return reason
+
+
+def _name(text: str, option: str) -> str:
+    from acquire.errors import InputError
+
+    name = " ".join(str(text).split())
+    if not name or not name.isprintable():
+        raise InputError(f"{option} needs a printable name, not {text!r}")
+    return name
+
+
+def _temperature(plan, text: str | None, interactive: bool) -> float | None:
+    from acquire.errors import InputError
+    from acquire.units import parse_temperature
+
+    source = plan.temperature.source
+    if source == "fixed":
+        if text is not None:
+            raise InputError(
+                "--temperature: the plan fixes the winding temperature at "
+                f"{plan.temperature.value:g} °C; leave the option out"
+            )
+        return plan.temperature.value
+    if source != "per-lot":
+        return None
+    if text is None and interactive:
+        text = input("winding temperature for this lot (e.g. 23C): ")
+    if text is None:
+        raise InputError("the plan takes the winding temperature per lot: give --temperature, e.g. 23C")
+    return parse_temperature(text)
+
+
+def run(args: argparse.Namespace) -> int:
+    from acquire.display import text_console
+    from acquire.production.measure import apply_settings
+    from acquire.production.outbox import Outbox, RecordKeeper, default_outbox_path
+    from acquire.production.plan_file import load_plan
+    from acquire.production.reference_guard import newest_for_fixture
+    from acquire.production.screen import StationScreen
+    from acquire.production.station import Station, StationContext
+    from acquire.store import open_store
+    from acquire.sweep import check_coverage
+    from acquire.sweep_setup import find_reference_set
+    from drivers.meter import ImpedanceMeter
+
+    plan = load_plan(args.plan)
+    lot, operator = _name(args.lot, "--lot"), _name(args.operator, "--operator")
+    station_name = _name(args.station or "", "--station")
+    override = _reason(args.use_stale_references)
+    interactive = sys.stdin.isatty()
+    temperature = _temperature(plan, args.temperature, interactive)
+    console = text_console()
+    outbox_path = args.outbox or default_outbox_path(args.store, station_name)
+    with open_store(args.store) as store, Outbox(outbox_path) as outbox:
+        keeper = RecordKeeper(store, outbox)
+        flushed = keeper.flush()
+        if flushed:
+            console.print(f"{flushed} units waiting in {outbox_path} were written to the store")
+
+        def reload() -> tuple[int | None, object]:
+            if args.reference:
+                return find_reference_set(store, args.reference)
+            return newest_for_fixture(store, plan.fixture)
+
+        references = reload()
+        if references[1] is not None:
+            check_coverage(_frequency_plan(plan), references[1])
+        with ImpedanceMeter.open(
+            args.resource, dialect=args.dialect, backend=args.backend
+        ) as meter:
+            apply_settings(meter, plan)
+            identity = meter.identify()
+            meter_id = store.record_meter(
+                identity.manufacturer, identity.model, identity.serial, identity.firmware,
+                dialect=meter.dialect.name,
+            )  # fmt: skip
+            context = StationContext(
+                plan=plan,
+                lot=lot,
+                operator=operator,
+                station=station_name,
+                meter_name=str(identity),
+                plan_id=store.record_plan(plan.text, plan.title),
+                meter_id=meter_id,
+                fixture_id=store.record_fixture(plan.fixture) if plan.fixture else None,
+                temperature=temperature,
+                override=override,
+            )
+            store.record_lot(lot)
+            screen = StationScreen(console, interactive=interactive, bell=not args.no_bell)
+            station = Station(
+                meter, context, keeper, screen, references, reload,
+                history=lambda serial: [u.outcome for u in store.unit_attempts(serial)],
+            )  # fmt: skip
+            final = station.run(interactive)
+        console.print(screen.summary(final))
+        if keeper.waiting:
+            console.print(
+                f"{keeper.waiting} units still wait in {outbox_path}: they are written the next "
+                "time the station starts with the store reachable",
+                soft_wrap=True,
+            )
+    return 2 if final.blocked and not final.tested else 0
+
+
+def _frequency_plan(plan):
+    from acquire.plan import FrequencyPlan
+
+    return FrequencyPlan(plan.frequencies)

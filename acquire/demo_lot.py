@@ -1,0 +1,117 @@
+"""The demo's production lot: a few dozen simulated coils through the station loop.
+
+Each serial gets a new unit drawn from the demo coil's production spread (the simulated meter's
+``SIMulate:UNIT:NEXT``), so some fall outside the shipped example plan's limits; one unit meets a
+meter fault, is recorded as "error" and is scanned again, as an operator would. The lot's yield
+and bin counts come back from the store at the end.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterator
+from typing import Any
+
+from rich.console import Console
+from rich.table import Table
+
+#: Units in the demo's lot, and the one that meets a meter fault (its position, from 1).
+LOT_SIZE, FAULTY_UNIT = 30, 17
+#: The demo lot's name and its serials' form (the example plan's pattern).
+LOT = "DEMO-LOT-1"
+
+
+def demo_serials(count: int = LOT_SIZE) -> Iterator[str]:
+    """EXAMPLE-0001, EXAMPLE-0002, ..."""
+    for i in range(1, count + 1):
+        yield f"EXAMPLE-{i:04d}"
+
+
+class LotScreen:
+    """The demo's station screen: the plain one-line-per-unit form, never asking for input."""
+
+    def __init__(self, console: Console) -> None:
+        from acquire.production.screen import StationScreen
+
+        self.inner = StationScreen(console, interactive=False, bell=False)
+
+    def show(self, status: Any) -> None:
+        self.inner.show(status)
+
+    def ring(self) -> None:
+        """The demo does not ring."""
+
+    def summary(self, status: Any) -> Any:
+        return self.inner.summary(status)
+
+
+def production_lot(run: Any) -> None:
+    """Run :data:`LOT_SIZE` simulated units through the station with the example plan."""
+    from acquire.production.measure import apply_settings
+    from acquire.production.outbox import Outbox, RecordKeeper, default_outbox_path
+    from acquire.production.plan_file import example_plan_path, load_plan
+    from acquire.production.station import Station, StationContext
+
+    if run.references is None or run.outcome is None or run.outcome.interrupted:
+        return
+    plan = load_plan(example_plan_path())
+    console: Console = run.console
+    console.print(
+        f"\n[bold]Production lot[/] {LOT}: {LOT_SIZE} simulated coils through the station with "
+        f"the example plan {plan.title} ({example_plan_path().name}; `acquire plan check` "
+        "shows it step by step)"
+    )
+    store = run.store
+    ident = run.identity
+    run.sim.insert(run.dut)
+    apply_settings(run.meter, plan)
+    context = StationContext(
+        plan=plan,
+        lot=LOT,
+        operator="demo",
+        station="demo-station",
+        meter_name=str(ident),
+        plan_id=store.record_plan(plan.text, plan.title),
+        meter_id=store.record_meter(
+            ident.manufacturer, ident.model, ident.serial, ident.firmware,
+            dialect=run.meter.dialect.name,
+        ),  # fmt: skip
+        fixture_id=store.record_fixture(plan.fixture) if plan.fixture else None,
+        temperature=plan.temperature.value,
+    )
+    screen = LotScreen(console)
+    with Outbox(default_outbox_path(run.store_url, context.station)) as outbox:
+        keeper = RecordKeeper(store, outbox)
+        station = Station(
+            run.meter, context, keeper, screen, (run.reference_id, run.references),
+            lambda: (run.reference_id, run.references),
+            history=lambda serial: [u.outcome for u in store.unit_attempts(serial)],
+        )  # fmt: skip
+        for n, serial in enumerate(demo_serials(), start=1):
+            if n == FAULTY_UNIT:
+                run.sim.inject("error", -350)
+            shown = station.test(serial)
+            if n == FAULTY_UNIT:
+                run.sim.clear_faults()
+                if shown is not None and shown.outcome == "error":
+                    console.print(f"(demo) the operator scans {serial} again to retry")
+                    station.test(serial)
+        console.print(screen.summary(station.status()))
+    lot_report(console, store)
+
+
+def lot_report(console: Console, store: Any) -> None:
+    """The lot's yield per serial and its bin counts, as the store counts them."""
+    y = store.lot_yield(LOT)
+    units = store.lot_units(LOT)
+    latest = units.sort_values(["serial", "attempt"]).groupby("serial").tail(1)
+    table = Table(title=f"lot {LOT} in the store", title_justify="left")
+    table.add_column("bin")
+    table.add_column("units", justify="right")
+    for name, count in latest["bin"].replace("", "(none: error)").value_counts().items():
+        table.add_row(str(name), str(count))
+    console.print(table)
+    console.print(
+        f"{y.serials} units, {y.attempts} attempts: first-pass yield "
+        f"{y.first_pass_yield:.1%}, final yield {y.final_yield:.1%}",
+        markup=False,
+    )

@@ -1,7 +1,8 @@
 """Store upgrades: a store at revision 0001 (made by the migration itself, or by the first
 release's own layout, rebuilt here) or at revision 0002 opens at the newest revision with every
-row and value kept and the new columns at their defaults; several stations upgrading at once do it once; a failed
-upgrade changes nothing; a revision this program does not know is refused. Both engines.
+row and value kept and the new columns at their defaults; several stations upgrading at once do
+it once; a failed upgrade changes nothing; a revision this program does not know is refused.
+Both engines.
 
 The example data are our own invention; NaN is stored as NULL and infinity as itself, as the
 store's schema module documents.

@@ -258,7 +258,13 @@ class RecordKeeper:
     ``save(unit)`` returns True when the unit is committed to the store, False when the store
     raised a StoreError (the unit waits, durable, in the outbox). Units reach the store in the
     order they were saved: while units wait, a new one queues behind them. Any other exception
-    from the store (a bug, an interrupt) propagates with the unit still safe in the outbox.
+    from the store (a bug, an interrupt) propagates with the unit still safe in the outbox. A
+    StoreError from the outbox itself (its disk full, its file unreadable) propagates from
+    ``save`` too: then the unit is *not* kept, and the station must stop and say so.
+
+    Each saved unit costs two local commits (put and removal) besides the store's own; a unit
+    the store keeps refusing (``last_error`` says why) holds back the ones behind it until it is
+    dealt with.
     """
 
     def __init__(self, store: UnitSink, outbox: Outbox) -> None:

@@ -1,7 +1,8 @@
 """Store upgrades: a store at revision 0001 (made by the migration itself, or by the first
-release's own layout, rebuilt here) opens at the newest revision with every row and value kept
-and the new columns at their defaults; several stations upgrading at once do it once; a failed
-upgrade changes nothing; a revision this program does not know is refused. Both engines.
+release's own layout, rebuilt here) or at revision 0002 opens at the newest revision with every
+row and value kept and the new columns at their defaults; several stations upgrading at once do
+it once; a failed upgrade changes nothing; a revision this program does not know is refused.
+Both engines.
 
 The example data are our own invention; NaN is stored as NULL and infinity as itself, as the
 store's schema module documents.
@@ -247,17 +248,23 @@ def _in_schema(conn, schema: str | None) -> None:
         conn.execute(text(f'CREATE SCHEMA IF NOT EXISTS "{schema}"'))
 
 
-def make_revision_1(url: str, schema: str | None) -> None:
-    """An empty store at revision 0001, made by the migration."""
+def make_revision(url: str, schema: str | None, revision: str) -> None:
+    """An empty store at ``revision``, made by the migrations."""
+
+    def work(conn) -> None:
+        _in_schema(conn, schema)
+        migrate_module.upgrade(conn, revision)
+
     db = _database(url, schema)
     try:
-        db.write("making a revision-1 store", lambda c: (_in_schema(c, schema), _upgrade_to_1(c)))
+        db.write(f"making a revision-{revision} store", work)
     finally:
         db.dispose()
 
 
-def _upgrade_to_1(conn) -> None:
-    migrate_module.upgrade(conn, "0001")
+def make_revision_1(url: str, schema: str | None) -> None:
+    """An empty store at revision 0001, made by the migration."""
+    make_revision(url, schema, "0001")
 
 
 def make_released(url: str, schema: str | None) -> None:
@@ -424,8 +431,9 @@ def place(request, tmp_path):
         yield found
 
 
-def check_example(store) -> None:
-    """The example, read through the store's API, equals what was put in."""
+def check_example(store, revision_2_values: bool = False) -> None:
+    """The example, read through the store's API, equals what was put in (with the values of
+    :data:`REVISION_2_VALUES` when ``revision_2_values``)."""
     refs = store.load_reference_set(1)
     assert np.array_equal(refs.frequency, REF_F)
     assert np.array_equal(refs.open, REF_OPEN, equal_nan=True)
@@ -443,8 +451,13 @@ def check_example(store) -> None:
     for name, want in (("raw", SWEEP_RAW), ("corrected", SWEEP_COR)):
         got = points[[f"{name}_r", f"{name}_x"]].to_numpy()
         assert np.array_equal(got, [(z.real, z.imag) for z in want], equal_nan=True), name
-    assert points.u_r.isna().all() and points.u_x.isna().all()
-    assert points["flags"].tolist() == [""] * 5
+    if revision_2_values:
+        assert np.array_equal(points.u_r, [0.001, 0.003, 0.005, NAN, NAN], equal_nan=True)
+        assert np.array_equal(points.u_x, [0.003] * 3 + [NAN] * 2, equal_nan=True)
+        assert points["flags"].tolist() == ["beyond-accuracy"] * 3 + [""] * 2
+    else:
+        assert points.u_r.isna().all() and points.u_x.isna().all()
+        assert points["flags"].tolist() == [""] * 5
     assert (died.status, died.recorded_status, died.points) == ("interrupted", "running", 2)
     for i, (serial, lot, attempt, outcome, bin_, values) in enumerate(UNITS):
         unit = store.load_unit(_attempt_id(i))
@@ -486,6 +499,15 @@ def check_new_columns(url: str, schema: str | None) -> None:
     assert _raw(url, schema, "SELECT version_num FROM alembic_version") == [(SCHEMA_REVISION,)]
     versions = _raw(url, schema, "SELECT version FROM schema_version ORDER BY version")
     assert versions == [(2,), (3,)]
+    check_production_columns(url, schema)
+
+
+def check_production_columns(url: str, schema: str | None) -> None:
+    """The columns of revision 0003 hold their defaults in every row stored before it."""
+    sql = "SELECT DISTINCT uncertainty, tolerance_low, tolerance_high FROM measurements"
+    assert _raw(url, schema, sql) == [(None, None, None)]
+    sql = "SELECT DISTINCT reference_override, temperature FROM units"
+    assert _raw(url, schema, sql) == [("", None)]
 
 
 @pytest.mark.parametrize("origin", ["revision 1", "first release"])
@@ -523,6 +545,35 @@ def test_new_columns_have_their_defaults_after_an_upgrade(place):
     fill(url, schema)
     open_store(url, schema=schema).close()
     check_new_columns(url, schema)
+
+
+#: Values put in the columns revision 0002 added, so that an upgrade from it must keep them.
+REVISION_2_VALUES = [
+    "UPDATE sweep_points SET u_r = 0.002 * idx + 0.001, u_x = 0.003, flags = 'beyond-accuracy' "
+    "WHERE sweep_id = 1 AND idx < 3",
+    "UPDATE reference_points SET open_u = 1.5, short_u = 0.0004 WHERE idx = 1",
+    "UPDATE reference_sets SET repeats = 4, grid_spacing = 'log'",
+]
+
+
+def test_upgrade_from_revision_2_keeps_every_row_and_value(place):
+    url, schema = place
+    make_revision(url, schema, "0002")
+    fill(url, schema)
+    for sql in REVISION_2_VALUES:
+        _change(url, schema, sql)
+    before = dump(url, schema)
+    assert before["reference_sets"][0]["repeats"] == 4
+    with open_store(url, schema=schema) as store:
+        assert (store.created, store.migrated_from) == (False, "0002")
+        check_example(store, revision_2_values=True)
+    _same_rows(before, dump(url, schema))
+    check_production_columns(url, schema)
+    assert _raw(url, schema, "SELECT version_num FROM alembic_version") == [(SCHEMA_REVISION,)]
+    points = _raw(url, schema, "SELECT u_r, u_x, flags FROM sweep_points ORDER BY sweep_id, idx")
+    assert points[:3] == [(0.001, 0.003, "beyond-accuracy"), (0.003, 0.003, "beyond-accuracy"),
+                          (0.005, 0.003, "beyond-accuracy")]  # fmt: skip
+    assert points[3:] == [(None, None, "")] * (len(points) - 3)
 
 
 def _layout(url: str, schema: str | None) -> dict:

@@ -2,10 +2,12 @@
 
 ``save_unit`` writes a unit and all its measurements in one transaction, keyed by its attempt
 id: a second write of the same attempt (a retry after a lost connection, a replay after a
-restart) stores nothing and returns False. ``save_units`` does the same for many units at once,
-a batch per transaction (for imports). Both use SQLAlchemy Core's own bulk path: a list of rows
-given to one ``execute`` becomes multi-row INSERTs ("insertmanyvalues") on PostgreSQL and the
-driver's ``executemany`` on SQLite.
+restart) stores nothing and returns False. A measurement's uncertainty and tolerance limits and a
+unit's references override and temperature (schema revision 0003) go with it; an unknown
+uncertainty (None or NaN) is stored as NULL and reads back as None. ``save_units`` does the
+same for many units at once, a batch per transaction (for imports). Both use SQLAlchemy Core's
+own bulk path: a list of rows given to one ``execute`` becomes multi-row INSERTs
+("insertmanyvalues") on PostgreSQL and the driver's ``executemany`` on SQLite.
 """
 
 from __future__ import annotations
@@ -48,6 +50,8 @@ _UNIT_FIELDS = (
     "bin",
     "notes",
     "attempt_id",
+    "reference_override",
+    "temperature",
 )
 
 
@@ -82,6 +86,9 @@ def _measurement_rows(unit_id: int, unit: UnitRecord, lot_id: int | None) -> lis
                 "verdict": m.verdict,
                 "lot_id": lot_id,
                 "value_special": special,
+                "uncertainty": finite_or_none(m.uncertainty),
+                "tolerance_low": m.tolerance_low,
+                "tolerance_high": m.tolerance_high,
             }
         )
     return rows
@@ -184,7 +191,16 @@ def _records(conn: Connection, where: Any) -> list[UnitRecord]:
             value = float("nan") if value is None else value
             f = None if m.frequency == DC else m.frequency
             record = MeasurementRecord(
-                m.parameter, value, m.si_unit, f, m.low_limit, m.high_limit, m.verdict
+                m.parameter,
+                value,
+                m.si_unit,
+                f,
+                m.low_limit,
+                m.high_limit,
+                m.verdict,
+                uncertainty=m.uncertainty,
+                tolerance_low=m.tolerance_low,
+                tolerance_high=m.tolerance_high,
             )
             found[m.unit_id].append(record)
     return [

@@ -27,6 +27,11 @@ PASS = "pass"
 WORD_LIMITS = {"parameter": 100, "unit": 20, "verdict": 40}
 
 
+#: The fields of a measurement that hold numbers (floats or None).
+_FLOAT_FIELDS: tuple[str, ...] = ("value", "frequency", "low", "high", "uncertainty")
+_FLOAT_FIELDS += ("tolerance_low", "tolerance_high")
+
+
 def new_attempt_id() -> str:
     """A fresh attempt id (a random UUID, canonical text form)."""
     return str(uuid.uuid4())
@@ -42,7 +47,13 @@ class MeasurementRecord:
     """One judged value of a unit: ``parameter`` (``"Ls"``, ``"Q"``, ...) at ``frequency`` Hz
     (None for DC values such as a winding's DC resistance; 0 Hz means the same and becomes None),
     ``value`` in the SI unit ``unit`` (NaN for an invalid reading, infinite for an overrange one),
-    the limits actually applied (after any guard band; None for an open side) and the verdict.
+    the acceptance limits actually applied ``low`` and ``high`` (after any guard band; None for an
+    open side) and the verdict.
+
+    ``uncertainty`` is the expanded uncertainty U (k = 2) of ``value`` in the same unit, None when
+    unknown (NaN is taken as unknown and kept as None, so a stored record reads back equal; an
+    infinite U is kept). ``tolerance_low`` and ``tolerance_high`` are the test plan's tolerance
+    limits before any guard band (None for an open side; NaN is refused).
     """
 
     parameter: str
@@ -52,14 +63,25 @@ class MeasurementRecord:
     low: float | None = None
     high: float | None = None
     verdict: str = ""
+    uncertainty: float | None = None
+    tolerance_low: float | None = None
+    tolerance_high: float | None = None
 
     def __post_init__(self) -> None:
-        for name in ("value", "frequency", "low", "high"):
+        for name in _FLOAT_FIELDS:
             v = getattr(self, name)
             if v is not None:
                 object.__setattr__(self, name, float(v))
         if self.frequency == 0.0:
             object.__setattr__(self, "frequency", None)
+        if self.uncertainty is not None and math.isnan(self.uncertainty):
+            object.__setattr__(self, "uncertainty", None)
+        for name in ("tolerance_low", "tolerance_high"):
+            v = getattr(self, name)
+            if v is not None and math.isnan(v):
+                raise StoreError(
+                    f"a measurement's {name} is NaN: give the plan's limit (None: open side)"
+                )
         for name, longest in WORD_LIMITS.items():
             if len(getattr(self, name)) > longest:
                 raise StoreError(
@@ -86,6 +108,10 @@ class UnitRecord:
     retest, ...); ``attempt_id`` identifies this attempt uniquely across every station;
     ``outcome`` is the unit's verdict (``"pass"``, ``"fail"``, ...) and ``bin`` the bin it was
     sorted into. ``lot`` is a lot name ("" for none); the lot is recorded when first used.
+    ``reference_override`` is "" or the reason the operator gave for measuring with references
+    the station would have refused (too old, failed a check); ``temperature`` is the winding
+    temperature (°C) the DC resistance was corrected from, None when none was used (NaN is taken
+    as None).
     """
 
     serial: str
@@ -104,6 +130,8 @@ class UnitRecord:
     finished_at: datetime | None = None
     notes: str = ""
     attempt_id: str = field(default_factory=new_attempt_id)
+    reference_override: str = ""
+    temperature: float | None = None
 
     def __post_init__(self) -> None:
         try:
@@ -118,6 +146,11 @@ class UnitRecord:
         _aware("finished_at", self.finished_at)
         if self.attempt < 1:
             raise StoreError(f"attempt numbers start at 1, not {self.attempt}")
+        if self.temperature is not None:
+            t = float(self.temperature)
+            if math.isinf(t):
+                raise StoreError(f"a unit's temperature must be finite (°C), not {t}")
+            object.__setattr__(self, "temperature", None if math.isnan(t) else t)
 
 
 @dataclass(frozen=True)

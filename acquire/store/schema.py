@@ -26,10 +26,19 @@ when it was read once; ``reference_sets.repeats`` says how many readings were av
 ``grid_spacing`` how the capture's frequencies were laid out (``log``, ``linear``, ``list``, or ''
 when not known), so a set with missing grid points can be told from an irregular list.
 
+A measurement's ``low_limit`` and ``high_limit`` are the acceptance limits actually applied (the
+tolerance limits narrowed by any guard band), ``tolerance_low`` and ``tolerance_high`` the test
+plan's tolerance limits (NULL for an open side), and ``uncertainty`` the expanded uncertainty
+(k = 2, in the value's SI unit) of the value, NULL when unknown (an infinite one is stored as
+infinity). A unit's ``temperature`` is the winding temperature (°C) its DC resistance was
+corrected from, NULL when none was used; ``reference_override`` is "" or the reason the operator
+gave for measuring with references the station would otherwise have refused.
+
 Revisions: the layout is changed only by Alembic migrations (:mod:`acquire.store.migrations`);
 this module describes the newest revision, :data:`SCHEMA_REVISION`. Revision 0001 is the layout
 of the first released program (which marked its stores with ``schema_version`` 2); 0002 adds the
-uncertainty and flag columns above. ``schema_version`` is kept only so that releases from before
+uncertainty and flag columns above; 0003 the production columns (uncertainty, tolerance limits,
+references override, temperature). ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
 
@@ -56,8 +65,8 @@ from sqlalchemy import (
     text,
 )
 
-#: The newest schema revision (the Alembic revision id of ``migrations/versions/0002_*.py``).
-SCHEMA_REVISION = "0002"
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0003_*.py``).
+SCHEMA_REVISION = "0003"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
 
@@ -251,6 +260,8 @@ def build_metadata() -> MetaData:
         _text("notes"),
         Column("saved_at", UtcDateTime, nullable=False),
         _ref("lot_id", "lots"),
+        Column("reference_override", Text, nullable=False, default="", server_default=""),
+        _real("temperature"),
         Index("ix_units_lot_id", "lot_id"),
     )
     Table(
@@ -267,6 +278,9 @@ def build_metadata() -> MetaData:
         _text("verdict"),
         _ref("lot_id", "lots"),
         Column("value_special", String(4), nullable=False, default=""),
+        _real("uncertainty"),
+        _real("tolerance_low"),
+        _real("tolerance_high"),
         Index(
             "ix_measurements_lot_summary",
             "lot_id",

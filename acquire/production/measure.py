@@ -94,7 +94,8 @@ def measure_unit(
     ``references`` is the station's :class:`acquire.compensation.ReferenceSet` (None: raw
     readings). ``temperature`` is the winding temperature (°C) for the DC resistance; None takes
     the plan's fixed temperature. A plan that checks ``Rdc`` with no temperature known raises
-    :class:`~acquire.errors.InputError` before anything is measured.
+    :class:`~acquire.errors.InputError`, and a reference set whose grid does not cover the
+    plan's frequencies :class:`~acquire.errors.CompensationError`, before anything is measured.
     """
     t = _temperature(plan, temperature)
     timed = _TimedMeter(meter)

@@ -44,6 +44,7 @@ OPERATIONS: dict[str, str] = {
     "set_speed": "set the measurement speed: {speed} (a word from choices)",
     "set_averaging": "set how many readings are averaged per point: {averaging}",
     "dc_resistance": "measure the DC resistance in ohm",
+    "next_unit": "simulator only: put the next production unit (drawn from its spread) in",
 }
 REQUIRED = ("identify", "next_error")
 OPTIONAL = ("dc_resistance", "set_level", "set_speed", "set_averaging", "reset", "binary")

@@ -1,13 +1,11 @@
 """The generic impedance-meter driver: one class, command strings from a dialect.
 
-:class:`ImpedanceMeter` knows the abstract operations of an LCR meter (identify, configure,
-measure one frequency, sweep a list of frequencies, DC resistance, read the error queue) and
-takes every command string, reply meaning and limit from a :class:`~drivers.dialect.Dialect`.
-Each point or list chunk is sent as one compound message, so a sweep pays one round trip per
-point (or per chunk) and no TCP delayed-ACK stall; every reading is turned into complex Z in
-ohm. Frequencies and settings outside the dialect's limits are refused before anything is sent;
-a setting the meter refuses is reported from its error queue; a dropped connection or a missing
-reply is retried after a reconnect (see :mod:`drivers.session`).
+:class:`ImpedanceMeter` knows an LCR meter's abstract operations (identify, configure, measure,
+list sweep, DC resistance, error queue) and takes every command, reply meaning and limit from a
+:class:`~drivers.dialect.Dialect`. Each point or list chunk is one compound message (one round
+trip, no TCP delayed-ACK stall); readings become complex Z in ohm. Values outside the dialect's
+limits are refused before sending; settings the meter refuses are reported from its error queue;
+a dropped connection or missing reply is retried after a reconnect (see :mod:`drivers.session`).
 """
 
 from __future__ import annotations
@@ -364,6 +362,11 @@ class ImpedanceMeter:
         return self._session.call(
             "DC resistance", lambda: scpi.parse_number(self._io.guarded(op, timeout)), op.idempotent
         )
+
+    def next_unit(self) -> None:
+        """The next production unit in (simulated meter only: drawn from the DUT's spread)."""
+        op, ack = map(self._dialect.operation, ("next_unit", "wait"))
+        self._session.call("next unit", lambda: self._io.run([(op, {}), (ack, {})]), op.idempotent)
 
     def errors(self) -> list[ErrorEntry]:
         """Read and empty the meter's error queue (oldest first); nothing is raised."""

@@ -72,7 +72,10 @@ def production_lot(run: Any) -> None:
         meter_name=str(ident),
         plan_id=store.record_plan(plan.text, plan.title),
         meter_id=store.record_meter(
-            ident.manufacturer, ident.model, ident.serial, ident.firmware,
+            ident.manufacturer,
+            ident.model,
+            ident.serial,
+            ident.firmware,
             dialect=run.meter.dialect.name,
         ),  # fmt: skip
         fixture_id=store.record_fixture(plan.fixture) if plan.fixture else None,

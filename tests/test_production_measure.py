@@ -30,6 +30,7 @@ from acquire.errors import InputError
 from acquire.impedance import quantities
 from acquire.plan import FrequencyPlan
 from acquire.production import dc_resistance as dc
+from acquire.production.conformance import combined_standard
 from acquire.production.measure import apply_settings, measure_unit
 from acquire.production.plan import Check, Limit, MeterSettings, Temperature, TestPlan
 from drivers.dialect_file import load_dialect
@@ -268,8 +269,8 @@ def test_combined_standard_uncertainty_worked_by_hand():
     readings = [5.01, 5.02, 5.03]
     mean, s = dc.mean_and_deviation(readings)
     assert mean == pytest.approx(5.02) and s == pytest.approx(np.std(readings, ddof=1))
-    assert dc.combined_standard(s, 3, 0.03) == pytest.approx(0.0182574, rel=1e-5)
-    assert dc.combined_standard(None, 1, 0.03) == pytest.approx(0.03 / math.sqrt(3))
+    assert combined_standard(s, 3, 0.03) == pytest.approx(0.0182574, rel=1e-5)
+    assert combined_standard(None, 1, 0.03) == pytest.approx(0.03 / math.sqrt(3))
     assert dc.mean_and_deviation([5.0]) == (5.0, None)
 
 

@@ -17,6 +17,8 @@ from typing import Any
 
 import numpy as np
 import pytest
+from acquire.production.plan_file import example_plan_path, load_plan
+from bench_support import PutsEachStandardIn
 
 from acquire.capture import capture_references
 from acquire.errors import StoreError
@@ -28,11 +30,9 @@ from acquire.production.plan import (
     RetestPolicy,
     SerialPolicy,
 )
-from acquire.production.plan_file import example_plan_path, load_plan
 from acquire.production.station import Station, StationContext
 from acquire.store import open_store, plan_hash
 from drivers.meter import ImpedanceMeter
-from tests.bench_support import PutsEachStandardIn
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -100,9 +100,10 @@ def make_station(bench, store, meter, plan=None, refs=None, keeper=None, screen=
 
 @pytest.fixture
 def rig(bench):
-    with open_store(bench["url"]) as store, ImpedanceMeter.open(
-        bench["sim"].resource, dialect="simulated"
-    ) as meter:
+    with (
+        open_store(bench["url"]) as store,
+        ImpedanceMeter.open(bench["sim"].resource, dialect="simulated") as meter,
+    ):
         yield store, meter
 
 
@@ -128,7 +129,8 @@ def test_acceptance_limits_recorded_are_the_tolerance_moved_in_by_u(bench, rig):
             assert m.high == pytest.approx(m.tolerance_high - m.uncertainty, rel=1e-12)
         inside = (m.low is None or m.value >= m.low) and (m.high is None or m.value <= m.high)
         assert m.verdict == ("pass" if inside else "fail")
-    assert unit.outcome == ("pass" if all(m.verdict == "pass" for m in unit.measurements) else "fail")
+    passed = all(m.verdict == "pass" for m in unit.measurements)
+    assert unit.outcome == ("pass" if passed else "fail")
 
 
 def test_bins_first_satisfied_wins_and_rejects_name_their_checks(bench, rig):
@@ -248,10 +250,11 @@ def test_stale_references_stop_the_station_until_an_override_is_given(bench, rig
     assert len(store.lot_units(lot)) == 0
     other = dataclasses.replace(bench["refs"], fixture="other-jig")
     assert "other-jig" in make_station(bench, store, meter, refs=other, lot=lot).blocked
-    go_on = make_station(bench, store, meter, refs=old, lot=lot, override="line down, fixture unchanged")
+    reason = "line down, fixture unchanged"
+    go_on = make_station(bench, store, meter, refs=old, lot=lot, override=reason)
     assert go_on.blocked == ""
     go_on.test("EXAMPLE-7002")
-    assert store.unit_attempts("EXAMPLE-7002")[0].reference_override == "line down, fixture unchanged"
+    assert store.unit_attempts("EXAMPLE-7002")[0].reference_override == reason
 
 
 class FlakyStore:
@@ -270,7 +273,9 @@ class FlakyStore:
         return getattr(self.store, name)
 
 
-def test_units_wait_in_the_outbox_while_the_store_is_away_and_are_written_once(bench, rig, tmp_path):
+def test_units_wait_in_the_outbox_while_the_store_is_away_and_are_written_once(
+    bench, rig, tmp_path
+):
     store, meter = rig
     flaky = FlakyStore(store)
     lot = unique_lot()

@@ -77,7 +77,9 @@ def _reason(text: str | None) -> str:
         return ""
     reason = " ".join(text.split())
     if not reason:
-        raise InputError('--use-stale-references needs a reason, e.g. "fixture unchanged, line down"')
+        raise InputError(
+            '--use-stale-references needs a reason, e.g. "fixture unchanged, line down"'
+        )
     return reason
 
 
@@ -107,7 +109,9 @@ def _temperature(plan, text: str | None, interactive: bool) -> float | None:
     if text is None and interactive:
         text = input("winding temperature for this lot (e.g. 23C): ")
     if text is None:
-        raise InputError("the plan takes the winding temperature per lot: give --temperature, e.g. 23C")
+        raise InputError(
+            "the plan takes the winding temperature per lot: give --temperature, e.g. 23C"
+        )
     return parse_temperature(text)
 
 

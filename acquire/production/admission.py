@@ -105,9 +105,11 @@ class SerialBook:
                 "serial seen before; check for a duplicate label"
             )  # fmt: skip
         if latest in (FAIL, CONDITIONAL_FAIL) and not retest.on_fail:
-            return Admission(serial, 0, f"{serial} failed and the plan allows no retest after a fail")
+            refusal = f"{serial} failed and the plan allows no retest after a fail"
+            return Admission(serial, 0, refusal)
         if latest == ERROR and not retest.on_error:
-            return Admission(serial, 0, f"{serial} ended in a meter error and the plan allows no retest after one")
+            refusal = f"{serial} ended in a meter error and the plan allows no retest after one"
+            return Admission(serial, 0, refusal)
         if attempt > retest.attempts:
             return Admission(
                 serial, 0, f"{serial} has had {len(done)} attempts, the most the plan allows "

@@ -37,21 +37,6 @@ COPPER_ALPHA = 0.00393
 COVERAGE_FACTOR = 2.0
 
 
-def combined_standard(type_a_s: float | None, n: int, type_b_half_width: float | None) -> float:
-    """Standard uncertainty of a mean of ``n`` readings: ``√((s/√n)² + (a/√3)²)``.
-
-    ``type_a_s`` is the experimental standard deviation of one reading (None: no Type A),
-    ``type_b_half_width`` the bound of a rectangular distribution (None: no Type B); JCGM
-    100:2008 4.2.3 and 4.3.7. (The same as the judgement's ``combined_standard``; written here
-    while that module is being built, to be unified with it.)
-    """
-    if n < 1:
-        raise InputError(f"n must be 1 or more readings, not {n}")
-    a = 0.0 if type_a_s is None else float(type_a_s) / math.sqrt(n)
-    b = 0.0 if type_b_half_width is None else float(type_b_half_width) / math.sqrt(3.0)
-    return math.hypot(a, b)
-
-
 def mean_and_deviation(readings: Sequence[float]) -> tuple[float, float | None]:
     """The mean of the readings and their experimental standard deviation (None for one).
 

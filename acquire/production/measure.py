@@ -35,6 +35,7 @@ from acquire.errors import InputError
 from acquire.impedance import quantities
 from acquire.plan import FrequencyPlan
 from acquire.production import dc_resistance as dc
+from acquire.production.conformance import combined_standard
 from acquire.production.plan import DC_RESISTANCE, TestPlan
 from acquire.sweep import run_sweep
 from acquire.sweep_uncertainty import PointUncertainty
@@ -201,7 +202,7 @@ def _reading_u(mean: float, s: float | None, n: int, model: PointUncertainty) ->
         if acc is None:
             return math.nan
         s = float(repeatability(0.0, mean, acc, model.level, model.speed, model.averaging or 1))
-    return dc.combined_standard(s, n, b)
+    return combined_standard(s, n, b)
 
 
 def _leads(references: Any, model: PointUncertainty) -> tuple[float, float]:

@@ -1,4 +1,4 @@
-"""Whether a station may judge units with a reference set: its age, its meter, its fixture, its check.
+"""Whether a station may judge units with a reference set: its age, meter, fixture and check.
 
 A reference set past the plan's maximum age, captured on another meter or fixture, or failing its
 own check stops the station until new references are captured; an operator's override (a reason,

@@ -315,4 +315,3 @@ class Station:
         except KeyboardInterrupt:
             self.message = "session ended with Ctrl-C"
         return self.status()
-

@@ -172,31 +172,64 @@ def test_a_character_without_a_glyph_is_refused():
 # --- the screen ---------------------------------------------------------------------------------
 
 
+def drawings(word):
+    """Every way the font may draw ``word``: one band doubled or single, one band per word."""
+    out = [banner(word, 2), banner(word, 1)]
+    for scale in (2, 1):
+        out.append([row for w in word.split() for row in banner(w, scale)])
+    return out
+
+
 @pytest.mark.parametrize("outcome", [PASS, CONDITIONAL_PASS, CONDITIONAL_FAIL, FAIL, ERROR])
 @pytest.mark.parametrize("width", [80, 60])
 def test_each_outcome_is_drawn_large_in_its_colour(outcome, width):
     s = status(current=unit(serial="EXAMPLE-0007", attempt=2, outcome=outcome, bin="2%"))
     text = shown(render(s, width), width)
-    drawn = fit(WORD[outcome], width)
-    assert drawn is not None and len(drawn) >= HEIGHT
-    lines = text.splitlines()
-    for row in drawn:
-        assert any(row.rstrip() in line for line in lines), row
+    found = [d for d in drawings(WORD[outcome]) if all(row.rstrip() in text for row in d)]
+    assert found, f"{WORD[outcome]} is not drawn in large letters"
+    drawn = found[0]
     assert "EXAMPLE-0007" in text and "attempt 2" in text and "bin 2%" in text
 
     raw = shown(render(s, width), width, colour=True)
-    for row in drawn[:HEIGHT]:
+    for row in drawn:
         i = raw.index(row.rstrip())
         opened = raw.rfind(ESC + "[", 0, i)
         sgr = raw[opened + 2 : raw.index("m", opened)].split(";")
         assert "1" in sgr and SGR[EXPECTED_COLOUR[outcome]] in sgr, (outcome, sgr)
 
 
-def test_the_serial_stands_beside_the_verdict_when_there_is_room():
-    text = shown(render(status(current=unit(serial="EXAMPLE-0031", outcome=FAIL)), 80))
-    first_row = banner("FAIL", 2)[0]
-    beside = [ln for ln in text.splitlines() if first_row in ln]
-    assert beside and "EXAMPLE-0031" in beside[0]
+@pytest.mark.parametrize(
+    "width, outcomes",
+    [(80, [PASS, CONDITIONAL_PASS, CONDITIONAL_FAIL, FAIL, ERROR]), (60, [PASS, FAIL, ERROR])],
+)
+def test_the_serial_stands_beside_the_verdict(width, outcomes):
+    for outcome in outcomes:
+        s = status(current=unit(serial="EXAMPLE-0031", outcome=outcome))
+        lines = shown(render(s, width), width).splitlines()
+        first = next(k for k, ln in enumerate(lines) if INK in ln)
+        assert "EXAMPLE-0031" in lines[first], (width, outcome)
+        assert INK in lines[first + HEIGHT - 1] and INK not in lines[first + HEIGHT]
+
+
+def test_at_80_columns_pass_fail_and_error_are_drawn_with_doubled_cells():
+    for word in ("PASS", "FAIL", "ERROR"):
+        text = shown(render(status(current=unit(outcome=word.lower())), 80))
+        assert all(row.rstrip() in text for row in banner(word, 2)), word
+
+
+def test_the_last_units_give_way_so_the_screen_fits_its_height():
+    last = tuple(unit(serial=f"EXAMPLE-{90 - k:04d}", m=-k) for k in range(8))
+    s = status(current=unit(outcome=FAIL, failing=["Ls low", "Q low"]), last=last)
+    tall = shown(render(s, 80), 80).splitlines()
+    assert sum("EXAMPLE-00" in ln for ln in tall) == 1 + 8
+    for height in (24, 20, 12):
+        lines = shown(render(s, 80, height), 80).splitlines()
+        assert len(lines) <= max(height, len(tall) - 3 - 8), height  # title, head, rule, rows
+        assert banner("FAIL", 2)[0].rstrip() in lines[2]  # the verdict stays on top
+    # 23 lines: 14 above the table, its title, head and rule, then 6 of the 8 units
+    lines = shown(render(s, 80, 23), 80).splitlines()
+    assert len(lines) == 23 and sum("EXAMPLE-00" in ln for ln in lines) == 1 + 6
+    assert "EXAMPLE-0090" in lines[-6] and "EXAMPLE-0085" in lines[-1]
 
 
 def test_counts_yield_bins_and_outcomes_are_shown():
@@ -335,8 +368,13 @@ def test_any_names_fit_and_show(names, width):
     text = shown(render(s, width), width)
     for row in text.splitlines():
         assert cells(row) <= width
-    squeezed = re.sub(r"\s", "", text)
-    assert re.sub(r"\s", "", serial) in squeezed
+    # between the first line of ink and the failing line: the large letters and, beside or
+    # below them, the serial (folded at the width, never cut)
+    lines = text.splitlines()
+    first = next(k for k, ln in enumerate(lines) if INK in ln)
+    end = next(k for k, ln in enumerate(lines) if ln.startswith("✗"))
+    squeeze = re.compile(rf"[\s{INK}]")
+    assert squeeze.sub("", serial) in squeeze.sub("", "".join(lines[first:end]))
 
 
 # --- the lot summary ----------------------------------------------------------------------------
@@ -385,11 +423,18 @@ def test_non_interactive_prints_one_plain_line_per_unit():
             recorded=False,
         ),
     )
+    third = status(
+        current=unit(
+            serial="EXAMPLE-0003", outcome=ERROR, bin="", m=2, failing=["meter fault: overload"]
+        )
+    )
     screen.show(first)
     screen.show(first)  # the same again: nothing new
     screen.show(second)
+    screen.show(third)
     lines = console.file.getvalue().splitlines()
-    assert len(lines) == 2
+    assert len(lines) == 3
+    assert lines[2] == "12:02:00  EXAMPLE-0003  attempt 1  error  error: meter fault: overload"
     assert lines[0] == "12:00:00  EXAMPLE-0001  attempt 1  pass  bin 1%"
     assert lines[1].startswith("12:01:00  EXAMPLE-0002  attempt 2  fail  bin reject  failing: ")
     assert "338.2 µH below 339.5 µH (low limit); Q yyy" in lines[1]
@@ -447,4 +492,4 @@ def test_ask_on_a_terminal_shows_the_prompt_as_text(monkeypatch, typed):
     screen = StationScreen(console, interactive=True)
     assert screen.ask("[bold]serial[/]: ") == "EXAMPLE-0001"
     assert screen.ask("[/]") is None
-    assert console.file.getvalue().startswith("[bold]serial[/]: ")
+    assert console.file.getvalue() == "[bold]serial[/]: [/]\n"  # a new line after the end

@@ -94,17 +94,17 @@ def banner_width(text: str, scale: int = 1, gap: int = 1) -> int:
     return scale * (sum(len(GLYPHS[c][0]) for c in word) + gap * (len(word) - 1))
 
 
-def fit(text: str, width: int) -> list[str] | None:
+def fit(text: str, width: int, split: bool = True) -> list[str] | None:
     """The largest drawing of ``text`` no wider than ``width``, as lines; None when none fits.
 
-    Tried in turn: doubled cells on one band, single cells on one band, then one band per word
-    (doubled, then single), bands separated by a blank line.
+    Tried in turn: doubled cells on one band, single cells on one band, then (with ``split``)
+    one band per word (doubled, then single), bands separated by a blank line.
     """
     words = text.split()
     for scale in (2, 1):
         if banner_width(text, scale) <= width:
             return banner(text, scale)
-    if len(words) > 1:
+    if split and len(words) > 1:
         for scale in (2, 1):
             if all(banner_width(w, scale) <= width for w in words):
                 lines: list[str] = []

@@ -24,6 +24,7 @@ from rich.console import Console, Group, RenderableType
 from rich.table import Table
 from rich.text import Text
 
+from acquire.display import lines_taken
 from acquire.production.big_letters import fit
 from acquire.production.plan import CONDITIONAL_FAIL, CONDITIONAL_PASS, ERROR, FAIL, PASS
 
@@ -124,8 +125,11 @@ def clock(at: datetime) -> str:
     return at.astimezone().strftime("%H:%M:%S")
 
 
-def render(status: StationStatus, width: int = 80) -> RenderableType:
-    """The station screen for a terminal ``width`` cells wide (never wider)."""
+def render(status: StationStatus, width: int = 80, height: int | None = None) -> RenderableType:
+    """The station screen for a terminal ``width`` cells wide (never wider).
+
+    With ``height``, the table of the last units gives up rows (and goes, if need be) so that
+    the screen fits that many lines and the verdict never scrolls off the top."""
     parts: list[RenderableType] = [_header(status)]
     if status.blocked:
         parts.append(
@@ -139,27 +143,26 @@ def render(status: StationStatus, width: int = 80) -> RenderableType:
         parts.append(Text(status.message, style=WARNING))
     parts.append(Text(""))
     parts.append(_counts(status))
-    if status.last:
-        parts.append(_last_table(status.last[:LAST_SHOWN]))
+    last = status.last[:LAST_SHOWN]
+    if height is not None and last:
+        room = height - sum(lines_taken(part, width) for part in parts)
+        while last and lines_taken(_last_table(last), width) > room:
+            last = last[:-1]
+    if last:
+        parts.append(_last_table(last))
     return Group(*parts)
 
 
-def _header(status: StationStatus) -> Text:
+def _header(s: StationStatus) -> Text:
     text = Text(overflow="fold")
-    for k, (label, value) in enumerate(
-        (
-            ("station", status.station),
-            ("operator", status.operator),
-            ("lot", status.lot),
-            ("plan", status.plan),
-        )
-    ):
+    named = {"station": s.station, "operator": s.operator, "lot": s.lot, "plan": s.plan}
+    for k, (label, value) in enumerate(named.items()):
         text.append(" · " if k else "", style="dim")
         text.append(f"{label} ", style="dim")
         text.append(value or "—", style="bold")
-    if status.override:
+    if s.override:
         text.append("\nreferences used despite a block; reason given: ", style="bold red")
-        text.append(status.override, style="red")
+        text.append(s.override, style="red")
     return text
 
 
@@ -177,20 +180,22 @@ def _verdict(unit: ShownUnit | None, width: int) -> RenderableType:
     details.append(f"\n{clock(unit.at)}", style="dim")
     if not unit.recorded:
         details.append("\nwaiting in outbox", style=WARNING)
-    drawn = fit(word, width)
-    if drawn is None:
-        letters = Text(word, style=style)
-        letters_width = len(word)
-    else:
-        letters = Text("\n".join(drawn), style=style, no_wrap=True, overflow="crop")
-        letters_width = max(len(line) for line in drawn)
-    if width - letters_width - 2 >= DETAILS_WIDTH:
+    # the serial belongs beside the verdict: the largest one-band drawing that leaves it room,
+    # else the largest drawing at all with the serial below it
+    drawn = fit(word, width - DETAILS_WIDTH - 2, split=False)
+    if drawn is not None:
         grid = Table.grid(padding=(0, 2))
-        grid.add_column(width=letters_width, no_wrap=True)
+        grid.add_column(width=len(drawn[0]), no_wrap=True)
         grid.add_column(overflow="fold")
-        grid.add_row(letters, details)
+        grid.add_row(_letters(drawn, style), details)
         return grid
+    drawn = fit(word, width)
+    letters = Text(word, style=style) if drawn is None else _letters(drawn, style)
     return Group(letters, details)
+
+
+def _letters(drawn: list[str], style: str) -> Text:
+    return Text("\n".join(drawn), style=style, no_wrap=True, overflow="crop")
 
 
 def _failing(lines: tuple[str, ...]) -> Text:
@@ -273,7 +278,7 @@ def plain_line(unit: ShownUnit) -> str:
     if unit.bin:
         line += f"  bin {unit.bin}"
     if unit.failing:
-        line += "  failing: " + "; ".join(unit.failing)
+        line += ("  error: " if unit.outcome == ERROR else "  failing: ") + "; ".join(unit.failing)
     if not unit.recorded:
         line += "  (waiting in outbox)"
     return line
@@ -281,12 +286,8 @@ def plain_line(unit: ShownUnit) -> str:
 
 def summary(status: StationStatus) -> RenderableType:
     """The lot's totals at the end: tested, passed, yields, bins and outcomes with shares."""
-    head = Text("Lot ", style="bold")
-    head.append(status.lot or "—", style="bold")
-    head.append(" finished at station ")
-    head.append(status.station or "—")
-    head.append(", plan ")
-    head.append(status.plan or "—")
+    head = Text.assemble(("Lot ", "bold"), (status.lot or "—", "bold"), " finished at station ")
+    head.append_text(Text.assemble(status.station or "—", ", plan ", status.plan or "—"))
     table = Table(box=box.SIMPLE_HEAD, show_edge=False, padding=(0, 1), pad_edge=False)
     table.add_column("", overflow="fold")
     table.add_column("units", justify="right", no_wrap=True)
@@ -346,7 +347,8 @@ class StationScreen:
         """Draw ``status`` (interactive) or print what is new in it as plain lines."""
         if self.interactive:
             self.console.clear()
-            self.console.print(render(status, self.console.width))
+            # one line stays free for the prompt below
+            self.console.print(render(status, self.console.width, self.console.height - 1))
         else:
             if status == self._last_status:
                 return
@@ -378,6 +380,7 @@ class StationScreen:
             try:
                 return self.console.input(Text(prompt))
             except EOFError:
+                self.console.line()  # what follows starts below the prompt
                 return None
         line = sys.stdin.readline()
         if not line:

@@ -66,7 +66,11 @@ def run(args: argparse.Namespace) -> int:
     frequencies = len(plan.frequencies)
     dc = " and DC" if plan.needs_dc_resistance else ""
     print(
-        f"plan is valid: {len(plan.checks)} checks at {frequencies} "
-        f"frequenc{'y' if frequencies == 1 else 'ies'}{dc}, {len(plan.bins)} bins"
+        f"plan is valid: {_count(len(plan.checks), 'check')} at "
+        f"{_count(frequencies, 'frequency', 'frequencies')}{dc}, {_count(len(plan.bins), 'bin')}"
     )
     return 0
+
+
+def _count(n: int, one: str, many: str | None = None) -> str:
+    return f"{n} {one if n == 1 else (many or one + 's')}"

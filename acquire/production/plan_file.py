@@ -215,6 +215,8 @@ class _Reader(TableReader):
         self, row: Mapping[str, Any], frequency: float | None, path: str, allowed: tuple[str, ...]
     ) -> Check:
         self.known(row, ("quantity", *allowed), path)
+        if "quantity" not in row:
+            raise self.fail(path, "the check has no quantity", 'add quantity = "Ls" (or Rs, Q ...)')
         quantity = self.text(row, "quantity", path)
         dc = frequency is None
         known = (DC_RESISTANCE,) if dc else KEYS

@@ -273,9 +273,11 @@ class TableReader:
 
 def age_seconds(raw: str | int | float) -> float:
     """Seconds of a reference age: a number of hours, or ``"8h"``, ``"30min"``, ``"90s"``."""
-    match = _AGE.match(str(raw)) if isinstance(raw, str) else None
-    if match is None:
+    if not isinstance(raw, str):
         return parse_quantity(raw) * 3600.0
+    match = _AGE.match(raw)
+    if match is None:
+        raise InputError(f"{raw!r} is not an age in h, min or s")
     number, unit = match.groups()
     return parse_quantity(number) * _AGE_SCALE[unit]
 

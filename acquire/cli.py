@@ -27,6 +27,7 @@ COMMANDS: dict[str, str] = {
     "reference": "reference",
     "predict": "predict",
     "fit": "fit",
+    "plan": "plan",
     "station": "station",
 }
 

@@ -107,7 +107,8 @@ def lot_report(console: Console, store: Any) -> None:
     y = store.lot_yield(LOT)
     units = store.lot_units(LOT)
     latest = units.sort_values(["serial", "attempt"]).groupby("serial").tail(1)
-    table = Table(title=f"lot {LOT} in the store", title_justify="left")
+    console.print(f"\nlot {LOT} as the store counts it (each serial's latest attempt):")
+    table = Table()
     table.add_column("bin")
     table.add_column("units", justify="right")
     for name, count in latest["bin"].replace("", "(none: error)").value_counts().items():

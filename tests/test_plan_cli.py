@@ -97,7 +97,7 @@ def test_plan_check_json_gives_the_plan_in_si_units(tmp_path):
 
 
 def test_the_example_plan_checks_and_prints_what_the_station_does():
-    done = acquire("plan", "check", "examples/coil-plan.toml")
+    done = acquire("plan", "check", "acquire/examples/coil-plan.toml")
     assert done.returncode == 0, done.stderr
     out = done.stdout
     assert "one list sweep of 3 frequencies: 1.000 kHz, 10.00 kHz, 100.0 kHz" in out
@@ -137,7 +137,7 @@ def test_a_missing_plan_file_is_one_line_and_exit_code_2(tmp_path):
 def test_plan_example_prints_the_example_file(tmp_path):
     done = acquire("plan", "example", cwd=tmp_path)
     assert done.returncode == 0, done.stderr
-    assert done.stdout == (ROOT / "examples" / "coil-plan.toml").read_text(encoding="utf-8")
+    assert done.stdout == (ROOT / "acquire" / "examples" / "coil-plan.toml").read_text(encoding="utf-8")
     assert tomllib.loads(done.stdout)["plan"]["name"]
     copy = tmp_path / "mine.toml"
     copy.write_text(done.stdout, encoding="utf-8")
@@ -162,7 +162,7 @@ def test_the_example_plan_ships_in_a_wheel_and_is_found_from_it(tmp_path):
     assert built.returncode == 0, built.stderr
     (wheel,) = tmp_path.glob("coil_acquire-*.whl")
     names = zipfile.ZipFile(wheel).namelist()
-    assert {"examples/coil-plan.toml", "examples/README.md", "examples/__init__.py"} <= set(names)
+    assert {"acquire/examples/coil-plan.toml", "acquire/examples/README.md"} <= set(names)
     target = tmp_path / "installed"
     zipfile.ZipFile(wheel).extractall(target)
     probe = (

@@ -166,7 +166,7 @@ def test_the_example_plan_loads_with_about_ten_checks_and_its_bins():
     assert [b.name for b in plan.bins] == ["1%", "2%"] and plan.otherwise_bin == "3%"
     assert plan.serial.pattern == "EXAMPLE-[0-9]{4}" and plan.serial.seen_before == "refuse"
     assert (plan.retest.attempts, plan.retest.on_fail, plan.retest.on_error) == (3, True, True)
-    assert plan.fixture == "demo fixture"
+    assert plan.fixture == "bench-leads"
     assert plan.decision.guarded and plan.decision.factor == 1.0 and plan.decision.binary
     rdc = next(c for c in plan.checks if c.quantity == DC_RESISTANCE)
     # 4.95 Ω ± 6 %: 4.653 Ω to 5.247 Ω (by hand).

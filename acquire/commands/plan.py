@@ -5,7 +5,7 @@ references may be, the meter settings, the frequencies (all measured in one list
 DC resistance step, each with the quantities judged and their limits (nominal ± tolerance, or a
 minimum and/or maximum; Ls and Lp are the series and parallel inductance, Rs and Rp the
 resistances, Q = |X|/R the quality factor, D = 1/Q, Rdc the winding's DC resistance corrected to
-20 °C), the decision rule, the bins, and the serial and retest policies. examples/README.md
+20 °C), the decision rule, the bins, and the serial and retest policies. acquire/examples/README.md
 explains every key; `acquire plan example` prints the example plan to copy.
 
 The decision rule follows ILAC-G8:09/2019: simple acceptance judges the value against the

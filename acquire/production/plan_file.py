@@ -1,6 +1,6 @@
 """Reading a test plan from its TOML file, refusing a malformed one with a message that says where.
 
-The layout is our own (``examples/coil-plan.toml`` shows every key, ``examples/README.md``
+The layout is our own (``acquire/examples/coil-plan.toml`` shows every key, ``acquire/examples/README.md``
 explains them): ``[plan]``, ``[references]``, ``[meter]``, ``[temperature]``, ``[decision]``,
 ``[serial]``, ``[retest]``, ``[[step]]`` tables with their ``[[step.check]]``, ``[[bin]]``
 tables with their ``[[bin.check]]`` and ``[bins]``. Every quantity is text with its unit and an
@@ -76,10 +76,10 @@ _TOML_PLACE = re.compile(r"\s*\(at (?:line (\d+), column (\d+)|end of document)\
 
 
 def example_plan_path() -> Path:
-    """The example plan shipped with the tool (``examples/coil-plan.toml``)."""
+    """The example plan shipped with the tool (``acquire/examples/coil-plan.toml``)."""
     from importlib.resources import files
 
-    return Path(str(files("examples").joinpath("coil-plan.toml")))
+    return Path(str(files("acquire").joinpath("examples", "coil-plan.toml")))
 
 
 def load_plan(path: str | Path) -> TestPlan:
@@ -120,7 +120,7 @@ def _toml_message(message: str, text: str, source: str) -> str:
     else:
         where = f"line {max(len(text.splitlines()), 1)}"
         reason += " (at the end of the file)"
-    return f"{source}: {where}: {reason}; fix the TOML syntax (see examples/README.md)"
+    return f"{source}: {where}: {reason}; fix the TOML syntax (see acquire/examples/README.md)"
 
 
 class _Reader(TableReader):

@@ -211,7 +211,7 @@ class Station:
         self.tally.add(serial, judgement.outcome, judgement.bin)
         failing = tuple(j.describe() for j in judgement.failing)
         if measured.error:
-            failing = (f"meter fault: {measured.error}; scan the serial again to retry",)
+            failing = (f"{measured.error}; scan the serial again to retry",)
         shown = ShownUnit(
             serial=serial,
             attempt=admission.attempt,
@@ -280,7 +280,7 @@ class Station:
             fixture_id=c.fixture_id,
             started_at=started,
             finished_at=utc_now(),
-            notes=f"meter fault: {measured.error}" if measured.error else "",
+            notes=measured.error,
             attempt_id=attempt_id,
             reference_override=override,
             temperature=measured.temperature,

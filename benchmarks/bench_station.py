@@ -23,14 +23,14 @@ import time
 from pathlib import Path
 from typing import Any
 
-from acquire.production.plan_file import parse_plan
-from acquire.production.screen import StationScreen
 from rich.console import Console
 
 from acquire.capture import capture_references
 from acquire.plan import log_plan
 from acquire.production.measure import apply_settings
 from acquire.production.outbox import Outbox, RecordKeeper
+from acquire.production.plan_file import parse_plan
+from acquire.production.screen import StationScreen
 from acquire.production.station import Station, StationContext
 from acquire.store import open_store
 from drivers.meter import ImpedanceMeter

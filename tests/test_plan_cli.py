@@ -137,7 +137,8 @@ def test_a_missing_plan_file_is_one_line_and_exit_code_2(tmp_path):
 def test_plan_example_prints_the_example_file(tmp_path):
     done = acquire("plan", "example", cwd=tmp_path)
     assert done.returncode == 0, done.stderr
-    assert done.stdout == (ROOT / "acquire" / "examples" / "coil-plan.toml").read_text(encoding="utf-8")
+    example = ROOT / "acquire" / "examples" / "coil-plan.toml"
+    assert done.stdout == example.read_text(encoding="utf-8")
     assert tomllib.loads(done.stdout)["plan"]["name"]
     copy = tmp_path / "mine.toml"
     copy.write_text(done.stdout, encoding="utf-8")

@@ -17,7 +17,6 @@ from typing import Any
 
 import numpy as np
 import pytest
-from acquire.production.plan_file import example_plan_path, load_plan
 from bench_support import PutsEachStandardIn
 
 from acquire.capture import capture_references
@@ -30,6 +29,7 @@ from acquire.production.plan import (
     RetestPolicy,
     SerialPolicy,
 )
+from acquire.production.plan_file import example_plan_path, load_plan
 from acquire.production.station import Station, StationContext
 from acquire.store import open_store, plan_hash
 from drivers.meter import ImpedanceMeter

@@ -177,7 +177,15 @@ def run(args: argparse.Namespace) -> int:
                 meter, context, keeper, screen, references, reload,
                 history=lambda serial: [u.outcome for u in store.unit_attempts(serial)],
             )  # fmt: skip
+            earlier = store.lot_units(lot)
+            earlier = earlier[earlier.station == station_name]
+            if station.resume(earlier.itertuples()):
+                station.message = (
+                    f"lot {lot} goes on: {len(earlier)} attempts already recorded at this station"
+                )
             final = station.run(interactive)
+        if interactive:
+            console.print()  # the summary starts below the prompt line it ended on
         console.print(screen.summary(final))
         if keeper.waiting:
             console.print(

@@ -1,11 +1,11 @@
 """Reading a test plan from its TOML file, refusing a malformed one with a message that says where.
 
-The layout is our own (``acquire/examples/coil-plan.toml`` shows every key, ``acquire/examples/README.md``
-explains them): ``[plan]``, ``[references]``, ``[meter]``, ``[temperature]``, ``[decision]``,
-``[serial]``, ``[retest]``, ``[[step]]`` tables with their ``[[step.check]]``, ``[[bin]]``
-tables with their ``[[bin.check]]`` and ``[bins]``. Every quantity is text with its unit and an
-optional SI prefix (``"344uH"``, ``"4.95ohm"``, ``"10kHz"``, ``"3%"``), read with
-:mod:`acquire.units`; a plain number is taken in SI units.
+The layout is our own (``acquire/examples/coil-plan.toml`` shows every key,
+``acquire/examples/README.md`` explains them): ``[plan]``, ``[references]``, ``[meter]``,
+``[temperature]``, ``[decision]``, ``[serial]``, ``[retest]``, ``[[step]]`` tables with their
+``[[step.check]]``, ``[[bin]]`` tables with their ``[[bin.check]]`` and ``[bins]``. Every
+quantity is text with its unit and an optional SI prefix (``"344uH"``, ``"4.95ohm"``,
+``"10kHz"``, ``"3%"``), read with :mod:`acquire.units`; a plain number is taken in SI units.
 
 A malformed plan raises :class:`PlanError`, one line:
 ``"<file>: <key path or line N>: <reason>; <what to do>"``. Key paths count tables from 1:

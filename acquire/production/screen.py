@@ -2,14 +2,11 @@
 large letters, why it failed, the lot's counts, and the last units.
 
 :func:`render` is a pure function of a :class:`StationStatus`. :class:`StationScreen` shows it:
-on a terminal it clears the screen and draws the whole view after each unit (not a live view,
-since the operator types or scans the next serial at a prompt between units); with serials
-piped on standard input it prints one plain line per unit instead. At the end of a lot,
-:meth:`StationScreen.summary` gives the lot's totals.
-
-Everything a person typed (station, operator, lot, plan, serials, bins, failing lines,
-messages) is shown as :class:`rich.text.Text`: a serial such as ``[red]x`` shows as written,
-never as a style.
+on a terminal it clears the screen and draws the whole view after each unit (the operator
+scans the next serial at a prompt between units); with serials piped on standard input it
+prints one plain line per unit. :meth:`StationScreen.summary` gives the lot's totals. What a
+person typed (names, serials, bins, messages) is shown as :class:`rich.text.Text`: a serial
+such as ``[red]x`` shows as written, never as a style.
 """
 
 from __future__ import annotations
@@ -28,8 +25,11 @@ from acquire.display import lines_taken
 from acquire.production.big_letters import fit
 from acquire.production.plan import CONDITIONAL_FAIL, CONDITIONAL_PASS, ERROR, FAIL, PASS
 
+#: The outcome shown for a scanned line the station refused (not measured, nothing recorded).
+NOT_TESTED = "not tested"
 #: The word drawn in large letters for each outcome.
 WORDS = {
+    NOT_TESTED: "NOT TESTED",
     PASS: "PASS",
     CONDITIONAL_PASS: "COND PASS",
     CONDITIONAL_FAIL: "COND FAIL",
@@ -38,6 +38,7 @@ WORDS = {
 }
 #: The colour of each outcome: green to ship, red to reject, yellow to look again.
 COLOURS = {
+    NOT_TESTED: "bold yellow",
     PASS: "bold green",
     CONDITIONAL_PASS: "bold yellow",
     CONDITIONAL_FAIL: "bold red",
@@ -173,7 +174,10 @@ def _verdict(unit: ShownUnit | None, width: int) -> RenderableType:
     style = outcome_style(unit.outcome)
     details = Text(overflow="fold")
     details.append(unit.serial, style="bold reverse")
-    details.append(f"\nattempt {unit.attempt}")
+    if unit.outcome == NOT_TESTED:
+        details.append("\nnot measured\nnothing recorded")
+    else:
+        details.append(f"\nattempt {unit.attempt}")
     if unit.bin:
         details.append("\nbin ")
         details.append(unit.bin, style="bold")
@@ -274,6 +278,8 @@ def _last_table(units: tuple[ShownUnit, ...]) -> Table:
 
 def plain_line(unit: ShownUnit) -> str:
     """One line for a log or pipe: time, serial, attempt, outcome, bin, failing checks."""
+    if unit.outcome == NOT_TESTED:
+        return f"{clock(unit.at)}  {unit.serial}  not tested"
     line = f"{clock(unit.at)}  {unit.serial}  attempt {unit.attempt}  {unit.outcome}"
     if unit.bin:
         line += f"  bin {unit.bin}"

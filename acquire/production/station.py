@@ -24,7 +24,7 @@ from acquire.production.judgement import UnitJudgement, error_judgement, judge_u
 from acquire.production.measure import UnitMeasurement, measure_unit
 from acquire.production.plan import CONDITIONAL_PASS, PASS, REJECT_BIN, TestPlan
 from acquire.production.reference_guard import CAPTURE_HINT, reference_blocks
-from acquire.production.screen import ShownUnit, StationStatus
+from acquire.production.screen import NOT_TESTED, ShownUnit, StationStatus
 from acquire.store.records import MeasurementRecord, UnitRecord, new_attempt_id
 from acquire.store.schema import utc_now
 
@@ -148,7 +148,7 @@ class Station:
         found = self.blocks
         if not found or self.context.override:
             return ""
-        return f"stopped: {'; '.join(found)}. {CAPTURE_HINT}"
+        return f"{'; '.join(found)}. {CAPTURE_HINT[0].upper()}{CAPTURE_HINT[1:]}"
 
     def status(self) -> StationStatus:
         c, t = self.context, self.tally
@@ -176,6 +176,16 @@ class Station:
     def show(self) -> None:
         self.screen.show(self.status())
 
+    def resume(self, attempts: Any) -> int:
+        """Count the lot's attempts already stored from this station (rows with ``serial``,
+        ``outcome`` and ``bin``, oldest first), so a restarted session goes on with the lot's
+        counts; returns how many were counted."""
+        n = 0
+        for row in attempts:
+            self.tally.add(str(row.serial), str(row.outcome), str(row.bin))
+            n += 1
+        return n
+
     def reload_references(self) -> None:
         """Take the newest reference set of the plan's fixture from the store."""
         self.reference_id, self.references = self._reload()
@@ -193,9 +203,9 @@ class Station:
         self.message = ""
         admission = self.book.admit(serial)
         if not admission.admitted:
-            return self._refuse(admission.refusal)
+            return self._refuse(serial, admission.refusal)
         if self.blocked:
-            return self._refuse(f"{serial} not measured: the station is {self.blocked}")
+            return self._refuse(serial, f"{serial} not measured: the station is stopped (above)")
         started = utc_now()
         attempt_id = new_attempt_id()
         measured = self._measure_unit(serial)
@@ -231,9 +241,11 @@ class Station:
             self.screen.ring()
         return shown
 
-    def _refuse(self, reason: str) -> None:
+    def _refuse(self, serial: str, reason: str) -> None:
+        """Show a scanned line as not tested, in large letters, with the reason."""
         self.tally.refused += 1
         self.message = reason
+        self.current = ShownUnit(serial, 0, NOT_TESTED, "", (), True, utc_now())
         self.show()
         self.screen.ring()
         return None
@@ -299,7 +311,7 @@ class Station:
             while True:
                 blocked = self.blocked
                 if blocked and not interactive:
-                    self.message = f"session ended: the station is {blocked}"
+                    self.message = f"session ended: the station is stopped: {blocked}"
                     self.show()
                     break
                 prompt = "press Enter when new references are captured" if blocked else "serial"

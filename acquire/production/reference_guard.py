@@ -26,11 +26,13 @@ def reference_blocks(
     fixture: str,
     max_age: float | None,
     now: datetime | None = None,
+    problems: list[str] | None = None,
 ) -> list[str]:
     """Why ``refs`` may not be used for production units now (empty when it may).
 
     ``max_age`` in seconds (None: no limit); ``meter_name`` the meter's identity as the reference
-    set records it; ``fixture`` the plan's fixture ('' accepts any).
+    set records it; ``fixture`` the plan's fixture ('' accepts any). ``problems`` are the set's
+    own check errors when the caller has them already (:func:`check_problems`).
     """
     if refs is None:
         where = f" for fixture {fixture!r}" if fixture else ""
@@ -53,12 +55,18 @@ def reference_blocks(
             f"the reference set was captured on fixture {refs.fixture or '(not named)'!r}, "
             f"the plan uses {fixture!r}"
         )
-    out += [
+    return out + (check_problems(refs) if problems is None else problems)
+
+
+def check_problems(refs: Any) -> list[str]:
+    """The reference set's own check errors, one line each (none for no set)."""
+    if refs is None:
+        return []
+    return [
         f"reference {f.standard}: {' '.join(f.message.split())}"
         for f in refs.check()
         if f.severity == "error"
     ]
-    return out
 
 
 def newest_for_fixture(store: Any, fixture: str) -> tuple[int | None, Any]:

@@ -146,7 +146,7 @@ def render(status: StationStatus, width: int = 80, height: int | None = None) ->
     parts.append(_counts(status))
     last = status.last[:LAST_SHOWN]
     if height is not None and last:
-        room = height - sum(lines_taken(part, width) for part in parts)
+        room = height - lines_taken(Group(*parts), width)
         while last and lines_taken(_last_table(last), width) > room:
             last = last[:-1]
     if last:
@@ -221,10 +221,8 @@ def _counted(counts: dict[str, int], styles: dict[str, str] | None = None) -> Te
     return text
 
 
-def _counts(status: StationStatus) -> Table:
-    grid = Table.grid(padding=(0, 1))
-    grid.add_column(style="dim", no_wrap=True)
-    grid.add_column(overflow="fold")
+def _counts(status: StationStatus) -> Text:
+    """The lot's counts as labelled lines (plain text: drawn after every unit, so kept cheap)."""
     totals = Text(f"{status.tested}", style="bold")
     totals.append(" tested · ", style="")
     totals.append(f"{status.passed}", style="bold")
@@ -232,13 +230,18 @@ def _counts(status: StationStatus) -> Table:
     totals.append(percent(status.yield_), style="bold")
     totals.append(" · first pass ")
     totals.append(f"{status.first_pass}", style="bold")
-    grid.add_row("lot", totals)
+    rows = [("lot", totals)]
     if status.bins:
-        grid.add_row("bins", _counted(status.bins))
+        rows.append(("bins", _counted(status.bins)))
     if status.outcomes:
-        grid.add_row("outcomes", _counted(status.outcomes, COLOURS))
-    grid.add_row("outbox", _outbox(status.waiting))
-    return grid
+        rows.append(("outcomes", _counted(status.outcomes, COLOURS)))
+    rows.append(("outbox", _outbox(status.waiting)))
+    label = max(len(name) for name, _ in rows) + 1
+    text = Text(overflow="fold")
+    for k, (name, value) in enumerate(rows):
+        text.append(("\n" if k else "") + name.ljust(label), style="dim")
+        text.append_text(value)
+    return text
 
 
 def _outbox(waiting: int) -> Text:
@@ -248,32 +251,33 @@ def _outbox(waiting: int) -> Text:
     return Text("empty: every unit is in the store", style="dim")
 
 
-def _last_table(units: tuple[ShownUnit, ...]) -> Table:
-    table = Table(
-        title="last units (newest first)",
-        title_justify="left",
-        title_style="dim",
-        box=box.SIMPLE_HEAD,
-        show_edge=False,
-        padding=(0, 1),
-        pad_edge=False,
+#: Columns of the last units' table: heading and width (the serial and bin take what they need).
+_COLUMNS = (("time", 8), ("serial", 12), ("try", 3), ("outcome", 9), ("bin", 6))
+
+
+def _last_table(units: tuple[ShownUnit, ...]) -> Text:
+    """The last units, newest first, as aligned plain-text columns under a title and a rule."""
+    serial_w = max([_COLUMNS[1][1]] + [len(u.serial) for u in units])
+    bin_w = max([_COLUMNS[4][1]] + [len(u.bin) for u in units])
+    widths = (8, serial_w, 3, 9, bin_w)
+    text = Text(overflow="fold")
+    text.append("last units (newest first)\n", style="dim")
+    head = "  ".join(
+        name.rjust(w) if name == "try" else name.ljust(w)
+        for (name, _), w in zip(_COLUMNS, widths, strict=True)
     )
-    table.add_column("time", no_wrap=True)
-    table.add_column("serial", overflow="fold", min_width=12)
-    table.add_column("try", justify="right", no_wrap=True)
-    table.add_column("outcome", no_wrap=True)
-    table.add_column("bin", overflow="fold", min_width=6)
-    table.add_column("", no_wrap=True)
+    text.append(head.rstrip() + "\n", style="bold")
+    text.append("─" * (sum(widths) + 2 * len(widths)), style="dim")
     for u in units:
-        table.add_row(
-            Text(clock(u.at)),
-            Text(u.serial),
-            Text(str(u.attempt)),
-            Text(SHORT.get(u.outcome, u.outcome), style=outcome_style(u.outcome)),
-            Text(u.bin),
-            Text("" if u.recorded else "outbox", style=WARNING),
-        )
-    return table
+        text.append("\n" + clock(u.at).ljust(8) + "  ")
+        text.append(u.serial.ljust(serial_w))
+        text.append("  " + str(u.attempt).rjust(3) + "  ")
+        text.append(SHORT.get(u.outcome, u.outcome).ljust(9), style=outcome_style(u.outcome))
+        text.append("  ")
+        text.append(u.bin.ljust(bin_w))
+        if not u.recorded:
+            text.append("  outbox", style=WARNING)
+    return text
 
 
 def plain_line(unit: ShownUnit) -> str:

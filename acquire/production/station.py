@@ -23,7 +23,7 @@ from acquire.production.admission import SerialBook, clean_serial
 from acquire.production.judgement import UnitJudgement, error_judgement, judge_unit
 from acquire.production.measure import UnitMeasurement, measure_unit
 from acquire.production.plan import CONDITIONAL_PASS, PASS, REJECT_BIN, TestPlan
-from acquire.production.reference_guard import CAPTURE_HINT, reference_blocks
+from acquire.production.reference_guard import CAPTURE_HINT, check_problems, reference_blocks
 from acquire.production.screen import NOT_TESTED, ShownUnit, StationStatus
 from acquire.store.records import MeasurementRecord, UnitRecord, new_attempt_id
 from acquire.store.schema import utc_now
@@ -131,6 +131,7 @@ class Station:
         self.message = ""
         self.meter_seconds = 0.0
         self._in_fixture = ""
+        self._checked: tuple[Any, list[str]] = (object(), [])
 
     # -- state ---------------------------------------------------------------------------------
 
@@ -138,9 +139,12 @@ class Station:
     def blocks(self) -> list[str]:
         """Why the references stop the station now (empty when they do not)."""
         c = self.context
+        if self._checked[0] is not self.references:
+            self._checked = (self.references, check_problems(self.references))
         return reference_blocks(
-            self.references, c.meter_name, c.plan.fixture, c.plan.max_reference_age
-        )
+            self.references, c.meter_name, c.plan.fixture, c.plan.max_reference_age,
+            problems=self._checked[1],
+        )  # fmt: skip
 
     @property
     def blocked(self) -> str:
@@ -203,9 +207,11 @@ class Station:
         self.message = ""
         admission = self.book.admit(serial)
         if not admission.admitted:
-            return self._refuse(serial, admission.refusal)
+            self._refuse(serial, admission.refusal)
+            return None
         if self.blocked:
-            return self._refuse(serial, f"{serial} not measured: the station is stopped (above)")
+            self._refuse(serial, f"{serial} not measured: the station is stopped (above)")
+            return None
         started = utc_now()
         attempt_id = new_attempt_id()
         measured = self._measure_unit(serial)

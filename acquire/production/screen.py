@@ -251,23 +251,14 @@ def _outbox(waiting: int) -> Text:
     return Text("empty: every unit is in the store", style="dim")
 
 
-#: Columns of the last units' table: heading and width (the serial and bin take what they need).
-_COLUMNS = (("time", 8), ("serial", 12), ("try", 3), ("outcome", 9), ("bin", 6))
-
-
 def _last_table(units: tuple[ShownUnit, ...]) -> Text:
     """The last units, newest first, as aligned plain-text columns under a title and a rule."""
-    serial_w = max([_COLUMNS[1][1]] + [len(u.serial) for u in units])
-    bin_w = max([_COLUMNS[4][1]] + [len(u.bin) for u in units])
-    widths = (8, serial_w, 3, 9, bin_w)
+    serial_w = max([12] + [len(u.serial) for u in units])
+    bin_w = max([6] + [len(u.bin) for u in units])
     text = Text(overflow="fold")
     text.append("last units (newest first)\n", style="dim")
-    head = "  ".join(
-        name.rjust(w) if name == "try" else name.ljust(w)
-        for (name, _), w in zip(_COLUMNS, widths, strict=True)
-    )
-    text.append(head.rstrip() + "\n", style="bold")
-    text.append("─" * (sum(widths) + 2 * len(widths)), style="dim")
+    text.append(f"{'time':8}  {'serial':{serial_w}}  try  {'outcome':9}  bin\n", style="bold")
+    text.append("─" * (8 + serial_w + 3 + 9 + bin_w + 10), style="dim")
     for u in units:
         text.append("\n" + clock(u.at).ljust(8) + "  ")
         text.append(u.serial.ljust(serial_w))

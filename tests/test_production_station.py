@@ -347,3 +347,70 @@ def test_the_command_records_exactly_the_units_scanned_on_standard_input(bench, 
                 assert m.low is not None or m.high is not None
     assert "EXAMPLE-1100" in proc.stdout and "garbage" in proc.stdout
     assert "yield" in proc.stdout.lower()
+
+
+class FaultyChanger:
+    """The meter, but putting the next unit in fails as a dropped connection would."""
+
+    def __init__(self, meter) -> None:
+        self._meter = meter
+
+    def next_unit(self) -> None:
+        from drivers.errors import InstrumentError
+
+        raise InstrumentError("the connection to the meter was lost; check the cable")
+
+    def __getattr__(self, name):
+        return getattr(self._meter, name)
+
+
+def test_a_fault_while_changing_units_is_an_error_outcome_too(bench, rig):
+    store, meter = rig
+    station = make_station(bench, store, FaultyChanger(meter), lot=unique_lot())
+    shown = station.test("EXAMPLE-6101")
+    assert shown.outcome == "error" and "connection to the meter was lost" in shown.failing[0]
+    assert store.unit_attempts("EXAMPLE-6101")[0].outcome == "error"
+
+
+def test_references_that_do_not_cover_the_plan_stop_the_station(bench, rig):
+    store, meter = rig
+    plan = bench["plan"]
+    beyond = Check("Ls", 5e6, Limit(None, 1.0), "H")  # the references stop at 1 MHz
+    wide = dataclasses.replace(plan, checks=plan.checks + (beyond,))
+    station = make_station(bench, store, meter, plan=wide, lot=unique_lot())
+    assert "covers" in station.blocked and "1.000 MHz" in station.blocked
+    assert station.test("EXAMPLE-6201") is None
+
+
+def test_a_plan_of_dc_resistance_alone_measures_no_sweep(bench, rig):
+    """Rdc at 20 °C of the demo coil: 14.62 m of 0.2546 mm annealed copper, ρ = 1.7241e-8 Ω·m
+    (IEC 60028), R = ρ·l/A = 4.95 Ω (the profile's comment), within the unit's spread."""
+    store, meter = rig
+    plan = bench["plan"]
+    rdc = next(c for c in plan.checks if c.quantity == "Rdc")
+    dc_only = dataclasses.replace(plan, checks=(rdc,), bins=())
+    station = make_station(bench, store, meter, plan=dc_only, lot=unique_lot())
+    station.test("EXAMPLE-6301")
+    (m,) = store.unit_attempts("EXAMPLE-6301")[0].measurements
+    area = np.pi * (0.2546e-3 / 2) ** 2
+    assert m.parameter == "Rdc" and m.frequency is None
+    assert m.value == pytest.approx(1.7241e-8 * 14.62 / area, rel=0.08)  # 4 sigma of 2 % spread
+
+
+def test_undecodable_piped_lines_are_refused_serials_not_a_crash(bench, tmp_path):
+    sim = bench["sim"]
+    url = f"sqlite:///{tmp_path / 'bytes.db'}"
+    with open_store(url) as store:
+        store.save_reference_set(bench["refs"], name="refs")
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    proc = subprocess.run(
+        [sys.executable, "-m", "acquire", "station", "--resource", sim.resource, "--store", url,
+         "--plan", str(example_plan_path()), "--lot", "L-B", "--operator", "ana",
+         "--station", "s", "--no-bell"],
+        input=b"EXAMPLE-\xff\xfe01\nEXAMPLE-6401\n", capture_output=True, timeout=120, env=env,
+        cwd=tmp_path,
+    )  # fmt: skip
+    assert proc.returncode == 0, proc.stderr.decode(errors="replace")
+    assert b"not tested" in proc.stdout and b"EXAMPLE-6401  attempt 1" in proc.stdout
+    with open_store(url) as store:
+        assert list(store.lot_units("L-B").serial) == ["EXAMPLE-6401"]

@@ -124,7 +124,6 @@ def run(args: argparse.Namespace) -> int:
     from acquire.production.screen import StationScreen
     from acquire.production.station import Station, StationContext
     from acquire.store import open_store
-    from acquire.sweep import check_coverage
     from acquire.sweep_setup import find_reference_set
     from drivers.meter import ImpedanceMeter
 
@@ -133,6 +132,8 @@ def run(args: argparse.Namespace) -> int:
     station_name = _name(args.station or "", "--station")
     override = _reason(args.use_stale_references)
     interactive = sys.stdin.isatty()
+    if not interactive and hasattr(sys.stdin, "reconfigure"):
+        sys.stdin.reconfigure(errors="replace")  # an undecodable line is a refused serial
     temperature = _temperature(plan, args.temperature, interactive)
     console = text_console()
     outbox_path = args.outbox or default_outbox_path(args.store, station_name)
@@ -148,8 +149,6 @@ def run(args: argparse.Namespace) -> int:
             return newest_for_fixture(store, plan.fixture)
 
         references = reload()
-        if references[1] is not None:
-            check_coverage(_frequency_plan(plan), references[1])
         with ImpedanceMeter.open(
             args.resource, dialect=args.dialect, backend=args.backend
         ) as meter:
@@ -194,9 +193,3 @@ def run(args: argparse.Namespace) -> int:
                 soft_wrap=True,
             )
     return 2 if final.blocked and not final.tested else 0
-
-
-def _frequency_plan(plan):
-    from acquire.plan import FrequencyPlan
-
-    return FrequencyPlan(plan.frequencies)

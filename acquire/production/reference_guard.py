@@ -58,15 +58,26 @@ def reference_blocks(
     return out + (check_problems(refs) if problems is None else problems)
 
 
-def check_problems(refs: Any) -> list[str]:
-    """The reference set's own check errors, one line each (none for no set)."""
+def check_problems(refs: Any, frequencies: Any = None) -> list[str]:
+    """The reference set's own check errors, one line each (none for no set), and whether its
+    grid covers ``frequencies`` (Hz; the plan's), since nothing is extrapolated."""
     if refs is None:
         return []
-    return [
+    out = [
         f"reference {f.standard}: {' '.join(f.message.split())}"
         for f in refs.check()
         if f.severity == "error"
     ]
+    if frequencies is not None and len(frequencies):
+        from acquire.errors import CompensationError
+        from acquire.plan import FrequencyPlan
+        from acquire.sweep import check_coverage
+
+        try:
+            check_coverage(FrequencyPlan(frequencies), refs)
+        except CompensationError as exc:
+            out.append(str(exc))
+    return out
 
 
 def newest_for_fixture(store: Any, fixture: str) -> tuple[int | None, Any]:

@@ -19,6 +19,8 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
+
 from acquire.production.admission import SerialBook, clean_serial
 from acquire.production.judgement import UnitJudgement, error_judgement, judge_unit
 from acquire.production.measure import UnitMeasurement, measure_unit
@@ -27,6 +29,7 @@ from acquire.production.reference_guard import CAPTURE_HINT, check_problems, ref
 from acquire.production.screen import NOT_TESTED, ShownUnit, StationStatus
 from acquire.store.records import MeasurementRecord, UnitRecord, new_attempt_id
 from acquire.store.schema import utc_now
+from drivers.errors import InstrumentError
 
 #: How many recent units the screen lists.
 SHOWN_UNITS = 8
@@ -74,6 +77,12 @@ class Tally:
         for o, _ in self.latest.values():
             counts[o] = counts.get(o, 0) + 1
         return counts
+
+
+def _fault(text: str) -> UnitMeasurement:
+    """A unit whose measurement a meter fault stopped before it began."""
+    empty = np.zeros(0)
+    return UnitMeasurement({}, {}, empty, empty.astype(complex), None, None, None, text, 0.0)
 
 
 def measurement_records(judgement: UnitJudgement) -> tuple[MeasurementRecord, ...]:
@@ -140,7 +149,8 @@ class Station:
         """Why the references stop the station now (empty when they do not)."""
         c = self.context
         if self._checked[0] is not self.references:
-            self._checked = (self.references, check_problems(self.references))
+            found = check_problems(self.references, c.plan.frequencies)
+            self._checked = (self.references, found)
         return reference_blocks(
             self.references, c.meter_name, c.plan.fixture, c.plan.max_reference_age,
             problems=self._checked[1],
@@ -261,7 +271,10 @@ class Station:
         began = time.perf_counter()
         try:
             if serial != self._in_fixture and self._has("next_unit"):
-                self.meter.next_unit()
+                try:
+                    self.meter.next_unit()
+                except InstrumentError as exc:
+                    return _fault(f"meter fault: {exc}")
             self._in_fixture = serial
             c = self.context
             return self._measure(self.meter, c.plan, self.references, c.temperature)

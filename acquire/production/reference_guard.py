@@ -16,7 +16,7 @@ from acquire.display import format_duration
 _EPOCH = datetime(1970, 1, 1, tzinfo=UTC)
 
 CAPTURE_HINT = (
-    "capture new references on this fixture (`acquire reference capture`), then press Enter"
+    "Capture new references on this fixture (`acquire reference capture`), then press Enter"
 )
 
 

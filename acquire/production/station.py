@@ -162,7 +162,7 @@ class Station:
         found = self.blocks
         if not found or self.context.override:
             return ""
-        return f"{'; '.join(found)}. {CAPTURE_HINT[0].upper()}{CAPTURE_HINT[1:]}"
+        return f"{'; '.join(found)}. {CAPTURE_HINT}"
 
     def status(self) -> StationStatus:
         c, t = self.context, self.tally

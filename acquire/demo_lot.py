@@ -12,7 +12,6 @@ from collections.abc import Iterator
 from typing import Any
 
 from rich.console import Console
-from rich.table import Table
 
 #: Units in the demo's lot, and the one that meets a meter fault (its position, from 1).
 LOT_SIZE, FAULTY_UNIT = 30, 17
@@ -103,19 +102,15 @@ def production_lot(run: Any) -> None:
 
 
 def lot_report(console: Console, store: Any) -> None:
-    """The lot's yield per serial and its bin counts, as the store counts them."""
+    """The lot's yield per serial and its bin counts, read back from the store."""
     y = store.lot_yield(LOT)
     units = store.lot_units(LOT)
     latest = units.sort_values(["serial", "attempt"]).groupby("serial").tail(1)
-    console.print(f"\nlot {LOT} as the store counts it (each serial's latest attempt):")
-    table = Table()
-    table.add_column("bin")
-    table.add_column("units", justify="right")
-    for name, count in latest["bin"].replace("", "(none: error)").value_counts().items():
-        table.add_row(str(name), str(count))
-    console.print(table)
+    counts = latest["bin"].replace("", "(error)").value_counts()
+    bins = " · ".join(f"{name} {count}" for name, count in sorted(counts.items()))
     console.print(
-        f"{y.serials} units, {y.attempts} attempts: first-pass yield "
-        f"{y.first_pass_yield:.1%}, final yield {y.final_yield:.1%}",
+        f"in the store: lot {LOT}, {y.serials} units in {y.attempts} attempts; bins {bins}; "
+        f"first-pass yield {y.first_pass_yield:.1%}, final yield {y.final_yield:.1%}",
         markup=False,
+        soft_wrap=True,
     )

@@ -37,6 +37,16 @@ def test_demo_no_live_exits_0_and_leaves_a_complete_sweep(tmp_path, capsys):
     ls = quantities(f[band], corrected[band])["Ls"]
     nominal = load_dut("demo-coil").values["inductance"]  # the profile's own value
     assert np.allclose(ls, nominal, rtol=0.01)
+    # the production lot: every serial stored, the faulty one as "error" and then retested
+    with open_store(url) as store:
+        units = store.lot_units("DEMO-LOT-1")
+        y = store.lot_yield("DEMO-LOT-1")
+    assert (y.serials, y.attempts) == (30, 31)
+    assert list(units.outcome).count("error") == 1
+    again = units[units.serial == units.serial[units.outcome == "error"].iloc[0]]
+    assert sorted(again.attempt) == [1, 2]
+    assert set(units.outcome) <= {"pass", "fail", "error"} and "pass" in set(units.outcome)
+    assert "first-pass yield" in out and "bins " in out
 
 
 def test_demo_live_view_draws_plots_and_the_resonance(tmp_path):

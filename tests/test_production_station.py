@@ -414,3 +414,28 @@ def test_undecodable_piped_lines_are_refused_serials_not_a_crash(bench, tmp_path
     assert b"not tested" in proc.stdout and b"EXAMPLE-6401  attempt 1" in proc.stdout
     with open_store(url) as store:
         assert list(store.lot_units("L-B").serial) == ["EXAMPLE-6401"]
+
+
+def test_guard_bands_without_a_stated_accuracy_are_refused_before_any_unit(bench, tmp_path):
+    """A guarded plan needs U; a dialect that states no accuracy gives none."""
+    import drivers
+
+    source = Path(drivers.__file__).parent / "dialects" / "simulated.toml"
+    text = source.read_text(encoding="utf-8")
+    dialect = tmp_path / "no-accuracy.toml"
+    dialect.write_text(text[: text.index("[accuracy]")], encoding="utf-8")
+    url = f"sqlite:///{tmp_path / 'acc.db'}"
+    with open_store(url) as store:
+        store.save_reference_set(bench["refs"], name="refs")
+    env = dict(os.environ, PYTHONPATH=str(ROOT))
+    proc = subprocess.run(
+        [sys.executable, "-m", "acquire", "station", "--resource", bench["sim"].resource,
+         "--dialect", str(dialect), "--store", url, "--plan", str(example_plan_path()),
+         "--lot", "L-A", "--operator", "ana", "--station", "s"],
+        input="EXAMPLE-6501\n", capture_output=True, text=True, timeout=120, env=env,
+        cwd=tmp_path,
+    )  # fmt: skip
+    assert proc.returncode == 2
+    assert "states no accuracy" in proc.stderr and len(proc.stderr.strip().splitlines()) == 1
+    with open_store(url) as store:
+        assert store.unit_attempts("EXAMPLE-6501") == []

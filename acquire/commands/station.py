@@ -115,6 +115,18 @@ def _temperature(plan, text: str | None, interactive: bool) -> float | None:
     return parse_temperature(text)
 
 
+def _check_uncertainty_known(plan, meter) -> None:
+    """Guard bands need U, and U needs the meter's stated accuracy: refuse before any unit."""
+    from acquire.errors import InputError
+
+    if plan.decision.factor > 0 and getattr(meter.dialect, "accuracy", None) is None:
+        raise InputError(
+            f"the plan asks for guard-banded acceptance, but the dialect {meter.dialect.name!r} "
+            "states no accuracy, so no value would have an uncertainty and every unit would "
+            'fail: add an [accuracy] table to the dialect, or set rule = "simple" in the plan'
+        )
+
+
 def run(args: argparse.Namespace) -> int:
     from acquire.display import text_console
     from acquire.production.measure import apply_settings
@@ -152,6 +164,7 @@ def run(args: argparse.Namespace) -> int:
         with ImpedanceMeter.open(
             args.resource, dialect=args.dialect, backend=args.backend
         ) as meter:
+            _check_uncertainty_known(plan, meter)
             apply_settings(meter, plan)
             identity = meter.identify()
             meter_id = store.record_meter(

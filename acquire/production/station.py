@@ -85,6 +85,20 @@ def _fault(text: str) -> UnitMeasurement:
     return UnitMeasurement({}, {}, empty, empty.astype(complex), None, None, None, text, 0.0)
 
 
+def _unknown_u_note(judgement: UnitJudgement, plan: TestPlan) -> str:
+    """What the record must say when a guard band met a value with no uncertainty: its
+    acceptance limits are infinite (nothing could be accepted), stored as empty limits."""
+    if plan.decision.factor <= 0:
+        return ""
+    unknown = [j.check.key for j in judgement.judged if not np.isfinite(j.uncertainty)]
+    if not unknown:
+        return ""
+    return (
+        f"no uncertainty for {', '.join(unknown)}: under the guard band no value could be "
+        "accepted (its stored acceptance limits are empty)"
+    )
+
+
 def measurement_records(judgement: UnitJudgement) -> tuple[MeasurementRecord, ...]:
     """The judged values as store records: the acceptance limits applied, the tolerance limits,
     the verdict and the expanded uncertainty of each."""
@@ -311,7 +325,7 @@ class Station:
             fixture_id=c.fixture_id,
             started_at=started,
             finished_at=utc_now(),
-            notes=measured.error,
+            notes=measured.error or _unknown_u_note(judgement, c.plan),
             attempt_id=attempt_id,
             reference_override=override,
             temperature=measured.temperature,

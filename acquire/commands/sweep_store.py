@@ -168,6 +168,8 @@ def _load(store, text: str):
 
 
 def _show(args: argparse.Namespace) -> int:
+    from rich.text import Text
+
     from acquire.commands.options import open_existing_store
     from acquire.dashboard import summary
     from acquire.display import text_console
@@ -182,8 +184,6 @@ def _show(args: argparse.Namespace) -> int:
     state.show_uncertainty = bool(args.show_u)
     console = text_console()
     started = f"{sweep.info.started_at:%Y-%m-%d %H:%M:%S} UTC"
-    from rich.text import Text
-
     about = f"sweep {sweep.info.id}: DUT {sweep.info.dut or '(not named)'}, started {started}"
     console.print(Text(about), soft_wrap=True)
     console.print(summary(state))
@@ -200,6 +200,8 @@ def _references(store, ref_id: int):
 
 
 def _export(args: argparse.Namespace) -> int:
+    from rich.text import Text
+
     from acquire.commands.options import open_existing_store
     from acquire.display import text_console
     from acquire.errors import InputError
@@ -218,8 +220,6 @@ def _export(args: argparse.Namespace) -> int:
         path = sweep_export.write_json(sweep, target)
     else:
         path = sweep_export.write_touchstone(sweep, target, raw=args.raw)
-    from rich.text import Text
-
     text_console().print(
         Text(f"sweep {sweep.info.id} ({sweep.frequency.size} points) written to {path}"),
         soft_wrap=True,

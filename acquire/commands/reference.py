@@ -14,6 +14,9 @@ captured over a frequency plan; sweeps then correct each reading with it (`acqui
   list      the stored sets with their age, fixture and meter
   show      one set: its metadata and readings at a few frequencies
   check     judge a stored set again; exit code 1 when it has errors
+  export    write a stored set to a checked JSON file (its SHA-256 digest inside), for another
+            store or a bench without one
+  import    read such a file into the store (a damaged or hand-edited file is refused)
 
 Safety: measure only discharged parts that are not connected to any supply; an inductor that
 carried DC bias stores energy and can kick when its current is broken. Mains-powered fixtures
@@ -26,7 +29,7 @@ import argparse
 
 from acquire.commands.options import add_dialect, add_plan_arguments, add_resource, add_store
 
-HELP = "capture, list, show and check fixture reference sets (open, short, load)"
+HELP = "capture, list, show, check, export and import fixture reference sets (open, short, load)"
 
 CAPTURE_DESCRIPTION = """\
 Guided capture of open, short and (with --load-value) load references on a fixture, over a
@@ -87,10 +90,20 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     chk = actions.add_parser("check", help="judge a stored reference set")
     add_store(chk)
     chk.add_argument("set", metavar="ID", help="id or name of the set, or 'latest'")
+    exp = actions.add_parser("export", help="write a stored reference set to a JSON file")
+    add_store(exp)
+    exp.add_argument("set", metavar="ID", help="id or name of the set, or 'latest'")
+    exp.add_argument("file", metavar="FILE", help="the JSON file to write (replaced if it exists)")
+    imp = actions.add_parser("import", help="read a reference-set JSON file into the store")
+    add_store(imp)
+    imp.add_argument("file", metavar="FILE", help="a file written by `acquire reference export`")
+    imp.add_argument("--name", help="a name for the set (default: fixture, date and 'imported')")
 
 
 def run(args: argparse.Namespace) -> int:
-    return {"capture": _capture, "list": _list, "show": _show, "check": _check}[args.action](args)
+    actions = {"capture": _capture, "list": _list, "show": _show, "check": _check}
+    actions.update({"export": _export, "import": _import})
+    return actions[args.action](args)
 
 
 def _capture(args: argparse.Namespace) -> int:
@@ -250,3 +263,73 @@ def _check(args: argparse.Namespace) -> int:
         f"{warnings} warning{'' if warnings == 1 else 's'}"
     )
     return 1 if errors else 0
+
+
+def _export(args: argparse.Namespace) -> int:
+    from rich.text import Text
+
+    from acquire.commands.options import open_existing_store
+    from acquire.display import text_console
+    from acquire.report.sweep_export import check_destination
+    from acquire.sweep_setup import find_reference_set
+
+    with open_existing_store(args.store) as store:
+        path = check_destination(args.file, store, "reference export")
+        ref_id, refs = find_reference_set(store, args.set)
+    refs.save(path)
+    text_console().print(
+        Text(f"reference set {ref_id} ({refs.method}, {refs.frequency.size} points) written to "
+             f"{path}"),
+        soft_wrap=True,
+    )  # fmt: skip
+    return 0
+
+
+def _import(args: argparse.Namespace) -> int:
+    from rich.text import Text
+
+    from acquire.compensation.reference_set import ReferenceSet
+    from acquire.display import text_console
+    from acquire.errors import InputError
+    from acquire.store import open_store
+
+    try:
+        refs = ReferenceSet.read(args.file)
+    except (ValueError, OverflowError) as exc:
+        # A number too large for a float64 (1e400, or a 400-digit integer) is refused here.
+        raise InputError(
+            f"{args.file} is damaged or not a reference-set file ({exc}); restore a copy or "
+            "export it again"
+        ) from None
+    name = args.name if args.name is not None else _imported_name(refs, args.file)
+    if not " ".join(name.split()):
+        raise InputError("--name needs some text (or leave it out for a name made up for you)")
+    with open_store(args.store) as store:
+        created = store.created
+        fixture_id = store.record_fixture(refs.fixture) if refs.fixture else None
+        ref_id = store.save_reference_set(refs, name=name, fixture_id=fixture_id)
+        url = store.url
+    findings = refs.check()
+    errors = sum(1 for finding in findings if finding.severity == "error")
+    console = text_console()
+    if created:
+        console.print(Text(f"made a new results store at {url}"), soft_wrap=True)
+    console.print(
+        Text(f"imported reference set {ref_id} ({name!r}, {refs.method}, "
+             f"{refs.frequency.size} points) into {url}"),
+        soft_wrap=True,
+    )  # fmt: skip
+    if errors:
+        console.print(
+            Text(f"warning: it fails its check ({errors} error{'' if errors == 1 else 's'}); "
+                 f"`acquire reference check {ref_id}` says what", style="yellow"),
+            soft_wrap=True,
+        )  # fmt: skip
+    return 0
+
+
+def _imported_name(refs, file: str) -> str:
+    from pathlib import Path
+
+    when = f" {refs.captured_at:%Y-%m-%d %H:%M}" if refs.captured_at else ""
+    return f"{refs.fixture or Path(file).stem}{when} (imported)"

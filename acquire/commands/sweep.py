@@ -26,6 +26,11 @@ a number, in the live view, the summary, the CSV file and the store.
 Every point goes to the results store as it arrives. Ctrl-C, or a fault on the meter, ends the
 sweep with the completed points saved and marked interrupted; the command says where.
 
+Without measuring, a first word acts on the stored sweeps: `acquire sweep list` (with
+--dut, --status, --since, --fixture), `acquire sweep show ID`, `acquire sweep export ID --csv
+FILE | --json FILE | --touchstone FILE`, and `acquire sweep close [ID]` for sweeps whose
+writing process died (each has its own --help).
+
 Safety: measure only discharged parts that are not connected to any supply; an inductor that
 carried DC bias stores energy. Mains-powered fixtures must be set up as local codes, the meter
 maker's instructions and licensed practice require.
@@ -45,7 +50,9 @@ QUANTITIES = ("Ls", "Rs", "Cs", "Lp", "Rp", "Cp", "Q", "D", "Z", "theta", "X", "
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    add_resource(parser)
+    from acquire.commands.sweep_store import add_actions
+
+    add_resource(parser, required=False)
     add_dialect(parser)
     add_store(parser)
     add_plan_arguments(parser)
@@ -97,6 +104,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--no-live", action="store_true", help="print plain progress lines instead of the live view"
     )
+    add_actions(parser)
 
 
 def _hours(text: str) -> float:
@@ -126,6 +134,21 @@ def parse_show(text: str) -> tuple[str, ...]:
 
 
 def run(args: argparse.Namespace) -> int:
+    if getattr(args, "action", None):
+        from acquire.commands.sweep_store import run_action
+
+        return run_action(args)
+    if not args.resource:
+        from acquire.errors import InputError
+
+        raise InputError(
+            "measuring needs --resource (or ACQUIRE_RESOURCE); to read stored sweeps give an "
+            "action first: list, show, export or close"
+        )
+    return _measure(args)
+
+
+def _measure(args: argparse.Namespace) -> int:
     from datetime import UTC, datetime
 
     from acquire.commands.options import plan_from_args

@@ -82,10 +82,10 @@ def show(value: float | None, unit: str) -> str:
 
     from acquire.units import format_si
 
-    if unit:
-        return format_si(value, unit)
     if value is None or math.isnan(value):
         return "—"
+    if unit:
+        return format_si(value, unit)
     return f"{value:.4g}"
 
 

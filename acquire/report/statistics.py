@@ -248,7 +248,14 @@ def lot_statistics(store: Store, filter: LotFilter) -> LotStatistics:
 
 
 #: Columns of :func:`quantity_series`.
-SERIES_COLUMNS = ("serial", "attempt", "finished_at", "value", "uncertainty", "low_limit")
+SERIES_COLUMNS: tuple[str, ...] = (
+    "serial",
+    "attempt",
+    "finished_at",
+    "value",
+    "uncertainty",
+    "low_limit",
+)
 SERIES_COLUMNS += ("high_limit", "tolerance_low", "tolerance_high", "verdict")
 
 

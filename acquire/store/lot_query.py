@@ -261,10 +261,25 @@ def outcome_counts(db: Database, chosen: LotFilter) -> OutcomeCounts:
 
 
 #: Columns of :func:`measurement_rows`, unit columns first.
-UNIT_COLUMNS = ("lot", "serial", "attempt", "attempt_id", "station", "operator", "plan")
+UNIT_COLUMNS: tuple[str, ...] = (
+    "lot",
+    "serial",
+    "attempt",
+    "attempt_id",
+    "station",
+    "operator",
+    "plan",
+)
 UNIT_COLUMNS += ("plan_hash", "outcome", "bin", "started_at", "finished_at")
 UNIT_COLUMNS += ("reference_override", "temperature")
-MEASUREMENT_COLUMNS = ("seq", "parameter", "frequency", "unit", "value", "uncertainty")
+MEASUREMENT_COLUMNS: tuple[str, ...] = (
+    "seq",
+    "parameter",
+    "frequency",
+    "unit",
+    "value",
+    "uncertainty",
+)
 MEASUREMENT_COLUMNS += ("low_limit", "high_limit", "tolerance_low", "tolerance_high", "verdict")
 
 

@@ -10,8 +10,9 @@ from typing import TYPE_CHECKING, Any
 from sqlalchemy import Engine
 
 from acquire.errors import StoreError
-from acquire.store import catalog, production, references, sweeps
+from acquire.store import catalog, lot_query, production, references, sweeps
 from acquire.store.engine import Database
+from acquire.store.lot_query import LotFilter, OutcomeCounts
 from acquire.store.migrate import ensure_schema
 from acquire.store.records import (
     FixtureInfo,
@@ -204,6 +205,21 @@ class Store:
 
     def lot_yield(self, lot: str) -> LotYield:
         return production.lot_yield(self._db, lot)
+
+    # selections of units (acquire.store.lot_query; the reports read these)
+    def quantity_summary(self, chosen: LotFilter) -> list[Any]:
+        return lot_query.quantity_summary(self._db, chosen)
+
+    def limit_counts(self, chosen: LotFilter, column: str) -> list[Any]:
+        return lot_query.limit_counts(self._db, chosen, column)
+
+    def outcome_counts(self, chosen: LotFilter) -> OutcomeCounts:
+        return lot_query.outcome_counts(self._db, chosen)
+
+    def measurement_rows(
+        self, chosen: LotFilter, parameter: str | None = None, frequency: float | None = None
+    ) -> pd.DataFrame:
+        return lot_query.measurement_rows(self._db, chosen, parameter, frequency)
 
     # lifetime
     def close(self) -> None:

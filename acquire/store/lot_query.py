@@ -1,0 +1,344 @@
+"""Selections of production units (a lot, a time window, a station, a test plan) and the SQL
+that summarises them: per quantity counts, mean, two-pass standard deviation, extremes and the
+mean moving range in test order; per serial the latest attempt's outcome, bin and failing checks;
+and the measurements themselves in test order.
+
+*Test order* is the order the units were finished (``finished_at``, or ``started_at`` for a unit
+without an end time, then the row id; a unit's measurements by their sequence number). The mean
+moving range is worked out by the database with a window function (``LAG`` over test order,
+SQLite 3.25 and PostgreSQL both have it) over the valid (finite) values only: an invalid reading
+is skipped, so the ranges join the valid values on either side of it.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from datetime import datetime
+from typing import TYPE_CHECKING, Any
+
+from sqlalchemy import Connection, and_, case, func, or_, select, true
+
+from acquire.errors import StoreError
+from acquire.store.engine import Database
+from acquire.store.records import PASS
+from acquire.store.schema import TABLES, identity_key
+
+if TYPE_CHECKING:
+    import pandas as pd
+
+#: The frequency stored for a DC value.
+DC = 0.0
+#: Verdicts that do not count a check as failing: a pass, a conditional pass (inside the
+#: tolerance, in the guard band; acquire.production.judgement) and "" (not judged).
+NOT_FAILING = (PASS, "conditional pass", "")
+
+
+@dataclass(frozen=True)
+class LotFilter:
+    """Which unit attempts a report covers; every field given narrows it (None: no condition).
+
+    ``lot`` is a lot's name; ``since`` (inclusive) and ``until`` (exclusive) bound the time the
+    unit was finished (timezone-aware); ``station`` is a station's name as recorded;
+    ``plan_hash`` selects test plans whose SHA-256 hash starts with it or whose name equals it
+    (so a name selects every stored version of that plan).
+    """
+
+    lot: str | None = None
+    since: datetime | None = None
+    until: datetime | None = None
+    station: str | None = None
+    plan_hash: str | None = None
+
+    def __post_init__(self) -> None:
+        for name in ("since", "until"):
+            value = getattr(self, name)
+            if value is not None and value.tzinfo is None:
+                raise StoreError(f"{name} must be a timezone-aware time (give its UTC offset)")
+
+    @property
+    def empty(self) -> bool:
+        """True when no condition is given (every unit of the store)."""
+        return all(getattr(self, f) in (None, "") for f in self.__dataclass_fields__)
+
+    def describe(self) -> dict[str, str]:
+        """The conditions given, as text (for a file's head lines)."""
+        out = {}
+        for name in self.__dataclass_fields__:
+            value = getattr(self, name)
+            if value not in (None, ""):
+                out[name] = value.isoformat() if isinstance(value, datetime) else str(value)
+        return out
+
+
+def _finished():
+    u = TABLES["units"]
+    return func.coalesce(u.c.finished_at, u.c.started_at)
+
+
+def _conditions(conn: Connection, chosen: LotFilter, measurements: bool) -> list[Any]:
+    """WHERE terms on ``units`` (and on ``measurements``' own lot column when ``measurements``)."""
+    u, m = TABLES["units"], TABLES["measurements"]
+    terms: list[Any] = []
+    if chosen.lot is not None:
+        lots = TABLES["lots"]
+        key = identity_key(chosen.lot)
+        lot_id = conn.execute(select(lots.c.id).where(lots.c.key == key)).scalar()
+        if lot_id is None:
+            raise StoreError(f"there is no lot {chosen.lot!r} in the store (check its name)")
+        terms.append((m.c.lot_id if measurements else u.c.lot_id) == lot_id)
+    if chosen.since is not None:
+        terms.append(_finished() >= chosen.since)
+    if chosen.until is not None:
+        terms.append(_finished() < chosen.until)
+    if chosen.station is not None:
+        terms.append(u.c.station == chosen.station)
+    if chosen.plan_hash is not None:
+        plans = TABLES["plans"]
+        text = chosen.plan_hash.strip()
+        prefix = text.lower()
+        query = select(plans.c.id).where(
+            or_(plans.c.name == text, func.substr(plans.c.hash, 1, len(prefix)) == prefix)
+        )
+        ids = list(conn.execute(query).scalars()) if text else []
+        if not ids:
+            raise StoreError(
+                f"no stored test plan has the name or hash {text!r} (give a name as stored, or "
+                "the first characters of the plan's hash)"
+            )
+        terms.append(u.c.plan_id.in_(ids))
+    return terms
+
+
+def _measured(conn: Connection, chosen: LotFilter, *columns: Any) -> Any:
+    """SELECT ``columns`` from the chosen units' measurements (joined to their units)."""
+    u, m = TABLES["units"], TABLES["measurements"]
+    query = select(*columns).select_from(m.join(u, u.c.id == m.c.unit_id))
+    return query.where(and_(true(), *_conditions(conn, chosen, measurements=True)))
+
+
+def quantity_summary(db: Database, chosen: LotFilter) -> list[Any]:
+    """Per (parameter, frequency, unit) of the chosen units' measurements (every attempt):
+    ``count``, ``valid``, ``passed``, ``mean``, ``ss`` (sum of squared deviations from the mean,
+    a second pass), ``min``, ``max``, ``mr_sum`` and ``mr_count`` (sum and number of moving
+    ranges of the valid values in test order). Rows ordered by parameter, frequency, unit."""
+    u, m = TABLES["units"], TABLES["measurements"]
+    keys = (m.c.parameter, m.c.frequency, m.c.si_unit)
+
+    def work(conn: Connection) -> list[Any]:
+        g = (
+            _measured(
+                conn,
+                chosen,
+                *keys,
+                func.count().label("count"),
+                func.count(m.c.value).label("valid"),
+                func.count(case((m.c.verdict == PASS, 1))).label("passed"),
+                func.avg(m.c.value).label("mean"),
+                func.min(m.c.value).label("min"),
+                func.max(m.c.value).label("max"),
+            )
+            .group_by(*keys)
+            .cte("g")
+        )
+        deviation = m.c.value - g.c.mean
+        spread = (
+            _measured(conn, chosen, func.sum(deviation * deviation))
+            .where(m.c.parameter == g.c.parameter)
+            .where(m.c.frequency == g.c.frequency, m.c.si_unit == g.c.si_unit)
+            .scalar_subquery()
+        )
+        order = (_finished(), u.c.id, m.c.seq)
+        previous = func.lag(m.c.value).over(partition_by=keys, order_by=order)
+        lagged = (
+            _measured(conn, chosen, *keys, m.c.value, previous.label("prev"))
+            .where(m.c.value.is_not(None))
+            .subquery("lagged")
+        )
+        step = func.abs(lagged.c.value - lagged.c.prev)
+        ranges = (
+            select(
+                lagged.c.parameter,
+                lagged.c.frequency,
+                lagged.c.si_unit,
+                func.sum(step).label("mr_sum"),
+                func.count(lagged.c.prev).label("mr_count"),
+            )
+            .group_by(lagged.c.parameter, lagged.c.frequency, lagged.c.si_unit)
+            .subquery("ranges")
+        )
+        same = and_(
+            ranges.c.parameter == g.c.parameter,
+            ranges.c.frequency == g.c.frequency,
+            ranges.c.si_unit == g.c.si_unit,
+        )
+        query = (
+            select(g, spread.label("ss"), ranges.c.mr_sum, ranges.c.mr_count)
+            .select_from(g.outerjoin(ranges, same))
+            .order_by(g.c.parameter, g.c.frequency, g.c.si_unit)
+        )
+        return list(conn.execute(query).all())
+
+    return db.read("summarising units", work)
+
+
+def limit_counts(db: Database, chosen: LotFilter, column: str) -> list[Any]:
+    """(parameter, frequency, si_unit, limit, n): how many of the chosen measurements applied
+    each stated value of limit ``column`` (low_limit, high_limit, tolerance_low or
+    tolerance_high); open sides (NULL) left out."""
+    m = TABLES["measurements"]
+    keys = (m.c.parameter, m.c.frequency, m.c.si_unit, m.c[column])
+
+    def work(conn: Connection) -> list[Any]:
+        query = _measured(conn, chosen, *keys, func.count().label("n"))
+        query = query.where(m.c[column].is_not(None)).group_by(*keys)
+        return list(conn.execute(query).all())
+
+    return db.read("reading limits", work)
+
+
+@dataclass(frozen=True)
+class OutcomeCounts:
+    """Counts over the chosen attempts: ``attempts``; ``serials``; ``passed`` (serials whose
+    latest attempt passed); ``first_pass`` (serials whose first attempt passed); ``bins`` (bin
+    of each serial's latest attempt -> serials); ``failing`` ((parameter, frequency or None) ->
+    serials whose latest attempt failed that check)."""
+
+    attempts: int
+    serials: int
+    passed: int
+    first_pass: int
+    bins: dict[str, int]
+    failing: dict[tuple[str, float | None], int]
+
+
+def outcome_counts(db: Database, chosen: LotFilter) -> OutcomeCounts:
+    """Yields, bins and failing checks of the chosen attempts, counted per serial by the
+    database (first and latest attempt by attempt number, then row id, among those chosen)."""
+    u, m = TABLES["units"], TABLES["measurements"]
+
+    def work(conn: Connection) -> OutcomeCounts:
+        first = func.row_number().over(partition_by=u.c.serial_key, order_by=(u.c.attempt, u.c.id))
+        last = func.row_number().over(
+            partition_by=u.c.serial_key, order_by=(u.c.attempt.desc(), u.c.id.desc())
+        )
+        ranked = (
+            select(u.c.id, u.c.outcome, u.c.bin, first.label("first"), last.label("last"))
+            .where(and_(true(), *_conditions(conn, chosen, measurements=False)))
+            .subquery("ranked")
+        )
+        passing = ranked.c.outcome == PASS
+        total = conn.execute(
+            select(
+                func.count(),
+                func.sum(case((ranked.c.first == 1, 1), else_=0)),
+                func.sum(case((and_(ranked.c.last == 1, passing), 1), else_=0)),
+                func.sum(case((and_(ranked.c.first == 1, passing), 1), else_=0)),
+            )
+        ).one()
+        bins = conn.execute(
+            select(ranked.c.bin, func.count())
+            .where(ranked.c.last == 1)
+            .group_by(ranked.c.bin)
+            .order_by(ranked.c.bin)
+        ).all()
+        failing = conn.execute(
+            select(m.c.parameter, m.c.frequency, func.count(func.distinct(m.c.unit_id)))
+            .select_from(m.join(ranked, ranked.c.id == m.c.unit_id))
+            .where(ranked.c.last == 1, m.c.verdict.not_in(NOT_FAILING))
+            .group_by(m.c.parameter, m.c.frequency)
+            .order_by(m.c.parameter, m.c.frequency)
+        ).all()
+        return OutcomeCounts(
+            int(total[0]),
+            int(total[1] or 0),
+            int(total[2] or 0),
+            int(total[3] or 0),
+            {str(b): int(n) for b, n in bins},
+            {(p, None if f == DC else f): int(n) for p, f, n in failing},
+        )
+
+    return db.read("counting outcomes", work)
+
+
+#: Columns of :func:`measurement_rows`, unit columns first.
+UNIT_COLUMNS: tuple[str, ...] = (
+    "lot",
+    "serial",
+    "attempt",
+    "attempt_id",
+    "station",
+    "operator",
+    "plan",
+)
+UNIT_COLUMNS += ("plan_hash", "outcome", "bin", "started_at", "finished_at")
+UNIT_COLUMNS += ("reference_override", "temperature")
+MEASUREMENT_COLUMNS: tuple[str, ...] = (
+    "seq",
+    "parameter",
+    "frequency",
+    "unit",
+    "value",
+    "uncertainty",
+)
+MEASUREMENT_COLUMNS += ("low_limit", "high_limit", "tolerance_low", "tolerance_high", "verdict")
+
+
+def measurement_rows(
+    db: Database,
+    chosen: LotFilter,
+    parameter: str | None = None,
+    frequency: float | None = None,
+) -> pd.DataFrame:
+    """The chosen units' measurements, a row each (:data:`UNIT_COLUMNS` then
+    :data:`MEASUREMENT_COLUMNS`), in test order; only quantity ``parameter`` at ``frequency``
+    (None: DC) when ``parameter`` is given. ``frequency`` is NaN for DC values, ``value`` NaN
+    for an invalid reading and infinite for an overrange one, a limit NaN for an open side.
+    Without ``parameter``, an attempt with no measurements (an error before the first) is one
+    row whose measurement columns are empty (``seq`` <NA>, texts None)."""
+    import numpy as np
+    import pandas as pd
+
+    u, m, lots, plans = TABLES["units"], TABLES["measurements"], TABLES["lots"], TABLES["plans"]
+    columns = [
+        func.coalesce(lots.c.name, "").label("lot"),
+        *(u.c[n] for n in ("serial", "attempt", "attempt_id", "station", "operator")),
+        func.coalesce(plans.c.name, "").label("plan"),
+        func.coalesce(plans.c.hash, "").label("plan_hash"),
+        *(u.c[n] for n in ("outcome", "bin", "started_at", "finished_at")),
+        *(u.c[n] for n in ("reference_override", "temperature")),
+        m.c.seq,
+        m.c.parameter,
+        m.c.frequency,
+        m.c.si_unit.label("unit"),
+        m.c.value,
+        m.c.value_special,
+        *(m.c[n] for n in ("uncertainty", "low_limit", "high_limit")),
+        *(m.c[n] for n in ("tolerance_low", "tolerance_high", "verdict")),
+    ]
+
+    def work(conn: Connection) -> list[Any]:
+        joined = (
+            u.outerjoin(m, u.c.id == m.c.unit_id)
+            .outerjoin(lots, lots.c.id == u.c.lot_id)
+            .outerjoin(plans, plans.c.id == u.c.plan_id)
+        )
+        query = select(*columns).select_from(joined)
+        query = query.where(and_(true(), *_conditions(conn, chosen, measurements=False)))
+        if parameter is not None:
+            f = DC if frequency is None else float(frequency)
+            query = query.where(m.c.parameter == parameter, m.c.frequency == f)
+        return list(conn.execute(query.order_by(_finished(), u.c.id, m.c.seq)).all())
+
+    rows = db.read("reading measurements", work)
+    frame = pd.DataFrame([tuple(r) for r in rows], columns=[c.name for c in columns])
+    special = frame.pop("value_special").fillna("")
+    frame["seq"] = frame["seq"].astype("Int64")
+    floats = ["frequency", "value", "uncertainty", "low_limit", "high_limit"]
+    floats += ["tolerance_low", "tolerance_high", "temperature"]
+    for name in floats:
+        frame[name] = pd.to_numeric(frame[name], errors="coerce").astype(float)
+    given = special.astype(str) != ""
+    if given.any():
+        frame.loc[given, "value"] = [float(s) for s in special[given]]
+    frame["frequency"] = frame["frequency"].where(frame["frequency"] != DC, np.nan)
+    return frame[list(UNIT_COLUMNS + MEASUREMENT_COLUMNS)]

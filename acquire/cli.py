@@ -29,6 +29,7 @@ COMMANDS: dict[str, str] = {
     "fit": "fit",
     "plan": "plan",
     "station": "station",
+    "report": "report",
 }
 
 DESCRIPTION = """\

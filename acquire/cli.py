@@ -30,6 +30,7 @@ COMMANDS: dict[str, str] = {
     "plan": "plan",
     "station": "station",
     "lot": "lot",
+    "report": "report",
 }
 
 DESCRIPTION = """\

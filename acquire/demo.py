@@ -25,6 +25,7 @@ from rich.text import Text
 from acquire.capture import SAFETY, capture_references
 from acquire.dashboard import open_view, summary
 from acquire.demo_lot import production_lot
+from acquire.demo_report import write_report
 from acquire.errors import AcquireError
 from acquire.plan import FrequencyPlan, log_plan
 from acquire.sweep import SweepOutcome, run_sweep
@@ -265,6 +266,7 @@ STEPS: list[Callable[[DemoRun], None]] = [
     compare_with_truth,
     predict_and_fit,
     production_lot,
+    write_report,
     finish,
 ]
 

@@ -24,20 +24,12 @@ TESTS = Path(__file__).resolve().parent
 sys.path.insert(0, str(TESTS))
 
 from store_support import synthetic_unit  # noqa: E402
-from test_report_pictures import demo_store, install_stand_ins, png_size  # noqa: E402
-
-# The installed program; the stand-ins of helpers' modules not yet merged are put in first
-# (test_report_pictures.install_stand_ins does nothing once the real modules exist).
-BOOT = (
-    "import sys; sys.path.insert(0, sys.argv.pop(1)); "
-    "from test_report_pictures import install_stand_ins; install_stand_ins(); "
-    "from acquire.cli import main; sys.exit(main(sys.argv[1:]))"
-)
+from test_report_pictures import demo_store, png_size  # noqa: E402
 
 
 def acquire(*args: str) -> subprocess.CompletedProcess:
     return subprocess.run(
-        [sys.executable, "-c", BOOT, str(TESTS), *args],
+        [sys.executable, "-m", "acquire", *args],
         capture_output=True,
         text=True,
         timeout=120,
@@ -105,11 +97,7 @@ def test_the_demo_step_writes_the_report_beside_the_store(tmp_path, monkeypatch)
     from acquire.demo import STEPS, run_demo
     from acquire.demo_report import write_report
 
-    install_stand_ins()
-    if write_report not in STEPS:  # the step goes after the lot, before finish
-        steps = [*STEPS]
-        steps.insert(steps.index(acquire.demo.finish), write_report)
-        monkeypatch.setattr(acquire.demo, "STEPS", steps)
+    assert STEPS.index(write_report) == STEPS.index(acquire.demo.finish) - 1
     buffer = io.StringIO()
     run_demo(f"sqlite:///{tmp_path / 'demo.db'}", live=False, points=51, measure_time=0,
                    console=Console(file=buffer, width=200))  # fmt: skip

@@ -11,209 +11,25 @@ library's sqlite3, not through the code under test.
 from __future__ import annotations
 
 import base64
-import importlib.util
 import io
 import re
 import sqlite3
 import struct
-import sys
-import types
-from dataclasses import dataclass, field
-from datetime import datetime
 from functools import cache
 
 import numpy as np
 import pytest
 from rich.console import Console
 
-# ---------------------------------------------------------------------------------------------
-# A private stand-in for helper "stats"'s acquire.report.statistics / control and helper
-# "sweeppics"'s acquire.report.sweep_pictures, written in parallel with this module. It is
-# installed only when the real module is missing, so once they are merged it is never used
-# (and the integrator may delete it). It follows the contract's names and fields.
-# ---------------------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class _LotFilter:
-    lot: str | None = None
-    since: datetime | None = None
-    until: datetime | None = None
-    station: str | None = None
-    plan_hash: str | None = None
-
-
-@dataclass(frozen=True)
-class _Quantity:
-    parameter: str
-    frequency: float | None
-    unit: str
-    count: int
-    valid: int
-    passed: int
-    mean: float
-    std: float
-    minimum: float
-    maximum: float
-    tolerance_low: float | None = None
-    tolerance_high: float | None = None
-    acceptance_low: float | None = None
-    acceptance_high: float | None = None
-    sigma_within: float = float("nan")
-    cp: float = float("nan")
-    cpk: float = float("nan")
-    pp: float = float("nan")
-    ppk: float = float("nan")
-
-
-@dataclass(frozen=True)
-class _LotStatistics:
-    filter: _LotFilter
-    units: int
-    attempts: int
-    passed: int
-    first_pass: int
-    yield_: float
-    first_pass_yield: float
-    bins: dict = field(default_factory=dict)
-    failing: dict = field(default_factory=dict)
-    quantities: tuple = ()
-
-
-@dataclass(frozen=True, eq=False)
-class _ControlChart:
-    values: np.ndarray
-    center: float
-    sigma: float
-    ucl: float
-    lcl: float
-    moving_range: np.ndarray
-    mr_center: float
-    mr_ucl: float
-    broken: tuple = ()
-
-
-def _stand_in_rows(store, filter):
-    import pandas as pd
-
-    sql = (
-        "SELECT u.serial, u.attempt, u.finished_at, u.outcome, u.bin, m.parameter, m.frequency, "
-        "m.si_unit, m.value, m.uncertainty, m.low_limit, m.high_limit, m.tolerance_low, "
-        "m.tolerance_high, m.verdict FROM units u JOIN lots l ON l.id = u.lot_id "
-        "LEFT JOIN measurements m ON m.unit_id = u.id WHERE l.name = ? "
-        "ORDER BY u.finished_at, u.id, m.seq"
-    )
-    with sqlite3.connect(store.path) as conn:
-        return pd.read_sql_query(sql, conn, params=(filter.lot,))
-
-
-def _stand_in_series(store, filter, parameter, frequency):
-    rows = _stand_in_rows(store, filter)
-    f = 0.0 if frequency is None else frequency
-    rows = rows[(rows.parameter == parameter) & (rows.frequency == f)]
-    columns = ["serial", "attempt", "finished_at", "value", "uncertainty", "low_limit"]
-    columns += ["high_limit", "tolerance_low", "tolerance_high", "verdict"]
-    return rows[columns].reset_index(drop=True).astype({"value": float})
-
-
-def _stand_in_statistics(store, filter):
-    rows = _stand_in_rows(store, filter)
-    units = rows.drop_duplicates(["serial", "attempt"])
-    latest = units.sort_values("attempt").groupby("serial").tail(1)
-    first = units[units.attempt == 1]
-    quantities = []
-    for (p, f, unit), g in rows.dropna(subset=["parameter"]).groupby(
-        ["parameter", "frequency", "si_unit"]
-    ):
-        v = g.value.to_numpy(dtype=float)
-        quantities.append(
-            _Quantity(
-                p,
-                None if f == 0 else float(f),
-                unit,
-                len(v),
-                len(v),
-                int((g.verdict == "pass").sum()),
-                v.mean(),
-                v.std(ddof=1),
-                v.min(),
-                v.max(),
-            )  # fmt: skip
-        )
-    n = latest.serial.nunique()
-    passed = int((latest.outcome == "pass").sum())
-    fp = int((first.outcome == "pass").sum())
-    return _LotStatistics(
-        filter, n, len(units), passed, fp, passed / n, fp / n,
-        latest.bin.value_counts().to_dict(), {}, tuple(quantities),
-    )  # fmt: skip
-
-
-def _stand_in_chart(values):
-    """Individuals chart, NIST/SEMATECH e-Handbook 6.3.2 (d2 = 1.128, D4 = 3.267); beyond 3
-    sigma only (Western Electric rule 1)."""
-    v = np.asarray(values, dtype=float)
-    mr = np.abs(np.diff(v))
-    sigma = mr.mean() / 1.128
-    c = v.mean()
-    broken = tuple((int(i), "beyond 3 sigma") for i in np.flatnonzero(np.abs(v - c) > 3 * sigma))
-    return _ControlChart(v, c, sigma, c + 3 * sigma, c - 3 * sigma, mr, mr.mean(),
-                         3.267 * mr.mean(), broken)  # fmt: skip
-
-
-def _stand_in_sweep_figures(store, ids):
-    from acquire.report import look
-
-    out = []
-    for i in ids:
-        points = store.sweep_points(i)
-        with look.styled():
-            figure = look.new_figure()
-            ax = figure.add_subplot()
-            ax.semilogx(points["frequency"], points["corrected_x"], **look.LINES["data"])
-            out.append((f"sweep-{i}.png", look.png_bytes(figure)))
-    return out
-
-
-def install_stand_ins() -> list[str]:
-    """Put the stand-ins in sys.modules where the real modules are missing; their names."""
-    parts = {
-        "acquire.report.statistics": {
-            "LotFilter": _LotFilter,
-            "QuantityStatistics": _Quantity,
-            "LotStatistics": _LotStatistics,
-            "lot_statistics": _stand_in_statistics,
-            "quantity_series": _stand_in_series,
-        },
-        "acquire.report.control": {
-            "ControlChart": _ControlChart,
-            "individuals_chart": _stand_in_chart,
-        },
-        "acquire.report.sweep_pictures": {"sweep_figures": _stand_in_sweep_figures},
-    }
-    installed = []
-    for name, members in parts.items():
-        if name in sys.modules or importlib.util.find_spec(name) is not None:
-            continue
-        module = types.ModuleType(name)
-        module.__dict__.update(members)
-        sys.modules[name] = module
-        installed.append(name)
-    return installed
-
-
-install_stand_ins()
-
-from acquire.report.control import individuals_chart  # noqa: E402
-from acquire.report.statistics import LotFilter, quantity_series  # noqa: E402
-
-from acquire.report import look  # noqa: E402
-from acquire.report.lot_pictures import (  # noqa: E402
+from acquire.report import look
+from acquire.report.control import individuals_chart
+from acquire.report.lot_pictures import (
     control_figure,
     histogram_figure,
     lot_figures,
 )
-from acquire.report.page import Html, write_report  # noqa: E402
+from acquire.report.page import Html, write_report
+from acquire.report.statistics import LotFilter, quantity_series
 
 LOT = "DEMO-LOT-1"
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # ISO/IEC 15948:2004, 5.2

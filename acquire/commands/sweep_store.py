@@ -101,12 +101,12 @@ def _since(text: str | None) -> datetime | None:
 
 
 def _list(args: argparse.Namespace) -> int:
+    from rich import box
     from rich.table import Table
     from rich.text import Text
 
     from acquire.commands.options import open_existing_store
     from acquire.display import text_console
-    from acquire.report.sweep_export import reference_description
 
     since = _since(args.since)
     console = text_console()
@@ -128,22 +128,28 @@ def _list(args: argparse.Namespace) -> int:
                 continue
             ref = info.reference_set_id
             if ref is not None and ref not in refs:
-                refs[ref] = reference_description(store, ref)
+                refs[ref] = _short_reference(store, ref)
             rows.append((info, fixture, refs.get(ref, "") if ref is not None else ""))
         if not rows:
             console.print(Text(f"no sweeps in {store.url} match"))
             return 0
         console.print(Text(f"sweeps in {store.url}"), soft_wrap=True)
-        table = Table()
-        for col in ("id", "started (UTC)", "DUT", "fixture", "reference set", "points", "status"):
-            table.add_column(col, justify="right" if col in ("id", "points") else "left")
+        table = Table(box=box.SIMPLE_HEAD, pad_edge=False, collapse_padding=True, show_edge=False)
+        for col in ("id", "started (UTC)", "DUT", "fixture", "references", "points", "status"):
+            table.add_column(
+                col,
+                justify="right" if col in ("id", "points") else "left",
+                no_wrap=col in ("started (UTC)", "references", "points", "status"),
+                overflow="fold",
+            )
         for info, fixture, ref in rows:
             status = info.status + (" (abandoned: close it)" if info.abandoned else "")
             planned = (info.settings or {}).get("points")
-            points = f"{info.points}/{planned}" if isinstance(planned, int) else str(info.points)
+            short = isinstance(planned, int) and planned != info.points
+            points = f"{info.points}/{planned}" if short else str(info.points)
             table.add_row(
                 str(info.id),
-                f"{info.started_at:%Y-%m-%d %H:%M:%S}",
+                f"{info.started_at:%Y-%m-%d %H:%M}",
                 Text(info.dut or "—"),
                 Text(fixture or "—"),
                 Text(ref or "none"),
@@ -152,6 +158,19 @@ def _list(args: argparse.Namespace) -> int:
             )
         console.print(table)
     return 0
+
+
+def _short_reference(store, ref_id: int) -> str:
+    """``#3 OSL``: the set's id and its standards' initials (the fixture has its own column;
+    `acquire reference list` and `acquire sweep show` describe the set in full)."""
+    from acquire.errors import StoreError
+
+    try:
+        method = store.reference_set_info(ref_id).method
+    except StoreError:
+        return f"#{ref_id} (gone)"
+    initials = "".join(word[:1].upper() for word in method.split("-"))
+    return f"#{ref_id} {initials}".strip()
 
 
 def _load(store, text: str):

@@ -245,8 +245,13 @@ def control_figure(
     bottom.plot(order[1:], mr, **look.LINES["raw"], zorder=1)
     bottom.plot(order[1:], mr, **look.MARKERS["value"])
     _control_lines(bottom, chart.mr_center, chart.mr_ucl, None, unit)
+    wide = np.flatnonzero(mr > chart.mr_ucl)  # a moving range above its UCL (NIST 6.3.2)
+    if wide.size:
+        bottom.plot(order[1:][wide], mr[wide], gid="broken-mr", **look.MARKERS["broken"])
     look.si_axis(bottom.yaxis, "moving range", unit, [*mr, chart.mr_ucl])
-    bottom.set_ylim(bottom=0.0)
+    finite_mr = mr[np.isfinite(mr)]
+    highest = max([chart.mr_ucl, *finite_mr]) if np.isfinite(chart.mr_ucl) else None
+    bottom.set_ylim(0.0, highest * 1.12 if highest else None)
     look.integer_ticks(bottom.xaxis)
     sigma = (
         "control limits: center ± 3σ, σ within = average moving range / 1.128 = "
@@ -254,6 +259,8 @@ def control_figure(
     )
     broken = "; ".join(f"{n}: {rule}" for rule, n in rules.items())
     note = f"ringed points break a run rule ({broken})" if rules else "no point breaks a run rule"
+    if wide.size:
+        note += f"; {wide.size} moving range{'s' if wide.size > 1 else ''} above its UCL, ringed"
     bottom.set_xlabel(f"test order (values in the order they were measured)\n{sigma}\n{note}")
     return figure
 

@@ -117,7 +117,7 @@ def print_text(stats, console) -> None:
     from rich.table import Table
     from rich.text import Text
 
-    from acquire.report.statistics import COUNTING_NOTE, SIGMA_NOTE
+    from acquire.report.statistics import COUNTING_NOTE, SIGMA_NOTE, key_name
 
     selection = ", ".join(f"{k} {v}" for k, v in stats.filter.describe().items())
     console.print(Text(f"selection: {selection}"))
@@ -130,7 +130,7 @@ def print_text(stats, console) -> None:
     )
     bins = " · ".join(f"{name or '(no bin)'} {n}" for name, n in stats.bins.items())
     console.print(Text(f"bins (latest attempt per serial): {bins or 'none'}"))
-    failing = " · ".join(f"{key} {n}" for key, n in stats.failing.items())
+    failing = " · ".join(f"{key_name(key)}: {n}" for key, n in stats.failing.items())
     console.print(Text(f"failing checks (latest attempt per serial): {failing or 'none'}"))
     table = Table(title=None, show_edge=False)
     for name in ("quantity", "n", "mean", "std", "min", "max", "tolerance"):

@@ -143,9 +143,11 @@ def _limits(low: float | None, high: float | None, unit: str) -> str:
 
 def lot_text(statistics: LotStatistics) -> Html:
     """The lot's counts, yields and bins, and a table of its quantities' statistics."""
+    from acquire.report.statistics import key_name
+
     s = statistics
     bins = ", ".join(f"{name or '(no bin)'}: {n}" for name, n in sorted(s.bins.items())) or "—"
-    failing = ", ".join(f"{k}: {n}" for k, n in sorted(s.failing.items())) or "none"
+    failing = ", ".join(f"{key_name(k)}: {n}" for k, n in sorted(s.failing.items())) or "none"
     counts = (
         f"{s.units} units in {s.attempts} attempts; passed (latest attempt per unit) "
         f"{s.passed}; first-pass yield {s.first_pass_yield:.1%}, final yield {s.yield_:.1%}. "

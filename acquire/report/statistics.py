@@ -68,6 +68,18 @@ def quantity_key(parameter: str, frequency: float | None) -> str:
     return f"{parameter}@{frequency:.12g}"
 
 
+def key_name(key: str) -> str:
+    """A :func:`quantity_key` as people read it: ``"Rs at 10 kHz"``; ``"Rdc"`` stays."""
+    from acquire.units import si_prefix
+
+    parameter, _, hertz = key.partition("@")
+    if not hertz:
+        return parameter
+    frequency = float(hertz)
+    scale, prefix = si_prefix(frequency)
+    return f"{parameter} at {frequency / scale:.4g} {prefix}Hz"
+
+
 def process_capability(
     mean: float, sigma: float, low: float | None, high: float | None
 ) -> tuple[float, float]:

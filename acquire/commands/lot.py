@@ -170,11 +170,15 @@ def run(args: argparse.Namespace) -> int:
     from rich.text import Text
 
     from acquire.commands.options import open_existing_store
+    from acquire.destination import check_destination
     from acquire.report.lot_export import units_long, units_wide, write_csv
     from acquire.report.statistics import lot_statistics
 
     chosen = filter_from_args(args)
     with open_existing_store(args.store) as store:
+        for option, target in (("--csv-long", args.csv_long), ("--csv-wide", args.csv_wide)):
+            if target:
+                check_destination(target, store, option)
         stats = lot_statistics(store, chosen)
         heading = {"store": store.url, **chosen.describe(), "units": str(stats.units)}
         heading["values"] = "SI units as the column 'unit' or the header's brackets say"

@@ -269,8 +269,8 @@ def _export(args: argparse.Namespace) -> int:
     from rich.text import Text
 
     from acquire.commands.options import open_existing_store
+    from acquire.destination import check_destination
     from acquire.display import text_console
-    from acquire.report.sweep_export import check_destination
     from acquire.sweep_setup import find_reference_set
 
     with open_existing_store(args.store) as store:

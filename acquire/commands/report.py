@@ -79,6 +79,7 @@ def lot_filter(args: argparse.Namespace):
 
 def run(args: argparse.Namespace) -> int:
     from acquire.commands.options import open_existing_store
+    from acquire.destination import check_folder
     from acquire.errors import InputError
     from acquire.report.lot_pictures import selection_name
     from acquire.report.page import lot_section, sweep_section, write_report
@@ -91,6 +92,7 @@ def run(args: argparse.Namespace) -> int:
     sections = []
     shown = []
     with open_existing_store(args.store) as store:
+        check_folder(args.out, store, "--out")
         if chosen is not None:
             sections.append(lot_section(store, chosen))
             shown.append(selection_name(chosen))

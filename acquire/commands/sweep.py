@@ -154,6 +154,7 @@ def _measure(args: argparse.Namespace) -> int:
     from acquire.commands.options import plan_from_args
     from acquire.csvout import write_sweep_csv
     from acquire.dashboard import open_view, summary
+    from acquire.destination import check_destination
     from acquire.display import text_console
     from acquire.errors import InputError
     from acquire.plan import check_range
@@ -180,6 +181,8 @@ def _measure(args: argparse.Namespace) -> int:
     level = parse_quantity(args.level, "V") if args.level else None
     console = text_console()
     with open_store(args.store) as store:
+        if args.csv:
+            check_destination(args.csv, store, "--csv")
         ref_id, refs = (None, None)
         if args.reference:
             ref_id, refs = find_reference_set(store, args.reference)

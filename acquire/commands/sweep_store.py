@@ -222,6 +222,7 @@ def _export(args: argparse.Namespace) -> int:
     from rich.text import Text
 
     from acquire.commands.options import open_existing_store
+    from acquire.destination import check_destination
     from acquire.display import text_console
     from acquire.errors import InputError
     from acquire.report import sweep_export
@@ -231,7 +232,7 @@ def _export(args: argparse.Namespace) -> int:
     if args.raw and not args.to_s1p:
         raise InputError("--raw goes with --touchstone (CSV and JSON hold raw and corrected)")
     with open_existing_store(args.store) as store:
-        sweep_export.check_destination(target, store, option)
+        check_destination(target, store, option)
         sweep = _load(store, args.sweep_id)
     if args.to_csv:
         path = sweep_export.write_csv(sweep, target)

@@ -19,7 +19,6 @@ from __future__ import annotations
 
 import json
 import math
-import os
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -138,33 +137,6 @@ def heading(sweep: StoredSweep) -> dict[str, str]:
         about["uncertainty"] = UNCORRELATED
     about["stored as"] = f"sweep {info.id} in {sweep.url}" if sweep.url else f"sweep {info.id}"
     return about
-
-
-def check_destination(path: str | Path, store: Any, what: str = "export") -> Path:
-    """Refuse a destination that is the store's own file (or its journal), a folder, or in a
-    missing folder; returns the path."""
-    p = Path(path).expanduser()
-    if p.is_dir():
-        raise InputError(f"{what} {path}: that is a folder; give a file name")
-    if not p.parent.is_dir():
-        raise InputError(f"{what} {path}: the folder {p.parent} does not exist; create it first")
-    own = getattr(store, "path", None)
-    if own is not None and _is_store_file(p, Path(own)):
-        raise InputError(
-            f"{what} {path}: that is the results store's own file; choose another name"
-        )
-    return p
-
-
-def _is_store_file(p: Path, store_file: Path) -> bool:
-    """True when ``p`` is the SQLite file or one of its journals (by path or, existing, by
-    identity: a hard or symbolic link to it)."""
-    base = store_file.resolve()
-    names = {base.name + s for s in ("", "-wal", "-shm", "-journal")}
-    target = p.resolve()
-    if target.parent == base.parent and target.name in names:
-        return True
-    return p.exists() and base.exists() and os.path.samefile(p, base)
 
 
 def write_csv(sweep: StoredSweep, path: str | Path, names: Sequence[str] | None = None) -> Path:

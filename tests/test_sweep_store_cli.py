@@ -136,7 +136,7 @@ def test_json_export_has_the_same_head_and_the_points(demo):
         (["export", "1", "--csv", "/no/such/folder/a.csv"], "does not exist"),
         (["export", "1", "--csv", "x.csv", "--raw"], "--raw goes with --touchstone"),
         (["close", "1"], "sweep 1 is complete, not abandoned"),
-        (["list", "--since", "last week"], "give an ISO 8601 time"),
+        (["list", "--since", "last week"], "is not an ISO 8601 time"),
         ([], "measuring needs --resource"),
     ],
 )

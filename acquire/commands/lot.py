@@ -15,10 +15,10 @@ Cp and Pp are not defined and Cpk, Ppk use that side (NIST/SEMATECH e-Handbook o
 Methods, 6.1.6 and 6.3.2).
 
 Select units by LOT and/or --since/--until (the time a unit was finished; ISO 8601 such as
-2026-03-02 or 2026-03-02T14:00, without an offset in this computer's local time), --station and
---plan (a test plan's name as stored, or the first characters of its hash). LOT may be left out
-when another filter is given. --csv-long writes a row per measurement, --csv-wide a row per unit
-attempt with a column per quantity (its unit in brackets) and one for its uncertainty.
+2026-03-02 or 2026-03-02T14:00, without an offset in UTC, as the lists print times), --station
+and --plan (a test plan's name as stored, or the first characters of its hash). LOT may be left
+out when another filter is given. --csv-long writes a row per measurement, --csv-wide a row per
+unit attempt with a column per quantity (its unit in brackets) and one for its uncertainty.
 """
 
 from __future__ import annotations
@@ -32,8 +32,8 @@ HELP = "a lot's yields, bins and capability (Cp, Cpk, Pp, Ppk); its units as CSV
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument("lot", nargs="?", help="lot name (may be omitted with another filter)")
-    parser.add_argument("--since", help="units finished at or after this time (ISO 8601)")
-    parser.add_argument("--until", help="units finished before this time (ISO 8601)")
+    parser.add_argument("--since", help="units finished at or after this time (ISO 8601, UTC)")
+    parser.add_argument("--until", help="units finished before this time (ISO 8601, UTC)")
     parser.add_argument("--station", help="units of this station only")
     parser.add_argument("--plan", help="units tested with this plan (name, or hash prefix)")
     parser.add_argument("--json", action="store_true", help="print the statistics as JSON")
@@ -42,35 +42,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_store(parser)
 
 
-def parse_time(text: str | None, option: str):
-    """ISO 8601 text as an aware datetime (local time when no offset is given)."""
-    from datetime import datetime
-
-    from acquire.errors import InputError
-
-    if text is None:
-        return None
-    try:
-        value = datetime.fromisoformat(text.strip())
-    except ValueError:
-        raise InputError(
-            f"{option} {text!r} is not an ISO 8601 time (e.g. 2026-03-02 or 2026-03-02T14:00)"
-        ) from None
-    return value.astimezone() if value.tzinfo is None else value
-
-
 def filter_from_args(args: argparse.Namespace):
     """The LotFilter the arguments describe; refuses an empty one."""
+    from acquire.commands.options import lot_filter_from_args
     from acquire.errors import InputError
-    from acquire.report.statistics import LotFilter
 
-    chosen = LotFilter(
-        lot=args.lot,
-        since=parse_time(args.since, "--since"),
-        until=parse_time(args.until, "--until"),
-        station=args.station,
-        plan_hash=args.plan,
-    )
+    chosen = lot_filter_from_args(args, args.lot)
     if chosen.empty:
         raise InputError("give a LOT, or select units with --since, --until, --station or --plan")
     return chosen

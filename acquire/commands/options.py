@@ -89,3 +89,35 @@ def open_existing_store(url: str):
             "ACQUIRE_STORE; `acquire reference capture` and `acquire sweep` create one"
         )
     return open_store(url)
+
+
+def parse_time(text: str | None, option: str):
+    """An ISO 8601 time as an aware datetime, or None. A time without a zone is UTC, the zone
+    the store keeps and the lists print, so a time copied from a list selects what it shows."""
+    from datetime import UTC, datetime
+
+    from acquire.errors import InputError
+
+    if text is None:
+        return None
+    try:
+        when = datetime.fromisoformat(text.strip())
+    except ValueError:
+        raise InputError(
+            f"{option} {text!r} is not an ISO 8601 time: write e.g. 2026-03-02 or "
+            "2026-03-02T08:00 (UTC unless a zone such as +01:00 is given)"
+        ) from None
+    return when.replace(tzinfo=UTC) if when.tzinfo is None else when.astimezone(UTC)
+
+
+def lot_filter_from_args(args: argparse.Namespace, lot: str | None):
+    """The units a lot name and the --since, --until, --station and --plan options choose."""
+    from acquire.report.statistics import LotFilter
+
+    return LotFilter(
+        lot=lot,
+        since=parse_time(args.since, "--since"),
+        until=parse_time(args.until, "--until"),
+        station=args.station,
+        plan_hash=args.plan,
+    )

@@ -46,35 +46,12 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_store(parser)
 
 
-def parse_time(text: str | None, option: str):
-    """An ISO 8601 time as an aware datetime (UTC when no zone is given), or None."""
-    from datetime import UTC, datetime
-
-    from acquire.errors import InputError
-
-    if text is None:
-        return None
-    try:
-        when = datetime.fromisoformat(text.strip())
-    except ValueError:
-        raise InputError(
-            f"{option} {text!r} is not an ISO 8601 time: write e.g. 2026-03-02 or 2026-03-02T08:00"
-        ) from None
-    return when.replace(tzinfo=UTC) if when.tzinfo is None else when
-
-
 def lot_filter(args: argparse.Namespace):
     """The units the options choose, or None when none of the lot options is given."""
-    from acquire.report.statistics import LotFilter
+    from acquire.commands.options import lot_filter_from_args
 
-    chosen = LotFilter(
-        lot=args.lot,
-        since=parse_time(args.since, "--since"),
-        until=parse_time(args.until, "--until"),
-        station=args.station,
-        plan_hash=args.plan,
-    )
-    return chosen if chosen != LotFilter() else None
+    chosen = lot_filter_from_args(args, args.lot)
+    return None if chosen.empty else chosen
 
 
 def run(args: argparse.Namespace) -> int:

@@ -12,9 +12,8 @@
 from __future__ import annotations
 
 import argparse
-from datetime import UTC, datetime
 
-from acquire.commands.options import DEFAULT_STORE
+from acquire.commands.options import DEFAULT_STORE, parse_time
 
 ACTIONS = ("list", "show", "export", "close")
 STATUSES = ("complete", "interrupted", "running")
@@ -86,20 +85,6 @@ def sweep_id(text: str) -> int:
     return int(t)
 
 
-def _since(text: str | None) -> datetime | None:
-    from acquire.errors import InputError
-
-    if text is None:
-        return None
-    try:
-        when = datetime.fromisoformat(text.strip())
-    except ValueError:
-        raise InputError(
-            f"--since {text!r}: give an ISO 8601 time such as 2031-05-04 or 2031-05-04T08:00"
-        ) from None
-    return when.replace(tzinfo=UTC) if when.tzinfo is None else when.astimezone(UTC)
-
-
 def _list(args: argparse.Namespace) -> int:
     from rich import box
     from rich.table import Table
@@ -108,7 +93,7 @@ def _list(args: argparse.Namespace) -> int:
     from acquire.commands.options import open_existing_store
     from acquire.display import text_console
 
-    since = _since(args.since)
+    since = parse_time(args.since, "--since")
     console = text_console()
     with open_existing_store(args.store) as store:
         fixtures: dict[int, str] = {}

@@ -44,7 +44,7 @@ import sys
 
 from acquire.commands.options import add_dialect, add_plan_arguments, add_resource, add_store
 
-HELP = "sweep a part across frequency with the live view and store the points"
+HELP = "sweep a part across frequency, live, and store the points; list, show, export stored sweeps"
 
 QUANTITIES = ("Ls", "Rs", "Cs", "Lp", "Rp", "Cp", "Q", "D", "Z", "theta", "X", "G", "B")
 

@@ -269,6 +269,10 @@ STEPS: list[Callable[[DemoRun], None]] = [
     write_report,
     finish,
 ]
+#: The characterisation alone (no lot, no report): what a test of the sweep needs.
+SWEEP_STEPS: list[Callable[[DemoRun], None]] = [
+    s for s in STEPS if s not in (production_lot, write_report)
+]
 
 
 def run_demo(
@@ -278,8 +282,10 @@ def run_demo(
     points: int = 201,
     measure_time: float | None = None,
     seed: int = 0,
+    steps: list[Callable[[DemoRun], None]] | None = None,
 ) -> DemoRun:
-    """Run every step of :data:`STEPS` against a simulator started for the occasion.
+    """Run every step of ``steps`` (default :data:`STEPS`) against a simulator started for the
+    occasion.
 
     ``measure_time`` is the simulated seconds per point; by default :data:`MEASURE_TIME` with the
     live view (so there is something to watch) and 0 without it (scripts want it quick).
@@ -297,7 +303,7 @@ def run_demo(
         open_store(store_url) as store,
     ):
         run.sim, run.meter, run.store = sim, meter, store
-        for step in STEPS:
+        for step in STEPS if steps is None else steps:
             stopped = run.outcome is not None and run.outcome.interrupted
             if not stopped or step is finish:
                 step(run)

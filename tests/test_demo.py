@@ -8,7 +8,7 @@ import numpy as np
 from rich.console import Console
 
 from acquire.cli import main
-from acquire.demo import STEPS, run_demo
+from acquire.demo import STEPS, SWEEP_STEPS, run_demo
 from acquire.impedance import quantities
 from acquire.store import open_store
 from drivers.simulator.profiles import load_dut
@@ -52,7 +52,13 @@ def test_demo_no_live_exits_0_and_leaves_a_complete_sweep(tmp_path, capsys):
 def test_demo_live_view_draws_plots_and_the_resonance(tmp_path):
     buffer = io.StringIO()
     console = Console(file=buffer, record=True, force_terminal=True, width=150, height=50)
-    run = run_demo(f"sqlite:///{tmp_path / 'live.db'}", console=console, points=101, measure_time=0)
+    run = run_demo(
+        f"sqlite:///{tmp_path / 'live.db'}",
+        console=console,
+        points=101,
+        measure_time=0,
+        steps=SWEEP_STEPS,
+    )
     assert run.outcome is not None and run.outcome.status == "complete"
     text = console.export_text()
     assert "Ls (corrected)" in text and "Q (corrected)" in text
@@ -75,7 +81,10 @@ def test_the_demos_fit_uses_the_sweeps_own_uncertainty(tmp_path):
     from acquire.demo import _fit_uncertainty
 
     run = run_demo(
-        f"sqlite:///{tmp_path / 'd.db'}", live=False, console=Console(file=io.StringIO())
+        f"sqlite:///{tmp_path / 'd.db'}",
+        live=False,
+        console=Console(file=io.StringIO()),
+        steps=SWEEP_STEPS,
     )
     inputs = _fit_uncertainty(run, run.outcome)
     n = run.outcome.frequency.size

@@ -21,7 +21,7 @@ import pytest
 from matplotlib.collections import PolyCollection
 from rich.console import Console
 
-from acquire.demo import run_demo
+from acquire.demo import SWEEP_STEPS, run_demo
 from acquire.errors import InputError, StoreError
 from acquire.impedance import quantities
 from acquire.report.sweep_panels import DPI, FIGURE_SIZE, tick_text
@@ -44,7 +44,14 @@ def store(tmp_path_factory):
     """The demo's store (sweep 1: the demo coil), plus sweep 2 (sweep 1's points with X 3 %
     higher, a second sample), sweep 3 (raw readings only) and sweep 4 (no points)."""
     url = f"sqlite:///{tmp_path_factory.mktemp('sweeppics') / 'demo.db'}"
-    run_demo(url, live=False, points=101, measure_time=0, console=Console(file=io.StringIO()))
+    run_demo(
+        url,
+        live=False,
+        points=101,
+        measure_time=0,
+        steps=SWEEP_STEPS,
+        console=Console(file=io.StringIO()),
+    )
     with open_store(url) as s:
         p = s.sweep_points(1)
         f = p["frequency"].to_numpy()

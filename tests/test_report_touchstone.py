@@ -18,7 +18,7 @@ import numpy as np
 import pytest
 import skrf
 
-from acquire.demo import run_demo
+from acquire.demo import SWEEP_STEPS, run_demo
 from acquire.errors import InputError
 from acquire.report.touchstone import DIGITS, s1p_text, s11_from_z, write_s1p
 from acquire.store import open_store
@@ -110,7 +110,7 @@ def test_what_a_touchstone_file_cannot_hold_is_refused(f, z, fragment):
 def demo_store(tmp_path_factory):
     folder = tmp_path_factory.mktemp("touchstone")
     url = f"sqlite:///{folder / 'demo.db'}"
-    run_demo(url, live=False, points=101, measure_time=0)
+    run_demo(url, live=False, points=101, measure_time=0, steps=SWEEP_STEPS)
     return folder, url
 
 

@@ -13,7 +13,7 @@ import numpy as np
 import pytest
 from rich.console import Console
 
-from acquire.demo import run_demo
+from acquire.demo import SWEEP_STEPS, run_demo
 from acquire.store import open_store
 from drivers.meter import ImpedanceMeter
 
@@ -65,9 +65,9 @@ def test_demo_with_and_without_live_view_stores_the_same_values(tmp_path):
     plain = f"sqlite:///{tmp_path / 'plain.db'}"
     live = f"sqlite:///{tmp_path / 'live.db'}"
     quiet = Console(file=io.StringIO(), width=120)
-    run_demo(plain, live=False, seed=1, measure_time=0, console=quiet)
+    run_demo(plain, live=False, seed=1, measure_time=0, console=quiet, steps=SWEEP_STEPS)
     console = Console(file=io.StringIO(), force_terminal=True, width=150, height=50)
-    run_demo(live, live=True, seed=1, measure_time=0.002, console=console)
+    run_demo(live, live=True, seed=1, measure_time=0.002, console=console, steps=SWEEP_STEPS)
     a, b = _stored(plain), _stored(live)
     assert a["frequency"].size == 201
     for column in a:

@@ -197,7 +197,11 @@ def format_si(value: float, unit: str = "", digits: int = 4) -> str:
         return f"{'-' if value < 0 else ''}∞ {unit}".rstrip()
     if value == 0:
         return f"{0:.{max(digits - 1, 0)}f} {unit}".rstrip()
-    value = float(f"{value:.{digits}g}")
+    rounded = float(f"{value:.{digits}g}")
+    if not math.isfinite(rounded) or abs(rounded) >= 1e3 * _FORMAT_PREFIXES[0][0]:
+        # Past the largest prefix (up to the largest double): a power of ten, not 300 digits.
+        return f"{value:.{max(digits - 1, 0)}e} {unit}".rstrip()
+    value = rounded
     scale, prefix = si_prefix(value)
     scaled = value / scale
     decimals = max(digits - 1 - int(math.floor(math.log10(abs(scaled)))), 0) if scaled else 0

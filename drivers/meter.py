@@ -13,23 +13,25 @@ from __future__ import annotations
 import functools
 import logging
 from collections.abc import Callable
-from typing import Any
+from typing import Any, TypeVar
 
 import numpy as np
 
 from drivers import readings, scpi
-from drivers.dialect import Dialect, Operation
+from drivers.dialect import Dialect
 from drivers.dialect_file import load_dialect
+from drivers.error_queue import ErrorQueue
 from drivers.errors import DialectError, OutOfRange, SettingRefused
 from drivers.exchange import Exchange
 from drivers.scpi import ErrorEntry, Identity
-from drivers.session import Session
+from drivers.session import TRANSIENT, Session
+from drivers.settings import number_text, setting_step, transfer_steps
 
 __all__ = ["ImpedanceMeter", "Identity", "ErrorEntry"]
 
 log = logging.getLogger(__name__)
+T = TypeVar("T")
 OnPoints = Callable[[np.ndarray, np.ndarray], None]
-_SETTINGS = {"level": "set_level", "speed": "set_speed", "averaging": "set_averaging"}
 
 
 class ImpedanceMeter:
@@ -42,6 +44,7 @@ class ImpedanceMeter:
         self._transfer = dialect.transfer
         self._mode_known = False
         self._io = Exchange(session, dialect)
+        self._queue = ErrorQueue(session, dialect)
         session.on_reopen = self._restore
 
     @classmethod
@@ -129,10 +132,16 @@ class ImpedanceMeter:
         return self._dialect.has(operation)
 
     def identify(self) -> Identity:
-        """The meter's ``*IDN?`` fields."""
+        """The meter's ``*IDN?`` fields, asked twice: replies that differ (one garbled or cut
+        short) are asked again like any malformed reply."""
         op = self._dialect.operation("identify")
-        reply = self._session.call("identify", lambda: self._session.query(op.format()))
-        return scpi.parse_identity(reply)
+
+        def ask() -> Identity:
+            return scpi.same_identity(
+                self._session.query(op.format()), self._session.query(op.format())
+            )
+
+        return self._call("identify", ask)
 
     # -- settings ------------------------------------------------------------------------------
 
@@ -165,9 +174,9 @@ class ImpedanceMeter:
         """
         wanted = {"level": level, "speed": speed, "averaging": averaging}
         wanted = {k: v for k, v in wanted.items() if v is not None}
-        steps = [self._setting_step(name, value) for name, value in wanted.items()]
+        steps = [setting_step(self._dialect, name, value) for name, value in wanted.items()]
         if transfer is not None:
-            steps += self._transfer_steps(transfer)
+            steps += transfer_steps(self._dialect, transfer)
         if not steps:
             return
 
@@ -181,50 +190,14 @@ class ImpedanceMeter:
         if transfer is not None:
             self._transfer = transfer
 
-    def _setting_step(self, name: str, value: Any) -> tuple[Operation, dict[str, Any]]:
-        op = self._dialect.operation(_SETTINGS[name], f"set the {name}")
-        if name == "speed":
-            choices = {k.lower(): v for k, v in op.choices.items()}
-            word = choices.get(str(value).lower())
-            if word is None:
-                raise OutOfRange(f"speed {value!r} is not one of {', '.join(op.choices)}")
-            return op, {"speed": word}
-        if name == "averaging":
-            if int(value) != value or value < 1:
-                raise OutOfRange(f"averaging must be a whole number of readings >= 1, got {value}")
-            value = int(value)
-        else:
-            value = float(value)
-            if not np.isfinite(value) or value <= 0:
-                raise OutOfRange(f"level must be a positive number of volts, got {value}")
-        if (op.minimum is not None and value < op.minimum) or (
-            op.maximum is not None and value > op.maximum
-        ):
-            unit = " V" if name == "level" else ""
-            lo = "-" if op.minimum is None else f"{op.minimum:g}{unit}"
-            hi = "-" if op.maximum is None else f"{op.maximum:g}{unit}"
-            raise OutOfRange(
-                f"{name} {value:g}{unit} is outside {lo} to {hi} allowed by dialect "
-                f"{self._dialect.name!r}"
-            )
-        return op, {name: _number(value)}
-
-    def _transfer_steps(self, transfer: str) -> list[tuple[Operation, dict[str, Any]]]:
-        if transfer not in ("ascii", "binary"):
-            raise OutOfRange(f"transfer must be 'ascii' or 'binary', got {transfer!r}")
-        if transfer == self._dialect.transfer and not self._dialect.has(transfer):
-            return []
-        return [(self._dialect.operation(transfer, f"switch readings to {transfer}"), {})]
-
-    def _prepare(self) -> None:
-        """Clear the status, send the dialect's setup and check the meter accepted it."""
+    def _prepare(self, reopened: bool = False) -> None:
+        """Read the error queue (kept as the reason of a failure after a reconnect), clear the
+        status, send the dialect's setup and check the meter accepted it."""
         d = self._dialect
+        self._queue.before_clear(reopened)
         if d.has("clear_status"):
             self._io.run([(d.operations["clear_status"], {})])
-        old = scpi.drain_errors(self._next_error, d.warning_codes)
-        if old:
-            log.info("%s: discarded errors queued before this session: %s", self.resource, old)
-        steps = self._transfer_steps(self._transfer)
+        steps = transfer_steps(self._dialect, self._transfer)
         if d.has("setup"):
             steps.insert(0, (d.operations["setup"], {}))
         if steps:
@@ -237,8 +210,8 @@ class ImpedanceMeter:
     def _restore(self) -> None:
         """After a reconnect: setup again, then the last configuration."""
         self._mode_known = False
-        self._prepare()
-        steps = [self._setting_step(k, v) for k, v in self._settings.items()]
+        self._prepare(reopened=True)
+        steps = [setting_step(self._dialect, k, v) for k, v in self._settings.items()]
         if steps:
             self._io.run(steps)
             self._check_queue("restoring the configuration after a reconnect")
@@ -277,10 +250,9 @@ class ImpedanceMeter:
             mode == "auto" and d.has_list and f.size >= max(2, d.list_min_points)
         )
         out = self._sweep_list(f, on_points) if use_list else self._sweep_points(f, on_points)
-        self._session.call(
+        self._call(
             "reading the error queue after the sweep",
-            lambda: self._check_queue("the sweep"),
-            idempotent=False,
+            lambda: self._queue.check("the sweep", recovered=True),
         )
         return out
 
@@ -321,8 +293,8 @@ class ImpedanceMeter:
             return values
 
         for i, fi in enumerate(f):
-            context = {"frequency": _number(fi)}
-            chunk = self._session.call(
+            context = {"frequency": number_text(fi)}
+            chunk = self._call(
                 f"measuring at {fi:g} Hz",
                 functools.partial(point, context),
                 all(o.idempotent for o in full),
@@ -340,11 +312,11 @@ class ImpedanceMeter:
         steps = [d.operations[name] for name in d.list_sequence]
         for start, stop in _chunks(f.size, d.list_max_points):
             part = f[start:stop]
-            context = {"frequencies": ",".join(map(_number, part)), "count": str(part.size)}
+            context = {"frequencies": ",".join(map(number_text, part)), "count": str(part.size)}
             sent = [(op, context) for op in steps]
             timeout = self._timeout(part.size)
             self._mode_known = False
-            values = self._session.call(
+            values = self._call(
                 f"list sweep of {part.size} points from {part[0]:g} Hz",
                 functools.partial(self._io.readings, sent, part.size, timeout, self._binary),
                 all(op.idempotent for op in steps),
@@ -359,8 +331,10 @@ class ImpedanceMeter:
         """DC resistance (ohm) as the meter measures it; inf if overrange."""
         op = self._dialect.operation("dc_resistance", "measure the DC resistance")
         timeout = self._timeout(1)
-        return self._session.call(
-            "DC resistance", lambda: scpi.parse_number(self._io.guarded(op, timeout)), op.idempotent
+        return self._call(
+            "DC resistance",
+            lambda: scpi.parse_number(self._io.guarded(op, timeout)),
+            op.idempotent,
         )
 
     def next_unit(self) -> None:
@@ -370,27 +344,24 @@ class ImpedanceMeter:
 
     def errors(self) -> list[ErrorEntry]:
         """Read and empty the meter's error queue (oldest first); nothing is raised."""
-        return self._session.call(
-            "reading the error queue",
-            lambda: scpi.drain_errors(self._next_error, self._dialect.warning_codes),
-            idempotent=False,
-        )
+        return self._session.call("reading the error queue", self._queue.drain, idempotent=False)
 
     # -- exchanges -------------------------------------------------------------------------------
 
-    def _next_error(self) -> str:
-        return self._session.query(self._dialect.operations["next_error"].format())
+    def _call(self, what: str, action: Callable[[], T], idempotent: bool = True) -> T:
+        """:meth:`Session.call`, with the meter's error queue read first whenever a reply was
+        not understood or the connection was reopened; what the meter reported is the error."""
+        self._queue.found = []
+        try:
+            return self._session.call(what, self._queue.explained(what, action), idempotent)
+        except TRANSIENT as exc:
+            told = self._queue.with_reason(exc)
+            if told is None:
+                raise
+            raise told from exc
 
     def _check_queue(self, context: str) -> None:
-        entries = scpi.drain_errors(self._next_error, self._dialect.warning_codes)
-        scpi.raise_for_errors(entries, f"{self.resource}: {context}")
-
-
-def _number(value: float) -> str:
-    """A number as SCPI decimal numeric data that round-trips exactly."""
-    if isinstance(value, int | np.integer):
-        return str(int(value))
-    return repr(float(value))
+        self._queue.check(context)
 
 
 def _chunks(n: int, most: int) -> list[tuple[int, int]]:

@@ -19,6 +19,21 @@ from drivers.errors import ReplyError, SettingRefused
 #: The longest error queue drained in one go; a meter that never answers "0" is broken.
 MAX_QUEUE = 100
 
+#: SCPI-99 (volume 2, 21.8): error/event numbers lie in [-32768, 32767].
+CODE_RANGE = (-32768, 32767)
+
+#: IEEE 488.2 (7.4.1.2) white space: ASCII 0-9 and 11-32, i.e. control characters but LF, and
+#: the space.
+_WS = r"[\x00-\x09\x0b-\x20]*"
+#: IEEE 488.2 decimal numeric data: NR1, NR2 and NR3 as a forgiving listener reads them (7.7.2
+#: program data: optional sign, ASCII digits with at most one point, optional exponent with
+#: white space allowed around its E). ASCII digits only: no underscores, no other scripts'
+#: digits, no words such as inf or nan (which Python's float would accept).
+_NUMBER = r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:" + _WS + r"[Ee]" + _WS + r"[+-]?[0-9]+)?"
+_ONE_NUMBER = re.compile(_WS + "(" + _NUMBER + ")" + _WS)
+_NUMBER_LIST = re.compile(_WS + _NUMBER + _WS + "(?:," + _WS + _NUMBER + _WS + ")*")
+_WHITE = re.compile(r"[\x00-\x09\x0b-\x20]+")
+
 
 #: Overrange and invalid markers of SCPI-99, and the relative tolerance used to recognise them.
 OVERRANGE = 9.9e37
@@ -65,7 +80,7 @@ def parse_identity(text: str) -> Identity:
     and any commas past the third are kept inside the firmware field.
     """
     fields = [part.strip() for part in text.strip().split(",", 3)]
-    if len(fields) != 4 or not fields[0]:
+    if len(fields) != 4 or not fields[0] or not all(_printable(f) for f in fields):
         raise ReplyError(
             f"the identity reply {text.strip()!r} does not have the four IEEE 488.2 fields "
             "manufacturer,model,serial,firmware; is the resource a SCPI meter?"
@@ -73,7 +88,28 @@ def parse_identity(text: str) -> Identity:
     return Identity(*fields)
 
 
-_ERROR = re.compile(r'^\s*([+-]?\d+)\s*(?:,\s*"?(.*?)"?)?\s*$', re.DOTALL)
+def _printable(field: str) -> bool:
+    """True if ``field`` holds printable ASCII only (IEEE 488.2 clause 10.14's fields are text)."""
+    return all(" " <= c <= "~" for c in field)
+
+
+def same_identity(first: str, second: str) -> Identity:
+    """The identity of two ``*IDN?`` replies read one after the other, which must agree.
+
+    IEEE 488.2 clause 10.14: a device answers ``*IDN?`` with the same fields every time, so two
+    replies that differ mean one was garbled or cut short on the way (raises
+    :class:`ReplyError`, which the session repeats like any other malformed reply).
+    """
+    identity = parse_identity(first)
+    if second.strip() != first.strip():
+        raise ReplyError(
+            f"two identity replies in a row differ ({first.strip()[:40]!r}, "
+            f"{second.strip()[:40]!r}); one was garbled or cut short on the way"
+        )
+    return identity
+
+
+_ERROR = re.compile(r'^\s*([+-]?[0-9]{1,6})\s*(?:,\s*"?(.*?)"?)?\s*$', re.DOTALL)
 
 
 def severity(code: int, warning_codes: Iterable[int] = ()) -> str:
@@ -94,7 +130,7 @@ def severity(code: int, warning_codes: Iterable[int] = ()) -> str:
 def parse_error(text: str, warning_codes: Iterable[int] = ()) -> ErrorEntry:
     """Parse one error-queue reply such as ``-222,"Data out of range"``."""
     match = _ERROR.match(text)
-    if not match:
+    if not match or not CODE_RANGE[0] <= int(match.group(1)) <= CODE_RANGE[1]:
         raise ReplyError(
             f"the error-queue reply {text.strip()!r} is not '<code>,\"<message>\"' as SCPI-99 "
             "requires; check the dialect's next_error command"
@@ -165,13 +201,20 @@ def special_values(values: np.ndarray) -> np.ndarray:
     return v
 
 
+def is_number(text: str) -> bool:
+    """True if ``text`` is one IEEE 488.2 decimal number (NR1, NR2 or NR3), white space around."""
+    return _ONE_NUMBER.fullmatch(text) is not None
+
+
 def parse_number(text: str) -> float:
-    """One SCPI decimal number; 9.9E37 becomes +-inf and 9.91E37 nan."""
-    try:
-        value = float(text.strip())
-    except ValueError:
-        raise ReplyError(f"expected a number from the meter, got {text.strip()[:40]!r}") from None
-    return float(special_values(np.array([value]))[0])
+    """One IEEE 488.2 decimal number (NR1, NR2 or NR3); 9.9E37 becomes +-inf and 9.91E37 nan.
+
+    Anything else (Python's float would take ``1_0``, other scripts' digits, ``inf``) raises
+    :class:`ReplyError`.
+    """
+    if not is_number(text):
+        raise ReplyError(f"expected a number from the meter, got {text.strip()[:40]!r}")
+    return float(special_values(np.array([float(_WHITE.sub("", text))]))[0])
 
 
 def parse_numbers(text: str, expected: int | None = None) -> np.ndarray:
@@ -180,18 +223,18 @@ def parse_numbers(text: str, expected: int | None = None) -> np.ndarray:
     Raises :class:`ReplyError` if a field is not a number or (with ``expected``) if the count
     differs, so a garbled, truncated or stale reply is never taken for a reading.
     """
-    fields = text.strip().split(",")
+    fields = _WHITE.sub("", text).split(",")
     if expected is not None and len(fields) != expected:
         raise ReplyError(
             f"expected {expected} numbers in the reply, got {len(fields)} "
             f"(starting {text.strip()[:40]!r})"
         )
-    try:
-        return np.array(fields, dtype=float)
-    except ValueError:
+    if _NUMBER_LIST.fullmatch(text.rstrip("\n")) is None:
         raise ReplyError(
-            f"the reply is not a list of numbers (starting {text.strip()[:40]!r})"
-        ) from None
+            f"the reply is not a list of numbers as IEEE 488.2 writes them (NR1, NR2, NR3; "
+            f"starting {text.strip()[:40]!r})"
+        )
+    return np.array(fields, dtype=float)
 
 
 def find_block(raw: bytes | bytearray) -> tuple[int, int, int]:

@@ -29,14 +29,21 @@ from pyvisa import constants
 from pyvisa.errors import VisaIOError
 from pyvisa.resources import MessageBasedResource
 
-from drivers import rawsocket, scpi
-from drivers.errors import ConnectionLost, InstrumentError, MeterTimeout, ReplyError
+from drivers import rawsocket, retry, scpi
+from drivers.errors import ConnectionLost, MeterTimeout, ReplyError
+from drivers.failure_text import (
+    ADVICE_OPEN,
+    open_failure,
+    resource_problem,
+    simulated_elsewhere,
+    socket_hint,
+)
 
 T = TypeVar("T")
 log = logging.getLogger(__name__)
 
 #: Failures after which reconnecting and repeating may help.
-TRANSIENT = (ConnectionLost, MeterTimeout, ReplyError)
+TRANSIENT = retry.TRANSIENT
 
 
 class Session:
@@ -83,9 +90,13 @@ class Session:
 
     def open(self) -> Session:
         """Open the resource (raises :class:`ConnectionLost` if it cannot be reached)."""
+        problem = resource_problem(self.resource_name)
+        if problem is not None:
+            raise ConnectionLost(problem)
         try:
             if self._manager is None:
                 self._manager = pyvisa.ResourceManager(self.backend)
+            self._check_simulated(self._manager)
             resource = self._manager.open_resource(
                 self.resource_name,
                 read_termination=self.read_termination,
@@ -93,15 +104,11 @@ class Session:
                 encoding=self.encoding,
                 open_timeout=int(self.open_timeout * 1000),
             )
-        except (VisaIOError, OSError, ValueError) as exc:
-            self._resource = None
-            raise ConnectionLost(
-                f"cannot open {self.resource_name} with backend {self.backend}: {exc}. Check "
-                "that the meter is on and reachable and that the resource string is right"
-            ) from exc
+        except ConnectionLost:
+            raise
         except Exception as exc:  # noqa: BLE001 - pyvisa-py raises bare Exception on refusal
             self._resource = None
-            raise ConnectionLost(f"cannot open {self.resource_name}: {exc}") from exc
+            raise ConnectionLost(open_failure(self.resource_name, self.backend, exc)) from exc
         if not isinstance(resource, MessageBasedResource):
             self._resource = None
             resource.close()
@@ -114,6 +121,18 @@ class Session:
             self._check_connected(self._socket)
         return self
 
+    def _check_simulated(self, manager: pyvisa.ResourceManager) -> None:
+        """pyvisa-sim opens any resource and answers nothing for one its profile lacks."""
+        if not self.backend.endswith("@sim"):
+            return
+        try:
+            known = tuple(manager.list_resources("?*"))
+        except VisaIOError:
+            known = ()
+        problem = simulated_elsewhere(self.resource_name, self.backend, known)
+        if problem is not None:
+            raise ConnectionLost(problem)
+
     def _check_connected(self, sock: rawsocket.RawSocket) -> None:
         """pyvisa-py reports success on a refused connection; ask the socket itself."""
         try:
@@ -121,8 +140,8 @@ class Session:
         except OSError as exc:
             self._drop_resource()
             raise ConnectionLost(
-                f"cannot open {self.resource_name}: {exc.strerror or exc}. Check that the meter "
-                "is on and reachable and that the resource string (address, port) is right"
+                f"cannot open {self.resource_name}: {exc.strerror or exc}"
+                f"{socket_hint(self.resource_name)}. {ADVICE_OPEN}"
             ) from exc
 
     def close(self) -> None:
@@ -137,6 +156,12 @@ class Session:
     @property
     def is_open(self) -> bool:
         return self._resource is not None
+
+    @property
+    def suspect(self) -> bool:
+        """True while a reply may still be on its way (after a timeout or a reply cut short);
+        the next message then reopens the connection first."""
+        return self._suspect
 
     @property
     def nodelay(self) -> bool | None:
@@ -232,25 +257,9 @@ class Session:
 
         ``what`` names the operation in messages. An action that is not idempotent is not
         repeated: the session reconnects (so it stays usable) and the failure is raised.
+        See :func:`drivers.retry.call`.
         """
-        failures: list[str] = []
-        attempts = 0
-        while True:
-            try:
-                return action()
-            except TRANSIENT as exc:
-                failures.append(f"{type(exc).__name__}: {exc}")
-                last = exc
-            attempts += 1
-            if not idempotent:
-                self._try_reconnect(failures)
-                raise type(last)(
-                    f"{what} on {self.resource_name} failed ({failures[-1]}); it was not "
-                    "repeated because repeating it is not safe; the connection was reopened"
-                ) from last
-            if attempts > self.retries:
-                raise self._gave_up(what, attempts, failures, last) from last
-            self._try_reconnect(failures)
+        return retry.call(self, what, action, idempotent)
 
     def reconnect(self, attempt: int = 1) -> None:
         """Close, wait ``retry_wait * attempt`` seconds, reopen and call ``on_reopen``.
@@ -285,32 +294,6 @@ class Session:
             except (VisaIOError, OSError):
                 return
             log.info("%s: discarded a reply nobody asked for: %r", self.resource_name, stale[:40])
-
-    def _try_reconnect(self, failures: list[str]) -> None:
-        for attempt in range(1, self.retries + 2):
-            try:
-                self.reconnect(attempt)
-                return
-            except InstrumentError as exc:
-                failures.append(f"reconnect {attempt}: {type(exc).__name__}: {exc}")
-        raise ConnectionLost(
-            f"lost {self.resource_name} and could not reopen it; tried: " + " | ".join(failures)
-        )
-
-    def _gave_up(
-        self, what: str, attempts: int, failures: list[str], last: Exception
-    ) -> InstrumentError:
-        tried = f"tried {attempts} times, reconnecting in between"
-        listed = " | ".join(failures)
-        if isinstance(last, ReplyError):
-            return ReplyError(
-                f"{what} on {self.resource_name}: every reply was malformed ({tried}): {listed}. "
-                "If this repeats, the dialect's reading pair or commands may not match the meter"
-            )
-        return ConnectionLost(
-            f"{what} on {self.resource_name} failed ({tried}): {listed}. "
-            "Check the cable/network and that the meter is not busy, then try again"
-        )
 
     # -- internals -----------------------------------------------------------------------------
 

@@ -15,8 +15,12 @@ from __future__ import annotations
 import argparse
 import importlib
 import os
+import re
 import sys
 from collections.abc import Sequence
+
+#: A byte of the command line that was not text (PEP 383 decodes it as U+DC80..U+DCFF).
+_SURROGATE = re.compile("[\udc80-\udcff]")
 
 #: Subcommand name -> module under acquire.commands, in the order shown by --help.
 COMMANDS: dict[str, str] = {
@@ -74,6 +78,9 @@ def build_parser() -> argparse.ArgumentParser:
 
 
 def main(argv: Sequence[str] | None = None) -> int:
+    from acquire.display import keep_output_readable
+
+    keep_output_readable(sys.stdout, sys.stderr)  # an ASCII terminal, a file name not in UTF-8
     parser = build_parser()
     args = parser.parse_args(argv)
     if getattr(args, "_module", None) is None:
@@ -93,11 +100,36 @@ def main(argv: Sequence[str] | None = None) -> int:
         devnull = os.open(os.devnull, os.O_WRONLY)
         os.dup2(devnull, sys.stdout.fileno())
         return 1
+    except UnicodeEncodeError as exc:
+        if debug or "surrogates" not in str(exc.reason):
+            raise
+        where = _holding(exc.object, sys.argv[1:] if argv is None else list(argv))
+        shown = exc.object.encode("utf-8", "surrogateescape")
+        print(
+            f"acquire {args.command}: error: {where} holds bytes that are not UTF-8 text "
+            f"({shown!r}); names are kept as UTF-8: type it again in UTF-8",
+            file=sys.stderr,
+        )
+        return 2
     except Exception as exc:  # noqa: BLE001 - turned into one line; --debug re-raises
         if debug or not _is_user_error(exc):
             raise
         print(f"acquire {args.command}: error: {exc}", file=sys.stderr)
         return 2
+
+
+def _holding(value: str, argv: list[str]) -> str:
+    """The option of the command line whose text is (or holds) ``value``, else "a name"."""
+    for i, token in enumerate(argv):
+        text = token.split("=", 1)[1] if token.startswith("--") and "=" in token else token
+        if not _SURROGATE.search(text) or not (value in text or text in value):
+            continue
+        if text is not token:
+            return token.split("=", 1)[0]
+        if i and argv[i - 1].startswith("-") and not argv[i - 1].startswith("---"):
+            return argv[i - 1]
+        return f"the argument {token.encode('utf-8', 'surrogateescape')!r}"
+    return "a name"
 
 
 def _is_user_error(exc: BaseException) -> bool:

@@ -95,3 +95,51 @@ def lines_taken(part, width: int) -> int:
 
     ruler = Console(file=io.StringIO(), width=width, color_system=None)
     return len(ruler.render_lines(part, ruler.options, pad=False))
+
+
+#: How the symbols this tool prints are spelled on a terminal that cannot show them (an ASCII
+#: or Latin-1 one): a value stays readable, ``344.1 uH +/- 0.3 uH``.
+PLAIN_SPELLING = {
+    "µ": "u", "μ": "u", "Ω": "ohm", "±": "+/-", "°": " deg", "θ": "theta", "δ": "delta",
+    "σ": "sigma", "≈": "~", "∞": "inf", "—": "-", "–": "-", "…": "...", "≤": "<=", "≥": ">=",
+    "≠": "!=", "·": "-", "×": "x", "²": "^2", "√": "sqrt", "→": "->", "┊": ":", "│": "|",
+    "━": "-", "‘": "'", "’": "'", "“": '"', "”": '"',
+}  # fmt: skip
+
+#: The name of the codec error handler :func:`keep_output_readable` installs.
+OUTPUT_ERRORS = "acquire-plain"
+
+
+def spell_plainly(exc: UnicodeError) -> tuple[str | bytes, int]:
+    """Codec error handler for output: a character the stream's encoding cannot hold is spelled
+    as :data:`PLAIN_SPELLING` says, else as a backslash escape; a byte of the command line that
+    was not text (a lone surrogate U+DC80..U+DCFF, PEP 383) is written back as that byte."""
+    if not isinstance(exc, UnicodeEncodeError):
+        raise exc
+    char = exc.object[exc.start]
+    if "\udc80" <= char <= "\udcff":
+        return bytes([ord(char) - 0xDC00]), exc.start + 1
+    plain = PLAIN_SPELLING.get(char)
+    if plain is None:
+        plain = char.encode("ascii", "backslashreplace").decode("ascii")
+    return plain, exc.start + 1
+
+
+def keep_output_readable(*streams) -> None:
+    """Make writing to ``streams`` (text streams such as ``sys.stdout``) never fail on a
+    character their encoding cannot hold: :func:`spell_plainly` writes it instead. A UTF-8
+    stream writes exactly as before, except the bytes of a file name that is not UTF-8."""
+    import codecs
+
+    try:
+        codecs.lookup_error(OUTPUT_ERRORS)
+    except LookupError:
+        codecs.register_error(OUTPUT_ERRORS, spell_plainly)
+    for stream in streams:
+        reconfigure = getattr(stream, "reconfigure", None)
+        if reconfigure is None:
+            continue
+        try:
+            reconfigure(errors=OUTPUT_ERRORS)
+        except (OSError, ValueError):  # a closed or detached stream: nothing to do
+            continue

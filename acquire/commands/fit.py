@@ -32,7 +32,7 @@ from __future__ import annotations
 
 import argparse
 
-from acquire.commands.options import add_store
+from acquire.commands.options import add_store, print_json
 from acquire.commands.predict import add_geometry_arguments
 
 HELP = "fit L, R(f), Cp and the self-resonance to a stored or CSV sweep"
@@ -148,9 +148,7 @@ def run(args: argparse.Namespace) -> int:
         core_loss={"auto": None, "yes": True, "no": False}[args.core_loss],
     )
     if args.json:
-        import json
-
-        print(json.dumps(fit_json(fit), ensure_ascii=False))
+        print_json(fit_json(fit))
         return 0
     prediction = predict(geometry) if geometry is not None else None
     if args.plain:

@@ -25,7 +25,7 @@ from __future__ import annotations
 
 import argparse
 
-from acquire.commands.options import add_store
+from acquire.commands.options import add_store, print_json
 
 HELP = "a lot's yields, bins and capability (Cp, Cpk, Pp, Ppk); its units as CSV"
 
@@ -141,8 +141,6 @@ def _percent(value: float) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    import json
-
     from rich.console import Console
     from rich.text import Text
 
@@ -169,7 +167,7 @@ def run(args: argparse.Namespace) -> int:
             written.append(write_csv(frame, args.csv_wide, {**heading, "layout": "wide"}))
     if args.json:
         document = {"command": "lot", **stats.to_json()}
-        print(json.dumps(document, ensure_ascii=False, allow_nan=False))
+        print_json(document, allow_nan=False)
         return 0
     console = Console(highlight=False, emoji=False)
     if not console.is_terminal:

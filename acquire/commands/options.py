@@ -76,7 +76,8 @@ def plan_from_args(args: argparse.Namespace):
 
 
 def open_existing_store(url: str):
-    """Open the results store at ``url`` to read from it; an SQLite file that does not exist is
+    """Open the results store at ``url`` to read from it. A store that is not there (a missing,
+    empty or other SQLite file, an in-memory store, a database or schema without one) is
     refused, since a typo in --store would otherwise make a new, empty store and find nothing."""
     from acquire.errors import InputError
     from acquire.store import open_store
@@ -88,7 +89,7 @@ def open_existing_store(url: str):
             f"there is no results store at {path} (--store {url}): check the path or "
             "ACQUIRE_STORE; `acquire reference capture` and `acquire sweep` create one"
         )
-    return open_store(url)
+    return open_store(url, create=False)
 
 
 def parse_time(text: str | None, option: str):
@@ -121,3 +122,14 @@ def lot_filter_from_args(args: argparse.Namespace, lot: str | None):
         station=args.station,
         plan_hash=args.plan,
     )
+
+
+def print_json(document, **options) -> None:
+    """Print ``document`` as JSON: its text as it is on a UTF-8 output, else with every other
+    character as a ``\\uXXXX`` escape (RFC 8259, 7), so nothing is respelled or lost."""
+    import json
+    import sys
+
+    encoding = (getattr(sys.stdout, "encoding", None) or "").lower().replace("-", "")
+    plain = encoding in ("utf8", "utf16", "utf32")
+    print(json.dumps(document, ensure_ascii=not plain, **options))

@@ -55,11 +55,10 @@ def run(args: argparse.Namespace) -> int:
         return 0
     plan = load_plan(args.file)
     if args.json:
-        import json
-
+        from acquire.commands.options import print_json
         from acquire.production.plan_text import plan_summary
 
-        print(json.dumps(plan_summary(plan), ensure_ascii=False, indent=2))
+        print_json(plan_summary(plan), indent=2)
         return 0
     for line in describe_plan(plan):
         print(line)

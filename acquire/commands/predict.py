@@ -125,9 +125,9 @@ def run(args: argparse.Namespace) -> int:
     frequencies = tuple(parse_list(args.frequency, "Hz"))
     prediction = predict(geometry, frequencies)
     if args.json:
-        import json
+        from acquire.commands.options import print_json
 
-        print(json.dumps(prediction_json(prediction), ensure_ascii=False, indent=2))
+        print_json(prediction_json(prediction), indent=2)
     elif args.plain:
         print(prediction_text(prediction))
     else:

@@ -41,6 +41,7 @@ from __future__ import annotations
 import argparse
 import os
 import sys
+from collections.abc import Callable
 
 from acquire.commands.options import add_dialect, add_plan_arguments, add_resource, add_store
 
@@ -220,7 +221,7 @@ def _measure(args: argparse.Namespace) -> int:
             started = datetime.now(UTC)
             with open_view(state, live=not args.no_live, console=console) as view:
                 outcome = run_sweep(
-                    meter, plan, refs, writer, state, on_progress=view.update,
+                    meter, plan, refs, writer, state, on_progress=_harmless(view.update),
                     uncertainty=model, repeats=args.repeats,
                 )  # fmt: skip
                 review_readings(state, refs)
@@ -240,6 +241,23 @@ def _measure(args: argparse.Namespace) -> int:
         return 0
     print(f"acquire sweep: {line}", file=sys.stderr)
     return 130 if isinstance(outcome.error, KeyboardInterrupt) else 2
+
+
+def _harmless(update: Callable[[], None]) -> Callable[[], None]:
+    """``update``, made unable to stop the sweep: a progress line that cannot be written (a
+    terminal gone, a closed pipe) turns the progress display off; measuring and storing go on,
+    so a sweep whose points all arrive is stored complete."""
+    failed: list[Exception] = []
+
+    def update_or_stay_quiet() -> None:
+        if failed:
+            return
+        try:
+            update()
+        except (OSError, ValueError) as exc:  # ValueError: a closed file, an encoding
+            failed.append(exc)
+
+    return update_or_stay_quiet
 
 
 def _override(text: str | None) -> str:

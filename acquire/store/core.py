@@ -13,7 +13,7 @@ from acquire.errors import StoreError
 from acquire.store import catalog, lot_query, production, references, sweeps
 from acquire.store.engine import Database
 from acquire.store.lot_query import LotFilter, OutcomeCounts
-from acquire.store.migrate import ensure_schema
+from acquire.store.migrate import ensure_schema, stored_revision
 from acquire.store.records import (
     FixtureInfo,
     LotInfo,
@@ -26,7 +26,7 @@ from acquire.store.records import (
 )
 from acquire.store.schema import SCHEMA_REVISION
 from acquire.store.sweeps import STALE_AFTER_S, SweepWriter
-from acquire.store.url import parse_store_url
+from acquire.store.url import StoreLocation, parse_store_url
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -34,28 +34,92 @@ if TYPE_CHECKING:
     from acquire.compensation import ReferenceSet
 
 
-def open_store(url: str, *, schema: str | None = None, stale_after: float = STALE_AFTER_S) -> Store:
+def open_store(
+    url: str,
+    *,
+    schema: str | None = None,
+    stale_after: float = STALE_AFTER_S,
+    create: bool = True,
+) -> Store:
     """Open (creating or upgrading as needed) the results store at ``url``.
 
     ``url`` is ``sqlite:///path/file.db`` (or a bare file path) or ``postgresql://user@host/db``
     (see :mod:`acquire.store.url`); ``schema`` puts a PostgreSQL store's tables in that schema;
     ``stale_after`` is how many seconds without a write make a running sweep count as abandoned.
-    Raises :class:`~acquire.errors.StoreError` when the store cannot be reached, is not a store,
-    or is at a schema revision this program does not know (a newer release wrote it).
+    With ``create=False`` (for reading) a store must already be there: a missing, empty or other
+    SQLite file, an in-memory store or a database (or schema) without a store is refused and
+    left as it was. Raises :class:`~acquire.errors.StoreError` when the store cannot be reached,
+    is not a store, or is at a schema revision this program does not know (a newer release
+    wrote it).
     """
     location = parse_store_url(url, schema)
-    if location.path is not None and not location.path.parent.is_dir():
+    if not create:
+        _check_store_file(location)
+    elif location.path is not None and not location.path.parent.is_dir():
         raise StoreError(
             f"cannot create store {location.path}: the folder {location.path.parent} does not "
             "exist (create it, or choose another path)"
         )
     db = Database(location)
     try:
+        if not create and db.read("reading the schema revision", stored_revision) is None:
+            raise StoreError(
+                f"there is no results store in {location.shown} (the database holds none of "
+                "its tables): check the URL and schema; reading does not create a store"
+            )
         created, found = ensure_schema(db)
     except BaseException:
         db.dispose()
         raise
     return Store(db, created, found, stale_after)
+
+
+#: The first 16 bytes of every SQLite database file (sqlite.org/fileformat.html, 1.3).
+_SQLITE_HEADER = b"SQLite format 3\x00"
+
+
+def _check_store_file(location: StoreLocation) -> None:
+    """Refuse an SQLite store that is not there to be read, without creating or writing it."""
+    if location.engine != "sqlite":
+        return
+    path = location.path
+    why = ""
+    if path is None:
+        why = "sqlite:// is an in-memory store, empty each time it is opened"
+    elif not path.exists():
+        why = "the file does not exist"
+    elif not path.is_file():
+        why = "it is not a file"
+    else:
+        with path.open("rb") as file:
+            head = file.read(len(_SQLITE_HEADER))
+        if not head:
+            why = "the file is empty"
+        elif head != _SQLITE_HEADER:
+            why = "the file is not an SQLite database"
+        elif not _has_store_tables(path):
+            why = "the SQLite file holds none of the store's tables"
+    if why:
+        raise StoreError(
+            f"there is no results store at {location.shown} ({why}): check the path; reading "
+            "does not create a store"
+        )
+
+
+def _has_store_tables(path: Path) -> bool:
+    """True if the SQLite file at ``path`` holds a store's revision record (read only)."""
+    import sqlite3
+    from contextlib import closing
+
+    try:
+        with closing(sqlite3.connect(f"{path.resolve().as_uri()}?mode=ro", uri=True)) as conn:
+            names = conn.execute(
+                "SELECT name FROM sqlite_master WHERE type = 'table' "
+                "AND name IN ('alembic_version', 'schema_version')"
+            ).fetchall()
+    except sqlite3.Error as exc:
+        raise StoreError(f"cannot read the store file {path}: {exc}") from None
+    return bool(names)
 
 
 class Store:

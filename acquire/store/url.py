@@ -24,6 +24,8 @@ from acquire.errors import StoreError
 
 _SCHEMA_NAME = re.compile(r"[a-z_][a-z0-9_]{0,62}")
 _SCHEME = re.compile(r"^[A-Za-z][A-Za-z0-9+.-]*://")
+#: A store scheme followed by a colon but not by "//" (``sqlite:/acquire.db``, ``sqlite:x.db``).
+_SHORT_SCHEME = re.compile(r"^(sqlite|postgres|postgresql)(\+[A-Za-z0-9_]+)?:(?!//)", re.IGNORECASE)
 
 
 @dataclass(frozen=True)
@@ -60,6 +62,15 @@ def parse_store_url(text: str, schema: str | None = None) -> StoreLocation:
     text = text.strip()
     if not text:
         raise StoreError("the store URL is empty: give sqlite:///file.db or postgresql://...")
+    short = _SHORT_SCHEME.match(text)
+    if short:
+        rest = text[short.end() :].lstrip("/")
+        if short.group(1).lower() != "sqlite":
+            meant = f"{short.group(0)}//{rest} (user@host/dbname)"
+        else:
+            meant = f"{short.group(0)}///{rest} (a file relative to this folder; four slashes "
+            meant += "before an absolute path)"
+        raise StoreError(f"store URL {text!r} lacks the slashes after the scheme: write {meant}")
     if not _SCHEME.match(text):
         text = "sqlite:///" + text
     try:
@@ -70,11 +81,18 @@ def parse_store_url(text: str, schema: str | None = None) -> StoreLocation:
             "Use sqlite:///path/file.db or postgresql://user@host/dbname"
         ) from None
     backend = url.get_backend_name()
+    if backend == "sqlite" and (url.host or url.port or url.username or url.password):
+        scheme, rest = text.split("://", 1)
+        raise StoreError(
+            f"store URL {text!r} has two slashes, so {url.host or rest!r} is read as a host: "
+            f"write {scheme}:///{rest} (a file relative to this folder; four slashes before an "
+            "absolute path)"
+        )
     if backend == "sqlite":
         if schema is not None or "schema" in url.query:
             raise StoreError("a schema can only be given for a PostgreSQL store")
         path = Path(url.database) if url.database and url.database != ":memory:" else None
-        return StoreLocation(url, url.render_as_string(hide_password=True), "sqlite", path, None)
+        return StoreLocation(url, _shown_sqlite(url), "sqlite", path, None)
     if backend in ("postgresql", "postgres"):
         query_schema = url.query.get("schema")
         if isinstance(query_schema, tuple):
@@ -93,3 +111,12 @@ def parse_store_url(text: str, schema: str | None = None) -> StoreLocation:
         f"store URL {url.render_as_string(hide_password=True)!r} names an unsupported database "
         f"{backend!r}: use sqlite:///path/file.db or postgresql://user@host/dbname"
     )
+
+
+def _shown_sqlite(url: URL) -> str:
+    """An SQLite URL as typed. A file name that is not UTF-8 (its bytes kept as lone surrogates,
+    PEP 383) cannot be percent-encoded, so it is shown as it is and printed byte for byte."""
+    try:
+        return url.render_as_string(hide_password=True)
+    except UnicodeEncodeError:
+        return f"{url.drivername}:///{url.database}"

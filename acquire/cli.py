@@ -18,6 +18,8 @@ import os
 import sys
 from collections.abc import Sequence
 
+from acquire import signals
+
 #: Subcommand name -> module under acquire.commands, in the order shown by --help.
 COMMANDS: dict[str, str] = {
     "demo": "demo",
@@ -80,6 +82,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return 0
     debug = args.debug or os.environ.get("ACQUIRE_DEBUG") == "1"
+    signals.install()  # SIGTERM and SIGHUP end a command as Ctrl-C does
     try:
         return int(args._module.run(args) or 0)
     except KeyboardInterrupt:

@@ -27,6 +27,7 @@ from acquire.production.measure import UnitMeasurement, measure_unit
 from acquire.production.plan import CONDITIONAL_PASS, PASS, REJECT_BIN, TestPlan
 from acquire.production.reference_guard import CAPTURE_HINT, check_problems, reference_blocks
 from acquire.production.screen import NOT_TESTED, ShownUnit, StationStatus
+from acquire.signals import stop_reason
 from acquire.store.records import MeasurementRecord, UnitRecord, new_attempt_id
 from acquire.store.schema import utc_now
 from drivers.errors import InstrumentError
@@ -357,6 +358,6 @@ class Station:
                         self.show()
                     continue
                 self.test(line)
-        except KeyboardInterrupt:
-            self.message = "session ended with Ctrl-C"
+        except KeyboardInterrupt as stop:
+            self.message = f"session ended: {stop_reason(stop)}"
         return self.status()

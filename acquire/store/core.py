@@ -52,6 +52,7 @@ def open_store(url: str, *, schema: str | None = None, stale_after: float = STAL
     db = Database(location)
     try:
         created, found = ensure_schema(db)
+        sweeps.close_dead_writers(db)  # sweeps whose process died (SIGKILL, power) on this host
     except BaseException:
         db.dispose()
         raise

@@ -9,12 +9,19 @@ itself interrupted with its points saved, the station prints its summary) ends t
 and the command exits with Ctrl-C's code. A signal the process was started with ignored (SIGHUP
 under ``nohup``) stays ignored. SIGKILL cannot be caught; the store marks such a sweep
 interrupted when it is next opened on this host (:mod:`acquire.store.sweeps`).
+
+:func:`held` puts a stop off while a block runs (a station recording a unit it has measured):
+a stop signal or Ctrl-C that arrives meanwhile ends the program right after the block, so what
+was measured is never dropped between measuring and saving. Ctrl-C is given the same handler
+as the others for that (it still raises a plain KeyboardInterrupt), unless it was ignored.
 """
 
 from __future__ import annotations
 
 import signal
 import threading
+from collections.abc import Iterator
+from contextlib import contextmanager
 from types import FrameType
 
 #: The signals that end the program as Ctrl-C does (those this platform has).
@@ -30,8 +37,37 @@ class StopSignal(KeyboardInterrupt):
         super().__init__(self.name)
 
 
+_holds = 0
+_pending: list[int] = []
+
+
+def _stop(signum: int) -> KeyboardInterrupt:
+    return KeyboardInterrupt() if signum == signal.SIGINT else StopSignal(signum)
+
+
 def _raise(signum: int, frame: FrameType | None) -> None:
-    raise StopSignal(signum)
+    if _holds:
+        _pending.append(signum)
+        return
+    raise _stop(signum)
+
+
+@contextmanager
+def held() -> Iterator[None]:
+    """Hold stop signals and Ctrl-C while the block runs; one that came is raised after it.
+
+    (Only once :func:`install` has set the handlers; an exception from the block goes first.)
+    """
+    global _holds
+    _holds += 1
+    try:
+        yield
+    finally:
+        _holds -= 1
+    if not _holds and _pending:
+        signum = _pending[0]
+        _pending.clear()
+        raise _stop(signum)
 
 
 def install() -> list[str]:
@@ -42,6 +78,8 @@ def install() -> list[str]:
     if threading.current_thread() is not threading.main_thread():
         return []
     installed = []
+    if signal.getsignal(signal.SIGINT) is signal.default_int_handler:
+        signal.signal(signal.SIGINT, _raise)
     for name in STOP_SIGNALS:
         signum = getattr(signal, name, None)
         if signum is None or signal.getsignal(signum) is signal.SIG_IGN:

@@ -335,3 +335,28 @@ def test_a_repeated_batch_after_a_lost_answer_is_stored_once(tmp_path):
         assert store.sweep_info(writer.id).points == 4
         with store.engine.connect() as conn:
             assert conn.execute(text("SELECT COUNT(*) FROM sweep_points")).scalar_one() == 4
+
+
+@POSIX
+def test_a_stop_signal_waits_while_a_measured_unit_is_recorded():
+    # A station holds stop signals while it records a unit it has measured: the signal ends the
+    # session only once the unit is saved, never between the measuring and the saving.
+    from acquire import signals
+
+    before = {n: signal.getsignal(getattr(signal, n)) for n in ("SIGTERM", "SIGHUP", "SIGINT")}
+    try:
+        signals.install()
+        saved = []
+        with pytest.raises(KeyboardInterrupt) as stopped, signals.held():
+            os.kill(os.getpid(), signal.SIGTERM)
+            time.sleep(0.05)  # the handler has run by now (CPython runs it promptly)
+            saved.append("unit")
+        assert saved == ["unit"] and "SIGTERM" in str(stopped.value)
+        with pytest.raises(KeyboardInterrupt):  # outside a hold it stops at once
+            os.kill(os.getpid(), signal.SIGHUP)
+            time.sleep(0.05)
+            saved.append("never")
+        assert saved == ["unit"]
+    finally:
+        for name, handler in before.items():
+            signal.signal(getattr(signal, name), handler)

@@ -19,6 +19,8 @@ import re
 import sys
 from collections.abc import Sequence
 
+from acquire import signals
+
 #: A byte of the command line that was not text (PEP 383 decodes it as U+DC80..U+DCFF).
 _SURROGATE = re.compile("[\udc80-\udcff]")
 
@@ -87,6 +89,7 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return 0
     debug = args.debug or os.environ.get("ACQUIRE_DEBUG") == "1"
+    signals.install()  # SIGTERM and SIGHUP end a command as Ctrl-C does
     try:
         return int(args._module.run(args) or 0)
     except KeyboardInterrupt:

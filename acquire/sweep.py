@@ -3,15 +3,18 @@
 :func:`run_sweep` asks the meter for the plan's frequencies (``meter.sweep(frequencies,
 on_points=...)`` of :class:`drivers.meter.ImpedanceMeter`), corrects every chunk of points that
 arrives with the reference set in use, evaluates each point's expanded uncertainty and flags
-(:class:`acquire.sweep_uncertainty.PointUncertainty`, vectorised per chunk), appends it to a
-:class:`acquire.sweep_state.SweepState` for the live view, and hands it to the store's sweep
-writer. Writes are grouped: the points that arrived since the last write go to the store in one
-transaction at most every ``flush_interval`` seconds and at the end, so a fast meter is not held
-up by one transaction per point while a crash loses at most that interval.
+(:class:`acquire.sweep_uncertainty.PointUncertainty`, vectorised per chunk) and appends it to a
+:class:`acquire.sweep_state.SweepState` for the live view. A
+:class:`acquire.sweep_saving.PointSaver` writes the points to the store's sweep writer on a
+thread of its own: those that arrived since the last write go in one transaction at most every
+``flush_interval`` seconds and at the end, so a fast meter is not held up by one transaction
+per point, a crash loses at most that interval, and a store that is out of reach for a while
+only delays the writing (the points wait in memory and are written once it is back).
 
-Ctrl-C and meter faults end the sweep the same way: the points completed so far are written,
-the sweep is marked ``interrupted`` with the reason, and the outcome says so. Any other error
-(a bug, a store that cannot be written) also marks the sweep interrupted, then propagates.
+Ctrl-C (or SIGTERM and SIGHUP, :mod:`acquire.signals`) and meter faults end the sweep the same
+way: the points completed so far are written, the sweep is marked ``interrupted`` with the
+reason, and the outcome says so. A store that never came back is reported point for point
+(measured, saved). Any other error (a bug) also marks the sweep interrupted, then propagates.
 """
 
 from __future__ import annotations
@@ -24,8 +27,10 @@ from typing import Any, Protocol
 import numpy as np
 
 from acquire.compensation.interpolation import END_TOLERANCE
-from acquire.errors import CompensationError, InputError
+from acquire.errors import CompensationError, InputError, StoreError
 from acquire.plan import FrequencyPlan, check_range
+from acquire.signals import stop_reason
+from acquire.sweep_saving import PointSaver, SaveReport
 from acquire.sweep_state import SweepState
 from acquire.sweep_uncertainty import PointUncertainty
 from acquire.uncertainty import expanded, mean_of_repeats
@@ -69,7 +74,10 @@ class SweepOutcome:
     ``flags`` the (n,) flags texts ('' for a measured value, else words
     such as ``beyond-accuracy``). ``status`` is ``"complete"`` or
     ``"interrupted"``; ``reason`` says why it stopped early (the driver's message for a meter
-    fault); ``error`` is the exception that stopped it, if any.
+    fault); ``error`` is the exception that stopped it, if any. ``saved`` is how many of the
+    points the store holds (None without a store), and ``store_problem`` why the rest, or the
+    sweep's end, could not be written ('' when everything was); ``store_waits`` counts the
+    writes that had to wait for the store.
     """
 
     frequency: np.ndarray
@@ -82,6 +90,9 @@ class SweepOutcome:
     error: BaseException | None = None
     flags: np.ndarray | None = None
     cov: np.ndarray | None = None
+    saved: int | None = None
+    store_problem: str = ""
+    store_waits: int = 0
 
     @property
     def uncertainty(self) -> np.ndarray | None:
@@ -102,8 +113,21 @@ class SweepOutcome:
         place = f" in {where}" if where else ""
         stored = f" as sweep {self.sweep_id}{place}" if self.sweep_id is not None else ""
         n = self.frequency.size
+        if self.saved is not None and self.store_problem:
+            lost = n - self.saved
+            what = f"{lost} not saved" if lost else "its end not recorded"
+            return (
+                f"sweep interrupted ({self.reason}): {n} of {self.planned} points measured, "
+                f"{self.saved} saved{stored}; {what} ({self.store_problem}); the store marks "
+                "the sweep interrupted once this program has ended"
+            )
         if not self.interrupted:
-            return f"sweep complete: {n} points saved{stored}"
+            late = (
+                "; the store was out of reach for a while and the points waited in memory"
+                if self.store_waits
+                else ""
+            )
+            return f"sweep complete: {n} points saved{stored}{late}"
         return (
             f"sweep interrupted ({self.reason}): {n} of {self.planned} points saved{stored}, "
             "marked interrupted"
@@ -128,25 +152,19 @@ def check_coverage(plan: FrequencyPlan, references: Any) -> None:
 
 
 class _Sink:
-    """Receives chunks from the driver: corrects, appends to the state, writes in groups."""
+    """Receives chunks from the driver: corrects them and appends them to the state."""
 
     def __init__(
         self,
         state: SweepState,
         references: Any,
-        writer: Writer | None,
         on_progress: Callable[[], None] | None,
-        flush_interval: float,
         uncertainty: PointUncertainty | None,
     ) -> None:
         self.state = state
         self.references = references
         self.uncertainty = uncertainty
-        self.writer = writer
         self.on_progress = on_progress
-        self.flush_interval = flush_interval
-        self.written = 0
-        self.last_flush = time.monotonic()
 
     def __call__(self, f_chunk: np.ndarray, z_chunk: np.ndarray, u_m: Any = None) -> None:
         f = np.asarray(f_chunk, dtype=float).reshape(-1)
@@ -159,28 +177,8 @@ class _Sink:
             with np.errstate(all="ignore"):
                 corrected = np.asarray(self.references.correct(f, z), dtype=complex)
         self.state.add(f, z, corrected, values)
-        if self.writer is not None and time.monotonic() - self.last_flush >= self.flush_interval:
-            self.flush()
         if self.on_progress is not None:
             self.on_progress()
-
-    def flush(self) -> None:
-        """Write every point received since the last write, in one call (one transaction)."""
-        n = self.state.count
-        if self.writer is None or n <= self.written:
-            return
-        f, raw, corrected = self.state.points()
-        part = slice(self.written, n)
-        known = self.uncertainty is not None
-        self.writer.add_points(
-            f[part].copy(),
-            raw[part].copy(),
-            None if corrected is None else corrected[part].copy(),
-            uncertainty=expanded(self.state.cov[part]) if known else None,
-            flags=[str(x) for x in self.state.flags[part]] if known else None,
-        )
-        self.written = n
-        self.last_flush = time.monotonic()
 
 
 def run_sweep(
@@ -195,6 +193,7 @@ def run_sweep(
     block_seconds: float = 0.25,
     uncertainty: PointUncertainty | str | None = "auto",
     repeats: int = 1,
+    store_patience: float = 30.0,
 ) -> SweepOutcome:
     """Sweep ``meter`` over ``plan``; see the module docstring for how it streams and stops.
 
@@ -213,6 +212,9 @@ def run_sweep(
     (:meth:`PointUncertainty.for_meter`), None skips it (no uncertainty, no flags). With
     ``repeats`` of 2 or more every block is read that many times; each point keeps the mean and
     the Type A standard uncertainty of it (JCGM 100:2008 4.2.3), and points stream per block.
+
+    ``store_patience`` is how many seconds the end of the sweep waits for a store that is out
+    of reach before it reports the points it could not write (they stay in the outcome).
     """
     if type(repeats) is not int or repeats < 1:
         raise InputError(f"repeats must be a whole number of 1 or more, not {repeats!r}")
@@ -225,10 +227,16 @@ def run_sweep(
         uncertainty = PointUncertainty.for_meter(meter, state.quantities)
     elif isinstance(uncertainty, str):
         raise InputError(f"uncertainty must be 'auto', None or a PointUncertainty: {uncertainty!r}")
-    sink = _Sink(state, references, writer, on_progress, flush_interval, uncertainty)
+    sink = _Sink(state, references, on_progress, uncertainty)
+    known = uncertainty is not None
+    saver = None
+    if writer is not None:
+        saver = PointSaver(writer, state, known, flush_interval, store_patience)
     reason = ""
     error: BaseException | None = None
     state.start()
+    if saver is not None:
+        saver.start()
     try:
         for frequencies in _blocks(plan, block, block_seconds):
             if repeats == 1:
@@ -238,17 +246,20 @@ def run_sweep(
             mean, u_m = mean_of_repeats(np.asarray(readings, dtype=complex))
             sink(np.asarray(frequencies), mean, u_m)
     except KeyboardInterrupt as exc:
-        reason, error = "stopped with Ctrl-C", exc
+        reason, error = stop_reason(exc), exc
     except InstrumentError as exc:
         reason, error = f"meter fault: {exc}", exc
     except BaseException as exc:
-        _close(sink, writer, state, "interrupted", f"stopped by an error: {exc}")
+        _close(saver, state, "interrupted", f"stopped by an error: {exc}")
         raise
     status = "interrupted" if error is not None else "complete"
-    _close(sink, writer, state, status, reason)
+    report = _close(saver, state, status, reason)
+    if report is not None and report.problem and error is None:
+        status, reason = "interrupted", "the store was out of reach"
+        error = StoreError(f"the store was out of reach: {report.problem}")
+        state.finish(status, reason)
     f, raw, corrected = state.points()
     n = f.size
-    known = uncertainty is not None
     return SweepOutcome(
         frequency=f.copy(),
         raw=raw.copy(),
@@ -260,6 +271,9 @@ def run_sweep(
         error=error,
         flags=state.flags[:n].copy() if known else None,
         cov=state.cov[:n].copy() if known else None,
+        saved=None if report is None else report.saved,
+        store_problem="" if report is None else report.problem,
+        store_waits=0 if report is None else report.waits,
     )
 
 
@@ -287,11 +301,11 @@ def _blocks(plan: FrequencyPlan, block: int | str | None, seconds: float) -> Ite
         size = max(FIRST_BLOCK, min(wanted, LARGEST_BLOCK))
 
 
-def _close(sink: _Sink, writer: Writer | None, state: SweepState, status: str, note: str) -> None:
-    """Write what is left and mark the sweep; the state is marked even if the store fails."""
+def _close(
+    saver: PointSaver | None, state: SweepState, status: str, note: str
+) -> SaveReport | None:
+    """Write what is left and mark the sweep; the state is marked even if the saver fails."""
     try:
-        sink.flush()
-        if writer is not None:
-            writer.finish(status=status, note=note)
+        return None if saver is None else saver.close(status, note)
     finally:
         state.finish(status, note)

@@ -27,6 +27,7 @@ from acquire.production.measure import UnitMeasurement, measure_unit
 from acquire.production.plan import CONDITIONAL_PASS, PASS, REJECT_BIN, TestPlan
 from acquire.production.reference_guard import CAPTURE_HINT, check_problems, reference_blocks
 from acquire.production.screen import NOT_TESTED, ShownUnit, StationStatus
+from acquire.signals import held, stop_reason
 from acquire.store.records import MeasurementRecord, UnitRecord, new_attempt_id
 from acquire.store.schema import utc_now
 from drivers.errors import InstrumentError
@@ -239,13 +240,20 @@ class Station:
         started = utc_now()
         attempt_id = new_attempt_id()
         measured = self._measure_unit(serial)
+        with held():  # a stop signal or Ctrl-C from here ends the session once it is recorded
+            return self._conclude(serial, admission.attempt, attempt_id, started, measured)
+
+    def _conclude(
+        self, serial: str, attempt: int, attempt_id: str, started: Any, measured: UnitMeasurement
+    ) -> ShownUnit:
+        """Judge a measured unit, record it, count it and show it."""
         plan = self.context.plan
         if measured.error:
             judgement = error_judgement(plan)
         else:
             values = {k: (measured.values[k], measured.uncertainty[k]) for k in measured.values}
             judgement = judge_unit(plan, values)
-        record = self._record(serial, admission.attempt, attempt_id, started, measured, judgement)
+        record = self._record(serial, attempt, attempt_id, started, measured, judgement)
         saved = self.keeper.save(record)
         self.book.record(serial, judgement.outcome)
         self.tally.add(serial, judgement.outcome, judgement.bin)
@@ -254,7 +262,7 @@ class Station:
             failing = (f"{measured.error}; scan the serial again to retry",)
         shown = ShownUnit(
             serial=serial,
-            attempt=admission.attempt,
+            attempt=attempt,
             outcome=judgement.outcome,
             bin=judgement.bin,
             failing=failing,
@@ -357,6 +365,6 @@ class Station:
                         self.show()
                     continue
                 self.test(line)
-        except KeyboardInterrupt:
-            self.message = "session ended with Ctrl-C"
+        except KeyboardInterrupt as stop:
+            self.message = f"session ended: {stop_reason(stop)}"
         return self.status()

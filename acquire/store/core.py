@@ -68,6 +68,7 @@ def open_store(
                 "its tables): check the URL and schema; reading does not create a store"
             )
         created, found = ensure_schema(db)
+        sweeps.close_dead_writers(db)  # sweeps whose process died (SIGKILL, power) on this host
     except BaseException:
         db.dispose()
         raise

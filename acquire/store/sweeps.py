@@ -9,7 +9,13 @@ store *reports* it as ``interrupted`` (``SweepInfo.abandoned`` is True, ``record
 stays ``running``) as soon as it can tell the writer is gone: the process that began it (host
 name and process id are recorded) no longer exists on this host, or no batch has arrived for
 ``stale_after`` seconds (default one hour; this is the only test across hosts, and on Windows).
-``Store.close_abandoned_sweeps`` writes that conclusion into the rows.
+``Store.close_abandoned_sweeps`` writes that conclusion into the rows; opening a store writes
+it for the sweeps whose process is known to be dead on this host (:func:`close_dead_writers`).
+
+A batch is safe to send again: when the store committed a batch but its answer was lost (a
+network cut at the wrong moment), the next ``add_points`` starting at the same point stores only
+the points the store does not hold yet, so a writer that keeps points in memory and retries
+(:mod:`acquire.sweep_saving`) never stores a point twice.
 """
 
 from __future__ import annotations
@@ -17,7 +23,7 @@ from __future__ import annotations
 import os
 import socket
 from collections.abc import Sequence
-from datetime import datetime, timedelta
+from datetime import datetime
 from functools import partial
 from types import TracebackType
 from typing import TYPE_CHECKING, Any
@@ -26,6 +32,8 @@ import numpy as np
 from sqlalchemy import Connection, func, select, update
 
 from acquire.errors import StoreError
+from acquire.store.abandoned import close_dead_writers as close_dead_writers
+from acquire.store.abandoned import rows_changed, writer_gone
 from acquire.store.engine import Database, float_column, to_json
 from acquire.store.records import SweepInfo
 from acquire.store.schema import SWEEP_STATES, TABLES, utc_now
@@ -39,31 +47,8 @@ STALE_AFTER_S = 3600.0
 POINT_COLUMNS = ("frequency", "raw_r", "raw_x", "corrected_r", "corrected_x", "u_r", "u_x")
 
 
-def _process_exists(pid: int) -> bool:
-    if pid == os.getpid():
-        return True
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True
-    return True
-
-
-def writer_gone(
-    host: str | None,
-    pid: int | None,
-    last_write: datetime | None,
-    now: datetime,
-    stale_after: float,
-) -> bool:
-    """True if the process writing a running sweep is known to have ended (see module doc)."""
-    if last_write is None or now - last_write > timedelta(seconds=stale_after):
-        return True
-    if os.name == "posix" and host == socket.gethostname() and pid is not None:
-        return not _process_exists(pid)
-    return False
+class SweepNotRunning(StoreError):
+    """The sweep was finished or closed as abandoned: writing to it again cannot succeed."""
 
 
 def begin_sweep(
@@ -177,22 +162,32 @@ class SweepWriter:
             for i, v in enumerate(zip(*columns, strict=True))
         ]
         sweeps, points = TABLES["sweeps"], TABLES["sweep_points"]
-        bump = (
-            update(sweeps)
-            .where(sweeps.c.id == self._id, sweeps.c.status == "running")
-            .values(points=sweeps.c.points + len(rows), last_write_at=utc_now())
-        )
+        held = select(sweeps.c.points).where(sweeps.c.id == self._id, sweeps.c.status == "running")
 
-        def work(conn: Connection) -> None:
-            if conn.execute(bump).rowcount != 1:
-                raise StoreError(
+        def work(conn: Connection) -> int:
+            have = conn.execute(held.with_for_update()).scalar_one_or_none()
+            if have is None:
+                raise SweepNotRunning(
                     f"sweep {self._id} is no longer running in the store (it was finished or "
                     "closed as abandoned): begin a new sweep"
                 )
-            conn.execute(points.insert(), rows)
+            if not start <= have <= start + len(rows):
+                raise StoreError(
+                    f"sweep {self._id} holds {have} points in the store, but this writer "
+                    f"counts {start}: another program writes to it; begin a new sweep"
+                )
+            new = rows[have - start :]
+            bump = (
+                update(sweeps)
+                .where(sweeps.c.id == self._id)
+                .values(points=have + len(new), last_write_at=utc_now())
+            )
+            conn.execute(bump)
+            if new:
+                conn.execute(points.insert(), new)
+            return have + len(new)
 
-        self._db.write("storing sweep points", work)
-        self._points += len(rows)
+        self._points = self._db.write("storing sweep points", work, idempotent=True)
 
     def finish(self, status: str = "complete", note: str = "") -> None:
         """Mark the sweep ``complete`` or ``interrupted`` (with an optional note)."""
@@ -206,9 +201,16 @@ class SweepWriter:
             .where(sweeps.c.id == self._id, sweeps.c.status == "running")
             .values(status=status, note=note, finished_at=utc_now(), last_write_at=utc_now())
         )
-        changed = self._db.write("finishing a sweep", lambda c: c.execute(done).rowcount)
-        if changed != 1:
-            raise StoreError(f"sweep {self._id} was no longer running in the store")
+        ended = select(sweeps.c.status, sweeps.c.note).where(sweeps.c.id == self._id)
+
+        def work(conn: Connection) -> bool:
+            if conn.execute(done).rowcount == 1:
+                return True
+            # Sent again after a lost answer: the first attempt may have committed.
+            return tuple(conn.execute(ended).one_or_none() or ()) == (status, note)
+
+        if not self._db.write("finishing a sweep", work, idempotent=True):
+            raise SweepNotRunning(f"sweep {self._id} was no longer running in the store")
         self._finished = status
 
     def __enter__(self) -> SweepWriter:
@@ -341,11 +343,6 @@ def close_abandoned_sweeps(db: Database, stale_after: float = STALE_AFTER_S) -> 
             .where(sweeps.c.last_write_at == info.last_write_at)
             .values(status="interrupted", note=info.note, finished_at=utc_now())
         )
-        if db.write("closing an abandoned sweep", partial(_rows_changed, mark)):
+        if db.write("closing an abandoned sweep", partial(rows_changed, mark)):
             closed.append(info.id)
     return closed
-
-
-def _rows_changed(statement: Any, conn: Connection) -> int:
-    """Run ``statement`` on ``conn`` and say how many rows it changed."""
-    return int(conn.execute(statement).rowcount)

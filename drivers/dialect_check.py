@@ -27,6 +27,7 @@ from drivers.dialect import (
     Dialect,
     Operation,
 )
+from drivers.dialect_connection import check_connection
 from drivers.errors import DialectError
 from drivers.readings import QD_SIGNS, QUANTITIES, is_supported, supported_pairs
 from drivers.renamed import dialect_problems
@@ -71,7 +72,12 @@ class _Checker:
             raise self.fail(key, f"must be {_kind_name(kinds)}, not a boolean")
         if not isinstance(value, kinds):
             raise self.fail(key, f"must be {_kind_name(kinds)}, not {type(value).__name__}")
-        return float(value) if float in kinds and not isinstance(value, bool) else value
+        if float in kinds and not isinstance(value, bool):
+            try:
+                return float(value)
+            except OverflowError:
+                raise self.fail(key, "is beyond the range of a number (about ±1.8e308)") from None
+        return value
 
     def unknown(self, table: dict, prefix: str, allowed: set[str]) -> None:
         for key in table:
@@ -104,7 +110,7 @@ class _Checker:
         if not name.strip():
             raise self.fail("name", "must not be empty")
         operations = self.operations()
-        conn = self.connection()
+        conn = check_connection(self)
         fmin, fmax = self.frequency()
         pair, qd_sign = self.reading()
         transfer = self.transfer(operations)
@@ -115,6 +121,8 @@ class _Checker:
         codes = self.get(errors, "errors.warning_codes", list, [])
         if not all(isinstance(c, int) and not isinstance(c, bool) for c in codes):
             raise self.fail("errors.warning_codes", "must be a list of integer error codes")
+        if not all(-32768 <= c <= 32767 for c in codes):
+            raise self.fail("errors.warning_codes", "SCPI error codes lie in -32768 to 32767")
         return Dialect(
             name=name,
             path=self.path,
@@ -134,37 +142,6 @@ class _Checker:
             **transfer,
             **conn,
         )
-
-    def connection(self) -> dict[str, Any]:
-        t = self.table("connection")
-        keys = {"write_termination", "read_termination", "encoding", "timeout"}
-        keys |= {"per_point_timeout", "open_timeout", "compound", "separator", "reply_separator"}
-        keys |= {"retries", "retry_wait"}
-        self.unknown(t, "connection.", keys)
-        out: dict[str, Any] = {}
-        defaults = {"write_termination": "\n", "read_termination": "\n"}
-        defaults |= {"separator": ";", "reply_separator": ";"}
-        for key, default in defaults.items():
-            out[key] = self.get(t, f"connection.{key}", str, default)
-            if not out[key]:
-                raise self.fail(f"connection.{key}", "must not be empty")
-        out["encoding"] = self.get(t, "connection.encoding", str, "ascii")
-        try:
-            "".encode(out["encoding"])
-        except LookupError:
-            raise self.fail(
-                "connection.encoding", f"unknown encoding {out['encoding']!r}"
-            ) from None
-        out["timeout"] = self.positive(t, "connection.timeout", 5.0)
-        out["per_point_timeout"] = self.positive(t, "connection.per_point_timeout", 0.1, True)
-        out["open_timeout"] = self.positive(t, "connection.open_timeout", 5.0)
-        out["retry_wait"] = self.positive(t, "connection.retry_wait", 0.2, True)
-        out["compound"] = self.get(t, "connection.compound", bool, True)
-        retries = self.get(t, "connection.retries", int, 2)
-        if not 0 <= retries <= 10:
-            raise self.fail("connection.retries", f"must be between 0 and 10, got {retries}")
-        out["retries"] = retries
-        return out
 
     def frequency(self) -> tuple[float, float]:
         t = self.table("frequency", required=True)
@@ -331,8 +308,7 @@ class _Checker:
             raise self.fail(f"{key}.reply", f"must be one of {', '.join(REPLY_KINDS)}")
         if query and reply != (want or "ack"):
             raise self.fail(f"{key}.reply", f"must be {want or 'ack'!r} for {name}")
-        lo = self.get(spec, f"{key}.min", float, None)
-        hi = self.get(spec, f"{key}.max", float, None)
+        lo, hi = self.limit(spec, f"{key}.min"), self.limit(spec, f"{key}.max")
         if lo is not None and hi is not None and hi < lo:
             raise self.fail(f"{key}.max", f"must not be below min ({lo})")
         choices = self.get(spec, f"{key}.choices", dict, {})
@@ -351,6 +327,14 @@ class _Checker:
             choices=dict(choices),
             idempotent=self.get(spec, f"{key}.idempotent", bool, name != "next_error"),
         )
+
+    def limit(self, spec: dict, key: str) -> float | None:
+        """An operation's optional ``min`` or ``max``: a finite number (NaN would let every
+        value through, infinity is no limit: leave the key out instead)."""
+        value = self.get(spec, key, float, None)
+        if value is not None and not math.isfinite(value):
+            raise self.fail(key, f"must be a finite number (or left out), got {value}")
+        return value
 
     def placeholders(self, key: str, command: str) -> frozenset[str]:
         names = set()

@@ -30,6 +30,11 @@ def load_dialect(name_or_path: str | Path) -> Dialect:
         raise DialectError(f"{path}: not valid TOML: {exc}") from None
     except UnicodeDecodeError:
         raise DialectError(f"{path}: not a UTF-8 text file") from None
+    except ValueError:  # Python's limit on the digits of an integer (4300 by default)
+        raise DialectError(
+            f"{path}: not valid TOML: an integer of thousands of digits; TOML integers fit "
+            "in 64 bits"
+        ) from None
     return check_dialect(path, data)
 
 

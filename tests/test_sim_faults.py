@@ -150,7 +150,8 @@ def test_profile_faults_are_armed_on_insert(meter, sim, tmp_path):
         'kind = "coil"\ninductance = 1e-5\ndc_resistance = 0.1\n'
         '[[faults]]\nkind = "truncate"\nn = 2\n[[faults]]\nkind = "overrange"\nfrequency = 1e3\n'
     )
-    clean = meter.query(f'SIM:DUT "{path}";*IDN?')
+    clean = meter.query("*IDN?")
+    sim.insert(path)  # a client names profiles only (test_hardening_files); counts from now
     assert [f.kind for f in sim.faults] == ["truncate", "overrange"]
     assert np.array([float(v) for v in meter.query("READ?").split(",")]).tolist() == [9.9e37] * 2
     cut = meter.query("*IDN?")

@@ -17,6 +17,11 @@ standards used to remove the fixture later (`SIMulate:DUT OPEN` puts one in). Pr
 files: a shipped name (air-core-coil, ferrite-choke, rf-coil, demo-coil; fixtures bench-leads,
 long-leads, cable-leads, direct; standards open, short, load) or a path to your own.
 
+A client changes the DUT or fixture by name only (`SIMulate:DUT "rf-coil"`): a shipped profile,
+or a file NAME.toml in the directory given with --profile-dir. It cannot name a path, so it
+cannot make the simulator read other files of this machine; a profile that fails to load is
+refused with a short reply and the reason is logged here on standard error.
+
 Serves until Ctrl-C. The simulator has no authentication: binding to an address other than
 127.0.0.1 (--host) exposes it to the network, and it warns when you do.
 """
@@ -44,6 +49,13 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         default="bench-leads",
         metavar="NAME_OR_PATH",
         help="the test fixture profile (default: bench-leads)",
+    )
+    parser.add_argument(
+        "--profile-dir",
+        default=None,
+        metavar="DIR",
+        help="a directory of your own profiles (NAME.toml): clients may name them, as they name "
+        "the shipped ones, with SIMulate:DUT and SIMulate:FIXTure (default: shipped only)",
     )
     parser.add_argument(
         "--port",
@@ -82,6 +94,7 @@ def run(args: argparse.Namespace) -> int:
     import asyncio
     import logging
     import sys
+    from pathlib import Path
 
     from acquire.errors import InputError
     from drivers.simulator.instrument import Instrument
@@ -91,8 +104,17 @@ def run(args: argparse.Namespace) -> int:
         raise InputError(f"--port {args.port} is not a TCP port (0 to 65535)")
     if args.measure_time is not None and not 0 <= args.measure_time <= 60:
         raise InputError(f"--measure-time {args.measure_time} must be 0 to 60 seconds")
+    profile_dir = None if args.profile_dir is None else Path(args.profile_dir)
+    if profile_dir is not None and not profile_dir.is_dir():
+        raise InputError(f"--profile-dir {args.profile_dir}: no such directory")
     instrument = Instrument(
-        args.profile, args.fixture, args.meter, args.seed, args.measure_time, not args.no_noise
+        args.profile,
+        args.fixture,
+        args.meter,
+        args.seed,
+        args.measure_time,
+        not args.no_noise,
+        profile_dir=profile_dir,
     )
     server = SimulatorServer(instrument, args.host, args.port)
     if not args.quiet:

@@ -27,7 +27,10 @@ version 2.
 
 Numbers are JSON numbers written with Python's shortest round-tripping ``repr``, so every float
 reads back bit for bit; values that are not finite (a meter's overrange or invalid reading) are
-the strings ``"inf"``, ``"-inf"`` and ``"nan"``, which keeps the file strict JSON. ``sha256`` is
+the strings ``"inf"``, ``"-inf"`` and ``"nan"``, which keeps the file strict JSON. A number
+beyond the range of a float (about ±1.8e308), nesting deeper than Python's parser goes, or a file
+larger than :data:`MAX_FILE_BYTES` (64 MiB, some 200 000 points with every standard and its
+uncertainty) is refused as a damaged file, as RFC 8259, section 9 allows a reader to. ``sha256`` is
 the digest of the canonical form of everything else (keys sorted, no spaces, UTF-8), so a
 damaged or hand-edited file is refused rather than read with a changed number.
 
@@ -41,6 +44,7 @@ import hashlib
 import json
 import math
 import os
+import sys
 import tempfile
 from datetime import UTC, datetime
 from pathlib import Path
@@ -68,6 +72,9 @@ _KEYS = {"format", "format_version", "about", "captured_at", "fixture", "meter",
          "temperature_c", "notes", "frequency_hz", "impedance_ohm"}  # fmt: skip
 _KEYS_V2 = _KEYS | {"repeats", "grid_spacing", "uncertainty_ohm"}
 _SPECIAL = {"inf": math.inf, "-inf": -math.inf, "nan": math.nan}
+#: The largest reference-set file :func:`read` reads, in bytes.
+MAX_FILE_BYTES = 64 * 2**20
+_FLOAT_MAX = sys.float_info.max
 
 
 def to_dict(refs: References) -> dict[str, Any]:
@@ -125,6 +132,8 @@ def fields_from_dict(d: Any) -> dict[str, Any]:
     temperature = d["temperature_c"]
     if temperature is not None and type(temperature) not in (int, float):
         raise _damaged("temperature_c is not a number")
+    if temperature is not None and not _finite(temperature):
+        raise _damaged("temperature_c is beyond the range of a number")
     frequency = _decode(d["frequency_hz"], "frequency_hz")
     standards = d["impedance_ohm"]
     if not isinstance(standards, dict) or not set(standards) <= set(_NAMES):
@@ -171,17 +180,13 @@ def _version_2_fields(d: dict[str, Any], frequency: np.ndarray, standards: dict)
 
 def write(path: Path, payload: dict[str, Any]) -> None:
     """Write ``payload`` and its digest to ``path`` atomically (never a half-written file)."""
-    lines = []
-    for key, value in payload.items():
-        if isinstance(value, dict):
-            inner = ",\n".join(f"    {json.dumps(k)}: {_dumps(v)}" for k, v in value.items())
-            lines.append(
-                f"  {json.dumps(key)}: {{\n{inner}\n  }}" if inner else f"  {json.dumps(key)}: {{}}"
-            )
-        else:
-            lines.append(f"  {json.dumps(key)}: {_dumps(value)}")
-    lines.append(f'  "sha256": "{_digest(payload)}"')
-    text = "{\n" + ",\n".join(lines) + "\n}\n"
+    try:
+        text = _text(payload)
+    except UnicodeEncodeError:
+        raise CompensationError(
+            "the fixture, meter or notes hold characters that are not Unicode text (an argument "
+            "in another encoding?); give them again as UTF-8 text"
+        ) from None
     temp = None
     try:
         handle, temp = tempfile.mkstemp(prefix=f".{path.name}.", dir=path.parent)
@@ -196,28 +201,60 @@ def write(path: Path, payload: dict[str, Any]) -> None:
         ) from exc
 
 
+def _text(payload: dict[str, Any]) -> str:
+    """The file's text: one field a line, standards one a line, the digest last."""
+    lines = []
+    for key, value in payload.items():
+        if isinstance(value, dict):
+            inner = ",\n".join(f"    {json.dumps(k)}: {_dumps(v)}" for k, v in value.items())
+            lines.append(
+                f"  {json.dumps(key)}: {{\n{inner}\n  }}" if inner else f"  {json.dumps(key)}: {{}}"
+            )
+        else:
+            lines.append(f"  {json.dumps(key)}: {_dumps(value)}")
+    lines.append(f'  "sha256": "{_digest(payload)}"')
+    return "{\n" + ",\n".join(lines) + "\n}\n"
+
+
 def read(path: Path) -> dict[str, Any]:
-    """The checked object in the file at ``path``, ready for :func:`fields_from_dict`."""
+    """The checked object in the file at ``path``, ready for :func:`fields_from_dict`.
+
+    Reads at most :data:`MAX_FILE_BYTES` (64 MiB) and refuses a larger file, saying so.
+    """
     try:
-        text = path.read_text(encoding="utf-8")
+        with path.open("rb") as handle:
+            raw = handle.read(MAX_FILE_BYTES + 1)
+        text = raw.decode("utf-8")
     except FileNotFoundError as exc:
         raise CompensationError(f"no reference-set file at {path}") from exc
     except UnicodeDecodeError as exc:
         raise CompensationError(f"{path} is not a reference-set file (not UTF-8 text)") from exc
     except OSError as exc:
         raise CompensationError(f"cannot read {path}: {exc.strerror}") from exc
+    if len(raw) > MAX_FILE_BYTES:
+        raise CompensationError(
+            f"{path} is larger than the {MAX_FILE_BYTES // 2**20} MiB a reference-set file may "
+            "be; it is not one, or capture the references on a shorter grid"
+        )
     try:
-        d = json.loads(text, parse_constant=_refuse_constant)
+        d = json.loads(text, parse_constant=_refuse_constant, parse_float=_float, parse_int=_int)
     except (json.JSONDecodeError, ValueError) as exc:
         raise CompensationError(
             f"{path} is damaged or not a reference-set file ({exc}); restore a copy or capture "
             "the references again"
-        ) from exc
+        ) from None
+    except RecursionError:
+        raise CompensationError(
+            f"{path} is damaged or not a reference-set file (nested too deeply)"
+        ) from None
     if not isinstance(d, dict) or d.get("format") != FORMAT:
         raise CompensationError(f"{path} is not a reference-set file")
     fields_from_dict(d)
-    digest = d.get("sha256")
-    if digest != _digest({k: v for k, v in d.items() if k != "sha256"}):
+    try:
+        expected = _digest({k: v for k, v in d.items() if k != "sha256"})
+    except UnicodeEncodeError:
+        raise _damaged("a text holds an unpaired surrogate, which is not Unicode") from None
+    if d.get("sha256") != expected:
         raise CompensationError(
             f"{path} does not match its checksum: it was damaged or edited by hand; restore a "
             "copy or capture the references again"
@@ -253,8 +290,41 @@ def _decode(values: Any, what: str) -> np.ndarray:
         try:
             values = [_SPECIAL[v] if type(v) is str else v for v in values]
         except KeyError as exc:
-            raise _damaged(f"{what} holds the text {exc.args[0]!r} instead of a number") from exc
+            raise _damaged(
+                f"{what} holds the text {_short(exc.args[0])} instead of a number"
+            ) from None
+    if int in kinds and not all(_finite(v) for v in values if type(v) is int):
+        raise _damaged(f"{what} holds a number beyond the range of a float (about ±1.8e308)")
     return np.array(values, dtype=float).reshape(-1)
+
+
+def _finite(value: int | float) -> bool:
+    """True for a number a float holds as a finite value."""
+    return abs(value) <= _FLOAT_MAX if type(value) is int else math.isfinite(value)
+
+
+def _short(text: str) -> str:
+    return repr(text) if len(text) <= 40 else repr(text[:37] + "...")
+
+
+def _float(text: str) -> float:
+    """A JSON number with a fraction or exponent, refused beyond the range of a float."""
+    value = float(text)
+    if not math.isfinite(value):
+        raise ValueError(_too_large(text))
+    return value
+
+
+def _int(text: str) -> int:
+    """A JSON integer, refused beyond the range of a float (before Python's digit limit)."""
+    if len(text) > 310 or abs(value := int(text)) > _FLOAT_MAX:
+        raise ValueError(_too_large(text))
+    return value
+
+
+def _too_large(text: str) -> str:
+    shown = text if len(text) <= 24 else text[:21] + "..."
+    return f"the number {shown} is beyond the range of a float (about ±1.8e308)"
 
 
 def _time(text: Any) -> datetime | None:
@@ -266,7 +336,10 @@ def _time(text: Any) -> datetime | None:
         raise _damaged("captured_at is not an ISO 8601 time") from exc
     if when.tzinfo is None:
         raise _damaged("captured_at has no time zone")
-    return when.astimezone(UTC)
+    try:
+        return when.astimezone(UTC)
+    except OverflowError:
+        raise _damaged("captured_at lies outside the years 1 to 9999 in UTC") from None
 
 
 def _refuse_constant(name: str) -> float:

@@ -28,6 +28,10 @@ import numpy as np
 FAULT_KINDS = ("drop", "stall", "garble", "truncate", "count", "error", "overrange")
 _COUNTED = ("drop", "stall", "garble", "truncate", "count")
 _JUNK = b"@$%&?~!^"
+#: SCPI error and event numbers lie in this range (SCPI-99 volume 1, 21.8).
+CODE_MIN, CODE_MAX = -32768, 32767
+#: The most events a counted fault may wait for (the SCPI command's integer range).
+COUNT_MAX = 2**31 - 1
 #: Relative distance from an overrange fault's frequency within which readings overrange.
 OVERRANGE_TOLERANCE = 1e-3
 
@@ -62,32 +66,53 @@ class FaultSpec:
             raise ValueError(f"unknown fault {kind!r} (one of {', '.join(FAULT_KINDS)})")
         if kind == "error":
             code = _integer("code", n if code is None else code)
-            if code == 0:
-                raise ValueError("an error fault needs a non-zero code, e.g. -222")
+            if code == 0 or not CODE_MIN <= code <= CODE_MAX:
+                raise ValueError(
+                    f"an error fault needs a non-zero SCPI code from {CODE_MIN} to {CODE_MAX}, "
+                    f"e.g. -222; got {shown(code)}"
+                )
             return cls(kind, code=code)
         if kind == "overrange":
             value = n if frequency is None else frequency
             if value is None or isinstance(value, bool) or not isinstance(value, int | float):
                 raise ValueError("an overrange fault needs a frequency in Hz")
-            if not (math.isfinite(value) and value > 0):
-                raise ValueError(f"overrange frequency must be positive, got {value!r}")
-            return cls(kind, frequency=float(value))
+            try:
+                hertz = float(value)
+            except OverflowError:
+                hertz = math.inf
+            if not (math.isfinite(hertz) and hertz > 0):
+                raise ValueError(
+                    f"overrange frequency must be finite and positive, got {shown(value)}"
+                )
+            return cls(kind, frequency=hertz)
         if rate is not None:
             if n is not None:
                 raise ValueError("give either n or rate, not both")
             if isinstance(rate, bool) or not isinstance(rate, int | float) or not 0 < rate <= 1:
-                raise ValueError(f"rate must be a probability in (0, 1], got {rate!r}")
+                raise ValueError(f"rate must be a probability in (0, 1], got {shown(rate)}")
             return cls(kind, rate=float(rate))
         count = 1 if n is None else _integer("n", n)
-        if count < 1:
-            raise ValueError(f"n counts events from now and must be at least 1, got {count}")
+        if not 1 <= count <= COUNT_MAX:
+            raise ValueError(
+                f"n counts events from now and must be at least 1 (at most {COUNT_MAX}), "
+                f"got {shown(count)}"
+            )
         return cls(kind, n=count)
 
 
 def _integer(name: str, value: object) -> int:
-    if isinstance(value, bool) or not isinstance(value, int | float) or value != int(value):
-        raise ValueError(f"{name} must be a whole number, got {value!r}")
+    """``value`` as an int if it is a whole number (an int, or a float with no fraction)."""
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        raise ValueError(f"{name} must be a whole number, got {shown(value)}")
+    if isinstance(value, float) and not (math.isfinite(value) and value.is_integer()):
+        raise ValueError(f"{name} must be a whole number, got {shown(value)}")
     return int(value)
+
+
+def shown(value: object) -> str:
+    """``repr(value)``, cut short for a huge number so a message stays one short line."""
+    text = repr(value) if not isinstance(value, int) or abs(value) < 10**30 else "a huge number"
+    return text if len(text) <= 40 else text[:37] + "..."
 
 
 class _Armed:

@@ -16,6 +16,7 @@ import numpy as np
 from drivers.simulator import measurement, streams
 from drivers.simulator.faults import Faults, FaultSpec
 from drivers.simulator.measurement import Conditions, Reading
+from drivers.simulator.profile_names import load_offered, operator_choice
 from drivers.simulator.profiles import (
     STANDARD_KINDS,
     DutProfile,
@@ -54,15 +55,18 @@ class Instrument:
         seed: int = 0,
         measure_time: float | None = None,
         noise: bool = True,
+        profile_dir: Path | None = None,
     ) -> None:
-        self.meter = load_meter(meter)
-        self.fixture = load_fixture(fixture)
+        #: Where the operator keeps profiles clients may name besides the shipped ones.
+        self.profile_dir = profile_dir
+        self.meter = load_meter(operator_choice(meter, profile_dir))
+        self.fixture = load_fixture(operator_choice(fixture, profile_dir))
         self.settings = Settings()
         self.noise = noise
         self.time_override = measure_time
         self.faults = Faults(np.random.default_rng(0))
         self.reseed(seed)
-        self.dut = self.nominal = load_dut(dut)
+        self.dut = self.nominal = load_dut(operator_choice(dut, profile_dir))
         self.unit = 0
         self.last: Reading | None = None
         self.task: asyncio.Task | None = None
@@ -83,13 +87,18 @@ class Instrument:
         self.faults.reseed(np.random.default_rng(fault))
 
     def insert(
-        self, name_or_profile: str | Path | DutProfile, deferred: bool = False
+        self, name_or_profile: str | Path | DutProfile, deferred: bool = False, client: bool = False
     ) -> DutProfile:
         """Put a DUT or standard in the fixture and arm its profile's faults.
 
         ``deferred`` (inserting by a SCPI command) starts the faults' count after that message.
+        ``client`` (a SCPI command too): ``name_or_profile`` must be a name of a shipped profile
+        or of one in :attr:`profile_dir`, never a path (:mod:`.profile_names`).
         """
-        dut = load_dut(name_or_profile)
+        if client:
+            dut = load_offered(load_dut, str(name_or_profile), "DUT", self.profile_dir)
+        else:
+            dut = load_dut(name_or_profile)
         self.dut = dut
         if dut.kind not in STANDARD_KINDS and dut.kind != "none":
             self.nominal = dut
@@ -104,9 +113,15 @@ class Instrument:
         self.dut = draw_unit(self.nominal, self.spread_rng)
         return self.dut
 
-    def set_fixture(self, name_or_profile: str | Path | FixtureProfile) -> FixtureProfile:
-        """Change the fixture."""
-        self.fixture = load_fixture(name_or_profile)
+    def set_fixture(
+        self, name_or_profile: str | Path | FixtureProfile, client: bool = False
+    ) -> FixtureProfile:
+        """Change the fixture; ``client`` as for :meth:`insert`."""
+        if client:
+            name = str(name_or_profile)
+            self.fixture = load_offered(load_fixture, name, "fixture", self.profile_dir)
+        else:
+            self.fixture = load_fixture(name_or_profile)
         return self.fixture
 
     def arm_fault(self, spec: FaultSpec, deferred: bool = False) -> None:

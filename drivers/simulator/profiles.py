@@ -44,7 +44,7 @@ import numpy as np
 
 import sim_profiles
 from drivers.errors import ProfileError
-from drivers.simulator.faults import FAULT_KINDS, FaultSpec
+from drivers.simulator.faults import FAULT_KINDS, FaultSpec, shown
 from drivers.simulator.profile_schema import (
     DUT_SCHEMA,
     FIXTURE_SCHEMA,
@@ -109,18 +109,29 @@ def _read(path: Path) -> dict[str, Any]:
             return tomllib.load(fh)
     except tomllib.TOMLDecodeError as exc:
         raise ProfileError(f"{path}: not valid TOML: {exc}") from exc
+    except UnicodeDecodeError:
+        raise ProfileError(f"{path}: not a UTF-8 text file, as TOML files are") from None
+    except ValueError:  # Python's limit on the digits of an integer (4300 by default)
+        raise ProfileError(
+            f"{path}: not valid TOML: an integer of thousands of digits; TOML integers fit "
+            "in 64 bits"
+        ) from None
     except OSError as exc:
-        raise ProfileError(f"{path}: cannot read: {exc}") from exc
+        raise ProfileError(f"{path}: cannot read: {exc.strerror or exc}") from exc
 
 
 def _number(path: Path, where: str, key: str, value: Any, spec: Key) -> float:
     if isinstance(value, bool) or not isinstance(value, int | float):
         raise ProfileError(
-            f"{path}: {where}{key!r} must be a number in {spec.unit or 'SI units'}, got {value!r}"
+            f"{path}: {where}{key!r} must be a number in {spec.unit or 'SI units'}, "
+            f"got {shown(value)}"
         )
-    value = float(value)
+    try:
+        value = float(value)
+    except OverflowError:
+        value = math.inf
     if not math.isfinite(value):
-        raise ProfileError(f"{path}: {where}{key!r} must be finite, got {value!r}")
+        raise ProfileError(f"{path}: {where}{key!r} must be finite (at most about 1.8e308)")
     if spec.positive and value <= 0:
         raise ProfileError(f"{path}: {where}{key!r} must be greater than 0, got {value!r}")
     if value < 0:
@@ -173,7 +184,7 @@ def _text(path: Path, data: Mapping[str, Any], key: str, default: str | None = N
     if value is None:
         raise ProfileError(f"{path}: missing key {key!r} (text)")
     if not isinstance(value, str):
-        raise ProfileError(f"{path}: {key!r} must be text, got {value!r}")
+        raise ProfileError(f"{path}: {key!r} must be text, got {shown(value)}")
     return value
 
 
@@ -233,7 +244,7 @@ def _faults(path: Path, entries: Any) -> tuple[FaultSpec, ...]:
         kind = entry.get("kind")
         if kind not in FAULT_KINDS:
             raise ProfileError(
-                f"{path}: {where}'kind' must be one of {', '.join(FAULT_KINDS)}, got {kind!r}"
+                f"{path}: {where}'kind' must be one of {', '.join(FAULT_KINDS)}, got {shown(kind)}"
             )
         try:
             out.append(FaultSpec.build(kind, **{k: v for k, v in entry.items() if k != "kind"}))

@@ -40,7 +40,9 @@ class SimulateCommands:
 
     async def sim_dut(self, session: Session, params) -> None:
         expect(params, 1)
-        self._profile(lambda name: self.instrument.insert(name, deferred=True), params[0])
+        self._profile(
+            lambda name: self.instrument.insert(name, deferred=True, client=True), params[0]
+        )
 
     async def sim_dut_query(self, session: Session, params) -> str:
         expect(params, 0)
@@ -56,7 +58,7 @@ class SimulateCommands:
 
     async def sim_fixture(self, session: Session, params) -> None:
         expect(params, 1)
-        self._profile(self.instrument.set_fixture, params[0])
+        self._profile(lambda name: self.instrument.set_fixture(name, client=True), params[0])
 
     async def sim_fixture_query(self, session: Session, params) -> str:
         expect(params, 0)

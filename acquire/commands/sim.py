@@ -93,6 +93,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
 def run(args: argparse.Namespace) -> int:
     import asyncio
     import logging
+    import signal
     import sys
     from pathlib import Path
 
@@ -117,18 +118,20 @@ def run(args: argparse.Namespace) -> int:
         profile_dir=profile_dir,
     )
     server = SimulatorServer(instrument, args.host, args.port)
+    # asyncio.run turns Ctrl-C into a clean cancellation only under Python's own SIGINT handler
+    signal.signal(signal.SIGINT, signal.default_int_handler)
     if not args.quiet:
         logging.basicConfig(level=logging.INFO, format="sim: %(message)s", stream=sys.stderr)
 
     def ready(server: SimulatorServer) -> None:
-        print(server.resource, flush=True)
-        if args.host not in LOOPBACK:
+        if args.host not in LOOPBACK:  # before the resource line, which callers wait for
             print(
                 f"warning: listening on {args.host}: anyone who can reach this address can "
                 "control the simulator (it has no authentication)",
                 file=sys.stderr,
                 flush=True,
             )
+        print(server.resource, flush=True)
         print(
             f"simulated meter: {instrument.dut.name} on {instrument.fixture.name}, seed "
             f"{args.seed}; Ctrl-C to stop",

@@ -47,7 +47,10 @@ def _split(text: str | float | int) -> tuple[float, str]:
     if isinstance(text, bool):
         raise InputError(f"{text!r} is not a number")
     if isinstance(text, int | float):
-        return float(text), ""
+        try:
+            return float(text), ""
+        except OverflowError:  # an int beyond the largest double (a TOML or JSON integer)
+            raise InputError("a whole number beyond 1.8e308 is not a finite number") from None
     match = _NUMBER.match(str(text).translate(_SPACES))
     if not match:
         raise InputError(f"{text!r} is not a number (examples: 1000, 1e3, 1k, 2.5MHz, 4.7uH)")
@@ -172,7 +175,10 @@ def parse_fraction(text: str | float | int) -> float:
     value, suffix = _split(text)
     if not suffix and abs(value) > 1:
         raise InputError(f"{text!r} is more than 1: did you mean {value:g} %? Write the % sign")
-    return parse_quantity(text, "%")
+    ratio = parse_quantity(text, "%")
+    if suffix != "%" and abs(ratio) > 1:  # "2k", "1E30y": an SI prefix does not make a ratio
+        raise InputError(f"{text!r} is more than 1: write a ratio (0.2) or a percentage (20 %)")
+    return ratio
 
 
 def parse_list(text: str, unit: str | None = None) -> list[float]:

@@ -251,6 +251,10 @@ def find_block(raw: bytes | bytearray) -> tuple[int, int, int]:
         offset, length = visa_util.parse_ieee_block_header(raw[begin:], 0, True)
     except (ValueError, RuntimeError) as exc:
         raise ReplyError(f"malformed binary block header {bytes(raw[:25])!r}: {exc}") from None
+    if not bytes(raw[begin + 1 : begin + offset]).isdigit():
+        # IEEE 488.2 (7.7.6.2): '#', a digit, then that many ASCII digits; Python's int would
+        # also take a sign, white space or underscores, and a length such as "-8".
+        raise ReplyError(f"malformed binary block header {bytes(raw[begin : begin + 25])!r}")
     return begin, begin + offset, length
 
 
@@ -263,7 +267,7 @@ def block_values(
 ) -> np.ndarray:
     """The numbers held in a block's data (pyvisa's :func:`pyvisa.util.from_binary_block`)."""
     size = np.dtype(datatype).itemsize
-    if length % size or len(raw) < offset + length:
+    if length < 0 or length % size or len(raw) < offset + length:
         raise ReplyError(
             f"binary block of {length} bytes does not hold whole {size}-byte values "
             f"or was cut short ({len(raw) - offset} bytes received)"

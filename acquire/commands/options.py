@@ -103,12 +103,12 @@ def parse_time(text: str | None, option: str):
         return None
     try:
         when = datetime.fromisoformat(text.strip())
-    except ValueError:
+        return when.replace(tzinfo=UTC) if when.tzinfo is None else when.astimezone(UTC)
+    except (ValueError, OverflowError):  # OverflowError: beyond year 1 to 9999 once in UTC
         raise InputError(
             f"{option} {text!r} is not an ISO 8601 time: write e.g. 2026-03-02 or "
             "2026-03-02T08:00 (UTC unless a zone such as +01:00 is given)"
         ) from None
-    return when.replace(tzinfo=UTC) if when.tzinfo is None else when.astimezone(UTC)
 
 
 def lot_filter_from_args(args: argparse.Namespace, lot: str | None):

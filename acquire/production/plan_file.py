@@ -108,6 +108,11 @@ def parse_plan(text: str, source: str = "<text>") -> TestPlan:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise PlanError(_toml_message(str(exc), text, source)) from None
+    except ValueError:  # Python's limit on the digits of an integer (4300 by default)
+        raise PlanError(
+            f"{source}: an integer of thousands of digits; TOML integers fit in 64 bits "
+            "(TOML 1.0, Integer): write a quantity with its unit instead"
+        ) from None
     return _Reader(source).plan(data, text)
 
 
@@ -363,7 +368,7 @@ class _Reader(TableReader):
         pattern = self.text(table, "pattern", "serial", ".+")
         try:
             compiled = re.compile(pattern)
-        except re.error as exc:
+        except (re.error, OverflowError, RecursionError) as exc:  # too large or nested too deep
             raise self.fail(
                 "serial.pattern",
                 f"not a regular expression ({exc})",

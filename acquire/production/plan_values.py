@@ -10,6 +10,7 @@ the file and the key path. :func:`read_limit` turns a check's limit keys (``nomi
 
 from __future__ import annotations
 
+import math
 import re
 from collections.abc import Callable, Mapping
 from typing import Any
@@ -100,6 +101,9 @@ def read_limit(row: Mapping[str, Any], quantity: str) -> Limit:
         else:
             text = f"≥ {show(low, unit)}" if low is not None else f"≤ {show(high or 0.0, unit)}"
         limit = Limit(low, high, None, text)
+    if not all(math.isfinite(v) for v in (limit.low, limit.high) if v is not None):
+        # nominal +- tolerance beyond the largest double (about 1.8e308) is infinite
+        raise LimitError(given[-1], "the limits are not finite numbers", "give smaller values")
     if limit.low is not None and limit.high is not None and not limit.low < limit.high:
         raise LimitError(
             given[-1],

@@ -1,5 +1,6 @@
 """Killing a running station with SIGKILL and checking what it left (for
-tests/test_reliability_kills.py; ``benchmarks/reliability.py`` may borrow it). Not part of the installed program.
+tests/test_reliability_kills.py; ``benchmarks/reliability.py`` may borrow it). Not part of the
+installed program.
 
 - :func:`start_station` runs ``acquire station`` as a real process against a simulated meter,
   feeding it serials on standard input slowly (``pace`` seconds apart) or all at once.

@@ -25,6 +25,7 @@ from typing import Any
 import pytest
 from bench_support import PutsEachStandardIn
 from kill_support import (
+    LONG,
     Line,
     finish_lot,
     inspect,
@@ -43,6 +44,9 @@ from acquire.plan import log_plan
 from acquire.production.plan_file import example_plan_path, load_plan
 from acquire.store import open_store
 from drivers.meter import ImpedanceMeter
+
+#: The long variants (ACQUIRE_LONG_TESTS=1) run 100 kills a test: up to about 6 minutes each.
+pytestmark = pytest.mark.timeout(1200 if LONG else 120)
 
 #: Seconds per measured point of the simulated meter: a unit takes about 0.15 s.
 MEASURE_TIME = 0.03

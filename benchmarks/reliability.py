@@ -636,9 +636,7 @@ def lot_outage(t: Tally, lot: Lot, relay: Any, checks: int, seconds: float) -> N
         time.sleep(seconds)
         relay.mend()
         time.sleep(1.0)
-        assert proc.stdin is not None
-        proc.stdin.close()
-        out, err = proc.communicate(timeout=120)
+        out, err = proc.communicate(timeout=120)  # closes the input: the lot ends
     finally:
         proc.kill()
         relay.mend()

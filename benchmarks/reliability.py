@@ -393,6 +393,13 @@ def _mutated_plan(rng: random.Random, lines: list[str]) -> str:
     return "\n".join(out)
 
 
+def _block(raw: bytes) -> Any:
+    from drivers import scpi
+
+    _, offset, length = scpi.find_block(raw)
+    return scpi.block_values(raw, offset, length)
+
+
 def bad_inputs(t: Tally, samples: int) -> None:
     from acquire import units
     from acquire.commands.options import parse_time
@@ -412,17 +419,18 @@ def bad_inputs(t: Tally, samples: int) -> None:
         ("parse_error", scpi.parse_error),
         ("parse_number", scpi.parse_number),
         ("parse_numbers", lambda s: scpi.parse_numbers(s, 4)),
-        ("block_values", lambda s: scpi.block_values(s.encode("utf-8", "replace"))),
+        ("block", lambda s: _block(s.encode("utf-8", "replace"))),
         (
             "from_flat",
-            lambda s: readings.from_flat(("Ls", "Rs"), [1e3, 1e4], scpi.parse_numbers(s)),
-        ),  # fmt: skip
+            lambda s: readings.from_flat(("Ls", "Rs"), [1e3, 1e4], scpi.parse_numbers(s, 4)),
+        ),
         ("parse_plan", lambda s: parse_plan(_mutated_plan(rng, plan_lines), "mutated plan")),
     ]
+    seen: set[tuple[str, type]] = set()
     for i in range(samples):
         name, fn = targets[i % len(targets)]
         text = _random_text(rng)
-        if name == "block_values" and rng.random() < 0.5:
+        if name == "block" and rng.random() < 0.5:
             text = f"#{rng.randrange(0, 10)}{rng.randrange(0, 10**4)}" + text
         t.bad_inputs += 1
         try:
@@ -431,7 +439,9 @@ def bad_inputs(t: Tally, samples: int) -> None:
             pass
         except Exception as exc:  # noqa: BLE001 - counted, not hidden
             t.unexpected += 1
-            t.note(f"unexpected {type(exc).__name__} from {name}({text!r}): {exc}")
+            if (name, type(exc)) not in seen:
+                seen.add((name, type(exc)))
+                t.note(f"unexpected {type(exc).__name__} from {name}({text!r}): {exc}")
 
 
 # -- kills and outages of a station --------------------------------------------------------------

@@ -439,3 +439,29 @@ def test_guard_bands_without_a_stated_accuracy_are_refused_before_any_unit(bench
     assert "states no accuracy" in proc.stderr and len(proc.stderr.strip().splitlines()) == 1
     with open_store(url) as store:
         assert store.unit_attempts("EXAMPLE-6501") == []
+
+
+def test_units_waiting_when_a_session_ends_are_written_once_the_store_is_back(bench, rig, tmp_path):
+    """The end of a session keeps trying (with pauses) while the store is away, for a while."""
+    store, meter = rig
+    flaky = FlakyStore(store)
+    lot = unique_lot()
+    pauses: list[float] = []
+
+    def pause(seconds: float) -> None:
+        pauses.append(seconds)
+        if len(pauses) == 3:
+            flaky.down = False  # the store comes back during the third pause
+
+    with Outbox(tmp_path / "outbox.db") as outbox:
+        keeper = RecordKeeper(flaky, outbox)
+        station = make_station(bench, store, meter, keeper=keeper, lot=lot)
+        for i in range(3):
+            station.test(f"EXAMPLE-{8100 + i}")
+        assert keeper.waiting == 3
+        assert keeper.flush_patiently(60.0, sleep=pause) == 3
+        assert keeper.waiting == 0 and pauses == [0.2, 0.4, 0.8]
+        flaky.down = True
+        station.test("EXAMPLE-8103")
+        assert keeper.flush_patiently(0.0, sleep=pause) == 0 and keeper.waiting == 1
+    assert sorted(store.lot_units(lot).serial) == [f"EXAMPLE-{8100 + i}" for i in range(3)]

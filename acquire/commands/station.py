@@ -30,6 +30,9 @@ import sys
 
 from acquire.commands.options import add_dialect, add_resource, add_store
 
+#: Seconds the station keeps trying to write waiting units to the store when a session ends.
+FINAL_PATIENCE = 15.0
+
 HELP = "production testing: scan serials, measure, judge, bin and record each unit"
 
 
@@ -198,6 +201,14 @@ def run(args: argparse.Namespace) -> int:
             final = station.run(interactive)
         if interactive:
             console.print()  # the summary starts below the prompt line it ended on
+        if keeper.waiting:
+            console.print(
+                f"{keeper.waiting} units wait for the store: trying for up to "
+                f"{FINAL_PATIENCE:g} s before the summary",
+                soft_wrap=True,
+            )
+            keeper.flush_patiently(FINAL_PATIENCE)
+            final = station.status()
         console.print(screen.summary(final))
         if keeper.waiting:
             console.print(

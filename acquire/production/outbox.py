@@ -303,6 +303,20 @@ class RecordKeeper:
                 self.outbox.remove(unit.attempt_id)
                 delivered += 1
 
+    def flush_patiently(self, patience: float, sleep: Any = None) -> int:
+        """Flush until nothing waits or ``patience`` seconds have passed, pausing between tries
+        (0.2 s, doubling up to 2 s) while the store is away; how many were delivered."""
+        import time
+
+        pause = sleep or time.sleep
+        deadline = time.monotonic() + patience
+        delivered, wait = self.flush(), 0.2
+        while self.waiting and time.monotonic() < deadline:
+            pause(min(wait, max(0.0, deadline - time.monotonic())))
+            delivered += self.flush()
+            wait = min(wait * 2, 2.0)
+        return delivered
+
     store: UnitSink
     outbox: Outbox
     last_error: str

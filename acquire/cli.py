@@ -89,9 +89,9 @@ def main(argv: Sequence[str] | None = None) -> int:
         parser.print_help()
         return 0
     debug = args.debug or os.environ.get("ACQUIRE_DEBUG") == "1"
-    signals.install()  # SIGTERM and SIGHUP end a command as Ctrl-C does
     try:
-        return int(args._module.run(args) or 0)
+        with signals.installed():  # SIGTERM and SIGHUP end a command as Ctrl-C does
+            return int(args._module.run(args) or 0)
     except KeyboardInterrupt:
         # On its own line: Ctrl-C often comes at a prompt, whose line the terminal leaves open.
         print("\nacquire: interrupted", file=sys.stderr)

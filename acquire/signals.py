@@ -89,6 +89,23 @@ def install() -> list[str]:
     return installed
 
 
+@contextmanager
+def installed() -> Iterator[list[str]]:
+    """:func:`install` for the length of the block, then the handlers that were there before
+    (so a program that runs a command in its own process, a test say, gets its own back)."""
+    if threading.current_thread() is not threading.main_thread():
+        yield []
+        return
+    names = ["SIGINT", *STOP_SIGNALS]
+    before = {n: signal.getsignal(getattr(signal, n)) for n in names if hasattr(signal, n)}
+    try:
+        yield install()
+    finally:
+        for name, handler in before.items():
+            if handler is not None:
+                signal.signal(getattr(signal, name), handler)
+
+
 def stop_reason(stop: KeyboardInterrupt) -> str:
     """How a stop reads for the operator: "stopped by SIGTERM", or "stopped with Ctrl-C"."""
     if isinstance(stop, StopSignal):

@@ -360,3 +360,15 @@ def test_a_stop_signal_waits_while_a_measured_unit_is_recorded():
     finally:
         for name, handler in before.items():
             signal.signal(getattr(signal, name), handler)
+
+
+def test_a_command_run_in_process_gives_the_signal_handlers_back():
+    """`acquire.cli.main` called from another program (a test, a script) leaves that program's
+    handlers as they were once the command has ended."""
+    import signal as sig
+
+    from acquire.cli import main
+
+    before = {s: sig.getsignal(s) for s in (sig.SIGINT, sig.SIGTERM, sig.SIGHUP)}
+    assert main(["plan", "example"]) == 0
+    assert {s: sig.getsignal(s) for s in before} == before

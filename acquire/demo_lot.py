@@ -25,29 +25,12 @@ def demo_serials(count: int = LOT_SIZE) -> Iterator[str]:
         yield f"EXAMPLE-{i:04d}"
 
 
-class LotScreen:
-    """The demo's station screen: the plain one-line-per-unit form, never asking for input."""
-
-    def __init__(self, console: Console) -> None:
-        from acquire.production.screen import StationScreen
-
-        self.inner = StationScreen(console, interactive=False, bell=False)
-
-    def show(self, status: Any) -> None:
-        self.inner.show(status)
-
-    def ring(self) -> None:
-        """The demo does not ring."""
-
-    def summary(self, status: Any) -> Any:
-        return self.inner.summary(status)
-
-
 def production_lot(run: Any) -> None:
     """Run :data:`LOT_SIZE` simulated units through the station with the example plan."""
     from acquire.production.measure import apply_settings
     from acquire.production.outbox import Outbox, RecordKeeper, default_outbox_path
     from acquire.production.plan_file import example_plan_path, load_plan
+    from acquire.production.screen import StationScreen
     from acquire.production.station import Station, StationContext
 
     if run.references is None or run.outcome is None or run.outcome.interrupted:
@@ -80,7 +63,7 @@ def production_lot(run: Any) -> None:
         fixture_id=store.record_fixture(plan.fixture) if plan.fixture else None,
         temperature=plan.temperature.value,
     )
-    screen = LotScreen(console)
+    screen = StationScreen(console, interactive=False, bell=False)  # plain lines, no bell
     with Outbox(default_outbox_path(run.store_url, context.station)) as outbox:
         keeper = RecordKeeper(store, outbox)
         station = Station(

@@ -14,7 +14,6 @@ ways to read the store come in as objects.
 
 from __future__ import annotations
 
-import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Any
@@ -153,7 +152,6 @@ class Station:
         self.last: list[ShownUnit] = []
         self.current: ShownUnit | None = None
         self.message = ""
-        self.meter_seconds = 0.0
         self._in_fixture = ""
         self._checked: tuple[Any, list[str]] = (object(), [])
 
@@ -290,18 +288,14 @@ class Station:
 
     def _measure_unit(self, serial: str) -> UnitMeasurement:
         """Measure the unit in the fixture; a simulated meter gets a new unit for a new serial."""
-        began = time.perf_counter()
-        try:
-            if serial != self._in_fixture and self._has("next_unit"):
-                try:
-                    self.meter.next_unit()
-                except InstrumentError as exc:
-                    return _fault(f"meter fault: {exc}")
-            self._in_fixture = serial
-            c = self.context
-            return self._measure(self.meter, c.plan, self.references, c.temperature)
-        finally:
-            self.meter_seconds += time.perf_counter() - began
+        if serial != self._in_fixture and self._has("next_unit"):
+            try:
+                self.meter.next_unit()
+            except InstrumentError as exc:
+                return _fault(f"meter fault: {exc}")
+        self._in_fixture = serial
+        c = self.context
+        return self._measure(self.meter, c.plan, self.references, c.temperature)
 
     def _has(self, operation: str) -> bool:
         has = getattr(self.meter, "has", None)

@@ -18,12 +18,16 @@ from __future__ import annotations
 import argparse
 import io
 import statistics
+import sys
 import tempfile
 import time
 from pathlib import Path
 from typing import Any
 
 from rich.console import Console
+
+sys.path.insert(0, str(Path(__file__).resolve().parent.parent / "tests"))
+from bench_support import PutsEachStandardIn  # noqa: E402 - the tests' stand-in operator
 
 from acquire.capture import capture_references
 from acquire.plan import log_plan
@@ -112,7 +116,7 @@ def main() -> None:
     ):
         identity = meter.identify()
         refs = capture_references(
-            meter, log_plan("100Hz", "2MHz", 61), _Operator(sim), load_true=sim.load_true,
+            meter, log_plan("100Hz", "2MHz", 61), PutsEachStandardIn(sim), load_true=sim.load_true,
             fixture="bench-leads", meter_name=str(identity), repeats=1,
         )  # fmt: skip
         ref_id = store.save_reference_set(refs, name="bench")
@@ -145,20 +149,6 @@ def main() -> None:
           f"{'met' if med_own <= 0.020 else 'NOT MET'}")  # fmt: skip
     print(f"station's own time, 95th percentile:   {p95 * 1e3:7.2f} ms")
     print(f"own time / meter time:                 {med_own / med_meter:7.2f}")
-
-
-class _Operator:
-    def __init__(self, sim: Any) -> None:
-        self.sim = sim
-
-    def tell(self, text: str) -> None: ...
-
-    def ready(self, standard: str, instruction: str) -> bool:
-        self.sim.insert(standard)
-        return True
-
-    def retry(self, standard: str, problems: list[str]) -> bool:
-        return False
 
 
 if __name__ == "__main__":

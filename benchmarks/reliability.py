@@ -55,6 +55,8 @@ from rich.console import Console
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "tests"))
 
+from bench_support import PutsEachStandardIn  # noqa: E402 - the tests' stand-in operator
+
 from acquire.capture import capture_references  # noqa: E402
 from acquire.errors import AcquireError  # noqa: E402
 from acquire.plan import log_plan  # noqa: E402
@@ -111,25 +113,11 @@ def example_plan_text() -> str:
     return text.replace('seen_before = "refuse"', 'seen_before = "retest"')
 
 
-class _Operator:
-    def __init__(self, sim: Any) -> None:
-        self.sim = sim
-
-    def tell(self, text: str) -> None: ...
-
-    def ready(self, standard: str, instruction: str) -> bool:
-        self.sim.insert(standard)
-        return True
-
-    def retry(self, standard: str, problems: list[str]) -> bool:
-        return False
-
-
 def capture(sim: Any, fixture: str) -> Any:
     with ImpedanceMeter.open(sim.resource, dialect="simulated") as meter:
         identity = meter.identify()
         refs = capture_references(
-            meter, log_plan("100Hz", "1MHz", 41), _Operator(sim), load_true=sim.load_true,
+            meter, log_plan("100Hz", "1MHz", 41), PutsEachStandardIn(sim), load_true=sim.load_true,
             fixture=fixture, meter_name=str(identity), repeats=1,
         )  # fmt: skip
     sim.insert("demo-coil")

@@ -7,6 +7,7 @@ function takes plain values (a store, a meter's identity, a plan, names) and ret
 from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
+from datetime import UTC, datetime
 from typing import Any
 
 from acquire.errors import CompensationError, InputError
@@ -60,6 +61,12 @@ def usable_reference(refs: Any, ref_id: int | None, override: str | None = None)
     )
 
 
+def newest_reference(infos: Sequence[Any]) -> Any:
+    """The newest of stored reference sets' infos: by save time (else capture time), then id."""
+    oldest = datetime(1970, 1, 1, tzinfo=UTC)
+    return max(infos, key=lambda info: (info.saved_at or info.captured_at or oldest, info.id))
+
+
 def find_reference_set(store: Any, key: str) -> tuple[int, Any]:
     """The (id, ReferenceSet) a user named: an id, a name (the newest of that name) or 'latest'."""
     infos = store.list_reference_sets()
@@ -76,7 +83,7 @@ def find_reference_set(store: Any, key: str) -> tuple[int, Any]:
     if not pool:
         what = "no reference sets" if latest else f"no reference set named {text!r}"
         raise InputError(f"{what} in {store.url}; capture one with `acquire reference capture`")
-    newest = max(pool, key=lambda info: (info.saved_at or info.captured_at or 0, info.id))
+    newest = newest_reference(pool)
     return newest.id, store.load_reference_set(newest.id)
 
 

@@ -11,10 +11,9 @@ from datetime import UTC, datetime
 from typing import Any
 
 from acquire.display import format_duration
+from acquire.sweep_setup import newest_reference
 
 #: What the operator is told to do when the references stop the station.
-_EPOCH = datetime(1970, 1, 1, tzinfo=UTC)
-
 CAPTURE_HINT = (
     "Capture new references on this fixture (`acquire reference capture`), then press Enter"
 )
@@ -86,5 +85,5 @@ def newest_for_fixture(store: Any, fixture: str) -> tuple[int | None, Any]:
     infos = [i for i in store.list_reference_sets() if not fixture or i.fixture == fixture]
     if not infos:
         return None, None
-    newest = max(infos, key=lambda i: (i.saved_at or i.captured_at or _EPOCH, i.id))
+    newest = newest_reference(infos)
     return newest.id, store.load_reference_set(newest.id)

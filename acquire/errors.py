@@ -26,3 +26,7 @@ class StoreError(AcquireError):
 
 class ModelError(AcquireError):
     """A coil model cannot be computed or fitted from the data given."""
+
+
+class BiasError(AcquireError):
+    """A DC-bias measurement cannot be done as asked (a bias above a limit, a curve unusable)."""

@@ -1,10 +1,10 @@
 """The energy a biased inductor stores, and the caution it calls for.
 
 An inductance L carrying a current I stores W = ½·L·I² (the energy of the magnetic field of a
-linear inductor, derived in any electromagnetism textbook; from memory). Breaking that current makes the inductor drive whatever voltage it takes to
-keep it flowing: an arc at the contact, a spike into the meter's input. Chokes under bias are
-therefore ramped down to zero before a part is changed, and a large stored energy is shown
-before a measurement starts.
+linear inductor, derived in any electromagnetism textbook; from memory). Breaking that current
+makes the inductor drive whatever voltage it takes to keep it flowing: an arc at the contact, a
+spike into the meter's input. Chokes under bias are therefore ramped down to zero before a part
+is changed, and a large stored energy is shown before a measurement starts.
 """
 
 from __future__ import annotations

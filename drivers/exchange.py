@@ -126,7 +126,7 @@ class Exchange:
     @staticmethod
     def _acknowledged(replies: list, queries: list[Operation]) -> list:
         for reply, op in zip(replies, queries, strict=True):
-            if op.reply == "ack" and not (
+            if op.reply == "ack" and reply != "1" and not (
                 scpi.is_number(reply) and scpi.parse_number(reply) == 1.0
             ):
                 raise ReplyError(

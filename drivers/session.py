@@ -85,6 +85,7 @@ class Session:
         self._visa_timeout: float | None = None
         self._suspect = False
         self._term = read_termination.encode(encoding)
+        self._termchar = self._term[-1:]
 
     # -- opening and closing -------------------------------------------------------------------
 
@@ -199,7 +200,10 @@ class Session:
         resource = self._require()
         self._discard_stale()
         try:
-            resource.write(message)
+            if self._socket is not None:
+                self._socket.send((message + self.write_termination).encode(self.encoding))
+            else:
+                resource.write(message)
         except VisaIOError as exc:
             raise self._visa_failure(exc, message) from exc
         except OSError as exc:
@@ -314,6 +318,10 @@ class Session:
         self.write(message)
         self._suspect = True  # until the whole reply is read, whatever interrupts us
         self._wait_readable(deadline, message, seconds)
+        if self._socket is not None and self._termchar:
+            line = self._socket.take_line(self._termchar)
+            if line is not None:
+                return line
         # What is left of the timeout, rounded up to an eighth of it: the VISA attribute then
         # changes only when a reply was slow to start, not on every query.
         step = seconds / 8
@@ -342,7 +350,8 @@ class Session:
             raise ConnectionLost(f"{self.resource_name}: reading the reply failed: {exc}") from exc
 
     def _wait_readable(self, deadline: float, message: str, seconds: float) -> None:
-        """On a raw socket, wait for the reply; notice a closed connection at once."""
+        """On a raw socket, wait for the reply and take what has come (a whole line, usually,
+        then read without pyvisa-py); notice a closed connection at once."""
         if self._socket is None:
             return
         try:

@@ -18,6 +18,7 @@ from __future__ import annotations
 import os
 import select
 import socket
+import time
 from typing import Protocol
 
 
@@ -51,38 +52,33 @@ class RawSocket:
             raise OSError(code, os.strerror(code))
         self._sock.getpeername()
 
-    def wait_readable(self, seconds: float) -> bool:
-        """Wait up to ``seconds`` for a reply to start and take what has arrived; False on timeout.
+    def read_line(self, termchar: bytes, deadline: float) -> bytes | None:
+        """The reply up to and including the first ``termchar`` (one byte); None if it has not
+        come whole by ``deadline`` (:func:`time.monotonic`).
 
-        What arrives goes into pyvisa-py's read buffer, where :meth:`take_line` (or pyvisa-py's
-        own read) finds it. Raises :class:`Closed` if the peer closed the connection instead of
-        answering.
+        Bytes past ``termchar`` stay in pyvisa-py's read buffer, where its own reads find them.
+        Raises :class:`Closed` as soon as the peer closes the connection, even in the middle of
+        a reply.
         """
-        if self._session._pending_buffer:
-            return True
-        if not select.select([self._sock], [], [], max(seconds, 0.0))[0]:
-            return False
-        chunk = self._sock.recv(65536)
-        if not chunk:
-            raise Closed("the meter closed the connection")
-        self._session._pending_buffer.extend(chunk)
-        return True
+        pending = self._session._pending_buffer
+        while True:
+            end = pending.find(termchar) + 1
+            if end:
+                line = bytes(pending[:end])
+                del pending[:end]
+                return line
+            wait = max(deadline - time.monotonic(), 0.0)
+            if not select.select([self._sock], [], [], wait)[0]:
+                return None
+            chunk = self._sock.recv(65536)
+            if not chunk:
+                raise Closed("the meter closed the connection")
+            pending.extend(chunk)
 
     def send(self, data: bytes) -> None:
         """Send all of ``data`` (the socket blocks until the kernel has taken it, as pyvisa-py's
         own write does)."""
         self._sock.sendall(data)
-
-    def take_line(self, termchar: bytes) -> bytes | None:
-        """The buffered bytes up to and including the first ``termchar`` (one byte), removed from
-        the buffer as pyvisa-py's read would remove them; None while no ``termchar`` has come."""
-        pending = self._session._pending_buffer
-        end = pending.find(termchar) + 1
-        if not end:
-            return None
-        line = bytes(pending[:end])
-        del pending[:end]
-        return line
 
     def discard_pending(self) -> int:
         """Throw away everything already received; return how many bytes that was.

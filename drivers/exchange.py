@@ -126,8 +126,10 @@ class Exchange:
     @staticmethod
     def _acknowledged(replies: list, queries: list[Operation]) -> list:
         for reply, op in zip(replies, queries, strict=True):
-            if op.reply == "ack" and not (
-                scpi.is_number(reply) and scpi.parse_number(reply) == 1.0
+            if (
+                op.reply == "ack"
+                and reply != "1"
+                and not (scpi.is_number(reply) and scpi.parse_number(reply) == 1.0)
             ):
                 raise ReplyError(
                     f"expected the acknowledgement 1 to {op.command!r}, got {reply[:40]!r}"

@@ -283,6 +283,7 @@ class ImpedanceMeter:
         lean = [op for op in full if op.name != "point_mode"]
         values = np.empty(2 * f.size)
         timeout = self._timeout(1)
+        repeatable = all(o.idempotent for o in full)
 
         def point(context: dict[str, str]) -> np.ndarray:
             steps = lean if self._mode_known else full
@@ -297,7 +298,7 @@ class ImpedanceMeter:
             chunk = self._call(
                 f"measuring at {fi:g} Hz",
                 functools.partial(point, context),
-                all(o.idempotent for o in full),
+                repeatable,
             )
             values[2 * i : 2 * i + 2] = chunk
             if on_points is not None:

@@ -12,7 +12,10 @@ re-apply its configuration (``on_reopen``) and repeats the operation if it is sa
 a bounded number of times, before raising :class:`ConnectionLost` naming the resource and what
 was tried. After a timeout the old connection is closed (and the device cleared where the
 backend cannot reconnect), and before every query any bytes already waiting are discarded, so
-a late reply is never taken as the answer to a later query.
+a late reply is never taken as the answer to a later query. On a pyvisa-py socket a query is
+sent and its reply line read on the socket itself (:mod:`drivers.rawsocket`): the same system
+calls as a bare pyvisa-py query, and a connection closed even in the middle of a reply is
+noticed at once.
 """
 
 from __future__ import annotations
@@ -85,6 +88,7 @@ class Session:
         self._visa_timeout: float | None = None
         self._suspect = False
         self._term = read_termination.encode(encoding)
+        self._termchar = self._term[-1:]
 
     # -- opening and closing -------------------------------------------------------------------
 
@@ -199,7 +203,10 @@ class Session:
         resource = self._require()
         self._discard_stale()
         try:
-            resource.write(message)
+            if self._socket is not None:
+                self._socket.send((message + self.write_termination).encode(self.encoding))
+            else:
+                resource.write(message)
         except VisaIOError as exc:
             raise self._visa_failure(exc, message) from exc
         except OSError as exc:
@@ -313,11 +320,13 @@ class Session:
         deadline = time.monotonic() + seconds
         self.write(message)
         self._suspect = True  # until the whole reply is read, whatever interrupts us
-        self._wait_readable(deadline, message, seconds)
-        # What is left of the timeout, rounded up to an eighth of it: the VISA attribute then
-        # changes only when a reply was slow to start, not on every query.
+        # What is left of the timeout, rounded up to an eighth of it, for pyvisa's reads (of
+        # this reply, or of the rest of a binary block): the VISA attribute then changes only
+        # when a reply was slow to start, not on every query.
         step = seconds / 8
         self._set_timeout(math.ceil(max(deadline - time.monotonic(), 0.0) / step) * step)
+        if self._socket is not None and self._termchar:
+            return self._read_line(deadline, message, seconds)
         try:
             return self._require().read_raw()
         except VisaIOError as exc:
@@ -341,20 +350,21 @@ class Session:
         except OSError as exc:
             raise ConnectionLost(f"{self.resource_name}: reading the reply failed: {exc}") from exc
 
-    def _wait_readable(self, deadline: float, message: str, seconds: float) -> None:
-        """On a raw socket, wait for the reply; notice a closed connection at once."""
-        if self._socket is None:
-            return
+    def _read_line(self, deadline: float, message: str, seconds: float) -> bytes:
+        """On a raw socket, the reply line read on the socket itself; a closed connection is
+        noticed at once, also in the middle of a reply."""
+        assert self._socket is not None
         try:
-            ready = self._socket.wait_readable(deadline - time.monotonic())
+            line = self._socket.read_line(self._termchar, deadline)
         except OSError as exc:
             raise ConnectionLost(
                 f"{self.resource_name}: {exc} while answering {message[:40]!r}"
             ) from exc
-        if not ready:
+        if line is None:
             raise MeterTimeout(
                 f"{self.resource_name}: no reply to {message[:40]!r} within {seconds:g} s"
             )
+        return line
 
     def _discard_stale(self) -> None:
         """Throw away bytes that arrived unasked (a late reply); notice a closed connection."""

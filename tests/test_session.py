@@ -6,6 +6,7 @@ simulated meter does not, to pin down what the session guarantees.
 
 from __future__ import annotations
 
+import select
 import socket
 import struct
 import threading
@@ -19,7 +20,8 @@ from pyvisa import util as visa_util
 from drivers.errors import ConnectionLost, MeterTimeout
 from drivers.session import Session
 
-#: handler(connection number, line) -> reply bytes, or None for no reply, or "close".
+#: handler(connection number, line) -> reply bytes, or None for no reply, or "close", or a
+#: tuple of those sent one after the other 50 ms apart.
 Handler = Callable[[int, bytes], object]
 
 
@@ -76,14 +78,18 @@ class Loopback:
                 line, buffer = buffer.split(b"\n", 1)
                 self.received.append((number, line))
                 reply = self.handler(number, line)
-                if reply == "close":
-                    client.close()
-                    return
-                if reply is not None:
-                    try:
-                        client.sendall(reply)
-                    except OSError:
+                pieces = reply if isinstance(reply, tuple) else (reply,)
+                for i, piece in enumerate(pieces):
+                    if i:
+                        time.sleep(0.05)
+                    if piece == "close":
+                        client.close()
                         return
+                    if piece is not None:
+                        try:
+                            client.sendall(piece)
+                        except OSError:
+                            return
 
     def close(self) -> None:
         self._stop.set()
@@ -130,6 +136,61 @@ def test_closed_connection_is_noticed_as_lost_not_as_a_timeout():
                 session.query("A?")
         finally:
             session.close()
+
+
+def test_a_connection_closed_in_the_middle_of_a_reply_is_lost_not_a_timeout():
+    with loopback(lambda n, line: (b"1.25E+01,6.2", "close")) as server:
+        session = session_for(server, timeout=5.0)
+        try:
+            with pytest.raises(ConnectionLost, match="closed the connection"):
+                session.query("READ?")
+        finally:
+            session.close()
+
+
+def test_a_reply_arriving_in_pieces_is_read_whole():
+    with loopback(lambda n, line: (b"1.25E+01,", b"6.2E+02;", b"1\n")) as server:
+        session = session_for(server)
+        try:
+            assert session.query("READ?;*OPC?") == "1.25E+01,6.2E+02;1"
+        finally:
+            session.close()
+
+
+def test_a_line_sent_after_the_reply_is_never_the_next_answer():
+    def two_lines_first(number: int, line: bytes) -> bytes:
+        return b"first\nextra\n" if line == b"A?" else b"ok:" + line + b"\n"
+
+    with loopback(two_lines_first) as server:
+        session = session_for(server)
+        try:
+            assert session.query("A?") == "first"
+            assert session.query("B?") == "ok:B?"
+        finally:
+            session.close()
+
+
+def test_a_query_on_a_socket_waits_twice_as_a_bare_pyvisa_query_does(monkeypatch):
+    """One look for bytes nobody asked for (and a closed connection) before sending, one wait
+    for the reply: the two selects pyvisa-py's own write and read make (its write waits until
+    the socket takes data, its read until the reply comes)."""
+    calls = []
+    real = select.select
+
+    def counted(*args):
+        calls.append(args)
+        return real(*args)
+
+    with loopback(echo) as server:
+        session = session_for(server)
+        try:
+            session.query("A?")
+            monkeypatch.setattr(select, "select", counted)
+            for i in range(10):
+                assert session.query(f"B{i}?") == f"ok:B{i}?"
+        finally:
+            session.close()
+    assert len(calls) == 20
 
 
 def test_unasked_bytes_are_discarded_before_a_query():

@@ -10,6 +10,13 @@ and :mod:`drivers.dialect_check`, which checks it); a malformed dialect raises
 :class:`DialectError` naming the file, the key and the reason. This module holds only what a
 dialect is: the data classes and the vocabulary of operations, replies and placeholders.
 ``drivers/dialects/template.toml`` explains every key.
+
+A dialect file is of one of two kinds (``kind`` at the top): a ``"meter"`` (the default) or a
+``"current-source"``, the DC source that supplies bias when the meter has none of its own. A
+meter dialect may declare the bias operations (:data:`BIAS_OPERATIONS`: all four of
+:data:`BIAS_REQUIRED` or none); a source dialect holds only its connection, its error codes and
+the :data:`SOURCE_OPERATIONS`, and loads as a :class:`SourceDialect`
+(:func:`drivers.dialect_file.load_source_dialect`).
 """
 
 from __future__ import annotations
@@ -45,8 +52,35 @@ OPERATIONS: dict[str, str] = {
     "set_averaging": "set how many readings are averaged per point: {averaging}",
     "dc_resistance": "measure the DC resistance in ohm",
     "next_unit": "simulator only: put the next production unit (drawn from its spread) in",
+    "set_bias": "set the DC bias current in ampere: {current}; max is the largest allowed",
+    "bias_on": "switch the DC bias on",
+    "bias_off": "switch the DC bias off",
+    "read_bias": "read back the DC bias actually applied, in ampere",
+    "bias_limit": "ask the meter the largest DC bias it allows, in ampere",
 }
 REQUIRED = ("identify", "next_error")
+#: The bias operations of a meter dialect; the first four come together or not at all.
+BIAS_OPERATIONS = ("set_bias", "bias_on", "bias_off", "read_bias", "bias_limit")
+BIAS_REQUIRED = BIAS_OPERATIONS[:4]
+
+#: The kinds of dialect file (the top-level ``kind`` key; ``"meter"`` when it is left out).
+KINDS = ("meter", "current-source")
+#: The operations a current-source dialect may leave out.
+SOURCE_OPTIONAL = ("reset", "clear_status", "setup", "current_limit")
+#: Every operation a current-source dialect may define, with what it does.
+SOURCE_OPERATIONS: dict[str, str] = {
+    "identify": "ask the source who it is (*IDN?)",
+    "next_error": "read the oldest entry of the error queue",
+    "reset": "return the source's settings to its defaults",
+    "clear_status": "clear the error queue and status registers",
+    "setup": "put the source in the state the dialect assumes",
+    "set_current": "set the output current in ampere: {current}; max is the largest allowed",
+    "output_on": "switch the output on",
+    "output_off": "switch the output off",
+    "read_current": "measure the current actually flowing, in ampere",
+    "current_limit": "ask the source the largest current it allows, in ampere",
+}
+SOURCE_REQUIRED = tuple(name for name in SOURCE_OPERATIONS if name not in SOURCE_OPTIONAL)
 OPTIONAL = ("dc_resistance", "set_level", "set_speed", "set_averaging", "reset", "binary")
 
 #: The reply each query operation must declare (others may only be "ack").
@@ -56,6 +90,10 @@ REPLIES: dict[str, str] = {
     "fetch": "readings",
     "read": "readings",
     "dc_resistance": "number",
+    "read_bias": "number",
+    "bias_limit": "number",
+    "read_current": "number",
+    "current_limit": "number",
 }
 REPLY_KINDS = ("identity", "error", "readings", "number", "ack")
 
@@ -66,8 +104,13 @@ OWN_PLACEHOLDERS: dict[str, frozenset[str]] = {
     "set_level": frozenset({"level"}),
     "set_speed": frozenset({"speed"}),
     "set_averaging": frozenset({"averaging"}),
+    "set_bias": frozenset({"current"}),
+    "set_current": frozenset({"current"}),
 }
 PLACEHOLDERS = frozenset({"frequency", "frequencies", "count", "level", "speed", "averaging"})
+PLACEHOLDERS |= {"current"}
+#: Operations whose command must hold ``{current}`` and give ``max``: the largest current, A.
+CURRENT_SETTERS = ("set_bias", "set_current")
 SEQUENCE_PLACEHOLDERS = {
     "point": frozenset({"frequency"}),
     "list": frozenset({"frequencies", "count"}),
@@ -160,6 +203,11 @@ class Dialect:
     accuracy: MeterAccuracy | None = None
 
     @property
+    def has_bias(self) -> bool:
+        """True if the meter can supply DC bias itself (the dialect's bias operations)."""
+        return "set_bias" in self.operations
+
+    @property
     def has_list(self) -> bool:
         """True if the meter has a list mode the driver can use."""
         return bool(self.list_sequence)
@@ -179,3 +227,26 @@ class Dialect:
                 f"add [operations.{name}] to the dialect if the meter can do it, "
                 "or remove that step from the plan"
             ) from None
+
+
+@dataclass(frozen=True)
+class SourceDialect:
+    """A loaded, validated current-source dialect (``kind = "current-source"``): how to reach a
+    DC current source and its :data:`SOURCE_OPERATIONS`. Times are seconds, currents ampere."""
+
+    name: str
+    path: Path
+    description: str
+    operations: dict[str, Operation] = field(repr=False)
+    write_termination: str = "\n"
+    read_termination: str = "\n"
+    encoding: str = "ascii"
+    timeout: float = 5.0
+    open_timeout: float = 5.0
+    retries: int = 2
+    retry_wait: float = 0.2
+    warning_codes: frozenset[int] = frozenset()
+
+    def has(self, operation: str) -> bool:
+        """True if the dialect defines ``operation``."""
+        return operation in self.operations

@@ -1,7 +1,8 @@
 """Checking a dialect file key by key: every mistake names the file, the key and the reason.
 
 :func:`check_dialect` turns the parsed TOML table of a dialect file into a
-:class:`~drivers.dialect.Dialect`, refusing unknown keys, wrong types, impossible limits,
+:class:`~drivers.dialect.Dialect` (:func:`check_source_dialect`, a current source's into a
+:class:`~drivers.dialect.SourceDialect`), refusing unknown keys, wrong types, impossible limits,
 operations the driver does not know, queries that do not say what they return, placeholders an
 operation cannot fill, and sequences that would never tell the meter its frequency or never
 return a reading. :func:`drivers.dialect_file.load_dialect` is the way in.
@@ -26,7 +27,9 @@ from drivers.dialect import (
     SEQUENCE_PLACEHOLDERS,
     Dialect,
     Operation,
+    SourceDialect,
 )
+from drivers.dialect_bias import check_bias, check_kind, check_source, unknown_operation
 from drivers.dialect_connection import check_connection
 from drivers.errors import DialectError
 from drivers.readings import QD_SIGNS, QUANTITIES, is_supported, supported_pairs
@@ -36,6 +39,11 @@ from drivers.renamed import dialect_problems
 def check_dialect(path: Path, data: dict[str, Any]) -> Dialect:
     """The validated dialect of the TOML table ``data`` read from ``path``."""
     return _Checker(path, data).dialect()
+
+
+def check_source_dialect(path: Path, data: dict[str, Any]) -> SourceDialect:
+    """The validated current-source dialect of the TOML table ``data`` read from ``path``."""
+    return check_source(_Checker(path, data))
 
 
 class _Checker:
@@ -97,32 +105,23 @@ class _Checker:
 
     def dialect(self) -> Dialect:
         top = self.data
+        check_kind(self, "meter")
         self.unknown(
             top,
             "",
-            {"schema", "name", "description", "connection", "frequency", "reading", "errors"}
-            | {"transfer", "list", "sequence", "operations", "accuracy"},
+            {"schema", "kind", "name", "description", "connection", "frequency", "reading"}
+            | {"errors", "transfer", "list", "sequence", "operations", "accuracy"},
         )
-        schema = self.get(top, "schema", int)
-        if schema != SCHEMA:
-            raise self.fail("schema", f"this driver reads schema {SCHEMA}, the file has {schema}")
-        name = self.get(top, "name", str)
-        if not name.strip():
-            raise self.fail("name", "must not be empty")
+        name = self.header()
         operations = self.operations()
+        check_bias(self, operations)
         conn = check_connection(self)
         fmin, fmax = self.frequency()
         pair, qd_sign = self.reading()
         transfer = self.transfer(operations)
         list_max, list_min = self.list_limits()
         point, lst, settle = self.sequences(operations, list_max > 0)
-        errors = self.table("errors")
-        self.unknown(errors, "errors.", {"warning_codes"})
-        codes = self.get(errors, "errors.warning_codes", list, [])
-        if not all(isinstance(c, int) and not isinstance(c, bool) for c in codes):
-            raise self.fail("errors.warning_codes", "must be a list of integer error codes")
-        if not all(-32768 <= c <= 32767 for c in codes):
-            raise self.fail("errors.warning_codes", "SCPI error codes lie in -32768 to 32767")
+        codes = self.warning_codes()
         return Dialect(
             name=name,
             path=self.path,
@@ -142,6 +141,26 @@ class _Checker:
             **transfer,
             **conn,
         )
+
+    def header(self) -> str:
+        """Check ``schema``; return ``name``."""
+        schema = self.get(self.data, "schema", int)
+        if schema != SCHEMA:
+            raise self.fail("schema", f"this driver reads schema {SCHEMA}, the file has {schema}")
+        name = self.get(self.data, "name", str)
+        if not name.strip():
+            raise self.fail("name", "must not be empty")
+        return name
+
+    def warning_codes(self) -> list[int]:
+        errors = self.table("errors")
+        self.unknown(errors, "errors.", {"warning_codes"})
+        codes = self.get(errors, "errors.warning_codes", list, [])
+        if not all(isinstance(c, int) and not isinstance(c, bool) for c in codes):
+            raise self.fail("errors.warning_codes", "must be a list of integer error codes")
+        if not all(-32768 <= c <= 32767 for c in codes):
+            raise self.fail("errors.warning_codes", "SCPI error codes lie in -32768 to 32767")
+        return codes
 
     def frequency(self) -> tuple[float, float]:
         t = self.table("frequency", required=True)
@@ -265,20 +284,23 @@ class _Checker:
             raise self.fail(key, f"no step uses {{{need}}}, so the meter would never be told it")
         return tuple(steps)
 
-    def operations(self) -> dict[str, Operation]:
+    def operations(
+        self, known: dict[str, str] = OPERATIONS, required: tuple[str, ...] = REQUIRED
+    ) -> dict[str, Operation]:
+        """The ``[operations]`` table, each a name of ``known``, every one of ``required``."""
         t = self.table("operations", required=True)
         out: dict[str, Operation] = {}
         for name, spec in t.items():
             key = f"operations.{name}"
-            if name not in OPERATIONS:
-                raise self.fail(key, f"unknown operation (known: {', '.join(OPERATIONS)})")
+            if name not in known:
+                raise self.fail(key, unknown_operation(name, known))
             if not isinstance(spec, dict):
                 raise self.fail(key, "must be a table with at least 'command'")
             out[name] = self.operation(name, spec)
-        for name in REQUIRED:
+        for name in required:
             if name not in out:
                 raise self.fail(
-                    f"operations.{name}", f"missing; the driver needs it to {OPERATIONS[name]}"
+                    f"operations.{name}", f"missing; the driver needs it to {known[name]}"
                 )
         problems = dialect_problems({n: op.command for n, op in out.items()})
         if problems:

@@ -1,6 +1,7 @@
 """Reading a dialect file: find it by name or path, parse its TOML, hand it to the checker.
 
-:func:`load_dialect` is the way in; :mod:`drivers.dialect` says what a dialect is and
+:func:`load_dialect` is the way in for a meter, :func:`load_source_dialect` for a DC current
+source (``kind = "current-source"``); :mod:`drivers.dialect` says what a dialect is and
 :mod:`drivers.dialect_check` checks every key.
 """
 
@@ -8,22 +9,39 @@ from __future__ import annotations
 
 import tomllib
 from pathlib import Path
+from typing import Any
 
-from drivers.dialect import DIRECTORY, Dialect
-from drivers.dialect_check import check_dialect
+from drivers.dialect import DIRECTORY, Dialect, SourceDialect
+from drivers.dialect_bias import kind_of
+from drivers.dialect_check import check_dialect, check_source_dialect
 from drivers.errors import DialectError
 
 
-def list_dialects() -> list[str]:
-    """Names of the shipped dialects (the template excluded)."""
-    return sorted(p.stem for p in DIRECTORY.glob("*.toml") if p.stem != "template")
+def list_dialects(kind: str = "meter") -> list[str]:
+    """Names of the shipped dialects of ``kind`` (``"meter"`` or ``"current-source"``; the
+    template excluded)."""
+    return sorted(
+        p.stem
+        for p in DIRECTORY.glob("*.toml")
+        if p.stem != "template" and kind_of(_read(p)) == kind
+    )
 
 
 def load_dialect(name_or_path: str | Path) -> Dialect:
-    """Load a shipped dialect by name, or a dialect file by path, and validate every key."""
-    path = _resolve(name_or_path)
+    """Load a shipped meter dialect by name, or a dialect file by path, and validate every key."""
+    path = _resolve(name_or_path, "meter")
+    return check_dialect(path, _read(path))
+
+
+def load_source_dialect(name_or_path: str | Path) -> SourceDialect:
+    """Load a shipped current-source dialect by name, or one by path, and validate every key."""
+    path = _resolve(name_or_path, "current-source")
+    return check_source_dialect(path, _read(path))
+
+
+def _read(path: Path) -> dict[str, Any]:
     try:
-        data = tomllib.loads(path.read_text(encoding="utf-8"))
+        return tomllib.loads(path.read_text(encoding="utf-8"))
     except OSError as exc:
         raise DialectError(f"{path}: cannot read the dialect file: {exc.strerror}") from None
     except tomllib.TOMLDecodeError as exc:
@@ -35,10 +53,9 @@ def load_dialect(name_or_path: str | Path) -> Dialect:
             f"{path}: not valid TOML: an integer of thousands of digits; TOML integers fit "
             "in 64 bits"
         ) from None
-    return check_dialect(path, data)
 
 
-def _resolve(name_or_path: str | Path) -> Path:
+def _resolve(name_or_path: str | Path, kind: str) -> Path:
     text = str(name_or_path)
     candidate = Path(text)
     if candidate.suffix == ".toml" or "/" in text or "\\" in text:
@@ -47,8 +64,9 @@ def _resolve(name_or_path: str | Path) -> Path:
         return candidate
     shipped = DIRECTORY / f"{text}.toml"
     if not shipped.is_file():
+        what = "dialect" if kind == "meter" else "current-source dialect"
         raise DialectError(
-            f"no shipped dialect named {text!r}; shipped: {', '.join(list_dialects())} "
+            f"no shipped {what} named {text!r}; shipped: {', '.join(list_dialects(kind))} "
             "(or give the path to your own .toml file)"
         )
     return shipped

@@ -37,3 +37,7 @@ class OutOfRange(InstrumentError):
 
 class ProfileError(InstrumentError):
     """A simulator profile (DUT, fixture, faults) is malformed."""
+
+
+class BiasError(InstrumentError):
+    """DC bias could not be set, read back or brought down to zero as asked."""

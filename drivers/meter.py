@@ -18,6 +18,7 @@ from typing import Any, TypeVar
 import numpy as np
 
 from drivers import readings, scpi
+from drivers.bias import MeterBias
 from drivers.dialect import Dialect
 from drivers.dialect_file import load_dialect
 from drivers.error_queue import ErrorQueue
@@ -46,6 +47,7 @@ class ImpedanceMeter:
         self._io = Exchange(session, dialect)
         self._queue = ErrorQueue(session, dialect)
         session.on_reopen = self._restore
+        self._bias: MeterBias | None = None
 
     @classmethod
     def open(
@@ -91,8 +93,14 @@ class ImpedanceMeter:
         self.close()
 
     def close(self) -> None:
-        """Close the connection (safe to call twice)."""
-        self._session.close()
+        """Close the connection (safe to call twice); bias handed out by :meth:`bias` is first
+        ramped to zero and switched off (its failure is raised after closing)."""
+        bias, self._bias = self._bias, None
+        try:
+            if bias is not None and self._session.is_open:
+                bias.shutdown()
+        finally:
+            self._session.close()
 
     # -- what the meter is ---------------------------------------------------------------------
 
@@ -130,6 +138,13 @@ class ImpedanceMeter:
     def has(self, operation: str) -> bool:
         """True if the dialect defines ``operation`` (e.g. ``"dc_resistance"``)."""
         return self._dialect.has(operation)
+
+    def bias(self) -> MeterBias:
+        """The meter's own DC bias (:class:`~drivers.bias.MeterBias`; the same one every call);
+        :class:`DialectError` if its dialect declares no bias operations."""
+        if self._bias is None:
+            self._bias = MeterBias(self._session, self._dialect)
+        return self._bias
 
     def identify(self) -> Identity:
         """The meter's ``*IDN?`` fields, asked twice: replies that differ (one garbled or cut

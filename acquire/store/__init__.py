@@ -104,18 +104,28 @@ __all__ = [
 
 def __getattr__(name: str) -> Any:
     home = _HOMES.get(name)
+    value: Any
     if home == "records":
-        import acquire.store.records as module
+        from acquire.store import records
+
+        value = getattr(records, name)
     elif home == "core":
-        import acquire.store.core as module
+        from acquire.store import core
+
+        value = getattr(core, name)
     elif home == "catalog":
-        import acquire.store.catalog as module
+        from acquire.store import catalog
+
+        value = getattr(catalog, name)
     elif home == "schema":
-        import acquire.store.schema as module
+        from acquire.store import schema
+
+        value = getattr(schema, name)
     elif home == "sweeps":
-        import acquire.store.sweeps as module
+        from acquire.store import sweeps
+
+        value = getattr(sweeps, name)
     else:
         raise AttributeError(f"module 'acquire.store' has no attribute {name!r}")
-    value = getattr(module, name)
     globals()[name] = value
     return value

@@ -174,29 +174,33 @@ def _list(args: argparse.Namespace) -> int:
 
     from acquire.commands.options import open_existing_store
     from acquire.display import format_duration, text_console
+    from acquire.store.quick_read import list_reference_sets
 
     console = text_console()
-    with open_existing_store(args.store) as store:
-        infos = store.list_reference_sets()
-        if not infos:
-            console.print(f"no reference sets in {store.url}")
-            return 0
-        console.print(f"reference sets in {store.url}", soft_wrap=True)
-        table = Table()
-        for col in ("id", "name", "fixture", "standards", "captured (UTC)", "age"):
-            table.add_column(col, justify="right" if col in ("id", "age") else "left")
-        now = datetime.now(UTC)
-        for info in infos:
-            when = info.captured_at
-            table.add_row(
-                str(info.id),
-                info.name,
-                info.fixture,
-                "-".join(info.standards),
-                f"{when:%Y-%m-%d %H:%M}" if when else "—",
-                format_duration((now - when).total_seconds()) if when else "—",
-            )
-        console.print(table)
+    listed = list_reference_sets(args.store)  # read only, without SQLAlchemy, when it can be
+    if listed is None:
+        with open_existing_store(args.store) as store:
+            listed = store.url, store.list_reference_sets()
+    url, infos = listed
+    if not infos:
+        console.print(f"no reference sets in {url}")
+        return 0
+    console.print(f"reference sets in {url}", soft_wrap=True)
+    table = Table()
+    for col in ("id", "name", "fixture", "standards", "captured (UTC)", "age"):
+        table.add_column(col, justify="right" if col in ("id", "age") else "left")
+    now = datetime.now(UTC)
+    for info in infos:
+        when = info.captured_at
+        table.add_row(
+            str(info.id),
+            info.name,
+            info.fixture,
+            "-".join(info.standards),
+            f"{when:%Y-%m-%d %H:%M}" if when else "—",
+            format_duration((now - when).total_seconds()) if when else "—",
+        )
+    console.print(table)
     return 0
 
 

@@ -26,26 +26,61 @@ transactions, SQLite durability settings), :mod:`~acquire.store.schema` (the tab
 newest revision), :mod:`~acquire.store.migrate` (creating and upgrading),
 :mod:`~acquire.store.migrations` (the revisions), :mod:`~acquire.store.records` (dataclasses),
 :mod:`~acquire.store.catalog` (meters, fixtures, plans, lots), :mod:`~acquire.store.references`,
-:mod:`~acquire.store.sweeps` and :mod:`~acquire.store.production` (units, lot statistics).
+:mod:`~acquire.store.sweeps` and :mod:`~acquire.store.production` (units, lot statistics), and
+:mod:`~acquire.store.quick_read` (listing an SQLite store's reference sets with the standard
+library alone, for a command that only reads).
+
+The names below are loaded on first use, so that importing one submodule (``records``,
+``quick_read``) does not load SQLAlchemy, which takes longer to import than numpy.
 """
 
-from acquire.store.catalog import plan_hash
-from acquire.store.core import Store, open_store
-from acquire.store.records import (
-    PASS,
-    FixtureInfo,
-    LotInfo,
-    LotYield,
-    MeasurementRecord,
-    MeterInfo,
-    PlanInfo,
-    ReferenceSetInfo,
-    SweepInfo,
-    UnitRecord,
-    new_attempt_id,
-)
-from acquire.store.schema import SCHEMA_REVISION
-from acquire.store.sweeps import SweepWriter
+from __future__ import annotations
+
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from acquire.store.catalog import plan_hash
+    from acquire.store.core import Store, open_store
+    from acquire.store.records import (
+        PASS,
+        FixtureInfo,
+        LotInfo,
+        LotYield,
+        MeasurementRecord,
+        MeterInfo,
+        PlanInfo,
+        ReferenceSetInfo,
+        SweepInfo,
+        UnitRecord,
+        new_attempt_id,
+    )
+    from acquire.store.schema import SCHEMA_REVISION
+    from acquire.store.sweeps import SweepWriter
+
+#: Each public name and the submodule that defines it.
+_HOMES = {
+    "plan_hash": "catalog",
+    "Store": "core",
+    "open_store": "core",
+    "SCHEMA_REVISION": "schema",
+    "SweepWriter": "sweeps",
+    **dict.fromkeys(
+        (
+            "PASS",
+            "FixtureInfo",
+            "LotInfo",
+            "LotYield",
+            "MeasurementRecord",
+            "MeterInfo",
+            "PlanInfo",
+            "ReferenceSetInfo",
+            "SweepInfo",
+            "UnitRecord",
+            "new_attempt_id",
+        ),
+        "records",
+    ),
+}
 
 __all__ = [
     "PASS",
@@ -65,3 +100,32 @@ __all__ = [
     "open_store",
     "plan_hash",
 ]
+
+
+def __getattr__(name: str) -> Any:
+    home = _HOMES.get(name)
+    value: Any
+    if home == "records":
+        from acquire.store import records
+
+        value = getattr(records, name)
+    elif home == "core":
+        from acquire.store import core
+
+        value = getattr(core, name)
+    elif home == "catalog":
+        from acquire.store import catalog
+
+        value = getattr(catalog, name)
+    elif home == "schema":
+        from acquire.store import schema
+
+        value = getattr(schema, name)
+    elif home == "sweeps":
+        from acquire.store import sweeps
+
+        value = getattr(sweeps, name)
+    else:
+        raise AttributeError(f"module 'acquire.store' has no attribute {name!r}")
+    globals()[name] = value
+    return value

@@ -18,7 +18,13 @@ from datetime import datetime
 from typing import Any
 
 from acquire.errors import StoreError
-from acquire.store.schema import utc_now
+
+
+def _utc_now() -> datetime:
+    from acquire.store.schema import utc_now  # here, so reading records needs no SQLAlchemy
+
+    return utc_now()
+
 
 #: The verdict and outcome word that counts as passing in yields.
 PASS = "pass"
@@ -126,7 +132,7 @@ class UnitRecord:
     reference_set_id: int | None = None
     meter_id: int | None = None
     fixture_id: int | None = None
-    started_at: datetime | None = field(default_factory=utc_now)
+    started_at: datetime | None = field(default_factory=_utc_now)
     finished_at: datetime | None = None
     notes: str = ""
     attempt_id: str = field(default_factory=new_attempt_id)

@@ -1,0 +1,76 @@
+"""Which heavy libraries each command's start loads, checked in a fresh interpreter (not timed).
+
+`acquire --help` and the read-only listing of reference sets load none of numpy, SQLAlchemy,
+Alembic, scipy, pandas, pyvisa or matplotlib; importing a store record loads no SQLAlchemy; a
+sweep that opens a store already at the newest revision loads no Alembic and no scipy.
+"""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+
+from acquire.compensation import ReferenceSet
+from acquire.store import open_store
+
+ROOT = Path(__file__).resolve().parents[1]
+HEAVY = ("numpy", "sqlalchemy", "alembic", "scipy", "pandas", "pyvisa", "matplotlib")
+
+
+def _loaded_after(code: str, cwd: Path) -> set[str]:
+    probe = f"import sys\n{code}\nprint(' '.join(m for m in {HEAVY!r} if m in sys.modules))\n"
+    done = subprocess.run(
+        [sys.executable, "-c", probe], capture_output=True, text=True, cwd=cwd, timeout=120
+    )
+    assert done.returncode == 0, done.stderr
+    lines = done.stdout.strip().splitlines()
+    return set(lines[-1].split()) if lines else set()
+
+
+def test_help_loads_nothing_heavy(tmp_path):
+    code = (
+        "from acquire.cli import build_parser\nassert 'reference' in build_parser().format_help()"
+    )
+    assert _loaded_after(code, tmp_path) == set()
+
+
+def test_reference_list_on_a_current_sqlite_store_loads_nothing_heavy(tmp_path):
+    url = f"sqlite:///{tmp_path / 'r.db'}"
+    with open_store(url) as store:
+        f = np.array([1e3, 1e4])
+        refs = ReferenceSet(frequency=f, open=1e-3 - 1e6j / f, short=0.02 + 1e-6j * f)
+        store.save_reference_set(refs, name="jig set")
+    code = (
+        "import contextlib, io\nfrom acquire.cli import main\nout = io.StringIO()\n"
+        f"with contextlib.redirect_stdout(out):\n    assert main(['reference', 'list', "
+        f"'--store', {url!r}]) == 0\nassert 'jig set' in out.getvalue()"
+    )
+    assert _loaded_after(code, tmp_path) == set()
+
+
+def test_store_records_load_no_sqlalchemy(tmp_path):
+    code = "from acquire.store.records import ReferenceSetInfo as I\nI(1, 'a', '', '', None, (), 2)"
+    assert _loaded_after(code, tmp_path) == set()
+
+
+def test_opening_a_current_store_for_a_sweep_loads_no_alembic_nor_scipy(tmp_path):
+    url = f"sqlite:///{tmp_path / 's.db'}"
+    open_store(url).close()
+    code = (
+        "from acquire.store import open_store\nimport acquire.sweep, acquire.sweep_setup\n"
+        "import acquire.commands.sweep, acquire.dashboard, acquire.csvout\n"
+        f"open_store({url!r}).close()"
+    )
+    loaded = _loaded_after(code, tmp_path)
+    assert "alembic" not in loaded and "scipy" not in loaded
+    assert "sqlalchemy" in loaded  # the store's writes still go through it
+
+
+def test_every_name_the_store_package_offers_is_there():
+    import acquire.store
+
+    for name in acquire.store.__all__:
+        assert getattr(acquire.store, name) is not None, name

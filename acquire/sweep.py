@@ -19,6 +19,8 @@ reason, and the outcome says so. A store that never came back is reported point 
 
 from __future__ import annotations
 
+import queue
+import threading
 import time
 from collections.abc import Callable, Iterator
 from dataclasses import dataclass
@@ -181,6 +183,65 @@ class _Sink:
             self.on_progress()
 
 
+class _Handoff:
+    """Runs a :class:`_Sink` on a thread of its own, chunk after chunk in the order received.
+
+    The driver calls :meth:`hold` with each chunk as it arrives; :meth:`release` (called just
+    before the next block is asked of the meter) hands the held chunks to the thread, so
+    correcting them, evaluating their uncertainty, filling the state and calling
+    ``on_progress`` happen while the meter measures the next block instead of between blocks.
+    :meth:`finish` waits until every chunk is in the state. A failure of the sink (or of
+    ``on_progress``) is raised once on the sweep's thread, by the next :meth:`release` or by
+    :meth:`finish`; the chunks after it are not added.
+    """
+
+    def __init__(self, sink: _Sink) -> None:
+        self._sink = sink
+        self._held: list[tuple[Any, ...]] = []
+        self._queue: queue.SimpleQueue[tuple[Any, ...] | None] = queue.SimpleQueue()
+        self._failed = False
+        self._failure: BaseException | None = None
+        self._thread = threading.Thread(target=self._run, name="sweep-chunks", daemon=True)
+        self._thread.start()
+
+    def hold(self, f: np.ndarray, z: np.ndarray, u_m: Any = None) -> None:
+        self._held.append((f, z, u_m))
+
+    def release(self) -> None:
+        for chunk in self._held:
+            self._queue.put(chunk)
+        self._held.clear()
+        self._raise()
+
+    def finish(self) -> None:
+        """Every chunk received is in the state when this returns (Ctrl-C does not cut it short:
+        what is left is a few chunks of arithmetic)."""
+        for chunk in self._held:
+            self._queue.put(chunk)
+        self._held.clear()
+        if self._thread.is_alive():
+            self._queue.put(None)
+        while self._thread.is_alive():
+            try:
+                self._thread.join()
+            except KeyboardInterrupt:
+                continue
+        self._raise()
+
+    def _raise(self) -> None:
+        failure, self._failure = self._failure, None
+        if failure is not None:
+            raise failure
+
+    def _run(self) -> None:
+        while (chunk := self._queue.get()) is not None:
+            if not self._failed:
+                try:
+                    self._sink(*chunk)
+                except BaseException as exc:  # noqa: BLE001 - raised on the sweep's thread
+                    self._failure, self._failed = exc, True
+
+
 def run_sweep(
     meter: Meter,
     plan: FrequencyPlan,
@@ -201,7 +262,8 @@ def run_sweep(
     its grid must cover the plan. ``writer`` is the store's sweep writer (or None to keep the
     points in memory only); without a reference set it is given no corrected values.
     ``state`` receives every point (one is made if not given); ``on_progress`` is called after
-    each chunk. ``block`` splits the plan into several ``meter.sweep`` calls of that many
+    each chunk, on the thread that corrects the chunks while the meter measures on.
+    ``block`` splits the plan into several ``meter.sweep`` calls of that many
     points, so a meter that answers a whole list at once still streams in steps; ``"auto"``
     (the default) sizes the blocks from the time per point seen so far to take about
     ``block_seconds`` each, and None sends the whole plan in one call.
@@ -237,18 +299,24 @@ def run_sweep(
     state.start()
     if saver is not None:
         saver.start()
+    chunks = _Handoff(sink)
     try:
-        for frequencies in _blocks(plan, block, block_seconds):
-            if repeats == 1:
-                meter.sweep(np.array(frequencies), on_points=sink)
-                continue
-            readings = [meter.sweep(np.array(frequencies)) for _ in range(repeats)]
-            mean, u_m = mean_of_repeats(np.asarray(readings, dtype=complex))
-            sink(np.asarray(frequencies), mean, u_m)
-    except KeyboardInterrupt as exc:
-        reason, error = stop_reason(exc), exc
-    except InstrumentError as exc:
-        reason, error = f"meter fault: {exc}", exc
+        try:
+            for frequencies in _blocks(plan, block, block_seconds):
+                chunks.release()
+                if repeats == 1:
+                    meter.sweep(np.array(frequencies), on_points=chunks.hold)
+                    continue
+                readings = [meter.sweep(np.array(frequencies)) for _ in range(repeats)]
+                mean, u_m = mean_of_repeats(np.asarray(readings, dtype=complex))
+                chunks.hold(np.asarray(frequencies), mean, u_m)
+            chunks.finish()
+        except KeyboardInterrupt as exc:
+            reason, error = stop_reason(exc), exc
+        except InstrumentError as exc:
+            reason, error = f"meter fault: {exc}", exc
+        finally:
+            chunks.finish()
     except BaseException as exc:
         _close(saver, state, "interrupted", f"stopped by an error: {exc}")
         raise

@@ -130,7 +130,7 @@ class PointSaver:
                     time.sleep(min(pause, left))
                 closing = self._closing.is_set()
                 try:
-                    self._write_waiting()
+                    self.write_waiting()
                     if closing:
                         self._writer.finish(*self._end)
                         self._finished = True
@@ -145,8 +145,10 @@ class PointSaver:
         except BaseException as exc:  # noqa: BLE001 - handed to the sweep's thread by close()
             self._failure = exc
 
-    def _write_waiting(self) -> None:
-        """Write every point received and not yet stored, in one call (one transaction)."""
+    def write_waiting(self) -> None:
+        """Write every point received and not yet stored, in one call (one transaction).
+
+        The saver's thread calls it; it must not run on two threads at once."""
         state = self._state
         n = state.count
         if n <= self._saved:

@@ -153,7 +153,11 @@ def test_dropped_connection_ends_the_sweep_with_the_drivers_message(store):
                 armed.append(sim.inject("drop", rate=1.0))  # every message from now on drops
 
         writer = _begin(store, dut="demo-coil")
-        outcome = run_sweep(meter, plan, writer=writer, state=state, on_progress=cable_pulled)
+        # Short blocks: chunks are corrected while the next block is measured, so the cable is
+        # pulled during a later block, not the last one.
+        outcome = run_sweep(
+            meter, plan, writer=writer, state=state, on_progress=cable_pulled, block_seconds=0.05
+        )
     assert outcome.status == "interrupted"
     assert isinstance(outcome.error, InstrumentError)
     assert outcome.reason == f"meter fault: {outcome.error}"

@@ -24,7 +24,8 @@ import os
 import socket
 from collections.abc import Sequence
 from datetime import datetime
-from functools import partial
+from functools import cache, partial
+from itertools import repeat
 from types import TracebackType
 from typing import TYPE_CHECKING, Any
 
@@ -155,13 +156,9 @@ class SweepWriter:
             float_column(u[:, 1]),
             marks,
         )
-        start = self._points
-        names = (*POINT_COLUMNS, "flags")
-        rows = [
-            {"sweep_id": self._id, "idx": start + i, **dict(zip(names, v, strict=True))}
-            for i, v in enumerate(zip(*columns, strict=True))
-        ]
-        sweeps, points = TABLES["sweeps"], TABLES["sweep_points"]
+        start, count = self._points, f.size
+        rows = list(zip(repeat(self._id), range(start, start + count), *columns, strict=False))
+        sweeps = TABLES["sweeps"]
         held = select(sweeps.c.points).where(sweeps.c.id == self._id, sweeps.c.status == "running")
 
         def work(conn: Connection) -> int:
@@ -171,7 +168,7 @@ class SweepWriter:
                     f"sweep {self._id} is no longer running in the store (it was finished or "
                     "closed as abandoned): begin a new sweep"
                 )
-            if not start <= have <= start + len(rows):
+            if not start <= have <= start + count:
                 raise StoreError(
                     f"sweep {self._id} holds {have} points in the store, but this writer "
                     f"counts {start}: another program writes to it; begin a new sweep"
@@ -184,7 +181,7 @@ class SweepWriter:
             )
             conn.execute(bump)
             if new:
-                conn.execute(points.insert(), new)
+                conn.exec_driver_sql(_insert_text(conn.dialect.paramstyle), new)
             return have + len(new)
 
         self._points = self._db.write("storing sweep points", work, idempotent=True)
@@ -230,6 +227,21 @@ class SweepWriter:
             name = type(exc).__name__
             reason = f"{name}: {exc}" if str(exc) else name
             self.finish("interrupted", note=f"stopped by {reason}")
+
+
+#: The columns of a sweep point row, in the order :meth:`SweepWriter.add_points` sends them.
+ROW_COLUMNS = ("sweep_id", "idx", *POINT_COLUMNS, "flags")
+
+
+@cache
+def _insert_text(paramstyle: str) -> str:
+    """The INSERT of one point row in the driver's own parameter style, given all rows at once
+    to the driver's ``executemany`` (no statement compiled per batch, no dict per row)."""
+    mark = {"qmark": "?", "format": "%s", "pyformat": "%s", "numeric": ":{}"}.get(paramstyle)
+    if mark is None:
+        raise StoreError(f"the database driver's parameter style {paramstyle!r} is not supported")
+    marks = ", ".join(mark.format(i + 1) for i in range(len(ROW_COLUMNS)))
+    return f"INSERT INTO sweep_points ({', '.join(ROW_COLUMNS)}) VALUES ({marks})"
 
 
 def _uncertainty(uncertainty: np.ndarray | None, n: int) -> np.ndarray:

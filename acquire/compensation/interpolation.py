@@ -129,11 +129,16 @@ def _refuse_outside(grid: np.ndarray, f: np.ndarray) -> None:
 
 def _flat(grid: np.ndarray, v: np.ndarray) -> np.ndarray:
     """``v`` in the form that is carried: real part as it is, imaginary part over ``f``."""
-    return v.real + 1j * (v.imag / grid)
+    out = np.empty(v.shape, dtype=complex)
+    out.real = v.real
+    np.divide(v.imag, grid, out=out.imag)
+    return out
 
 
 def _unflat(mid: np.ndarray, f: np.ndarray) -> np.ndarray:
-    return mid.real + 1j * (mid.imag * f)
+    """The carried form back to impedance (or admittance): imaginary part times ``f``."""
+    np.multiply(mid.imag, f, out=mid.imag)
+    return mid
 
 
 def _keep_exact(z_at: np.ndarray, z: np.ndarray, at: Placement) -> np.ndarray:

@@ -252,6 +252,12 @@ class ReferenceSet:
     def _forms(self) -> GridForms:
         return GridForms(self._grid, *self._impedances)
 
+    @property
+    def grid_forms(self) -> GridForms:
+        """The set's grid and standards with their carried forms, kept for every later batch of
+        frequencies (refuses a grid that is not finite, positive and strictly increasing)."""
+        return self._forms
+
     @cached_property
     def _grid_correction(self) -> formulas.Correction:
         self._grid  # noqa: B018 - validates the grid once

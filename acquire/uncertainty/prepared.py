@@ -56,7 +56,7 @@ class ReadingNoise:
         """The frequency factor ``1 + f/frequency_corner``, shared by all readings at ``f``."""
         return 1.0 + f / self._accuracy.frequency_corner
 
-    def variance(self, k_f: np.ndarray, z: np.ndarray, u_a, repeats: int = 1) -> np.ndarray:
+    def variance(self, k_f, z: np.ndarray, u_a, repeats: int = 1) -> np.ndarray:
         """Per point, the variance (ohm²) of R and of X each: Type A ``u_a`` (one per point) or
         the stated repeatability of the mean of ``repeats`` readings, plus Type B."""
         acc, r = self._accuracy, self._ratio

@@ -27,6 +27,7 @@ from typing import Any
 
 import numpy as np
 
+from acquire.compensation.interpolation import GridForms
 from acquire.uncertainty import (
     COVERAGE_FACTOR,
     beyond_accuracy,
@@ -34,6 +35,7 @@ from acquire.uncertainty import (
     flags_from,
     reading_covariance,
 )
+from acquire.uncertainty.prepared import PreparedCorrection
 
 #: Quantities judged for the display besides the shown ones (the latest-point panel's |Z| and
 #: theta).
@@ -126,8 +128,7 @@ class PointUncertainty:
         corrected = None
         with np.errstate(all="ignore"):
             if references is not None:
-                cp = correct_with_uncertainty(f, raw, u_m, references, self.accuracy, **settings)
-                corrected, cov = cp.z, cp.cov
+                corrected, cov = self._correct(f, raw, u_m, references, settings)
                 if self.accuracy is None and not _all_type_a(references, u_m):
                     cov = np.full(cov.shape, np.nan)
             else:
@@ -140,6 +141,18 @@ class PointUncertainty:
         flags[np.isinf(raw.real) | np.isinf(raw.imag)] = OVERRANGE
         flags[np.isnan(raw.real) | np.isnan(raw.imag)] = INVALID
         return PointValues(corrected, cov, flags, beyond)
+
+    def _correct(self, f, raw, u_m, references, settings) -> tuple[np.ndarray, np.ndarray]:
+        """Corrected readings and their covariance; a reference set is prepared once (its forms,
+        the accuracy's constants) and kept for the sweep's later chunks."""
+        if not isinstance(getattr(references, "grid_forms", None), GridForms):
+            cp = correct_with_uncertainty(f, raw, u_m, references, self.accuracy, **settings)
+            return cp.z, cp.cov
+        kept = self.__dict__.get("_prepared")
+        if kept is None or kept.refs is not references:
+            kept = PreparedCorrection(references, self.accuracy, **settings)
+            object.__setattr__(self, "_prepared", kept)
+        return kept.correct(f, raw, u_m)
 
     def _raw_cov(self, f, raw, u_m, settings) -> np.ndarray:
         if self.accuracy is None and u_m is None:

@@ -34,6 +34,7 @@ a relative ``1e-12`` of an end of the grid counts as that end (rounding in a fre
 from __future__ import annotations
 
 from dataclasses import dataclass
+from functools import cached_property
 
 import numpy as np
 
@@ -50,60 +51,101 @@ class Placement:
     """Where frequencies ``f`` fall on a grid.
 
     ``index[i]`` is the grid point at or just below ``f[i]``; ``weight[i]`` the fraction of the
-    way, in log frequency, to the next point; ``exact[i]`` whether ``f[i]`` is a grid point (then
-    ``weight`` is 0). ``on_grid`` is true when all of them are.
+    way, in log frequency, to the next point (``upper[i]``, the last point at the top); ``exact[i]``
+    whether ``f[i]`` is a grid point (then ``weight`` is 0). ``on_grid`` is true when all of them
+    are (``weight`` and ``upper`` may then be None).
     """
 
     f: np.ndarray
     index: np.ndarray
-    weight: np.ndarray
+    weight: np.ndarray | None
     exact: np.ndarray
     on_grid: bool
+    upper: np.ndarray | None = None
 
     def lerp(self, values: np.ndarray) -> np.ndarray:
         """``values`` (one per grid point) carried linearly, by ``weight``, to the placed
         frequencies: the value at ``index`` plus its share of the step to the next point."""
-        upper = np.minimum(self.index + 1, values.shape[0] - 1)
         a = values[self.index]
+        if self.weight is None:
+            return a
+        upper = self.upper
+        if upper is None:
+            upper = np.minimum(self.index + 1, values.shape[0] - 1)
         return a + self.weight * (values[upper] - a)
 
 
-def place(grid: np.ndarray, f: np.ndarray) -> Placement:
-    """Locate 1-D frequencies ``f`` on the strictly increasing ``grid``; refuse any outside it."""
-    if f.size and (not np.all(np.isfinite(f)) or np.any(f <= 0)):
-        raise CompensationError("frequencies to correct must be finite and above 0 Hz")
+def place(grid: np.ndarray, f: np.ndarray, log_grid: np.ndarray | None = None) -> Placement:
+    """Locate 1-D frequencies ``f`` on the strictly increasing ``grid``; refuse any outside it.
+
+    ``log_grid`` is ``np.log(grid)`` when the caller keeps it (it is computed otherwise).
+    """
     lo, hi = grid[0], grid[-1]
-    below = f < lo * (1 - END_TOLERANCE)
-    above = f > hi * (1 + END_TOLERANCE)
-    if np.any(below) or np.any(above):
-        outside = f[below | above]
-        what = (
-            f"{hz(outside[0])} lies"
-            if outside.size == 1
-            else f"{outside.size} frequencies ({hz(outside.min())} to {hz(outside.max())}) lie"
-        )
-        raise CompensationError(
-            f"{what} outside the reference grid ({hz(lo)} to {hz(hi)}); references are never "
-            "extrapolated: capture them over the whole range of the sweep"
-        )
-    f = np.clip(f, lo, hi)
+    low = high = lo
+    if f.size:
+        low, high = f.min(), f.max()
+        if not (low > 0 and high < np.inf):  # false for NaN too
+            raise CompensationError("frequencies to correct must be finite and above 0 Hz")
+        if low < lo * (1 - END_TOLERANCE) or high > hi * (1 + END_TOLERANCE):
+            _refuse_outside(grid, f)
+        if low < lo or high > hi:
+            f = np.clip(f, lo, hi)
+            low, high = max(low, lo), min(high, hi)
     if grid.size == 1:
         index = np.zeros(f.shape, dtype=np.intp)
-        return Placement(f, index, np.zeros(f.shape), np.ones(f.shape, bool), True)
+        return Placement(f, index, None, np.ones(f.shape, bool), True)
     index = np.searchsorted(grid, f, side="right") - 1
     np.clip(index, 0, grid.size - 2, out=index)
     exact = grid[index] == f
-    top = f == hi
-    index[top] = grid.size - 1
-    exact |= top
-    if np.all(exact):
-        return Placement(f, index, np.zeros(f.shape), exact, True)
-    log_grid = np.log(grid)
+    if high >= hi:
+        top = f == hi
+        index[top] = grid.size - 1
+        exact |= top
+    if exact.all():
+        return Placement(f, index, None, exact, True)
+    if log_grid is None:
+        log_grid = np.log(grid)
     upper = np.minimum(index + 1, grid.size - 1)
-    span = log_grid[upper] - log_grid[index]
+    base = log_grid[index]
     with np.errstate(divide="ignore", invalid="ignore"):
-        weight = np.where(exact, 0.0, (np.log(f) - log_grid[index]) / span)
-    return Placement(f, index, weight, exact, False)
+        weight = (np.log(f) - base) / (log_grid[upper] - base)
+    weight[exact] = 0.0
+    return Placement(f, index, weight, exact, False, upper)
+
+
+def _refuse_outside(grid: np.ndarray, f: np.ndarray) -> None:
+    lo, hi = grid[0], grid[-1]
+    outside = f[(f < lo * (1 - END_TOLERANCE)) | (f > hi * (1 + END_TOLERANCE))]
+    what = (
+        f"{hz(outside[0])} lies"
+        if outside.size == 1
+        else f"{outside.size} frequencies ({hz(outside.min())} to {hz(outside.max())}) lie"
+    )
+    raise CompensationError(
+        f"{what} outside the reference grid ({hz(lo)} to {hz(hi)}); references are never "
+        "extrapolated: capture them over the whole range of the sweep"
+    )
+
+
+def _flat(grid: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """``v`` in the form that is carried: real part as it is, imaginary part over ``f``."""
+    out = np.empty(v.shape, dtype=complex)
+    out.real = v.real
+    np.divide(v.imag, grid, out=out.imag)
+    return out
+
+
+def _unflat(mid: np.ndarray, f: np.ndarray) -> np.ndarray:
+    """The carried form back to impedance (or admittance): imaginary part times ``f``."""
+    np.multiply(mid.imag, f, out=mid.imag)
+    return mid
+
+
+def _keep_exact(z_at: np.ndarray, z: np.ndarray, at: Placement) -> np.ndarray:
+    """``z_at`` with the stored reading, bit for bit, at the placed grid frequencies."""
+    if at.exact.any():
+        z_at[at.exact] = z[at.index[at.exact]]
+    return z_at
 
 
 def interpolate(
@@ -124,20 +166,82 @@ def interpolate(
         return z[at.index]
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         v = z if series is None else z - series[0]
-        if admittance:
-            v = 1.0 / v
-        flat = v.real + 1j * (v.imag / grid)
-        mid = at.lerp(flat)
-        z_at = mid.real + 1j * (mid.imag * at.f)
-        if admittance:
-            z_at = 1.0 / z_at
-        if series is not None:
-            z_at = z_at + series[1]
-    return np.where(at.exact, z[at.index], z_at)
+        flat = _flat(grid, 1.0 / v if admittance else v)
+        return _keep_exact(
+            _carried(flat, at, admittance, None if series is None else series[1]), z, at
+        )
+
+
+def _carried(flat, at: Placement, admittance: bool, series_at) -> np.ndarray:
+    z_at = _unflat(at.lerp(flat), at.f)
+    if admittance:
+        z_at = 1.0 / z_at
+    if series_at is not None:
+        z_at = z_at + series_at
+    return z_at
 
 
 #: Open, short, load and the load's true value; each None when the set does not have it.
 Standards = tuple[np.ndarray | None, np.ndarray | None, np.ndarray | None, np.ndarray | None]
+
+
+@dataclass(frozen=True, eq=False)
+class GridForms:
+    """One reference set's standards on its grid and the smooth forms they are carried in.
+
+    ``grid`` is finite, positive and strictly increasing; ``zo``, ``zs``, ``zl``, ``zt`` the open,
+    short, load and load's true value on it (each None when not taken). The log of the grid and
+    each standard's form (:func:`standards_at`) are computed once, on first use, and reused for
+    every later placement: a set is frozen, so they never change.
+    """
+
+    grid: np.ndarray
+    zo: np.ndarray | None
+    zs: np.ndarray | None
+    zl: np.ndarray | None
+    zt: np.ndarray | None
+
+    @cached_property
+    def log_grid(self) -> np.ndarray:
+        return np.log(self.grid)
+
+    @cached_property
+    def _flats(self) -> Standards:
+        grid, zo, zs, zl, zt = self.grid, self.zo, self.zs, self.zl, self.zt
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            o = None if zo is None else _flat(grid, 1.0 / (zo if zs is None else zo - zs))
+            s = None if zs is None else _flat(grid, zs)
+            t = None if zt is None else _flat(grid, zt)
+            if zl is None or (zo is None and zs is None):
+                lo = None if zl is None else _flat(grid, zl)
+            else:
+                lo = _flat(grid, formulas.correction(zo, zs, None, None).apply(zl))
+        return o, s, lo, t
+
+    def place(self, f: np.ndarray) -> Placement:
+        """:func:`place` on this grid, with its log kept."""
+        return place(self.grid, f, self.log_grid if self.grid.size > 1 else None)
+
+    def standards(self, at: Placement) -> Standards:
+        """:func:`standards_at` for frequencies placed on this grid."""
+        zo, zs, zl, zt = self.zo, self.zs, self.zl, self.zt
+        if at.on_grid:
+            i = at.index
+            return tuple(None if z is None else z[i] for z in (zo, zs, zl, zt))  # type: ignore[return-value]
+        o, s, lo, t = self._flats
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            zs_at = None if zs is None else _keep_exact(_carried(s, at, False, None), zs, at)
+            zo_at = None if zo is None else _keep_exact(_carried(o, at, True, zs_at), zo, at)
+            zt_at = None if zt is None else _keep_exact(_carried(t, at, False, None), zt, at)
+            if zl is None:
+                zl_at = None
+            elif zo is None and zs is None:
+                zl_at = _keep_exact(_carried(lo, at, False, None), zl, at)
+            else:
+                bare_at = _carried(lo, at, False, None)
+                zl_at = formulas.correction(zo_at, zs_at, None, None).reading(bare_at)
+                zl_at = _keep_exact(zl_at, zl, at)
+        return zo_at, zs_at, zl_at, zt_at
 
 
 def standards_at(grid: np.ndarray, at: Placement, zo, zs, zl, zt) -> Standards:
@@ -147,23 +251,10 @@ def standards_at(grid: np.ndarray, at: Placement, zo, zs, zl, zt) -> Standards:
     off: the short as it is (impedance); the open in admittance, less the short; the load after
     open-short correction (what is left is the load standard itself, seen through whatever the
     L-section model misses), in impedance, then put back through the interpolated open and
-    short. The load's true value is interpolated in impedance.
+    short. The load's true value is interpolated in impedance. A set that places many batches
+    of frequencies keeps a :class:`GridForms` instead, which does the same with its forms kept.
     """
-    zs_at: np.ndarray | None = None
-    series: tuple[np.ndarray, np.ndarray] | None = None
-    if zs is not None:
-        zs_at = interpolate(grid, zs, at, admittance=False)
-        series = (zs, zs_at)
-    zo_at = None if zo is None else interpolate(grid, zo, at, admittance=True, series=series)
-    zt_at = None if zt is None else interpolate(grid, zt, at, admittance=False)
-    if zl is None or (zo is None and zs is None) or at.on_grid:
-        zl_at = None if zl is None else interpolate(grid, zl, at, admittance=False)
-    else:
-        seen = formulas.correction(zo, zs, None, None)
-        bare_at = interpolate(grid, seen.apply(zl), at, admittance=False)
-        zl_at = formulas.correction(zo_at, zs_at, None, None).reading(bare_at)
-        zl_at = np.where(at.exact, zl[at.index], zl_at)
-    return zo_at, zs_at, zl_at, zt_at
+    return GridForms(grid, zo, zs, zl, zt).standards(at)
 
 
 def uncertainty_at(grid: np.ndarray, u: np.ndarray | None, at: Placement) -> np.ndarray | None:

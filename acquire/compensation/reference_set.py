@@ -21,7 +21,7 @@ import numpy as np
 
 from acquire.compensation import checks, formulas, refs_file
 from acquire.compensation.findings import Finding
-from acquire.compensation.interpolation import place, standards_at, uncertainty_at
+from acquire.compensation.interpolation import GridForms, uncertainty_at
 from acquire.compensation.protocol import (
     GRID_SPACINGS,
     IMPEDANCE_FIELDS,
@@ -177,8 +177,9 @@ class ReferenceSet:
         :func:`~acquire.compensation.interpolation.uncertainty_at`.
         """
         f = _array(f, float, "frequency")
-        at = place(self._grid, np.atleast_1d(f))
-        zo, zs, zl, zt = standards_at(self._grid, at, *self._impedances)
+        forms = self._forms
+        at = forms.place(np.atleast_1d(f))
+        zo, zs, zl, zt = forms.standards(at)
         return dataclasses.replace(
             self,
             frequency=at.f,
@@ -248,6 +249,16 @@ class ReferenceSet:
         return grid
 
     @cached_property
+    def _forms(self) -> GridForms:
+        return GridForms(self._grid, *self._impedances)
+
+    @property
+    def grid_forms(self) -> GridForms:
+        """The set's grid and standards with their carried forms, kept for every later batch of
+        frequencies (refuses a grid that is not finite, positive and strictly increasing)."""
+        return self._forms
+
+    @cached_property
     def _grid_correction(self) -> formulas.Correction:
         self._grid  # noqa: B018 - validates the grid once
         return self._build(self.open, self.short, self.load, self.load_true)
@@ -267,10 +278,11 @@ class ReferenceSet:
         grid = self._grid
         if f is grid or (f.shape == grid.shape and np.array_equal(f, grid)):
             return self._grid_correction
-        at = place(grid, f)
+        forms = self._forms
+        at = forms.place(f)
         if at.on_grid:
             return self._grid_correction.take(at.index)
-        return self._build(*standards_at(grid, at, *self._impedances))
+        return self._build(*forms.standards(at))
 
     def _points(self, f, z) -> tuple[np.ndarray, np.ndarray, tuple[int, ...]]:
         f = np.asarray(f, dtype=float)

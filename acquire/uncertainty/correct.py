@@ -27,8 +27,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from acquire.compensation.interpolation import GridForms
 from acquire.errors import InputError
 from acquire.uncertainty.accuracy import reading_uncertainty, repeatability
+from acquire.uncertainty.prepared import PreparedCorrection
 from acquire.uncertainty.propagation import as_covariance, expanded, propagate
 
 STANDARD_NAMES = ("open", "short", "load")
@@ -104,12 +106,19 @@ def correct_with_uncertainty(
     dialect's :class:`drivers.dialect.MeterAccuracy` (None: count only Type A). ``level``,
     ``speed`` and ``averaging`` are the meter's settings for the readings (the same are assumed
     for the standards). ``load_true_u`` is the standard uncertainty of the load's true value.
-    The standards at ``f`` come from ``refs.at(f)``.
+    The standards at ``f`` come from ``refs.at(f)``; a
+    :class:`~acquire.compensation.ReferenceSet` goes through
+    :class:`~acquire.uncertainty.prepared.PreparedCorrection` (the same numbers, with the set's
+    kept forms), which a caller correcting many batches with one set keeps.
     """
     f = np.atleast_1d(np.asarray(f, dtype=float))
     zm = np.atleast_1d(np.asarray(zm, dtype=complex))
     if f.shape != zm.shape or f.ndim != 1:
         raise InputError(f"give one frequency per reading: {f.shape} and {zm.shape}")
+    if isinstance(getattr(refs, "grid_forms", None), GridForms):
+        prepared = PreparedCorrection(refs, accuracy, level, speed, averaging, load_true_u)
+        zx, cov = prepared.correct(f, zm, u_m)
+        return CorrectedPoints(frequency=f, z=zx, cov=cov, expanded=expanded(cov))
     at = refs.at(f)
     settings = {"level": level, "speed": speed, "averaging": averaging}
     repeats = max(1, int(getattr(refs, "repeats", 1) or 1))

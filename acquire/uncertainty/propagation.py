@@ -161,16 +161,59 @@ def propagate(
     zx = corr.apply(zm)
     grads = sensitivities(zm, **given)
     us = {"zm": u_m, "zo": u_o, "zs": u_s, "zl": u_l, "zt": u_t}
-    cov = np.zeros(shape + (2, 2))
+    terms = []
+    for name, g in grads.items():
+        v = as_covariance(us[name], shape)
+        if np.any(v):
+            terms.append((g, (v[..., 0, 0], v[..., 0, 1], v[..., 1, 0], v[..., 1, 1])))
+    return zx, assemble(zx, terms)
+
+
+def sandwich(g: np.ndarray, v) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The four components of ``J·V·Jᵀ`` for the real Jacobian ``J`` of complex derivative ``g``.
+
+    ``v`` is the input's covariance as its components ``(V00, V01, V10, V11)``, or one variance
+    ``σ²`` per point for an input whose parts are independent with equal variance
+    (``V = σ²·I``). With ``g = p + jq`` and ``J = [[p, −q], [q, p]]``, multiplied out::
+
+        C00 = p²·V00 − p·q·(V01 + V10) + q²·V11
+        C01 = p·q·(V00 − V11) + p²·V01 − q²·V10
+        C10 = p·q·(V00 − V11) + p²·V10 − q²·V01
+        C11 = q²·V00 + p·q·(V01 + V10) + p²·V11
+
+    and for ``V = σ²·I``, since ``J·Jᵀ = |g|²·I``: ``C00 = C11 = |g|²·σ²``, ``C01 = C10 = 0``.
+    """
+    p, q = g.real, g.imag
     with np.errstate(invalid="ignore", over="ignore"):
-        for name, g in grads.items():
-            v = as_covariance(us[name], shape)
-            if not np.any(v):
-                continue
-            j = real_jacobian(g)
-            cov = cov + j @ v @ np.swapaxes(j, -1, -2)
-    cov = np.where(np.isfinite(zx)[..., None, None], cov, np.nan)
-    return zx, cov
+        if not isinstance(v, tuple):
+            d = (p * p + q * q) * v
+            return d, 0.0, 0.0, d  # type: ignore[return-value]
+        a, b, c, e = v
+        pp, qq, pq = p * p, q * q, p * q
+        cross = pq * (b + c)
+        spread = pq * (a - e)
+        return (
+            pp * a - cross + qq * e,
+            spread + pp * b - qq * c,
+            spread + pp * c - qq * b,
+            (qq * a + cross + pp * e),
+        )
+
+
+def assemble(zx: np.ndarray, terms) -> np.ndarray:
+    """``Σ J·V·Jᵀ`` over ``terms`` (pairs of a complex derivative and a covariance as
+    :func:`sandwich` takes it) as a ``zx.shape + (2, 2)`` array; NaN where ``zx`` is not finite."""
+    out = np.zeros(zx.shape + (2, 2))
+    with np.errstate(invalid="ignore", over="ignore"):
+        for g, v in terms:
+            c00, c01, c10, c11 = sandwich(g, v)
+            out[..., 0, 0] += c00
+            out[..., 1, 1] += c11
+            if isinstance(v, tuple):
+                out[..., 0, 1] += c01
+                out[..., 1, 0] += c10
+    out[~np.isfinite(zx)] = np.nan
+    return out
 
 
 def expanded(cov, k: float = COVERAGE_FACTOR) -> np.ndarray:

@@ -1,0 +1,167 @@
+"""A reference set and a meter's stated accuracy made ready for many batches of readings.
+
+:class:`PreparedCorrection` does what :func:`acquire.uncertainty.correct_with_uncertainty`
+does for a :class:`acquire.compensation.ReferenceSet`, with everything that depends only on the
+frozen set and the meter's settings worked out once: the set's carried forms
+(:attr:`~acquire.compensation.ReferenceSet.grid_forms`), its standards' Type A on the grid, the
+accuracy's constants (level ratio, speed factor, averaging) checked once. A sweep corrects its
+points chunk by chunk as they arrive, so each chunk only places its frequencies, carries the
+standards to them and propagates.
+
+Every reading here (the DUT's without repeats and each standard's) has independent real and
+imaginary parts of equal variance (one number per point), so each input adds ``|g|²·σ²`` to
+both variances of the result (:func:`acquire.uncertainty.propagation.sandwich`); a DUT
+uncertainty per part or as a covariance is carried in full.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from acquire.compensation import formulas
+from acquire.compensation.interpolation import uncertainty_at
+from acquire.errors import InputError
+from acquire.uncertainty.accuracy import reading_uncertainty, repeatability
+from acquire.uncertainty.propagation import as_covariance, assemble, sensitivities
+
+STANDARD_NAMES = ("open", "short", "load")
+_ROOT3 = math.sqrt(3.0)
+
+
+class ReadingNoise:
+    """The stated accuracy of one meter at fixed settings: the variance of a reading's R and X.
+
+    The settings are checked once, at construction, with the messages of
+    :mod:`acquire.uncertainty.accuracy`; :meth:`variance` then evaluates its formulas (the same
+    operations in the same order) for any frequencies and readings.
+    """
+
+    def __init__(self, accuracy: Any, level=None, speed=None, averaging=1) -> None:
+        one = np.ones(1)
+        reading_uncertainty(one, one, accuracy, level, speed, averaging)
+        repeatability(one, one, accuracy, level, speed, averaging)
+        n = int(averaging)
+        ratio = 1.0 if level is None else accuracy.reference_level / float(level)
+        factors = getattr(accuracy, "speed_factors", None) or {}
+        factor = factors[speed] if factors and speed is not None else 1.0
+        self._accuracy = accuracy
+        self._ratio = ratio
+        self._root_ratio = math.sqrt(ratio)
+        self._scale = factor / math.sqrt(n)
+
+    def k_f(self, f: np.ndarray) -> np.ndarray:
+        """The frequency factor ``1 + f/frequency_corner``, shared by all readings at ``f``."""
+        return 1.0 + f / self._accuracy.frequency_corner
+
+    def variance(self, k_f, z: np.ndarray, u_a, repeats: int = 1) -> np.ndarray:
+        """Per point, the variance (ohm²) of R and of X each: Type A ``u_a`` (one per point) or
+        the stated repeatability of the mean of ``repeats`` readings, plus Type B."""
+        acc, r = self._accuracy, self._ratio
+        m = np.abs(z)
+        with np.errstate(invalid="ignore", over="ignore"):
+            floors = acc.low_impedance + m**2 / acc.high_impedance
+            b = acc.relative * k_f * (m + r * floors) / _ROOT3
+            if u_a is None:
+                spread = self._root_ratio * m + r * floors
+                a = acc.repeatability * k_f * self._scale * spread / math.sqrt(repeats)
+            else:
+                a = u_a
+            out = a**2 + b**2
+        bad = ~np.isfinite(m)
+        if bad.any():
+            out[bad] = np.nan
+        return out
+
+
+class PreparedCorrection:
+    """A :class:`~acquire.compensation.ReferenceSet` and stated accuracy ready for many batches.
+
+    ``accuracy`` is None to count only Type A; ``level``, ``speed`` and ``averaging`` are the
+    meter's settings; ``load_true_u`` the standard uncertainty of the load's true value.
+    :meth:`correct` gives what ``correct_with_uncertainty`` gives for the same inputs.
+    """
+
+    def __init__(
+        self, refs: Any, accuracy=None, level=None, speed=None, averaging=1, load_true_u=None
+    ) -> None:
+        forms = refs.grid_forms
+        if forms.zo is None and forms.zs is None and forms.zl is None:
+            raise InputError("no standard given: the correction needs an open, a short or a load")
+        if forms.zl is not None and forms.zt is None:
+            raise InputError("a load reading needs the load's true impedance (zt)")
+        self.refs = refs
+        self._forms = forms
+        self._u = {name: getattr(refs, f"{name}_u") for name in STANDARD_NAMES}
+        self._repeats = max(1, int(getattr(refs, "repeats", 1) or 1))
+        self._noise = None if accuracy is None else ReadingNoise(accuracy, level, speed, averaging)
+        self._load_true_u = load_true_u
+        self._open_short = forms.zo is not None and forms.zs is not None and forms.zl is None
+
+    def correct(self, f: np.ndarray, zm: np.ndarray, u_m=None) -> tuple[np.ndarray, np.ndarray]:
+        """``(zx, cov)`` for readings ``zm`` at 1-D frequencies ``f`` (float, complex, one shape).
+
+        ``u_m`` is the DUT's Type A in any form :func:`acquire.uncertainty.as_covariance` takes.
+        """
+        forms = self._forms
+        at = forms.place(f)
+        zo, zs, zl, zt = forms.standards(at)
+        noise = self._noise
+        k_f = None if noise is None else noise.k_f(f)
+        z_std = {"open": zo, "short": zs, "load": zl}
+        v_std: dict[str, Any] = {}
+        for name, z in z_std.items():
+            if z is None:
+                continue
+            u = uncertainty_at(forms.grid, self._u[name], at)
+            if noise is not None:
+                v_std[name] = noise.variance(k_f, z, u, self._repeats)
+            elif u is not None:
+                v_std[name] = u**2
+        corr = formulas.correction(zo, zs, zl, zt)
+        zx = corr.apply(zm)
+        grads = sensitivities(zm, zo, zs, zl, zt)
+        inputs = {"zm": self._dut(k_f, zm, u_m), "zo": v_std.get("open")}
+        inputs.update(zs=v_std.get("short"), zl=v_std.get("load"))
+        if self._load_true_u is not None:
+            inputs["zt"] = _parts(as_covariance(self._load_true_u, zm.shape))
+        terms = [(g, inputs[name]) for name, g in grads.items() if _any(inputs.get(name))]
+        cov = assemble(zx, terms)
+        if self._open_short:
+            with np.errstate(all="ignore"):
+                t = np.abs(zs / zo)
+                model = (t * (2.0 + t) * np.abs(zx) / _ROOT3) ** 2
+            cov[..., 0, 0] += model
+            cov[..., 1, 1] += model
+        return zx, cov
+
+    def _dut(self, k_f, zm, u_m):
+        """The DUT reading's variance (one per point) or covariance components."""
+        shape = zm.shape
+        if u_m is not None:
+            u = np.asarray(u_m, dtype=float)
+            if u.shape != shape:
+                v = as_covariance(u, shape)
+                if self._noise is not None:
+                    b = self._noise.variance(k_f, zm, np.zeros(shape))
+                    v[..., 0, 0] += b
+                    v[..., 1, 1] += b
+                return _parts(v)
+            u_m = np.broadcast_to(u, shape)
+        if self._noise is not None:
+            return self._noise.variance(k_f, zm, u_m)
+        return None if u_m is None else u_m**2
+
+
+def _parts(v: np.ndarray) -> tuple[np.ndarray, ...]:
+    return v[..., 0, 0], v[..., 0, 1], v[..., 1, 0], v[..., 1, 1]
+
+
+def _any(v) -> bool:
+    if v is None:
+        return False
+    if isinstance(v, tuple):
+        return any(np.any(part) for part in v)
+    return bool(np.any(v))

@@ -31,6 +31,7 @@ from drivers.simulator.scpi_parser import (
     split_message,
     string,
 )
+from drivers.simulator.source_commands import SourceCommands
 
 
 def code_of(fn, *args, **kw) -> int:
@@ -111,8 +112,9 @@ def test_tree_optional_nodes_and_forms():
         tree.add("FREQuency", write=lambda: None)
 
 
-def documented_headers() -> list[str]:
-    """Every command and query of the tables in COMMANDS.md, as written there."""
+def documented_headers(source: bool = False) -> list[str]:
+    """Every command and query of the tables in COMMANDS.md, as written there: the meter's, or
+    (``source``) those of the simulated DC current source."""
     text = (Path(simulator.__file__).parent / "COMMANDS.md").read_text()
     headers = []
     section = ""
@@ -120,6 +122,8 @@ def documented_headers() -> list[str]:
         if line.startswith("#"):
             section = line
         if not line.startswith("| `") or "Readings" in section or "Errors" in section:
+            continue
+        if ("current source" in section) != source:
             continue
         cell = re.match(r"\| ((?:[^|\\]|\\.)*) \|", line).group(1)
         forms = re.findall(r"`([^`]+)`", cell)
@@ -136,6 +140,18 @@ def test_every_documented_header_is_registered():
     tree = Commands(Instrument()).tree
     for header in headers:
         # Try the long form with every optional node, and the short form without them.
+        full = re.sub(r"[\[\]]", "", header)
+        short = re.sub(r"\[[^\]]*\]", "", header)
+        short = ":".join(re.sub("[a-z]", "", node) for node in short.split(":"))
+        for form in (full, short):
+            assert tree.find(parse_command(form)) is not None, form
+
+
+def test_every_documented_source_header_is_registered():
+    headers = documented_headers(source=True)
+    assert "MEASure:CURRent?" in headers and "BIAS:CURRent" not in headers
+    tree = SourceCommands(Instrument()).tree
+    for header in headers:
         full = re.sub(r"[\[\]]", "", header)
         short = re.sub(r"\[[^\]]*\]", "", header)
         short = ":".join(re.sub("[a-z]", "", node) for node in short.split(":"))

@@ -20,7 +20,14 @@ from drivers.simulator.profiles import (
     load_meter,
 )
 
-SHIPPED_DUTS = ["air-core-coil", "demo-coil", "ferrite-choke", "rf-coil"]
+SHIPPED_DUTS = [
+    "air-core-coil",
+    "demo-coil",
+    "ferrite-choke",
+    "ferrite-power-choke",
+    "powder-choke",
+    "rf-coil",
+]
 SHIPPED_FIXTURES = ["bench-leads", "cable-leads", "direct", "long-leads"]
 
 

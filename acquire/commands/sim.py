@@ -14,13 +14,23 @@ What it reports is the DUT (device under test) as seen through the fixture: the 
 residual (R, L) and stray shunt (C, G) lie between meter and DUT, as on a real bench, plus noise
 set by the measurement speed, averaging and test level. Open, short and load are the reference
 standards used to remove the fixture later (`SIMulate:DUT OPEN` puts one in). Profiles are TOML
-files: a shipped name (air-core-coil, ferrite-choke, rf-coil, demo-coil; fixtures bench-leads,
-long-leads, cable-leads, direct; standards open, short, load) or a path to your own.
+files: a shipped name (air-core-coil, ferrite-choke, rf-coil, demo-coil, powder-choke,
+ferrite-power-choke; fixtures bench-leads, long-leads, cable-leads, direct; standards open,
+short, load) or a path to your own.
 
 A client changes the DUT or fixture by name only (`SIMulate:DUT "rf-coil"`): a shipped profile,
 or a file NAME.toml in the directory given with --profile-dir. It cannot name a path, so it
 cannot make the simulator read other files of this machine; a profile that fails to load is
 refused with a short reply and the reason is logged here on standard error.
+
+DC bias. The meter applies a DC bias current through the DUT (BIAS:CURR, BIAS:STAT, up to the
+meter profile's bias_limit, 8 A as shipped), and --source-port also serves a simulated DC
+current source wired to the same DUT (its resource is printed on the second line of output;
+SOUR:CURR, OUTP ON|OFF, MEAS:CURR?). The current through the DUT is the sum of the two. The
+power-choke profiles (powder-choke, ferrite-power-choke) saturate and warm under it. On a real
+bench a biased inductor stores energy (1/2 L I^2): breaking its current arcs and can destroy the
+meter's input and hurt you. Bring the bias to zero before touching the part or the leads, and
+follow the meter and fixture makers' instructions, local codes and licensed practice.
 
 Serves until Ctrl-C. The simulator has no authentication: binding to an address other than
 127.0.0.1 (--host) exposes it to the network, and it warns when you do.
@@ -64,6 +74,14 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         help=f"TCP port; 0 picks a free one (default: {DEFAULT_PORT})",
     )
     parser.add_argument(
+        "--source-port",
+        type=int,
+        default=None,
+        metavar="PORT",
+        help="also serve a simulated DC current source wired to the same DUT on this TCP port "
+        "(0 picks a free one); its resource is printed on the second line (default: none)",
+    )
+    parser.add_argument(
         "--host",
         default="127.0.0.1",
         help="address to listen on (default: 127.0.0.1; any other address exposes the "
@@ -103,6 +121,8 @@ def run(args: argparse.Namespace) -> int:
 
     if not 0 <= args.port <= 65535:
         raise InputError(f"--port {args.port} is not a TCP port (0 to 65535)")
+    if args.source_port is not None and not 0 <= args.source_port <= 65535:
+        raise InputError(f"--source-port {args.source_port} is not a TCP port (0 to 65535)")
     if args.measure_time is not None and not 0 <= args.measure_time <= 60:
         raise InputError(f"--measure-time {args.measure_time} must be 0 to 60 seconds")
     profile_dir = None if args.profile_dir is None else Path(args.profile_dir)
@@ -118,6 +138,9 @@ def run(args: argparse.Namespace) -> int:
         profile_dir=profile_dir,
     )
     server = SimulatorServer(instrument, args.host, args.port)
+    source = None
+    if args.source_port is not None:
+        source = SimulatorServer(instrument, args.host, args.source_port, source=True)
     # asyncio.run turns Ctrl-C into a clean cancellation only under Python's own SIGINT handler
     signal.signal(signal.SIGINT, signal.default_int_handler)
     if not args.quiet:
@@ -132,6 +155,8 @@ def run(args: argparse.Namespace) -> int:
                 flush=True,
             )
         print(server.resource, flush=True)
+        if source is not None:
+            print(source.resource, flush=True)
         print(
             f"simulated meter: {instrument.dut.name} on {instrument.fixture.name}, seed "
             f"{args.seed}; Ctrl-C to stop",
@@ -139,8 +164,18 @@ def run(args: argparse.Namespace) -> int:
             flush=True,
         )
 
+    async def serve() -> None:
+        if source is None:
+            await server.serve_forever(ready)
+            return
+        await source.start()
+        try:
+            await server.serve_forever(ready)
+        finally:
+            await source.close()
+
     try:
-        asyncio.run(server.serve_forever(ready))
+        asyncio.run(serve())
     except KeyboardInterrupt:
         print("simulated meter stopped", file=sys.stderr)
     except OSError as exc:

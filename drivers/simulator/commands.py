@@ -12,6 +12,7 @@ import numpy as np
 
 from drivers.renamed import NEW_SPEED, OLD_PAIRS
 from drivers.simulator import state
+from drivers.simulator.bias_commands import BiasCommands
 from drivers.simulator.instrument import Instrument, Session
 from drivers.simulator.measurement import Reading, encode, reading_values
 from drivers.simulator.scpi_parser import (
@@ -29,7 +30,31 @@ from drivers.simulator.scpi_parser import (
 from drivers.simulator.simulate import SimulateCommands
 
 
-class Commands(SimulateCommands):
+async def execute_message(tree: CommandTree, session: Session, text: str) -> bytes | None:
+    """Run every command of one message; the queries' replies joined by ``;``, or None.
+
+    A failing command puts its error on the client's queue and the next command runs.
+    """
+    replies: list[bytes] = []
+    try:
+        commands = split_message(text)
+    except ScpiError as exc:
+        session.status.push(exc.code, exc.text)
+        return None
+    for item in commands:
+        try:
+            command = parse_command(item)
+            handler = tree.find(command)
+            reply = await handler(session, command.params)
+        except ScpiError as exc:
+            session.status.push(exc.code, exc.text)
+            continue
+        if reply is not None:
+            replies.append(reply if isinstance(reply, bytes) else reply.encode("ascii"))
+    return b";".join(replies) if replies else None
+
+
+class Commands(SimulateCommands, BiasCommands):
     """Binds the command table to one :class:`Instrument`."""
 
     def __init__(self, instrument: Instrument) -> None:
@@ -79,31 +104,13 @@ class Commands(SimulateCommands):
             ("SIMulate:FAULt", s.sim_fault, None),
             ("SIMulate:FAULt:RATE", s.sim_fault_rate, None),
             ("SIMulate:FAULt:CLEar", s.sim_fault_clear, None),
+            *s.bias_table(),
         ):
             self.tree.add(pattern, write, read)
 
     async def execute(self, session: Session, text: str) -> bytes | None:
-        """Run every command of one message; the queries' replies joined by ``;``, or None.
-
-        A failing command puts its error on the client's queue and the next command runs.
-        """
-        replies: list[bytes] = []
-        try:
-            commands = split_message(text)
-        except ScpiError as exc:
-            session.status.push(exc.code, exc.text)
-            return None
-        for item in commands:
-            try:
-                command = parse_command(item)
-                handler = self.tree.find(command)
-                reply = await handler(session, command.params)
-            except ScpiError as exc:
-                session.status.push(exc.code, exc.text)
-                continue
-            if reply is not None:
-                replies.append(reply if isinstance(reply, bytes) else reply.encode("ascii"))
-        return b";".join(replies) if replies else None
+        """Run every command of one message (:func:`execute_message`)."""
+        return await execute_message(self.tree, session, text)
 
     # IEEE 488.2 common commands
 

@@ -34,15 +34,33 @@ _START_TIMEOUT = 10.0
 class SimulatorHandle:
     """A running simulated meter; every change is made on the server's own thread."""
 
-    def __init__(self, server: SimulatorServer, loop: asyncio.AbstractEventLoop) -> None:
+    def __init__(
+        self,
+        server: SimulatorServer,
+        loop: asyncio.AbstractEventLoop,
+        source: SimulatorServer | None = None,
+    ) -> None:
         self._server = server
         self._loop = loop
         self._instrument = server.instrument
+        self._source = source
 
     @property
     def resource(self) -> str:
         """VISA resource string, ``TCPIP0::127.0.0.1::<port>::SOCKET``."""
         return self._server.resource
+
+    @property
+    def source_resource(self) -> str:
+        """VISA resource of the simulated DC current source (``running(source_port=...)``)."""
+        if self._source is None:
+            raise InstrumentError("no DC current source is running: pass source_port=0")
+        return self._source.resource
+
+    @property
+    def bias_log(self) -> list[float]:
+        """The DC current (A) flowing as each earlier connection closed, oldest first."""
+        return self._call(lambda: list(self._instrument.bias.log))
 
     @property
     def port(self) -> int:
@@ -149,8 +167,12 @@ def running(
     host: str = "127.0.0.1",
     port: int = 0,
     meter: str | Path | MeterProfile = "simulated-meter",
+    source_port: int | None = None,
 ) -> Iterator[SimulatorHandle]:
     """Serve a simulated meter on a background thread while the block runs.
+
+    ``source_port`` (0 picks a free one) also serves the simulated DC current source wired to
+    the same DUT (:mod:`.source_commands`); None serves none.
 
     ``measure_time`` overrides the seconds per point (0 for fast tests); None uses the time the
     periods and averaging settings imply. Profiles are loaded before the thread starts, so a bad
@@ -164,6 +186,8 @@ def running(
         )
     instrument = Instrument(dut, fixture, meter, seed, measure_time, noise)
     server = SimulatorServer(instrument, host, port)
+    source = None if source_port is None else SimulatorServer(instrument, host, source_port, True)
+    servers = [server] if source is None else [server, source]
     loop = asyncio.new_event_loop()
     started = threading.Event()
     failure: list[BaseException] = []
@@ -171,9 +195,12 @@ def running(
     def main() -> None:
         asyncio.set_event_loop(loop)
         try:
-            loop.run_until_complete(server.start())
+            for each in servers:
+                loop.run_until_complete(each.start())
         except OSError as exc:
             failure.append(exc)
+            for each in servers:
+                loop.run_until_complete(each.close())
             started.set()
             loop.close()
             return
@@ -181,7 +208,8 @@ def running(
         try:
             loop.run_forever()
         finally:
-            loop.run_until_complete(server.close())
+            for each in servers:
+                loop.run_until_complete(each.close())
             loop.run_until_complete(loop.shutdown_asyncgens())
             loop.close()
 
@@ -194,7 +222,7 @@ def running(
     if failure:
         raise failure[0]
     try:
-        yield SimulatorHandle(server, loop)
+        yield SimulatorHandle(server, loop, source)
     finally:
         loop.call_soon_threadsafe(loop.stop)
         thread.join(_START_TIMEOUT)

@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from drivers.simulator import measurement, streams
+from drivers.simulator.bias import BiasState
 from drivers.simulator.faults import Faults, FaultSpec
 from drivers.simulator.measurement import Conditions, Reading
 from drivers.simulator.profile_names import load_offered, operator_choice
@@ -65,6 +66,8 @@ class Instrument:
         self.noise = noise
         self.time_override = measure_time
         self.faults = Faults(np.random.default_rng(0))
+        #: DC current through the DUT (meter bias, source) and the winding's temperature.
+        self.bias = BiasState(self.meter)
         self.reseed(seed)
         self.dut = self.nominal = load_dut(operator_choice(dut, profile_dir))
         self.unit = 0
@@ -129,9 +132,10 @@ class Instrument:
         self.faults.arm(spec, deferred)
 
     def reset(self) -> None:
-        """``*RST``: default settings, running measurement aborted, data cleared."""
+        """``*RST``: default settings, bias off at 0 A, measurement aborted, data cleared."""
         self.abort()
         self.settings = Settings()
+        self.bias.change(self.dut, bias_on=False, bias_setpoint=0.0)
 
     def abort(self) -> None:
         """Stop any measurement and forget the last one."""
@@ -152,7 +156,7 @@ class Instrument:
             periods=s.periods,
             averaging=s.averaging,
             noise=self.noise,
-            dut=self.dut,
+            dut=self.bias.biased(self.dut),
             fixture=self.fixture,
             meter=self.meter,
             time_override=self.time_override,

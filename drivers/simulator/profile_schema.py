@@ -35,6 +35,11 @@ DUT_SCHEMA: dict[str, dict[str, Key]] = {
         "wire_length": Key("m", None, positive=True),
         "resistivity": Key("ohm m", COPPER_RESISTIVITY, positive=True),
         "proximity_factor": Key("", 1.0),
+        "saturation_current": Key("A", None, positive=True),
+        "saturation_sharpness": Key("", None, positive=True),
+        "thermal_resistance": Key("K/W", None, positive=True),
+        "thermal_time_constant": Key("s", None, positive=True),
+        "reference_temperature": Key("degC", None),
     },
     "resistor": {
         "resistance": Key("ohm"),
@@ -76,6 +81,22 @@ def coil_winding(path: Path, values: dict[str, float | None]) -> None:
         raise ProfileError(
             f"{path}: missing key 'dc_resistance' (ohm), or give 'wire_diameter' and 'wire_length'"
         )
+    coil_pairs(path, values)
+
+
+def coil_pairs(path: Path, values: dict[str, float | None]) -> None:
+    """Keys that only make sense together: saturation's, and the thermal model's."""
+    for first, second in (
+        ("saturation_current", "saturation_sharpness"),
+        ("thermal_resistance", "thermal_time_constant"),
+    ):
+        if (values[first] is None) != (values[second] is None):
+            raise ProfileError(f"{path}: give both {first!r} and {second!r}, or neither")
+    if values["reference_temperature"] is not None and values["thermal_resistance"] is None:
+        raise ProfileError(
+            f"{path}: 'reference_temperature' needs the thermal model ('thermal_resistance', "
+            "'thermal_time_constant')"
+        )
 
 
 FIXTURE_SCHEMA = {
@@ -99,5 +120,8 @@ METER_SCHEMA = {
     "minimum_reading_time": Key("s", positive=True),
     "reference_periods": Key("", positive=True),
     "systematic_accuracy": Key("", 0.0),
+    "bias_limit": Key("A", 8.0),
+    "source_limit": Key("A", 10.0),
+    "ambient_temperature": Key("degC", 23.0),
 }
 METER_TEXT = ("manufacturer", "model", "serial", "firmware")

@@ -189,6 +189,8 @@ class MeterProfile:
 
     A reading lasts ``max(minimum_reading_time, periods / f)``; its noise scales as
     ``sqrt(reference_periods / periods)``, so the accuracy class holds at ``reference_periods``.
+    ``bias_limit`` (A) is the largest DC bias the meter applies, ``source_limit`` (A) the largest
+    output of the simulated DC current source beside it, ``ambient_temperature`` (°C) the bench's.
     """
 
     name: str
@@ -207,3 +209,6 @@ class MeterProfile:
     description: str = ""
     path: Path | None = None
     systematic_accuracy: float = 0.0
+    bias_limit: float = 8.0
+    source_limit: float = 10.0
+    ambient_temperature: float = 23.0

@@ -13,7 +13,11 @@ Kinds and their keys (``?`` marks an optional key, with its default):
   ``resistivity?`` ohm·m = 1.7241e-8 (annealed copper at 20 °C, IEC 60028), ``proximity_factor?``
   = 1, and ``wire_length`` m or ``dc_resistance`` ohm (one of the two), or as a resistance law,
   ``dc_resistance`` ohm, ``ac_corner_frequency?`` Hz (none: R stays at its DC value),
-  ``ac_exponent?`` = 0.5 (see :mod:`drivers.simulator.physics`). With a wire length the DC
+  ``ac_exponent?`` = 0.5 (see :mod:`drivers.simulator.physics`); a saturating core,
+  ``saturation_current?`` A and ``saturation_sharpness?`` (both or neither; none: no
+  saturation; :mod:`drivers.simulator.saturation`); a warming winding, ``thermal_resistance?``
+  K/W and ``thermal_time_constant?`` s (both or neither), ``reference_temperature?`` °C = 20
+  where ``dc_resistance`` holds (:mod:`drivers.simulator.thermal`). With a wire length the DC
   resistance is ``ρ·l/(πa²)``; ``values["dc_resistance"]`` always holds it, and the physics
   uses it (a drawn unit's resistance stands for a longer or shorter wire).
 - ``resistor`` and ``load`` (a load standard): ``resistance`` ohm, ``series_inductance?`` H = 0,
@@ -23,7 +27,8 @@ Kinds and their keys (``?`` marks an optional key, with its default):
 - ``fixture``: ``series_resistance`` ohm, ``series_inductance`` H, ``shunt_capacitance`` F,
   ``shunt_conductance`` S, and an optional ``[line]`` table with ``impedance`` ohm, ``length`` m,
   ``velocity_factor?`` = 0.66 (a lossless line between the meter and the leads).
-- ``meter``: identity and noise of the simulated meter (see :class:`MeterProfile`).
+- ``meter``: identity and noise of the simulated meter, its bias limit, the DC source's limit
+  and the ambient temperature (see :class:`MeterProfile`).
 
 DUT and standard profiles may have a ``[spread]`` table (one-sigma relative spread of any of their
 values, for production units drawn by :func:`draw_unit`) and ``[[faults]]`` entries (armed when the

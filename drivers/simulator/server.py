@@ -13,8 +13,12 @@ import logging
 import socket
 from collections.abc import Callable
 
+import numpy as np
+
 from drivers.simulator.commands import Commands
+from drivers.simulator.faults import Faults
 from drivers.simulator.instrument import Instrument, Session
+from drivers.simulator.source_commands import SourceCommands
 
 LOG = logging.getLogger("drivers.simulator")
 #: Longest message accepted (a full 2000-point list fits with room to spare).
@@ -28,11 +32,21 @@ def resource_string(host: str, port: int) -> str:
 
 
 class SimulatorServer:
-    """Serves one :class:`Instrument` on ``host:port`` (port 0 picks a free one)."""
+    """Serves one :class:`Instrument` on ``host:port`` (port 0 picks a free one).
 
-    def __init__(self, instrument: Instrument, host: str = "127.0.0.1", port: int = 0) -> None:
+    ``source=True`` serves the simulated DC current source wired to the same DUT instead of the
+    meter (:mod:`.source_commands`); the meter's faults never fire on its connections.
+    """
+
+    def __init__(
+        self, instrument: Instrument, host: str = "127.0.0.1", port: int = 0, source: bool = False
+    ) -> None:
         self.instrument = instrument
-        self.commands = Commands(instrument)
+        self.source = source
+        self.commands: Commands | SourceCommands = (
+            SourceCommands(instrument) if source else Commands(instrument)
+        )
+        self.faults = Faults(np.random.default_rng(0)) if source else instrument.faults
         self.host = host
         self.port = port
         self._server: asyncio.Server | None = None
@@ -54,8 +68,9 @@ class SimulatorServer:
         """Stop listening, abort any measurement and close every connection."""
         if self._server is not None:
             self._server.close()
-        task = self.instrument.task
-        self.instrument.abort()
+        task = None if self.source else self.instrument.task
+        if not self.source:
+            self.instrument.abort()
         if task is not None:
             await asyncio.wait({task})
         for task in list(self._clients):
@@ -97,6 +112,7 @@ class SimulatorServer:
             with contextlib.suppress(ConnectionError, asyncio.CancelledError):
                 await writer.wait_closed()
             self._clients.discard(task)
+            self.instrument.bias.connection_closed(self.instrument.dut)
             LOG.info("client %s disconnected", peer)
 
     async def _serve(
@@ -108,7 +124,7 @@ class SimulatorServer:
         and their replies come back in order. An overlong message (``ValueError``) ends the
         connection.
         """
-        faults = self.instrument.faults
+        faults = self.faults
         while True:
             line = await reader.readline()
             if not line:

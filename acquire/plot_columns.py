@@ -117,7 +117,7 @@ class ResonanceWatch:
         self.best_size = -np.inf
 
     def take(self, z: np.ndarray, count: int) -> None:
-        """Look at the points of ``z`` (all so far, in order) from the last one seen to ``count``."""
+        """Look at the points of ``z`` (all so far, in order) from the last seen to ``count``."""
         if count <= self.taken:
             return
         new = z[self.taken : count]

@@ -115,10 +115,10 @@ def main() -> int:
         proc.wait(timeout=10)
     if rc != 0 or "Sweep complete" not in text:
         raise SystemExit(f"the sweep failed (exit {rc}):\n{text[-2000:]}")
-    label = f"{points:,}-point sweep" + (" (--quick: a look, not the goal's size)" if args.quick
-                                           else "")  # fmt: skip
-    print(f"peak memory, `acquire sweep` with the live view on a 160x50 pseudo-terminal")
-    print(f"  python -c \"{BASELINE}\": {base_mb:.1f} MB")
+    quick = " (--quick: a look, not the goal's size)" if args.quick else ""
+    label = f"{points:,}-point sweep{quick}"
+    print("peak memory, `acquire sweep` with the live view on a 160x50 pseudo-terminal")
+    print(f'  python -c "{BASELINE}": {base_mb:.1f} MB')
     print(f"  acquire sweep, {label}: {sweep_mb:.1f} MB ({seconds:.1f} s)")
     goal = report(
         Goal(

@@ -107,7 +107,7 @@ def test_a_spike_one_point_wide_in_100001_points_shows_on_the_plot():
     state, f = spike_state(points, spike_at)
     text = frame(state)
     rows = [line for line in text.splitlines() if "│" in line][:12]
-    plot_rows = [line.split("│", 1)[1][:120 - 35 - 10] for line in rows]
+    plot_rows = [line.split("│", 1)[1][: 120 - 35 - 10] for line in rows]
     cells = len(plot_rows[0])
     # the spike's dot column: log position of its frequency on the plot (the axis of draw())
     col = round((math.log10(f[spike_at]) - 2) / 5 * (2 * cells - 1)) // 2

@@ -27,6 +27,7 @@ from rich.console import Console, ConsoleOptions, Group, RenderResult
 from rich.live import Live
 from rich.panel import Panel
 from rich.progress_bar import ProgressBar
+from rich.segment import Segment
 from rich.table import Table
 from rich.text import Text
 
@@ -34,7 +35,7 @@ from acquire.display import UNITS, format_duration, format_measured, lines_taken
 from acquire.impedance import quantities
 from acquire.resonance import self_resonance, summary_frequencies
 from acquire.sweep_state import SweepState
-from acquire.textplot import draw, x_axis, y_labels
+from acquire.textplot import draw, x_axis, y_labels, y_limits
 from acquire.uncertainty import quantity_uncertainty
 from acquire.units import format_si
 
@@ -74,8 +75,9 @@ def render(
     """The whole live view for a terminal ``width`` x ``height`` cells."""
     f, raw, corrected = state.points()
     z = raw if corrected is None else corrected
-    q = quantities(f, z) if f.size else None
-    srf = self_resonance(f, z) if f.size else None
+    # the latest point only: the plots draw from the state's per-column picks
+    q = quantities(f[-1:], z[-1:]) if f.size else None
+    srf = state.resonance(f.size) if f.size else None
     side = width >= 80
     plot_width = width - (SIDE_WIDTH + 1 if side else 0)
     status = _side(state, f, z, q, srf, now)
@@ -86,7 +88,7 @@ def render(
     room = height - sum(lines_taken(part, width) for part in parts)
     if not side:
         room -= lines_taken(status, width)
-    plots = _plots(state, f, q, srf, plot_width, room)
+    plots = _plots(state, f, z, srf, plot_width, room)
     body: Table | Group
     if side:
         body = Table.grid(padding=(0, 1))
@@ -140,7 +142,7 @@ def _progress(state: SweepState, width: int) -> Table:
 def _plots(
     state: SweepState,
     f: np.ndarray,
-    q: dict[str, np.ndarray] | None,
+    z: np.ndarray,
     srf: float | None,
     width: int,
     height: int,
@@ -153,26 +155,66 @@ def _plots(
         state.plan.stop if state.plan.stop > state.plan.start else state.plan.start * 10,
     )
     which = "corrected" if state.corrected is not None else "raw"
+    label_width = 9
+    cells = width - label_width - 1
+    picks = state.plot_columns(names, 2 * max(cells, 2), x_range, f.size)
+    sample = state.range_sample()[: f.size] if f.size else np.empty(0, dtype=np.int64)
+    q_sample = quantities(f[sample], z[sample]) if sample.size else None
     parts = []
     for k, name in enumerate(names):
         colour = COLOURS[k % len(COLOURS)]
         unit = UNITS.get(name, "")
-        y = np.where(state.hidden(name, f.size), np.nan, q[name]) if q is not None else np.empty(0)
-        label_width = 9
+        idx, links = picks[name].picks()
+        y = quantities(f[idx], z[idx])[name] if idx.size else np.empty(0)
+        y_log, y_range = _y_axis(state, name, picks[name].extremes(), sample, q_sample)
         plot = draw(
-            f, y, width - label_width - 1, rows_each, x_range, markers=(srf,) if srf else ()
-        )
+            f[idx], y, cells, rows_each, x_range, y_range, y_log,
+            markers=(srf,) if srf else (), links=links,
+        )  # fmt: skip
         labels = y_labels(plot, unit)
-        title = Text(f"{name} ({which})", style=f"bold {colour}")
+        title = [(f"{name} ({which})", f"bold {colour}")]
         if plot.y_log:
-            title.append("  log scale", style="dim")
-        lines = Text()
-        for r, (lab, row) in enumerate(zip(labels, plot.rows, strict=True)):
-            lines.append(("\n" if r else "") + lab.rjust(label_width)[-label_width:] + "│", "dim")
-            lines.append(row, style=colour)
-        axis = Text(" " * (label_width + 1) + x_axis(x_range, width - label_width - 1), style="dim")
-        parts.extend([title, lines, axis])
+            title.append(("  log scale", "dim"))
+        lines = [title]
+        for lab, row in zip(labels, plot.rows, strict=True):
+            lines.append([(lab.rjust(label_width)[-label_width:] + "│", "dim"), (row, colour)])
+        lines.append([(" " * (label_width + 1) + x_axis(x_range, cells), "dim")])
+        parts.append(Lines(lines))
     return Group(*parts)
+
+
+class Lines:
+    """Lines of styled pieces drawn as given, cropped to the width (never wrapped): the plots'
+    rows are laid out already, so rich need not divide them into words."""
+
+    def __init__(self, lines: list[list[tuple[str, str]]]) -> None:
+        self.lines = lines
+
+    def __rich_console__(self, console: Console, options: ConsoleOptions) -> RenderResult:
+        width = options.max_width
+        for line in self.lines:
+            segments = [Segment(text, console.get_style(style)) for text, style in line]
+            yield from Segment.adjust_line_length(segments, width, pad=False)
+            yield Segment.line()
+
+
+def _y_axis(
+    state: SweepState,
+    name: str,
+    extremes: tuple[float, float] | None,
+    sample: np.ndarray,
+    q_sample: dict[str, np.ndarray] | None,
+) -> tuple[bool, tuple[float, float]]:
+    """Log or linear, and the value range, as :func:`acquire.textplot.draw` would choose them
+    from all the points: a log axis from the extremes (exact), a linear one from the
+    percentiles of an evenly spread sample (every point of a plan of up to 4,096)."""
+    if extremes is None or q_sample is None:
+        return False, (0.0, 1.0)
+    lowest, highest = extremes
+    if lowest > 0 and highest > 10 * lowest:
+        return True, y_limits(np.array(extremes), True) or (0.0, 1.0)
+    y = np.where(state.hidden_at(name, sample), np.nan, q_sample[name])
+    return False, y_limits(y, False, lowest=lowest) or (0.0, 1.0)
 
 
 def _side(
@@ -198,7 +240,7 @@ def _side(
                     name,
                     float(q[name][-1]),
                     None if u is None else float(u[name][0]),
-                    bool(state.hidden(name, f.size)[-1]),
+                    bool(state.hidden_at(name, last)[0]),
                 ),
             )
     else:
@@ -373,7 +415,7 @@ class PlainProgress:
                     n,
                     float(q[n][0]),
                     None if u is None else float(u[n][0]),
-                    bool(s.hidden(n, f.size)[-1]),
+                    bool(s.hidden_at(n, last)[0]),
                 )
                 for n in s.quantities
             )

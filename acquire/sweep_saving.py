@@ -2,12 +2,13 @@
 
 A :class:`PointSaver` writes the points a :class:`~acquire.sweep_state.SweepState` holds to the
 store's sweep writer: every ``interval`` seconds, the points that arrived since the last write
-go in one batch (one transaction), on the saver's own thread, so the thread that talks to the
-meter never waits for the store. When a write fails with a :class:`~acquire.errors.StoreError`
-(the database is out of reach, the network was cut) the points stay where they are, in the
-state's memory, and the saver tries again after a pause that doubles from
-:data:`FIRST_PAUSE_S` up to :data:`LONGEST_PAUSE_S`; once the store answers, everything
-waiting goes in one batch, in order.
+go in batches of at most :data:`LARGEST_BATCH` (one transaction each, so the rows being
+built take little memory however fast the points come), on the saver's own thread, so the
+thread that talks to the meter never waits for the store. When a write fails with a
+:class:`~acquire.errors.StoreError` (the database is out of reach, the network was cut) the
+points stay where they are, in the state's memory, and the saver tries again after a pause
+that doubles from :data:`FIRST_PAUSE_S` up to :data:`LONGEST_PAUSE_S`; once the store
+answers, everything waiting goes in, in order.
 
 :meth:`PointSaver.close` writes what is left and records how the sweep ended, waiting up to
 ``patience`` seconds for the store. If the store does not come back in that time the saver
@@ -31,6 +32,8 @@ from acquire.uncertainty import expanded
 
 #: First and longest pause (seconds) between attempts to write to a store that failed.
 FIRST_PAUSE_S, LONGEST_PAUSE_S = 0.1, 2.0
+#: The most points written in one transaction.
+LARGEST_BATCH = 2048
 #: Seconds one attempt may take beyond the patience (a connection being refused or timing out).
 ATTEMPT_ALLOWANCE_S = 15.0
 
@@ -146,7 +149,7 @@ class PointSaver:
             self._failure = exc
 
     def write_waiting(self) -> None:
-        """Write every point received and not yet stored, in one call (one transaction).
+        """Write every point received and not yet stored, :data:`LARGEST_BATCH` at a time.
 
         The saver's thread calls it; it must not run on two threads at once."""
         state = self._state
@@ -154,12 +157,13 @@ class PointSaver:
         if n <= self._saved:
             return
         f, raw, corrected = state.points()
-        part = slice(self._saved, n)
-        self._writer.add_points(
-            f[part].copy(),
-            raw[part].copy(),
-            None if corrected is None else corrected[part].copy(),
-            uncertainty=expanded(state.cov[part]) if self._known else None,
-            flags=[str(x) for x in state.flags[part]] if self._known else None,
-        )
-        self._saved = n
+        while self._saved < n:
+            part = slice(self._saved, min(n, self._saved + LARGEST_BATCH))
+            self._writer.add_points(
+                f[part].copy(),
+                raw[part].copy(),
+                None if corrected is None else corrected[part].copy(),
+                uncertainty=expanded(state.cov[part]) if self._known else None,
+                flags=[str(x) for x in state.flags[part]] if self._known else None,
+            )
+            self._saved = part.stop

@@ -3,11 +3,15 @@
 One :class:`SweepState` is filled by the sweep runner as points arrive (on the acquiring thread)
 and read by a renderer (possibly on a timer thread). Appending only writes into preallocated
 arrays and then moves ``count`` forward, so a reader that takes ``count`` first always sees whole
-points; nothing is computed per point beyond counting overrange and invalid readings.
+points; nothing is computed per point beyond counting overrange and invalid readings. What the
+live view draws (per plot column, :mod:`acquire.plot_columns`) is brought up to date on the
+reader's thread, from the points that arrived since its last frame.
 """
 
 from __future__ import annotations
 
+import math
+import threading
 import time
 from collections.abc import Callable
 from dataclasses import dataclass, field
@@ -16,11 +20,17 @@ from typing import Any
 
 import numpy as np
 
+from acquire.impedance import quantities
 from acquire.plan import FrequencyPlan
+from acquire.plot_columns import ColumnPicks, ResonanceWatch
 from acquire.uncertainty import BEYOND_ACCURACY
 from acquire.units import format_si
 
 STATUSES = ("waiting", "running", "complete", "interrupted")
+#: Points converted to plotted quantities at a time when the live view catches up.
+CATCH_UP = 8192
+#: At most this many points (evenly spread over the plan) set a linear plot's value range.
+RANGE_SAMPLE = 4096
 
 
 @dataclass(eq=False)
@@ -67,6 +77,9 @@ class SweepState:
     cov: np.ndarray = field(init=False, repr=False)
     flags: np.ndarray = field(init=False, repr=False)
     beyond: dict[str, np.ndarray] = field(init=False, repr=False)
+    _columns: dict[tuple, ColumnPicks] = field(init=False, repr=False)
+    _resonance: ResonanceWatch = field(init=False, repr=False)
+    _reading: threading.Lock = field(init=False, repr=False)
 
     def __post_init__(self) -> None:
         n = len(self.plan)
@@ -76,6 +89,9 @@ class SweepState:
         self.cov = np.full((n, 2, 2), np.nan)
         self.flags = np.full(n, "", dtype=object)
         self.beyond = {}
+        self._columns = {}
+        self._resonance = ResonanceWatch()
+        self._reading = threading.Lock()
 
     @property
     def planned(self) -> int:
@@ -136,6 +152,70 @@ class SweepState:
         if bad is None:
             return np.zeros(n, dtype=bool)
         return bad[:n] & (self.flags[:n] == BEYOND_ACCURACY)
+
+    def hidden_at(self, name: str, index: np.ndarray | slice) -> np.ndarray:
+        """:meth:`hidden` of only the points ``index`` (indices or a slice of those so far)."""
+        bad = self.beyond.get(name)
+        if bad is None:
+            size = (
+                len(range(*index.indices(self.planned)))
+                if isinstance(index, slice)
+                else np.asarray(index).size
+            )
+            return np.zeros(size, dtype=bool)
+        return bad[index] & (self.flags[index] == BEYOND_ACCURACY)
+
+    def plot_columns(
+        self,
+        names: tuple[str, ...],
+        dots: int,
+        x_range: tuple[float, float],
+        upto: int | None = None,
+    ) -> dict[str, ColumnPicks]:
+        """Per quantity of ``names``, the points each dot column of a plot ``dots`` wide over
+        ``x_range`` draws (hidden values are gaps), brought up to date with the points so far.
+
+        Only the points that arrived since the last call are converted, :data:`CATCH_UP` at a
+        time; a new width or range starts over once. ``upto`` stops at that many points (a
+        count the caller read before). Call it from one reader (the live view).
+        """
+        n = self.count if upto is None else min(upto, self.count)
+        with self._reading:
+            keys = {name: (name, dots, x_range) for name in names}
+            self._columns = {
+                key: self._columns.get(key) or ColumnPicks(x_range, dots) for key in keys.values()
+            }
+            picks = {name: self._columns[key] for name, key in keys.items()}
+            shown = self.raw if self.corrected is None else self.corrected
+            while True:
+                behind = [p.taken for p in picks.values() if p.taken < n]
+                if not behind:
+                    return picks
+                a = min(behind)
+                b = min(n, a + CATCH_UP)
+                f = self.frequency[a:b]
+                q = quantities(f, shown[a:b])
+                for name, p in picks.items():
+                    if p.taken == a:
+                        p.take(f, np.where(self.hidden_at(name, slice(a, b)), np.nan, q[name]))
+
+    def resonance(self, upto: int | None = None) -> float | None:
+        """The self-resonance of the points so far (or of the first ``upto``), as
+        :func:`acquire.resonance.self_resonance` finds it (see :class:`ResonanceWatch`)."""
+        n = self.count if upto is None else min(upto, self.count)
+        f = self.frequency[:n]
+        z = (self.raw if self.corrected is None else self.corrected)[:n]
+        with self._reading:
+            if n < self._resonance.taken:
+                self._resonance = ResonanceWatch()
+            self._resonance.take(z, n)
+            return self._resonance.frequency(f, z)
+
+    def range_sample(self) -> np.ndarray:
+        """Indices of at most :data:`RANGE_SAMPLE` of the points so far, evenly spread over the
+        plan (every point of a plan no longer than that)."""
+        step = max(math.ceil(self.planned / RANGE_SAMPLE), 1)
+        return np.arange(0, self.count, step)
 
     def finish(self, status: str, reason: str = "") -> None:
         """Mark the sweep as ``complete`` or ``interrupted`` (with the reason shown)."""

@@ -2,8 +2,9 @@
 
 Each character cell holds 2 x 4 dots, so a plot ``width`` cells wide and ``height`` cells tall
 has ``2 * width`` by ``4 * height`` dots. Points are joined by straight lines in dot space;
-non-finite values leave a gap. The drawing is vectorised with numpy so a frame of a few thousand
-points costs well under a millisecond, which keeps the live view from competing with acquisition.
+non-finite values leave a gap. The drawing is vectorised with numpy; the live view hands it only
+the few points per dot column that draw the same picture as all of them
+(:mod:`acquire.plot_columns`), so a frame costs the same at any length of sweep.
 """
 
 from __future__ import annotations
@@ -32,11 +33,13 @@ class Plot:
     marker_columns: tuple[int, ...]
 
 
-def y_limits(y: np.ndarray, log: bool) -> tuple[float, float] | None:
+def y_limits(y: np.ndarray, log: bool, lowest: float | None = None) -> tuple[float, float] | None:
     """Axis limits that keep the bulk of ``y`` readable: a spike (a resonance) is clipped.
 
-    Linear axes span the 5th to 95th percentile of the finite values, padded by 5 %; log axes
-    span the full positive range. ``None`` when there is nothing finite to show.
+    Linear axes span the 5th to 95th percentile of the finite values, padded by 5 % (down to 0
+    when all values are positive); log axes span the full positive range. ``None`` when there is
+    nothing finite to show. When ``y`` is a sample of the values, ``lowest`` is the lowest of
+    them all.
     """
     v = y[np.isfinite(y)]
     if log:
@@ -53,7 +56,8 @@ def y_limits(y: np.ndarray, log: bool) -> tuple[float, float] | None:
         pad = abs(lo) * 0.01 or 1.0
         return lo - pad, hi + pad
     pad = 0.05 * (hi - lo)
-    low = lo - pad if lo - pad >= 0 or float(v.min()) < 0 else 0.0
+    least = float(v.min()) if lowest is None else lowest
+    low = lo - pad if lo - pad >= 0 or least < 0 else 0.0
     return low, hi + pad
 
 
@@ -72,11 +76,13 @@ def draw(
     y_range: tuple[float, float] | None = None,
     y_log: bool | None = None,
     markers: tuple[float, ...] = (),
+    links: np.ndarray | None = None,
 ) -> Plot:
     """Draw ``y`` against ``x`` (log x axis over ``x_range``) into ``width`` x ``height`` cells.
 
     ``markers`` are x values marked with a dotted vertical line (for example a self-resonance).
-    Values beyond the y range are drawn on its edge.
+    Values beyond the y range are drawn on its edge. ``links`` says for each point but the last
+    whether a line joins it to the next (default: every two neighbours with finite values).
     """
     width, height = max(int(width), 2), max(int(height), 1)
     x = np.asarray(x, dtype=float)
@@ -96,7 +102,7 @@ def draw(
     ok = np.isfinite(lx) & np.isfinite(ly)
     px = (lx - lx0) / (lx1 - lx0) * (2 * width - 1)
     py = (y1 - np.clip(ly, y0, y1)) / ((y1 - y0) or 1.0) * (4 * height - 1)
-    px, py = _join(px, py, ok)
+    px, py = _join(px, py, ok, links)
     ix = np.rint(px).astype(np.int64)
     iy = np.rint(py).astype(np.int64)
     keep = (ix >= 0) & (ix < 2 * width) & (iy >= 0) & (iy < 4 * height)
@@ -116,12 +122,18 @@ def draw(
     )
 
 
-def _join(px: np.ndarray, py: np.ndarray, ok: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Dots along straight segments between consecutive finite points (and lone points)."""
+def _join(
+    px: np.ndarray, py: np.ndarray, ok: np.ndarray, links: np.ndarray | None = None
+) -> tuple[np.ndarray, np.ndarray]:
+    """Dots along straight segments between consecutive finite points (or those ``links``
+    joins), and at every finite point."""
     idx = np.flatnonzero(ok)
     if idx.size == 0:
         return np.empty(0), np.empty(0)
-    pair = idx[:-1][np.diff(idx) == 1]
+    if links is None:
+        pair = idx[:-1][np.diff(idx) == 1]
+    else:
+        pair = np.flatnonzero(np.asarray(links, dtype=bool) & ok[:-1] & ok[1:])
     if pair.size == 0:
         return px[idx], py[idx]
     dx = px[pair + 1] - px[pair]

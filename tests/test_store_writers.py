@@ -167,3 +167,28 @@ def test_unit_write_survives_a_dropped_postgresql_connection(tmp_path):
             writer.add_points([1e3], [1j], [1j])
         assert store.sweep_info(writer.id).points == 1
         assert _count(store, "units") == 2
+
+
+def test_many_sweeps_written_from_threads_of_their_own_do_not_exhaust_the_pool(tmp_path):
+    # Each sweep's points are written from a thread of its own (acquire.sweep_saving); the pool
+    # holds 5 + 10 overflow connections (SQLAlchemy's QueuePool defaults), so 40 sweeps in one
+    # process would run out if each thread kept its connection after it ended.
+    import threading
+
+    import numpy as np
+
+    from acquire.store import open_store
+
+    with open_store(f"sqlite:///{tmp_path / 'many.db'}") as store:
+        for i in range(40):
+            writer = store.begin_sweep(dut=f"coil {i}")
+
+            def write(w=writer) -> None:
+                w.add_points(np.array([1e3]), np.array([1 + 2j]))
+                w.finish()
+
+            thread = threading.Thread(target=write)
+            thread.start()
+            thread.join()
+        assert len(store.list_sweeps()) == 40
+        assert all(info.points == 1 for info in store.list_sweeps())

@@ -142,7 +142,9 @@ class Database:
     """An engine plus the rules for running one transaction against it.
 
     Each thread keeps one connection open for the life of the store (opening and returning a
-    pooled connection for every unit would cost more than writing the unit).
+    pooled connection for every unit would cost more than writing the unit); the connection of a
+    thread that has ended is closed when another thread next opens one, so a process that runs
+    many sweeps (each writing from a thread of its own) does not run out of pooled connections.
     """
 
     def __init__(self, location: StoreLocation) -> None:
@@ -151,7 +153,7 @@ class Database:
         self.is_postgres = location.engine == "postgresql"
         self._local = threading.local()
         self._lock = threading.Lock()
-        self._connections: list[Connection] = []
+        self._connections: list[tuple[threading.Thread, Connection]] = []
         self._closed = False
         if not self.is_postgres:
             event.listen(self.engine, "begin", self._sqlite_begin)
@@ -188,9 +190,17 @@ class Database:
             return conn
         if conn is not None:
             conn.close()
+        with self._lock:
+            kept = []
+            for thread, old in self._connections:
+                if not thread.is_alive():
+                    old.close()
+                elif not old.closed:
+                    kept.append((thread, old))
+            self._connections = kept
         conn = self.engine.connect()
         with self._lock:
-            self._connections = [c for c in self._connections if not c.closed] + [conn]
+            self._connections.append((threading.current_thread(), conn))
         self._local.conn = conn
         return conn
 
@@ -240,7 +250,7 @@ class Database:
         """Close every connection of every thread, and the pool."""
         self._closed = True
         with self._lock:
-            for conn in self._connections:
+            for _, conn in self._connections:
                 conn.close()
             self._connections = []
         self.engine.dispose()

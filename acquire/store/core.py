@@ -10,7 +10,7 @@ from typing import TYPE_CHECKING, Any
 from sqlalchemy import Engine
 
 from acquire.errors import StoreError
-from acquire.store import catalog, lot_query, production, references, sweeps
+from acquire.store import bias_runs, catalog, lot_query, production, references, rise_runs, sweeps
 from acquire.store.engine import Database
 from acquire.store.lot_query import LotFilter, OutcomeCounts
 from acquire.store.migrate import ensure_schema, stored_revision
@@ -31,6 +31,7 @@ from acquire.store.url import StoreLocation, parse_store_url
 if TYPE_CHECKING:
     import pandas as pd
 
+    from acquire.bias.records import BiasSettings, BiasSweepResult, RiseResult, RiseSettings
     from acquire.compensation import ReferenceSet
 
 
@@ -248,6 +249,25 @@ class Store:
 
     def close_abandoned_sweeps(self) -> list[int]:
         return sweeps.close_abandoned_sweeps(self._db, self._stale_after)
+
+    # bias sweeps and temperature-rise runs (acquire.store.bias_runs, acquire.store.rise_runs)
+    def begin_bias_sweep(self, settings: BiasSettings) -> bias_runs.BiasSweepWriter:
+        return bias_runs.begin_bias_sweep(self._db, settings)
+
+    def load_bias_sweep(self, sweep_id: int) -> BiasSweepResult:
+        return bias_runs.load_bias_sweep(self._db, sweep_id, self._stale_after)
+
+    def list_bias_sweeps(self) -> list[bias_runs.BiasSweepInfo]:
+        return bias_runs.list_bias_sweeps(self._db, self._stale_after)
+
+    def begin_rise_run(self, settings: RiseSettings) -> rise_runs.RiseWriter:
+        return rise_runs.begin_rise_run(self._db, settings)
+
+    def load_rise_run(self, run_id: int) -> RiseResult:
+        return rise_runs.load_rise_run(self._db, run_id, self._stale_after)
+
+    def list_rise_runs(self) -> list[rise_runs.RiseRunInfo]:
+        return rise_runs.list_rise_runs(self._db, self._stale_after)
 
     # production
     def save_unit(self, unit: UnitRecord) -> bool:

@@ -34,11 +34,28 @@ infinity). A unit's ``temperature`` is the winding temperature (°C) its DC resi
 corrected from, NULL when none was used; ``reference_override`` is "" or the reason the operator
 gave for measuring with references the station would otherwise have refused.
 
+A bias sweep (``bias_sweeps``) keeps what was asked: the bias ``currents`` and the ``drops``
+(fractions) as JSON lists in text, the measuring ``frequency`` (Hz), the largest bias allowed
+(``maximum``, A), the ramp ``step`` (A) and ``dwell`` (s), the ``energy`` (J) stored at the
+largest bias, how going ahead was ``confirmed``, and the bias ``supply``; ``bias_points`` one row
+per bias step (``setpoint`` and ``applied`` in A, raw and corrected R and X in ohm, corrected
+NULL without a reference set, and ``ls`` in H, ``rs`` in ohm, ``q``); ``bias_drops`` the
+saturation current (``drop_current``, A, NULL when the drop was not reached up to
+``highest_current``) at each ``drop_fraction``. A temperature-rise run (``rise_runs``) keeps
+its settings (``current_asked`` in A, ``ambient`` in °C, ``time_limit`` and ``settle_window``
+in s, ``settle_tolerance`` and ``target_rise`` in K), the cold resistance ``r_cold`` (ohm) at
+``t_cold`` (°C), the ``held_current`` (A), whether the rise ``settled``, and the currents tried
+when a rise was searched for (``steps``, a JSON list of [current A, rise K]); ``rise_readings``
+the winding's DC resistance (ohm) and rise (K) ``elapsed`` seconds after the current started.
+Both record their writer as sweeps do (a ``running`` one whose writer is gone is reported as
+interrupted). A measurement's ``bias_current`` is its DC bias (A), NULL for none.
+
 Revisions: the layout is changed only by Alembic migrations (:mod:`acquire.store.migrations`);
 this module describes the newest revision, :data:`SCHEMA_REVISION`. Revision 0001 is the layout
 of the first released program (which marked its stores with ``schema_version`` 2); 0002 adds the
 uncertainty and flag columns above; 0003 the production columns (uncertainty, tolerance limits,
-references override, temperature). ``schema_version`` is kept only so that releases from before
+references override, temperature); 0005 the bias sweeps, temperature-rise runs and a
+measurement's bias current. ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
 
@@ -50,6 +67,7 @@ from datetime import UTC, datetime
 
 from sqlalchemy import (
     JSON,
+    Boolean,
     CheckConstraint,
     Column,
     DateTime,
@@ -65,10 +83,12 @@ from sqlalchemy import (
     text,
 )
 
-#: The newest schema revision (the Alembic revision id of ``migrations/versions/0003_*.py``).
-SCHEMA_REVISION = "0003"
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0005_*.py``).
+SCHEMA_REVISION = "0005"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
+#: Bias-sweep and temperature-rise run states as stored.
+RUN_STATES = ("running", "complete", "interrupted", "failed")
 
 
 class UtcDateTime(TypeDecorator):
@@ -281,6 +301,7 @@ def build_metadata() -> MetaData:
         _real("uncertainty"),
         _real("tolerance_low"),
         _real("tolerance_high"),
+        _real("bias_current"),
         Index(
             "ix_measurements_lot_summary",
             "lot_id",
@@ -292,7 +313,87 @@ def build_metadata() -> MetaData:
         ),
         sqlite_with_rowid=False,
     )
+    _bias_tables(md)
     return md
+
+
+def _writer_columns() -> list[Column]:
+    """Status, note, times and the writing process of a run, as a sweep has them."""
+    return [
+        Column("status", String(16), nullable=False),
+        _text("note"),
+        Column("started_at", UtcDateTime, nullable=False),
+        Column("finished_at", UtcDateTime, nullable=True),
+        Column("last_write_at", UtcDateTime, nullable=True),
+        Column("writer_host", Text, nullable=True),
+        Column("writer_pid", Integer, nullable=True),
+    ]
+
+
+def _bias_tables(md: MetaData) -> None:
+    """Bias sweeps with their points and drop currents; temperature-rise runs with readings."""
+    states = ", ".join(f"'{s}'" for s in RUN_STATES)
+    Table(
+        "bias_sweeps",
+        md,
+        _id(),
+        _text("dut"),
+        _text("fixture"),
+        _text("meter"),
+        _text("supply"),
+        _ref("reference_set_id", "reference_sets"),
+        Column("frequency", Double, nullable=False),
+        Column("currents", Text, nullable=False),
+        Column("drops", Text, nullable=False),
+        *(_real(name) for name in ("maximum", "step", "dwell", "energy")),
+        _text("confirmed"),
+        Column("points", Integer, nullable=False, default=0),
+        *_writer_columns(),
+        CheckConstraint(f"status IN ({states})", name="ck_bias_sweeps_status"),
+    )
+    Table(
+        "bias_points",
+        md,
+        Column("bias_sweep_id", Integer, ForeignKey("bias_sweeps.id"), primary_key=True),
+        Column("idx", Integer, primary_key=True, autoincrement=False),
+        *(_real(name) for name in ("setpoint", "applied", "raw_r", "raw_x")),
+        *(_real(name) for name in ("corrected_r", "corrected_x", "ls", "rs", "q")),
+        sqlite_with_rowid=False,
+    )
+    Table(
+        "bias_drops",
+        md,
+        Column("bias_sweep_id", Integer, ForeignKey("bias_sweeps.id"), primary_key=True),
+        Column("idx", Integer, primary_key=True, autoincrement=False),
+        Column("drop_fraction", Double, nullable=False),
+        _real("drop_current"),
+        _real("highest_current"),
+        sqlite_with_rowid=False,
+    )
+    Table(
+        "rise_runs",
+        md,
+        _id(),
+        _text("dut"),
+        _text("meter"),
+        _text("supply"),
+        *(_real(name) for name in ("current_asked", "ambient", "time_limit")),
+        *(_real(name) for name in ("settle_window", "settle_tolerance", "target_rise")),
+        *(_real(name) for name in ("r_cold", "t_cold", "held_current")),
+        Column("settled", Boolean, nullable=True),
+        Column("steps", Text, nullable=False, default="[]"),
+        Column("readings", Integer, nullable=False, default=0),
+        *_writer_columns(),
+        CheckConstraint(f"status IN ({states})", name="ck_rise_runs_status"),
+    )
+    Table(
+        "rise_readings",
+        md,
+        Column("rise_run_id", Integer, ForeignKey("rise_runs.id"), primary_key=True),
+        Column("idx", Integer, primary_key=True, autoincrement=False),
+        *(_real(name) for name in ("elapsed", "resistance", "rise")),
+        sqlite_with_rowid=False,
+    )
 
 
 #: The tables of the newest schema revision.

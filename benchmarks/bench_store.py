@@ -6,14 +6,17 @@
 1. Units into SQLite with durability on (WAL, synchronous=FULL, one transaction per unit), each
    unit with 10 measurements, through ``Store.save_unit``; baseline: bare ``sqlite3`` putting the
    same rows into an identical empty store, one transaction per unit (``execute`` for the unit,
-   ``executemany`` for its measurements, same pragmas). Rounds alternate between the two and the
-   median round counts. Goal: at least 0.5x the baseline and at least 1,000 units/s.
+   ``executemany`` for its measurements, same pragmas, same table and indexes, rows prepared
+   outside the timing). Rounds interleave the two (which goes first alternates) and the best
+   round of each counts (the machine is shared). Goal: at least 0.9x the baseline.
 2. Four station processes writing units to PostgreSQL at once (``python
    tests/store_support.py``), against one such process alone. Goal: at least 1,000 units/s
    together.
-3. Lot summary (count, yield, mean, standard deviation per parameter) over 100,000 stored units
-   (1,000,000 measurements) in SQL, against loading the same measurement rows into pandas and
-   grouping there. Goal: under 1 s. On PostgreSQL too when it is reachable, after the
+3. Lot statistics as ``acquire lot`` computes them (``lot_statistics``: yields, bins, per
+   quantity mean, std, extremes, moving ranges in test order, limits) over 100,000 units of 10
+   measurements each (Rdc among them) loaded with bulk inserts outside the timing; best of 3.
+   Goal: at most 0.5 s. Also the older ``lot_summary`` against the same rows grouped in pandas.
+   On PostgreSQL too when it is reachable, after the
    ``VACUUM ANALYZE`` that autovacuum would run after such a bulk load.
 
 The PostgreSQL server is ``ACQUIRE_TEST_POSTGRES`` (default
@@ -26,7 +29,6 @@ from __future__ import annotations
 import argparse
 import json
 import sqlite3
-import statistics
 import subprocess
 import sys
 import tempfile
@@ -41,7 +43,7 @@ from sqlalchemy import text
 from acquire.report.statistics import lot_statistics
 from acquire.store import UnitRecord, open_store
 from acquire.store.lot_query import LotFilter
-from acquire.store.production import MEASUREMENT_COLUMNS, _measurement_rows, _unit_row
+from acquire.store.production import MEASUREMENT_COLUMNS, _measurement_rows, _unit_row, tested_at
 from acquire.store.schema import TABLES
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
@@ -84,7 +86,7 @@ def _sqlite_rows(unit):
         v = row[name]
         process = units.c[name].type.bind_processor(_DIALECT)
         values.append(process(v) if process else v)
-    rows = _measurement_rows(0, unit, None)
+    rows = _measurement_rows(0, unit, None, tested_at(dict(zip(names, values, strict=True))))
     return names, tuple(values), [tuple(m[c] for c in MEASUREMENT_COLUMNS[1:]) for m in rows]
 
 
@@ -103,23 +105,36 @@ def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
     bare_rates, store_rates = [], []
     for r in range(rounds):
         units = list(synthetic_units(per_round, lot="", worker=2 * r))
-        theirs = list(synthetic_units(per_round, lot="", worker=2 * r + 1))
-        began = time.perf_counter()
-        for unit in theirs:
-            names, head, measurements = _sqlite_rows(unit)
-            sql = f"INSERT INTO units ({', '.join(names)}) VALUES ({', '.join('?' * len(names))})"
-            bare.execute("BEGIN IMMEDIATE")
-            unit_id = bare.execute(sql, head).lastrowid
-            bare.executemany(m_sql, [(unit_id, *m) for m in measurements])
-            bare.execute("COMMIT")
-        bare_rates.append(per_round / (time.perf_counter() - began))
-        began = time.perf_counter()
-        for unit in units:
-            store.save_unit(unit)
-        store_rates.append(per_round / (time.perf_counter() - began))
+        theirs = [_sqlite_rows(u) for u in synthetic_units(per_round, lot="", worker=2 * r + 1)]
+
+        def bare_side(theirs=theirs) -> None:
+            began = time.perf_counter()
+            for names, head, measurements in theirs:
+                sql = (
+                    f"INSERT INTO units ({', '.join(names)}) VALUES ({', '.join('?' * len(names))})"
+                )
+                bare.execute("BEGIN IMMEDIATE")
+                unit_id = bare.execute(sql, head).lastrowid
+                bare.executemany(m_sql, [(unit_id, *m) for m in measurements])
+                bare.execute("COMMIT")
+            bare_rates.append(per_round / (time.perf_counter() - began))
+
+        def store_side(units=units) -> None:
+            began = time.perf_counter()
+            for unit in units:
+                store.save_unit(unit)
+            store_rates.append(per_round / (time.perf_counter() - began))
+
+        for side in (bare_side, store_side) if r % 2 == 0 else (store_side, bare_side):
+            side()
+    same_indexes = [
+        sorted(c.execute("SELECT name, sql FROM sqlite_master WHERE tbl_name = 'measurements'"))
+        for c in (bare, store.engine.raw_connection().driver_connection)
+    ]
+    assert same_indexes[0] == same_indexes[1], "the baseline's table differs from the store's"
     bare.close()
     store.close()
-    ours, base = statistics.median(store_rates), statistics.median(bare_rates)
+    ours, base = max(store_rates), max(bare_rates)
     report(
         f"SQLite units (10 meas., FULL sync), {rounds} x {per_round}",
         f"{ours:,.0f} units/s",
@@ -260,6 +275,8 @@ def main() -> int:
     per_round, rounds = (400, 3) if args.quick else (1500, 5)
     per_station = 500 if args.quick else 1000
     summary_units = 20_000 if args.quick else 100_000
+    if args.quick:
+        print(f"QUICK RUN: the lot statistics use a lot of {summary_units:,} units, not 100,000")
     with tempfile.TemporaryDirectory() as folder:
         bench_sqlite_units(Path(folder), per_round, rounds)
         with open_store(f"sqlite:///{Path(folder) / 'big.db'}") as store:

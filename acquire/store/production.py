@@ -28,7 +28,7 @@ from acquire.store.engine import (
 )
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
 from acquire.store.schema import TABLES, identity_key, utc_now
-from acquire.store.unit_insert import insert_postgres, insert_sqlite, unit_values
+from acquire.store.unit_insert import UNIT_COLUMNS, insert_postgres, insert_sqlite, unit_values
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -68,8 +68,18 @@ def _split(value: float) -> tuple[float | None, str]:
     return (value, "") if math.isfinite(value) else (None, repr(value))
 
 
-def _measurement_tuples(unit: UnitRecord, lot_id: int | None) -> list[tuple]:
-    """The unit's measurement rows as tuples of ``MEASUREMENT_COLUMNS[1:]`` (no ``unit_id``)."""
+def tested_at(row: dict[str, Any]) -> Any:
+    """A unit's test time, as each of its measurements carries it: its ``finished_at``, else
+    its ``started_at``, else its ``saved_at`` (from the unit's row, as given or bind-processed)."""
+    for name in ("finished_at", "started_at"):
+        if row[name] is not None:
+            return row[name]
+    return row["saved_at"]
+
+
+def _measurement_tuples(unit: UnitRecord, lot_id: int | None, tested: Any) -> list[tuple]:
+    """The unit's measurement rows as tuples of ``MEASUREMENT_COLUMNS[1:]`` (no ``unit_id``);
+    ``tested`` is the unit's :func:`tested_at`."""
     rows = []
     for seq, m in enumerate(unit.measurements):
         value, special = _split(m.value)
@@ -77,16 +87,18 @@ def _measurement_tuples(unit: UnitRecord, lot_id: int | None) -> list[tuple]:
         rows.append(
             (seq, m.parameter, frequency, value, m.unit, finite_or_none(m.low))
             + (finite_or_none(m.high), m.verdict, lot_id, special)
-            + (finite_or_none(m.uncertainty), m.tolerance_low, m.tolerance_high)
+            + (finite_or_none(m.uncertainty), m.tolerance_low, m.tolerance_high, tested)
         )
     return rows
 
 
-def _measurement_rows(unit_id: int, unit: UnitRecord, lot_id: int | None) -> list[dict]:
+def _measurement_rows(
+    unit_id: int, unit: UnitRecord, lot_id: int | None, tested: Any
+) -> list[dict]:
     """The unit's measurement rows (one dict of ``MEASUREMENT_COLUMNS`` per measurement)."""
     return [
         dict(zip(MEASUREMENT_COLUMNS, (unit_id, *row), strict=True))
-        for row in _measurement_tuples(unit, lot_id)
+        for row in _measurement_tuples(unit, lot_id, tested)
     ]
 
 
@@ -123,7 +135,7 @@ def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool
             lot_cache.update(lots)
         lot_id = lot_cache[unit.lot]
     head = unit_values(db.engine.dialect, _unit_row(unit, lot_id))
-    rows = _measurement_tuples(unit, lot_id)
+    rows = _measurement_tuples(unit, lot_id, tested_at(dict(zip(UNIT_COLUMNS, head, strict=True))))
     return db.write("saving a unit", lambda c: insert(c, head, rows) is not None, idempotent=True)
 
 
@@ -139,9 +151,9 @@ def save_units(
         new = {a: i for i, a in conn.execute(insert, heads)}
         rows = [
             r
-            for u in chunk
+            for u, head in zip(chunk, heads, strict=True)
             if u.attempt_id in new
-            for r in _measurement_rows(new[u.attempt_id], u, lots.get(u.lot))
+            for r in _measurement_rows(new[u.attempt_id], u, lots.get(u.lot), tested_at(head))
         ]
         if rows:
             conn.execute(TABLES["measurements"].insert(), rows)

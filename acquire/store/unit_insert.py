@@ -39,6 +39,7 @@ _PG_ARRAY_TYPES = {
     "si_unit": "text[]",
     "verdict": "text[]",
     "value_special": "text[]",
+    "tested_at": "timestamptz[]",
 }
 
 

@@ -105,6 +105,26 @@ def store_location(engine: str, folder: Path) -> Iterator[tuple[str, str | None]
         yield url, schema
 
 
+class RoundTrips:
+    """Counts the requests a store's engine sends to PostgreSQL: each statement, plus the BEGIN
+    that psycopg sends before the first statement of a transaction and the COMMIT that ends it
+    (none in autocommit). On SQLite it counts the statements."""
+
+    def __init__(self, engine) -> None:
+        from sqlalchemy import event
+
+        self.count = 0
+        event.listen(engine, "before_cursor_execute", self._seen)
+
+    def _seen(self, conn, cursor, statement, parameters, context, executemany) -> None:
+        self.count += 1
+        raw = conn.connection.driver_connection
+        info = getattr(raw, "info", None)
+        idle = info is not None and info.transaction_status == info.transaction_status.IDLE
+        if idle and not raw.autocommit:
+            self.count += 2
+
+
 def attempt_id(worker: int, index: int, seed: int = 0) -> str:
     """The deterministic attempt id of synthetic unit ``index`` of ``worker``."""
     return str(uuid.uuid5(_NAMESPACE, f"{seed}:{worker}:{index}"))
@@ -164,9 +184,11 @@ def _main(argv: list[str] | None = None) -> int:
         "--replay-every", type=int, default=10, help="save every Nth unit twice (0: never)"
     )
     p.add_argument("--start-at", type=float, help="wait until this time.time() before writing")
+    p.add_argument("--count-round-trips", action="store_true", help="report them in the JSON")
     args = p.parse_args(argv)
     stored = replayed_new = 0
     with open_store(args.url, schema=args.schema) as store:
+        trips = RoundTrips(store.engine) if args.count_round_trips else None
         units = (
             synthetic_unit(i, args.lot, args.worker, args.measurements) for i in range(args.count)
         )
@@ -185,7 +207,10 @@ def _main(argv: list[str] | None = None) -> int:
                 unit = synthetic_unit(i, args.lot, args.replay_worker, args.measurements)
                 replayed_new += store.save_unit(unit)
         elapsed = time.perf_counter() - began
-    print(json.dumps({"stored": stored, "replayed_new": replayed_new, "seconds": elapsed}))
+    summary = {"stored": stored, "replayed_new": replayed_new, "seconds": elapsed}
+    if trips is not None:
+        summary["round_trips"] = trips.count
+    print(json.dumps(summary))
     return 0
 
 

@@ -512,6 +512,16 @@ def check_production_columns(url: str, schema: str | None) -> None:
     assert _raw(url, schema, sql) == [("", None)]
 
 
+def check_test_times(url: str, schema: str | None) -> None:
+    """Revision 0004 gave every measurement stored before it its unit's test time."""
+    sql = (
+        "SELECT COUNT(*) FROM measurements m JOIN units u ON u.id = m.unit_id WHERE "
+        "m.tested_at IS NULL OR m.tested_at <> COALESCE(u.finished_at, u.started_at, u.saved_at)"
+    )
+    assert _raw(url, schema, sql) == [(0,)]
+    assert _raw(url, schema, "SELECT COUNT(*) FROM measurements")[0][0] > 0
+
+
 @pytest.mark.parametrize("origin", ["revision 1", "first release"])
 def test_upgrade_keeps_every_row_and_value(place, origin):
     url, schema = place
@@ -571,6 +581,7 @@ def test_upgrade_from_revision_2_keeps_every_row_and_value(place):
         check_example(store, revision_2_values=True)
     _same_rows(before, dump(url, schema))
     check_production_columns(url, schema)
+    check_test_times(url, schema)
     assert _raw(url, schema, "SELECT version_num FROM alembic_version") == [(SCHEMA_REVISION,)]
     points = _raw(url, schema, "SELECT u_r, u_x, flags FROM sweep_points ORDER BY sweep_id, idx")
     assert points[:3] == [(0.001, 0.003, "beyond-accuracy"), (0.003, 0.003, "beyond-accuracy"),

@@ -11,7 +11,8 @@ Two ways of counting, each where it answers the question asked:
 
 Counts, mean, the standard deviation (two passes: the deviations from the mean are summed in a
 second pass), min and max are worked out by the database, and so is the mean moving range in
-test order (a window function, ``LAG``, in SQL; :mod:`acquire.store.lot_query`).
+test order (:mod:`acquire.store.quantity_summary`: the counts by the database, the values read
+in test order from an index that holds them in that order, then numpy).
 
 Capability (NIST/SEMATECH e-Handbook of Statistical Methods, 6.1.6, "What is Process
 Capability?"): Cp = (USL - LSL) / 6σ and Cpk = min(USL - µ, µ - LSL) / 3σ with the within sigma
@@ -192,28 +193,40 @@ def _median(pairs: Iterable[tuple[float, int]]) -> float | None:
     return float(values[middle].mean())
 
 
-def _limits(store: Store, chosen: LotFilter) -> dict[str, dict[tuple, float | None]]:
-    out: dict[str, dict[tuple, float | None]] = {}
-    for column in ("low_limit", "high_limit", "tolerance_low", "tolerance_high"):
-        grouped: dict[tuple, list[tuple[float, int]]] = {}
-        for p, f, unit, limit, n in store.limit_counts(chosen, column):
-            grouped.setdefault((p, f, unit), []).append((limit, n))
-        out[column] = {k: _median(v) for k, v in grouped.items()}
-    return out
+class _Limits:
+    """The median of each quantity's stated limits: the one value when every stated value is
+    the same (read from the summary's smallest and largest), else counted per value by
+    ``Store.limit_counts`` (one query per limit column, only when some quantity needs it)."""
+
+    def __init__(self, store: Store, chosen: LotFilter) -> None:
+        self._store, self._chosen = store, chosen
+        self._counted: dict[str, dict[tuple, float | None]] = {}
+
+    def median(self, row: Any, column: str) -> float | None:
+        low, high, stated = row.limits[column]
+        if not stated:
+            return None
+        if low == high:
+            return float(low)
+        if column not in self._counted:
+            grouped: dict[tuple, list[tuple[float, int]]] = {}
+            for p, f, unit, limit, n in self._store.limit_counts(self._chosen, column):
+                grouped.setdefault((p, f, unit), []).append((limit, n))
+            self._counted[column] = {k: _median(v) for k, v in grouped.items()}
+        return self._counted[column].get((row.parameter, row.frequency, row.si_unit))
 
 
 def _number(value: Any) -> float:
     return float("nan") if value is None else float(value)
 
 
-def _quantity(row: Any, limits: dict[str, dict[tuple, float | None]]) -> QuantityStatistics:
-    key = (row.parameter, row.frequency, row.si_unit)
+def _quantity(row: Any, limits: _Limits) -> QuantityStatistics:
     valid = int(row.valid)
     mean = _number(row.mean)
     std = math.sqrt(row.ss / (valid - 1)) if valid > 1 and row.ss is not None else math.nan
     mr = row.mr_sum / row.mr_count if row.mr_count else None
     within = math.nan if mr is None else float(mr) / D2
-    low, high = limits["tolerance_low"].get(key), limits["tolerance_high"].get(key)
+    low, high = limits.median(row, "tolerance_low"), limits.median(row, "tolerance_high")
     cp, cpk = process_capability(mean, within, low, high)
     pp, ppk = process_capability(mean, std, low, high)
     return QuantityStatistics(
@@ -229,8 +242,8 @@ def _quantity(row: Any, limits: dict[str, dict[tuple, float | None]]) -> Quantit
         maximum=_number(row.max),
         tolerance_low=low,
         tolerance_high=high,
-        acceptance_low=limits["low_limit"].get(key),
-        acceptance_high=limits["high_limit"].get(key),
+        acceptance_low=limits.median(row, "low_limit"),
+        acceptance_high=limits.median(row, "high_limit"),
         sigma_within=within,
         cp=cp,
         cpk=cpk,
@@ -242,7 +255,7 @@ def _quantity(row: Any, limits: dict[str, dict[tuple, float | None]]) -> Quantit
 def lot_statistics(store: Store, filter: LotFilter) -> LotStatistics:
     """Yields, bins, failing checks and per quantity statistics of the units ``filter`` picks."""
     counts = store.outcome_counts(filter)
-    limits = _limits(store, filter)
+    limits = _Limits(store, filter)
     quantities = tuple(_quantity(r, limits) for r in store.quantity_summary(filter))
     serials = counts.serials
     return LotStatistics(

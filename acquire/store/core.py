@@ -293,7 +293,9 @@ class Store:
 
     # selections of units (acquire.store.lot_query; the reports read these)
     def quantity_summary(self, chosen: LotFilter) -> list[Any]:
-        return lot_query.quantity_summary(self._db, chosen)
+        from acquire.store.quantity_summary import quantity_rows
+
+        return quantity_rows(self._db, chosen)
 
     def limit_counts(self, chosen: LotFilter, column: str) -> list[Any]:
         return lot_query.limit_counts(self._db, chosen, column)

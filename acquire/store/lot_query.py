@@ -3,11 +3,11 @@ that summarises them: per quantity counts, mean, two-pass standard deviation, ex
 mean moving range in test order; per serial the latest attempt's outcome, bin and failing checks;
 and the measurements themselves in test order.
 
-*Test order* is the order the units were finished (``finished_at``, or ``started_at`` for a unit
-without an end time, then the row id; a unit's measurements by their sequence number). The mean
-moving range is worked out by the database with a window function (``LAG`` over test order,
-SQLite 3.25 and PostgreSQL both have it) over the valid (finite) values only: an invalid reading
-is skipped, so the ranges join the valid values on either side of it.
+*Test order* is the order the units were tested (``finished_at``, or ``started_at`` for a unit
+without an end time, or ``saved_at`` without either: the measurements' ``tested_at``), then the
+unit's row id (so units tested at the same time keep the order they were stored in); a unit's
+measurements by their sequence number. The per quantity numbers are in
+:mod:`acquire.store.quantity_summary`.
 """
 
 from __future__ import annotations
@@ -114,71 +114,6 @@ def _measured(conn: Connection, chosen: LotFilter, *columns: Any) -> Any:
     u, m = TABLES["units"], TABLES["measurements"]
     query = select(*columns).select_from(m.join(u, u.c.id == m.c.unit_id))
     return query.where(and_(true(), *_conditions(conn, chosen, measurements=True)))
-
-
-def quantity_summary(db: Database, chosen: LotFilter) -> list[Any]:
-    """Per (parameter, frequency, unit) of the chosen units' measurements (every attempt):
-    ``count``, ``valid``, ``passed``, ``mean``, ``ss`` (sum of squared deviations from the mean,
-    a second pass), ``min``, ``max``, ``mr_sum`` and ``mr_count`` (sum and number of moving
-    ranges of the valid values in test order). Rows ordered by parameter, frequency, unit."""
-    u, m = TABLES["units"], TABLES["measurements"]
-    keys = (m.c.parameter, m.c.frequency, m.c.si_unit)
-
-    def work(conn: Connection) -> list[Any]:
-        g = (
-            _measured(
-                conn,
-                chosen,
-                *keys,
-                func.count().label("count"),
-                func.count(m.c.value).label("valid"),
-                func.count(case((m.c.verdict == PASS, 1))).label("passed"),
-                func.avg(m.c.value).label("mean"),
-                func.min(m.c.value).label("min"),
-                func.max(m.c.value).label("max"),
-            )
-            .group_by(*keys)
-            .cte("g")
-        )
-        deviation = m.c.value - g.c.mean
-        spread = (
-            _measured(conn, chosen, func.sum(deviation * deviation))
-            .where(m.c.parameter == g.c.parameter)
-            .where(m.c.frequency == g.c.frequency, m.c.si_unit == g.c.si_unit)
-            .scalar_subquery()
-        )
-        order = (_finished(), u.c.id, m.c.seq)
-        previous = func.lag(m.c.value).over(partition_by=keys, order_by=order)
-        lagged = (
-            _measured(conn, chosen, *keys, m.c.value, previous.label("prev"))
-            .where(m.c.value.is_not(None))
-            .subquery("lagged")
-        )
-        step = func.abs(lagged.c.value - lagged.c.prev)
-        ranges = (
-            select(
-                lagged.c.parameter,
-                lagged.c.frequency,
-                lagged.c.si_unit,
-                func.sum(step).label("mr_sum"),
-                func.count(lagged.c.prev).label("mr_count"),
-            )
-            .group_by(lagged.c.parameter, lagged.c.frequency, lagged.c.si_unit)
-            .subquery("ranges")
-        )
-        same = and_(
-            ranges.c.parameter == g.c.parameter,
-            ranges.c.frequency == g.c.frequency,
-            ranges.c.si_unit == g.c.si_unit,
-        )
-        query = (
-            select(g, spread.label("ss"), ranges.c.mr_sum, ranges.c.mr_count)
-            .select_from(g.outerjoin(ranges, same))
-            .order_by(g.c.parameter, g.c.frequency, g.c.si_unit)
-        )
-        return list(conn.execute(query).all())
-
-    return db.read("summarising units", work)
 
 
 def limit_counts(db: Database, chosen: LotFilter, column: str) -> list[Any]:
@@ -327,7 +262,8 @@ def measurement_rows(
         if parameter is not None:
             f = DC if frequency is None else float(frequency)
             query = query.where(m.c.parameter == parameter, m.c.frequency == f)
-        return list(conn.execute(query.order_by(_finished(), u.c.id, m.c.seq)).all())
+        tested = func.coalesce(u.c.finished_at, u.c.started_at, u.c.saved_at)
+        return list(conn.execute(query.order_by(tested, u.c.id, m.c.seq)).all())
 
     rows = db.read("reading measurements", work)
     frame = pd.DataFrame([tuple(r) for r in rows], columns=[c.name for c in columns])

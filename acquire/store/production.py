@@ -28,6 +28,7 @@ from acquire.store.engine import (
 )
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
 from acquire.store.schema import TABLES, identity_key, utc_now
+from acquire.store.unit_insert import UNIT_COLUMNS, insert_postgres, insert_sqlite, unit_values
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -67,31 +68,38 @@ def _split(value: float) -> tuple[float | None, str]:
     return (value, "") if math.isfinite(value) else (None, repr(value))
 
 
-def _measurement_rows(unit_id: int, unit: UnitRecord, lot_id: int | None) -> list[dict]:
-    """The unit's measurement rows (one dict of ``MEASUREMENT_COLUMNS`` per measurement)."""
+def tested_at(row: dict[str, Any]) -> Any:
+    """A unit's test time, as each of its measurements carries it: its ``finished_at``, else
+    its ``started_at``, else its ``saved_at`` (from the unit's row, as given or bind-processed)."""
+    for name in ("finished_at", "started_at"):
+        if row[name] is not None:
+            return row[name]
+    return row["saved_at"]
+
+
+def _measurement_tuples(unit: UnitRecord, lot_id: int | None, tested: Any) -> list[tuple]:
+    """The unit's measurement rows as tuples of ``MEASUREMENT_COLUMNS[1:]`` (no ``unit_id``);
+    ``tested`` is the unit's :func:`tested_at`."""
     rows = []
     for seq, m in enumerate(unit.measurements):
         value, special = _split(m.value)
         frequency = DC if m.frequency is None else finite_or_none(m.frequency)
         rows.append(
-            {
-                "unit_id": unit_id,
-                "seq": seq,
-                "parameter": m.parameter,
-                "frequency": frequency,
-                "value": value,
-                "si_unit": m.unit,
-                "low_limit": finite_or_none(m.low),
-                "high_limit": finite_or_none(m.high),
-                "verdict": m.verdict,
-                "lot_id": lot_id,
-                "value_special": special,
-                "uncertainty": finite_or_none(m.uncertainty),
-                "tolerance_low": m.tolerance_low,
-                "tolerance_high": m.tolerance_high,
-            }
+            (seq, m.parameter, frequency, value, m.unit, finite_or_none(m.low))
+            + (finite_or_none(m.high), m.verdict, lot_id, special)
+            + (finite_or_none(m.uncertainty), m.tolerance_low, m.tolerance_high, tested)
         )
     return rows
+
+
+def _measurement_rows(
+    unit_id: int, unit: UnitRecord, lot_id: int | None, tested: Any
+) -> list[dict]:
+    """The unit's measurement rows (one dict of ``MEASUREMENT_COLUMNS`` per measurement)."""
+    return [
+        dict(zip(MEASUREMENT_COLUMNS, (unit_id, *row), strict=True))
+        for row in _measurement_tuples(unit, lot_id, tested)
+    ]
 
 
 def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> dict[str, int]:
@@ -114,23 +122,21 @@ def _new_unit(dialect: str, *returning: str) -> Any:
 
 
 def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool:
-    """Store ``unit`` with its measurements in one transaction; False if already stored."""
+    """Store ``unit`` with its measurements in one transaction; False if already stored.
 
-    def work(conn: Connection) -> tuple[bool, dict[str, int]]:
-        lots = _lot_ids(conn, [unit.lot], lot_cache)
-        lot_id = lots.get(unit.lot)
-        insert = _new_unit(conn.dialect.name, "id")
-        unit_id = conn.execute(insert, _unit_row(unit, lot_id)).scalar()
-        if unit_id is None:
-            return False, lots
-        if unit.measurements:
-            rows = _measurement_rows(unit_id, unit, lot_id)
-            conn.execute(TABLES["measurements"].insert(), rows)
-        return True, lots
-
-    stored, lots = db.write("saving a unit", work, idempotent=True)
-    lot_cache.update(lots)
-    return stored
+    The lot's id is looked up (or the lot made) once per store and kept in ``lot_cache``; the
+    unit itself is one statement on PostgreSQL and one round trip to the server, commit included
+    (:mod:`acquire.store.unit_insert`)."""
+    insert = insert_postgres if db.is_postgres else insert_sqlite
+    lot_id = None
+    if unit.lot:
+        if unit.lot not in lot_cache:
+            lots = db.write("recording a lot", lambda c: _lot_ids(c, [unit.lot], lot_cache), True)
+            lot_cache.update(lots)
+        lot_id = lot_cache[unit.lot]
+    head = unit_values(db.engine.dialect, _unit_row(unit, lot_id))
+    rows = _measurement_tuples(unit, lot_id, tested_at(dict(zip(UNIT_COLUMNS, head, strict=True))))
+    return db.write("saving a unit", lambda c: insert(c, head, rows) is not None, idempotent=True)
 
 
 def save_units(
@@ -145,9 +151,9 @@ def save_units(
         new = {a: i for i, a in conn.execute(insert, heads)}
         rows = [
             r
-            for u in chunk
+            for u, head in zip(chunk, heads, strict=True)
             if u.attempt_id in new
-            for r in _measurement_rows(new[u.attempt_id], u, lots.get(u.lot))
+            for r in _measurement_rows(new[u.attempt_id], u, lots.get(u.lot), tested_at(head))
         ]
         if rows:
             conn.execute(TABLES["measurements"].insert(), rows)

@@ -13,8 +13,11 @@ Values are in SI units (hertz, ohm, henry, ...; ``measurements.si_unit`` names t
 value). Times are UTC. In sweep and reference points an invalid reading (NaN) is NULL and an
 overrange one infinity. A measurement's ``value`` is finite or NULL: ``value_special`` is "" for
 a finite value, else "nan", "inf" or "-inf" (so SQL averages need no filtering); a DC value has
-``frequency`` 0. Each measurement row also carries its unit's ``lot_id``, so lot statistics read
-one index (``ix_measurements_lot_summary``) instead of joining every unit.
+``frequency`` 0. Each measurement row also carries its unit's ``lot_id`` and test time
+(``tested_at``: the unit's ``finished_at``, else ``started_at``, else ``saved_at``), so a lot's
+statistics, moving ranges in test order included, read one index (``ix_measurements_lot_order``:
+lot, quantity, finite or not, test time, unit, sequence number, then value, verdict and limits)
+in its own order instead of joining and sorting every unit.
 Names that identify a record (a meter's identity, a fixture's or lot's name, a serial number)
 may be of any length; their uniqueness and look-ups go through a SHA-256 ``key`` column.
 
@@ -54,8 +57,9 @@ Revisions: the layout is changed only by Alembic migrations (:mod:`acquire.store
 this module describes the newest revision, :data:`SCHEMA_REVISION`. Revision 0001 is the layout
 of the first released program (which marked its stores with ``schema_version`` 2); 0002 adds the
 uncertainty and flag columns above; 0003 the production columns (uncertainty, tolerance limits,
-references override, temperature); 0005 the bias sweeps, temperature-rise runs and a
-measurement's bias current. ``schema_version`` is kept only so that releases from before
+references override, temperature); 0004 the measurements' test time and the test-order index;
+0005 the bias sweeps, temperature-rise runs and a measurement's bias current.
+``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
 
@@ -301,15 +305,24 @@ def build_metadata() -> MetaData:
         _real("uncertainty"),
         _real("tolerance_low"),
         _real("tolerance_high"),
+        Column("tested_at", UtcDateTime, nullable=True),
         _real("bias_current"),
         Index(
-            "ix_measurements_lot_summary",
+            "ix_measurements_lot_order",
             "lot_id",
             "parameter",
             "frequency",
             "si_unit",
+            "value_special",
+            "tested_at",
+            "unit_id",
+            "seq",
             "value",
             "verdict",
+            "low_limit",
+            "high_limit",
+            "tolerance_low",
+            "tolerance_high",
         ),
         sqlite_with_rowid=False,
     )

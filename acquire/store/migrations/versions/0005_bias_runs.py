@@ -22,7 +22,7 @@ from alembic import op
 from acquire.store.schema import UtcDateTime
 
 revision = "0005"
-down_revision = "0003"
+down_revision = "0004"
 branch_labels = None
 depends_on = None
 

@@ -1,0 +1,112 @@
+"""Per quantity numbers of a selection of units, read from the test-order index.
+
+One grouped query counts each quantity's measurements, finite values and passes and gives the
+smallest, largest and number of each stated limit. Then, per quantity, the finite values are
+read in test order (the unit's test time, then the unit's row id, then the measurement's
+sequence number), which is the order of ``ix_measurements_lot_order``: no sort, no look-up of
+the table. Mean, the sum of squared deviations from that mean (a second pass over the values, so
+a large mean does not eat the digits of a small spread), extremes and moving ranges are worked
+out with numpy on those values. An invalid reading is skipped, so the moving ranges join the
+finite values on either side of it. Units tested at the same time keep the order they were
+stored in (row id).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+from sqlalchemy import Connection, and_, case, func, select, true
+
+from acquire.store.engine import Database
+from acquire.store.lot_query import LotFilter, _conditions
+from acquire.store.records import PASS
+from acquire.store.schema import TABLES
+
+#: The limit columns, as :attr:`QuantityRow.limits` names them.
+LIMIT_COLUMNS = ("low_limit", "high_limit", "tolerance_low", "tolerance_high")
+
+
+@dataclass(frozen=True)
+class QuantityRow:
+    """One quantity (``parameter``, ``frequency`` (0 for DC), ``si_unit``) of a selection:
+    ``count`` measurements, ``valid`` finite, ``passed`` with verdict "pass"; over the finite
+    values ``mean``, ``ss`` (sum of squared deviations from the mean), ``min``, ``max`` (None
+    with none), ``mr_sum`` and ``mr_count`` (moving ranges in test order); ``limits``: per limit
+    column (smallest, largest, how many stated)."""
+
+    parameter: str
+    frequency: float
+    si_unit: str
+    count: int
+    valid: int
+    passed: int
+    mean: float | None
+    ss: float | None
+    min: float | None
+    max: float | None
+    mr_sum: float
+    mr_count: int
+    limits: dict[str, tuple[float | None, float | None, int]]
+
+
+def _source(conn: Connection, chosen: LotFilter) -> tuple[Any, list[Any]]:
+    """(FROM clause, WHERE terms): the measurements alone when only a lot is chosen."""
+    u, m = TABLES["units"], TABLES["measurements"]
+    terms = _conditions(conn, chosen, measurements=True)
+    only_lot = all(getattr(chosen, n) is None for n in ("since", "until", "station", "plan_hash"))
+    return (m if only_lot else m.join(u, u.c.id == m.c.unit_id)), terms
+
+
+def quantity_rows(db: Database, chosen: LotFilter) -> list[QuantityRow]:
+    """Per (parameter, frequency, unit) of the chosen units' measurements (every attempt), as
+    :class:`QuantityRow`, ordered by parameter, frequency, unit."""
+    import numpy as np
+
+    m = TABLES["measurements"]
+    keys = (m.c.parameter, m.c.frequency, m.c.si_unit)
+    spans = [f(m.c[n]) for n in LIMIT_COLUMNS for f in (func.min, func.max, func.count)]
+
+    def work(conn: Connection) -> list[QuantityRow]:
+        source, terms = _source(conn, chosen)
+        grouped = (
+            select(
+                *keys,
+                func.count(),
+                func.count(m.c.value),
+                func.count(case((m.c.verdict == PASS, 1))),
+                *spans,
+            )
+            .select_from(source)
+            .where(and_(true(), *terms))
+            .group_by(*keys)
+            .order_by(*keys)
+        )
+        out = []
+        for row in conn.execute(grouped).all():
+            p, f, unit, count, valid, passed = row[:6]
+            values = (
+                select(m.c.value)
+                .select_from(source)
+                .where(and_(true(), *terms))
+                .where(m.c.parameter == p, m.c.frequency == f, m.c.si_unit == unit)
+                .where(m.c.value_special == "", m.c.value.is_not(None))
+                .order_by(m.c.tested_at, m.c.unit_id, m.c.seq)
+            )
+            x = np.array(conn.execute(values).scalars().all(), dtype=float)
+            mean = float(x.mean()) if x.size else None
+            ss = float(np.sum((x - mean) ** 2)) if mean is not None else None
+            ranges = np.abs(np.diff(x))
+            limits = {
+                name: tuple(row[6 + 3 * k : 9 + 3 * k]) for k, name in enumerate(LIMIT_COLUMNS)
+            }
+            out.append(
+                QuantityRow(
+                    p, f, unit, int(count), int(valid), int(passed), mean, ss,
+                    float(x.min()) if x.size else None, float(x.max()) if x.size else None,
+                    float(ranges.sum()), int(ranges.size), limits,
+                )
+            )  # fmt: skip
+        return out
+
+    return db.read("summarising units", work)

@@ -1,0 +1,127 @@
+"""The SQL that stores one production unit, prepared once per database kind.
+
+A unit is one transaction: its row and all its measurements, or nothing; a unit whose attempt id
+is already stored is skipped (``ON CONFLICT (attempt_id) DO NOTHING``), so a repeated write stores
+it once.
+
+- PostgreSQL: one statement, sent once. A data-modifying common table expression inserts the
+  unit and returns its id, and a second one inserts the measurements from ``unnest`` of arrays
+  given as parameters (one array per column). The statement runs in autocommit, so the
+  statement's own implicit transaction is the unit's transaction and its commit: one round trip
+  to the server a unit.
+- SQLite: the unit's INSERT ... RETURNING and one ``executemany`` of its measurements, inside the
+  store's ``BEGIN IMMEDIATE`` transaction; the SQL text is written once and handed straight to
+  the driver (nothing compiled per unit).
+
+Both are plain SQL given to ``Connection.exec_driver_sql``: the parameters are prepared here with
+the columns' own SQLAlchemy bind processing (timezone-aware times to UTC), so the rows stored are
+the same as an INSERT built with SQLAlchemy Core would store.
+"""
+
+from __future__ import annotations
+
+from functools import cache
+from typing import Any
+
+from sqlalchemy import Connection
+
+from acquire.store.schema import TABLES
+
+#: The unit columns written (``id`` is given by the database).
+UNIT_COLUMNS = tuple(c.name for c in TABLES["units"].columns if c.name != "id")
+#: The measurement columns written, in the table's order (``unit_id`` first).
+MEASUREMENT_COLUMNS = tuple(c.name for c in TABLES["measurements"].columns)
+
+_PG_ARRAY_TYPES = {
+    "seq": "integer[]",
+    "lot_id": "integer[]",
+    "parameter": "text[]",
+    "si_unit": "text[]",
+    "verdict": "text[]",
+    "value_special": "text[]",
+    "tested_at": "timestamptz[]",
+}
+
+
+@cache
+def _unit_processors(dialect: Any) -> tuple[Any, ...]:
+    units = TABLES["units"]
+    return tuple(units.c[name].type.bind_processor(dialect) for name in UNIT_COLUMNS)
+
+
+def unit_values(dialect: Any, row: dict[str, Any]) -> list[Any]:
+    """``row`` (a unit's columns) as the driver's parameters, in :data:`UNIT_COLUMNS` order."""
+    out = []
+    for name, process in zip(UNIT_COLUMNS, _unit_processors(dialect), strict=True):
+        value = row[name]
+        out.append(process(value) if process is not None and value is not None else value)
+    return out
+
+
+@cache
+def sqlite_sql() -> tuple[str, str]:
+    """(unit INSERT returning its id, measurement INSERT) for SQLite, qmark style."""
+    unit = (
+        f"INSERT INTO units ({', '.join(UNIT_COLUMNS)}) "
+        f"VALUES ({', '.join('?' * len(UNIT_COLUMNS))}) "
+        "ON CONFLICT (attempt_id) DO NOTHING RETURNING id"
+    )
+    measurement = (
+        f"INSERT INTO measurements ({', '.join(MEASUREMENT_COLUMNS)}) "
+        f"VALUES ({', '.join('?' * len(MEASUREMENT_COLUMNS))})"
+    )
+    return unit, measurement
+
+
+@cache
+def postgres_sql() -> str:
+    """The one statement storing a unit and its measurements on PostgreSQL (pyformat style):
+    unit columns as ``%(u_<column>)s``, measurement columns as arrays ``%(m_<column>)s``."""
+    rest = MEASUREMENT_COLUMNS[1:]
+    arrays = ", ".join(
+        f"%(m_{name})s::{_PG_ARRAY_TYPES.get(name, 'double precision[]')}" for name in rest
+    )
+    return (
+        "WITH new_unit AS ("
+        f"INSERT INTO units ({', '.join(UNIT_COLUMNS)}) "
+        f"VALUES ({', '.join(f'%(u_{name})s' for name in UNIT_COLUMNS)}) "
+        "ON CONFLICT (attempt_id) DO NOTHING RETURNING id), "
+        "new_measurements AS ("
+        f"INSERT INTO measurements ({', '.join(MEASUREMENT_COLUMNS)}) "
+        f"SELECT new_unit.id, {', '.join(f'm.{name}' for name in rest)} "
+        f"FROM new_unit, unnest({arrays}) AS m({', '.join(rest)})) "
+        "SELECT id FROM new_unit"
+    )
+
+
+def insert_sqlite(conn: Connection, head: list[Any], rows: list[tuple]) -> int | None:
+    """Store a unit (``head`` from :func:`unit_values`) and its measurement ``rows`` (tuples of
+    the measurement columns after ``unit_id``) in the open transaction; its id, or None when its
+    attempt id was already stored."""
+    unit_sql, measurement_sql = sqlite_sql()
+    unit_id = conn.exec_driver_sql(unit_sql, tuple(head)).scalar()
+    if unit_id is not None and rows:
+        conn.exec_driver_sql(measurement_sql, [(unit_id, *r) for r in rows])
+    return unit_id
+
+
+def insert_postgres(conn: Connection, head: list[Any], rows: list[tuple]) -> int | None:
+    """Store a unit and its measurements with one statement in autocommit (see the module
+    docstring); its id, or None when its attempt id was already stored.
+
+    ``conn`` must be inside :meth:`Database.write`, which has begun no server transaction yet
+    (psycopg sends BEGIN with a connection's first statement): the driver connection is put in
+    autocommit for this one statement and given back as it was.
+    """
+    params: dict[str, Any] = {f"u_{n}": v for n, v in zip(UNIT_COLUMNS, head, strict=True)}
+    columns = list(zip(*rows, strict=True)) if rows else [()] * (len(MEASUREMENT_COLUMNS) - 1)
+    for name, values in zip(MEASUREMENT_COLUMNS[1:], columns, strict=True):
+        params[f"m_{name}"] = list(values)
+    raw: Any = conn.connection.driver_connection
+    was = raw.autocommit
+    raw.autocommit = True
+    try:
+        return conn.exec_driver_sql(postgres_sql(), params).scalar()
+    finally:
+        if not raw.closed and raw.info.transaction_status == raw.info.transaction_status.IDLE:
+            raw.autocommit = was

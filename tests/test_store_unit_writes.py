@@ -80,3 +80,43 @@ def test_rows_match_a_core_insert(store, tmp_path):
     assert first == second
     half = len(rows) // 2
     assert [tuple(r)[1:] for r in rows[:half]] == [tuple(r)[1:] for r in rows[half:]]
+    if store.engine_name == "sqlite":
+        # The text itself, as SQLite compares it: a time stored without its microseconds sorts
+        # before the same time stored with them, and a filter `finished < T` would let it in.
+        with store.engine.connect() as conn:
+            raw = conn.exec_driver_sql(
+                "SELECT started_at, finished_at FROM units ORDER BY id"
+            ).all()
+            tested = conn.exec_driver_sql(
+                "SELECT DISTINCT tested_at FROM measurements ORDER BY unit_id"
+            ).all()
+        assert raw[0] == raw[1]
+        assert tested[0] == tested[-1]
+
+
+def test_times_on_whole_seconds_keep_the_lot_filters_exact(store):
+    """A unit finished exactly at a filter's `until` is outside it (until is exclusive)."""
+    from datetime import UTC, datetime, timedelta
+
+    from acquire.report.statistics import LotFilter, lot_statistics
+
+    end = datetime(2026, 3, 2, 8, 0, 4, tzinfo=UTC)
+    for i, finished in enumerate((end - timedelta(seconds=1), end)):
+        unit = dataclasses.replace(
+            synthetic_unit(20 + i), started_at=finished - timedelta(seconds=1),
+            finished_at=finished, lot="L-edge",
+        )  # fmt: skip
+        store.save_unit(unit)
+    assert lot_statistics(store, LotFilter(lot="L-edge", until=end)).attempts == 1
+    assert lot_statistics(store, LotFilter(lot="L-edge", since=end)).attempts == 1
+
+
+def test_a_measurements_bias_current_reads_back(store):
+    unit = synthetic_unit(3)
+    first = dataclasses.replace(unit.measurements[0], bias_current=2.5)
+    biased = dataclasses.replace(unit, measurements=(first, *unit.measurements[1:]))
+    assert store.save_unit(biased)
+    again = store.load_unit(biased.attempt_id)
+    assert again.measurements[0].bias_current == 2.5
+    assert all(m.bias_current is None for m in again.measurements[1:])
+    assert again == biased

@@ -88,6 +88,7 @@ def _measurement_tuples(unit: UnitRecord, lot_id: int | None, tested: Any) -> li
             (seq, m.parameter, frequency, value, m.unit, finite_or_none(m.low))
             + (finite_or_none(m.high), m.verdict, lot_id, special)
             + (finite_or_none(m.uncertainty), m.tolerance_low, m.tolerance_high, tested)
+            + (finite_or_none(m.bias_current),)
         )
     return rows
 
@@ -207,6 +208,7 @@ def _records(conn: Connection, where: Any) -> list[UnitRecord]:
                 uncertainty=m.uncertainty,
                 tolerance_low=m.tolerance_low,
                 tolerance_high=m.tolerance_high,
+                bias_current=m.bias_current,
             )
             found[m.unit_id].append(record)
     return [

@@ -46,7 +46,12 @@ _PG_ARRAY_TYPES = {
 @cache
 def _unit_processors(dialect: Any) -> tuple[Any, ...]:
     units = TABLES["units"]
-    return tuple(units.c[name].type.bind_processor(dialect) for name in UNIT_COLUMNS)
+    # The type adapted to the dialect: its processor chains our UtcDateTime's conversion with
+    # the dialect's own (SQLite stores times as text in SQLAlchemy's format, microseconds
+    # always written, so that times compare as text the same way whichever path stored them).
+    return tuple(
+        units.c[name].type.dialect_impl(dialect).bind_processor(dialect) for name in UNIT_COLUMNS
+    )
 
 
 def unit_values(dialect: Any, row: dict[str, Any]) -> list[Any]:

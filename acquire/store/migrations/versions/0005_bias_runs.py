@@ -11,7 +11,7 @@ The tables are written out here, frozen, rather than taken from :mod:`acquire.st
 which follows the newest revision.
 
 Revision ID: 0005
-Revises: 0003
+Revises: 0004
 """
 
 from __future__ import annotations

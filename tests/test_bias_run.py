@@ -146,7 +146,7 @@ def test_settled_rise_equals_the_windings_steady_state():
 
 
 def test_rise_search_finds_the_current_for_the_target_and_stops_at_the_maximum():
-    with running(dut="powder-choke", fixture="direct", noise=False, measure_time=0) as sim:
+    with running(dut="powder-choke", fixture="direct", noise=False, measure_time=0) as sim:  # noqa: SIM117
         with ImpedanceMeter.open(sim.resource, dialect="simulated") as meter:
             meter.session.write("SIM:WARP 2000")
             rise = RiseSettings(current=3.0, ambient=23.0, time_limit=20.0, settle_window=0.3,

@@ -77,19 +77,21 @@ def _plot(
 ) -> Text:
     low = min([*levels, float(np.nanmin(ls))]) * 0.95
     high = float(np.nanmax(ls)) * 1.02
-    labels = y_labels(draw(current, ls, 2, height, (0.0, stop), (low, high), False), "H")
+    labels = y_labels(
+        draw(current, ls, 2, height, (0.0, stop), (low, high), False, x_log=False), "H"
+    )
     plot_width = max(width - len(labels[0]) - 2, 10)
     plot = draw(current, ls, plot_width, height, (0.0, stop), (low, high), False, x_log=False)
     rows = [list(r) for r in plot.rows]
     for level in levels:
         dot = (high - level) / (high - low) * (4 * height - 1)
-        row = int(round(dot)) // 4
-        if 0 <= row < height:
-            rows[row] = [LEVEL_MARK if c == " " else c for c in rows[row]]
+        at = int(round(dot)) // 4
+        if 0 <= at < height:
+            rows[at] = [LEVEL_MARK if c == " " else c for c in rows[at]]
     text = Text(no_wrap=True)
-    for label, row in zip(labels, rows, strict=True):
+    for label, cells in zip(labels, rows, strict=True):
         text.append(f"{label} │", style="dim")
-        text.append("".join(row), style="cyan")
+        text.append("".join(cells), style="cyan")
         text.append("\n")
     axis = f"0 A{'':{max(plot_width - 8, 1)}}{stop:.3g} A"
     text.append(" " * (len(labels[0]) + 2) + axis, style="dim")

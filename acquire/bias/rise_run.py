@@ -166,7 +166,8 @@ def _search(
     target = settings.target_rise
     for _ in range(SEARCH_TRIES if target is not None else 1):
         run.current = current
-        held.go(current)
+        with signals.held():  # a stop waits for the ramp's replies (see acquire.bias.sweep_run)
+            held.go(current)
         rise = _hold(meter, settings, run, current, interval, writer, on_reading, clock, sleep)
         run.steps.append((current, rise))
         if not run.settled:
@@ -184,7 +185,9 @@ def _search(
             )
             return
         current = min(current_for_rise(current, max(rise, 1e-6), target), maximum)
-    run.note = f"no current found within {rise_tolerance:g} K of {target:g} K in {SEARCH_TRIES} tries"
+    run.note = (
+        f"no current found within {rise_tolerance:g} K of {target:g} K in {SEARCH_TRIES} tries"
+    )
 
 
 def _hold(
@@ -205,7 +208,8 @@ def _hold(
     rises: list[float] = []
     run.settled = False
     while True:
-        r = float(meter.dc_resistance())
+        with signals.held():
+            r = float(meter.dc_resistance())
         t = clock() - run.t0
         rise = float(temperature_rise(r, run.r_cold, settings.ambient, settings.ambient))
         run.times.append(t)

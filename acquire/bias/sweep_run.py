@@ -11,6 +11,8 @@ current is interpolated at each drop (:func:`acquire.bias.saturation.drop_curren
 Whatever ends the sweep (its end, Ctrl-C, SIGTERM through :mod:`acquire.signals`, a meter fault,
 any error) the bias is ramped to zero and switched off before the function returns, and the
 completed points are kept: the result is marked interrupted and the writer finished with them.
+A stop signal that arrives while a step talks to the instruments takes effect when the step's
+replies are in (:func:`acquire.signals.held`), so no exchange is cut in half.
 """
 
 from __future__ import annotations
@@ -110,8 +112,11 @@ def sweep_bias(
     try:
         with energised(supply, settings.maximum, settings.step, settings.dwell) as held:
             for i, amps in enumerate(currents):
-                applied = float(supply.applied()) if amps == 0 else held.go(float(amps))
-                point = _measure(meter, settings.frequency, references, repeats)
+                # A stop that comes mid-exchange waits for the step's replies: cutting a reply
+                # short would leave the connection out of step, to be closed with bias flowing.
+                with signals.held():
+                    applied = float(supply.applied()) if amps == 0 else held.go(float(amps))
+                    point = _measure(meter, settings.frequency, references, repeats)
                 done = BiasPoint(i, currents.size, float(amps), applied, *point)
                 points.append(done)
                 if writer is not None:

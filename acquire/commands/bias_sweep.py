@@ -107,7 +107,7 @@ def run(args: argparse.Namespace) -> int:
     from acquire.display import text_console
     from acquire.errors import InputError
     from acquire.store import open_store
-    from acquire.units import parse_list, parse_quantity
+    from acquire.units import parse_quantity
     from drivers.meter import ImpedanceMeter
 
     frequency = parse_quantity(args.frequency, "Hz")
@@ -126,7 +126,9 @@ def run(args: argparse.Namespace) -> int:
 
             ref_id, refs = find_reference_set(store, args.reference)
             usable_reference(refs, ref_id)
-        with ImpedanceMeter.open(args.resource, dialect=args.dialect, backend=args.backend) as meter:
+        with ImpedanceMeter.open(
+            args.resource, dialect=args.dialect, backend=args.backend
+        ) as meter:
             identity = str(meter.identify())
             with bias_supply(args, meter) as (supply, supply_name):
                 maximum = allowed_maximum(asked_max, supply, float(currents[-1]))

@@ -80,7 +80,9 @@ def parse_kelvin(text: str, option: str) -> float:
     try:
         return parse_quantity(body)
     except InputError:
-        raise InputError(f"{option} {text!r} is not a temperature difference: write e.g. 40K")
+        raise InputError(
+            f"{option} {text!r} is not a temperature difference: write e.g. 40K"
+        ) from None
 
 
 def run(args: argparse.Namespace) -> int:
@@ -114,8 +116,10 @@ def run(args: argparse.Namespace) -> int:
     out = sys.stderr if args.json else sys.stdout
     from drivers.meter import ImpedanceMeter
 
-    with open_store(args.store) as store:
-        with ImpedanceMeter.open(args.resource, dialect=args.dialect, backend=args.backend) as meter:
+    with open_store(args.store) as store:  # noqa: SIM117
+        with ImpedanceMeter.open(
+            args.resource, dialect=args.dialect, backend=args.backend
+        ) as meter:
             identity = str(meter.identify())
             with bias_supply(args, meter) as (supply, supply_name):
                 maximum = allowed_maximum(asked_max, supply, current)
@@ -170,7 +174,9 @@ def summary_lines(result: Any) -> list[str]:
         tried = ", ".join(f"{i:.3g} A -> {r:.1f} K" for i, r in result.steps)
         lines.append(f"currents tried: {tried}")
         if not result.note and result.status == "complete":
-            lines.append(f"temperature-rise current for {s.target_rise:g} K: {result.current:.3g} A")
+            lines.append(
+                f"temperature-rise current for {s.target_rise:g} K: {result.current:.3g} A"
+            )
     lines.append(f"status: {result.status}" + (f" ({result.note})" if result.note else ""))
     return lines
 

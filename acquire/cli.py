@@ -35,6 +35,8 @@ COMMANDS: dict[str, str] = {
     "fit": "fit",
     "plan": "plan",
     "station": "station",
+    "bias-sweep": "bias_sweep",
+    "temperature-rise": "temperature_rise",
     "lot": "lot",
     "report": "report",
 }

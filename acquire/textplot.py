@@ -77,8 +77,10 @@ def draw(
     y_log: bool | None = None,
     markers: tuple[float, ...] = (),
     links: np.ndarray | None = None,
+    x_log: bool = True,
 ) -> Plot:
-    """Draw ``y`` against ``x`` (log x axis over ``x_range``) into ``width`` x ``height`` cells.
+    """Draw ``y`` against ``x`` (log x axis over ``x_range``, linear with ``x_log=False``) into
+    ``width`` x ``height`` cells.
 
     ``markers`` are x values marked with a dotted vertical line (for example a self-resonance).
     Values beyond the y range are drawn on its edge. ``links`` says for each point but the last
@@ -92,11 +94,12 @@ def draw(
     if y_range is None:
         y_range = y_limits(y, y_log) or (0.0, 1.0)
     grid = np.zeros((height, width), dtype=np.uint8)
-    lx0, lx1 = math.log10(x_range[0]), math.log10(x_range[1])
+    xs = math.log10 if x_log else float
+    lx0, lx1 = xs(x_range[0]), xs(x_range[1])
     if lx1 <= lx0:
         lx1 = lx0 + 1.0
     with np.errstate(divide="ignore", invalid="ignore"):
-        lx = np.log10(x)
+        lx = np.log10(x) if x_log else x.copy()
         ly = np.log10(y) if y_log else y.copy()
     y0, y1 = (math.log10(v) for v in y_range) if y_log else y_range
     ok = np.isfinite(lx) & np.isfinite(ly)
@@ -111,8 +114,8 @@ def draw(
     rows = _GLYPHS[grid]
     columns = []
     for m in markers:
-        if m and m > 0 and math.isfinite(m):
-            col = int(round((math.log10(m) - lx0) / (lx1 - lx0) * (2 * width - 1))) // 2
+        if m and (m > 0 or not x_log) and math.isfinite(m):
+            col = int(round((xs(m) - lx0) / (lx1 - lx0) * (2 * width - 1))) // 2
             if 0 <= col < width:
                 column = rows[:, col]
                 column[grid[:, col] == 0] = MARKER

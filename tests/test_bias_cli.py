@@ -55,6 +55,45 @@ def test_bias_sweep_prints_each_drop_current(tmp_path, capsys):
     assert "interpolated linearly" in out and "status: complete" in out
 
 
+def test_a_bias_sweep_is_stored_and_found_again(tmp_path, capsys):
+    store = f"sqlite:///{tmp_path / 'b.db'}"
+    csv_now, png_now = tmp_path / "now.csv", tmp_path / "now.png"
+    with running(dut="ferrite-power-choke", fixture="direct", noise=False, measure_time=0) as sim:
+        code = main(["bias-sweep", "--resource", sim.resource, "--store", store, "--stop", "6A",
+                     "--points", "13", "--frequency", "10kHz", "--dwell", "0s", "--no-live",
+                     "--dut", "[bold]choke 7", "--csv", str(csv_now), "--picture",
+                     str(png_now)])  # fmt: skip
+    assert code == 0
+    out = capsys.readouterr().out
+    assert "stored as bias sweep 1" in out
+    assert main(["bias-sweep", "list", "--store", store]) == 0
+    listed = capsys.readouterr().out
+    assert "[bold]choke 7" in listed and "complete" in listed
+    assert main(["bias-sweep", "show", "1", "--store", store]) == 0
+    assert "[bold]choke 7" in capsys.readouterr().out
+    later = tmp_path / "later.csv"
+    assert main(["bias-sweep", "export", "1", "--csv", str(later), "--store", store]) == 0
+    import pandas as pd
+
+    at_end = pd.read_csv(csv_now, comment="#")
+    again = pd.read_csv(later, comment="#")
+    pd.testing.assert_frame_equal(at_end, again)
+    assert len(again) == 13 and "Ls [H]" in again.columns
+    assert png_now.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
+    # the store's own file is never an output, and nothing was measured when refused
+    code = main(["bias-sweep", "--resource", "TCPIP0::127.0.0.1::9::SOCKET", "--store", store,
+                 "--stop", "6A", "--csv", str(tmp_path / "b.db")])  # fmt: skip
+    assert code == 2
+    assert "store" in capsys.readouterr().err
+
+
+def test_measuring_needs_a_resource_or_an_action(capsys):
+    assert main(["bias-sweep", "--stop", "6A"]) == 2
+    assert "action first: acquire bias-sweep list" in capsys.readouterr().err
+    assert main(["temperature-rise", "--resource", "TCPIP0::127.0.0.1::9::SOCKET"]) == 2
+    assert "measuring needs --current" in capsys.readouterr().err
+
+
 def test_sigterm_mid_sweep_ramps_the_bias_to_zero_and_keeps_the_points(tmp_path):
     with running(dut="ferrite-power-choke", fixture="direct", noise=False, measure_time=0) as sim:
         env = {k: v for k, v in os.environ.items() if not k.startswith("ACQUIRE_")}

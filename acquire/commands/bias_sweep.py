@@ -40,11 +40,13 @@ HELP = "step a choke through DC bias currents, Ls live, and find its saturation 
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    add_resource(parser, required=True)
+    from acquire.commands.bias_store import add_actions
+
+    add_resource(parser, required=False)
     add_dialect(parser)
     add_store(parser)
     parser.add_argument("--start", default="0A", help="lowest bias current (default 0A)")
-    parser.add_argument("--stop", required=True, help="highest bias current, e.g. 6A")
+    parser.add_argument("--stop", help="highest bias current, e.g. 6A (needed to measure)")
     parser.add_argument(
         "--points", type=int, default=25, help="bias steps from --start to --stop (default 25)"
     )
@@ -68,6 +70,54 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     parser.add_argument(
         "--no-live", action="store_true", help="print a plain line per step, not the live view"
     )
+    add_outputs(parser, "Ls and Q against the bias current")
+    add_actions(parser)
+
+
+def add_outputs(parser: argparse.ArgumentParser, picture: str) -> None:
+    """--csv and --picture: the run written to files at its end (both commands)."""
+    parser.add_argument("--csv", metavar="FILE", help="also write the run as CSV at its end")
+    parser.add_argument("--picture", metavar="FILE.png", help=f"also draw it as a PNG: {picture}")
+
+
+def measuring_needs(args: argparse.Namespace, command: str, *required: str) -> None:
+    """Refuse to measure without a resource or a required option, saying what to give."""
+    from acquire.errors import InputError
+
+    if not args.resource:
+        raise InputError(
+            "measuring needs --resource (or ACQUIRE_RESOURCE); to read stored runs give an "
+            f"action first: acquire {command} list, show ID or export ID"
+        )
+    for name in required:
+        if getattr(args, name.lstrip("-").replace("-", "_")) is None:
+            raise InputError(f"measuring needs {name}")
+
+
+def check_outputs(args: argparse.Namespace, store: Any) -> None:
+    """Refuse a --csv or --picture path before measuring (never the store's own file)."""
+    from acquire.destination import check_destination
+
+    if args.csv:
+        check_destination(args.csv, store, "--csv")
+    if args.picture:
+        check_destination(args.picture, store, "--picture")
+
+
+def write_outputs(args: argparse.Namespace, result: Any, bias: bool, out: Any) -> None:
+    """Write the run to the --csv and --picture files asked for, saying where."""
+    from pathlib import Path
+
+    from acquire.report import bias_export, bias_pictures
+
+    if args.csv:
+        write = bias_export.write_bias_csv if bias else bias_export.write_rise_csv
+        print(f"CSV written to {write(result, args.csv)}", file=out)
+    if args.picture:
+        draw = bias_pictures.bias_png if bias else bias_pictures.rise_png
+        path = Path(args.picture)
+        path.write_bytes(draw(result))
+        print(f"picture written to {path}", file=out)
 
 
 def add_bias_arguments(parser: argparse.ArgumentParser) -> None:
@@ -101,6 +151,11 @@ def add_bias_arguments(parser: argparse.ArgumentParser) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    if getattr(args, "action", None):
+        from acquire.commands.bias_store import run_action
+
+        return run_action(args)
+    measuring_needs(args, "bias-sweep", "--stop")
     from acquire.bias.live import BiasProgress, open_bias_view
     from acquire.bias.records import BiasSettings
     from acquire.bias.sweep_run import bias_currents, sweep_bias
@@ -120,6 +175,7 @@ def run(args: argparse.Namespace) -> int:
     console = text_console()
     out = sys.stderr if args.json else sys.stdout
     with open_store(args.store) as store:
+        check_outputs(args, store)
         refs, ref_id = None, None
         if args.reference:
             from acquire.sweep_setup import find_reference_set, usable_reference
@@ -156,6 +212,8 @@ def run(args: argparse.Namespace) -> int:
     else:
         for line in summary_lines(result):
             print(line)
+    print(f"stored as bias sweep {writer.id} in {store.url}", file=out)
+    write_outputs(args, result, True, out)
     return ending(outcome.error, "bias-sweep", f"{result.curve.ls.size} points kept")
 
 
@@ -277,9 +335,8 @@ def check_energy(
 
 
 def begin_writer(store: Any, settings: Any) -> Any:
-    """The store's writer for this bias sweep, where the store keeps bias sweeps."""
-    begin = getattr(store, "begin_bias_sweep", None)
-    return None if begin is None else begin(settings)
+    """The store's writer for this bias sweep (each point stored as it is measured)."""
+    return store.begin_bias_sweep(settings)
 
 
 def title(settings: Any, corrected: bool) -> str:

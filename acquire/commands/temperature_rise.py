@@ -28,21 +28,23 @@ import argparse
 import sys
 from typing import Any
 
-from acquire.commands.bias_sweep import add_bias_arguments
+from acquire.commands.bias_sweep import add_bias_arguments, add_outputs
 from acquire.commands.options import add_dialect, add_resource, add_store
 
 HELP = "hold a DC current through a winding and measure its temperature rise; --rise finds it"
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:
-    add_resource(parser, required=True)
+    from acquire.commands.bias_store import add_rise_actions
+
+    add_resource(parser, required=False)
     add_dialect(parser)
     add_store(parser)
     parser.add_argument(
-        "--current", required=True, help="current to hold (with --rise: the first tried), e.g. 3A"
+        "--current", help="current to hold (with --rise: the first tried), e.g. 3A (needed)"
     )
     parser.add_argument(
-        "--ambient", required=True, help="ambient temperature, °C (the winding's when cold)"
+        "--ambient", help="ambient temperature, °C (the winding's when cold; needed)"
     )
     parser.add_argument("--rise", help="search the current giving this rise, e.g. 40K")
     parser.add_argument(
@@ -68,6 +70,8 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_bias_arguments(parser)
     parser.add_argument("--dut", default="", help="name or serial of the part measured")
     parser.add_argument("--json", action="store_true", help="print the result as JSON")
+    add_outputs(parser, "the rise against time")
+    add_rise_actions(parser)
 
 
 def parse_kelvin(text: str, option: str) -> float:
@@ -86,6 +90,13 @@ def parse_kelvin(text: str, option: str) -> float:
 
 
 def run(args: argparse.Namespace) -> int:
+    if getattr(args, "action", None):
+        from acquire.commands.bias_store import run_action
+
+        return run_action(args)
+    from acquire.commands.bias_sweep import measuring_needs
+
+    measuring_needs(args, "temperature-rise", "--current", "--ambient")
     from acquire.bias.records import RiseSettings
     from acquire.bias.rise_run import measure_rise
     from acquire.commands.bias_sweep import (
@@ -93,7 +104,9 @@ def run(args: argparse.Namespace) -> int:
         bias_options,
         bias_supply,
         check_energy,
+        check_outputs,
         ending,
+        write_outputs,
         zero_bias_inductance,
     )
     from acquire.errors import InputError
@@ -117,6 +130,7 @@ def run(args: argparse.Namespace) -> int:
     from drivers.meter import ImpedanceMeter
 
     with open_store(args.store) as store:  # noqa: SIM117
+        check_outputs(args, store)
         with ImpedanceMeter.open(
             args.resource, dialect=args.dialect, backend=args.backend
         ) as meter:
@@ -151,14 +165,15 @@ def run(args: argparse.Namespace) -> int:
     else:
         for line in summary_lines(result):
             print(line)
+    print(f"stored as temperature-rise run {writer.id} in {store.url}", file=out)
+    write_outputs(args, result, False, out)
     code = ending(outcome.error, "temperature-rise", f"{result.times.size} readings kept")
     return 1 if code == 0 and result.note else code
 
 
 def begin_writer(store: Any, settings: Any) -> Any:
-    """The store's writer for this run, where the store keeps temperature-rise runs."""
-    begin = getattr(store, "begin_rise_run", None)
-    return None if begin is None else begin(settings)
+    """The store's writer for this run (each reading stored as it is taken)."""
+    return store.begin_rise_run(settings)
 
 
 def summary_lines(result: Any) -> list[str]:

@@ -16,6 +16,11 @@ A batch is safe to send again: when the store committed a batch but its answer w
 network cut at the wrong moment), the next ``add_points`` starting at the same point stores only
 the points the store does not hold yet, so a writer that keeps points in memory and retries
 (:mod:`acquire.sweep_saving`) never stores a point twice.
+
+A batch is two statements in its transaction in the usual case: one update of the sweep's row
+(its point count and the writer's heartbeat, only while it runs and holds exactly the points
+the writer counts) and the points' ``executemany``; any other case is looked at with a locked
+read of the row first.
 """
 
 from __future__ import annotations
@@ -30,7 +35,7 @@ from types import TracebackType
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from sqlalchemy import Connection, func, select, update
+from sqlalchemy import Connection, Update, bindparam, func, select, update
 
 from acquire.errors import StoreError
 from acquire.store.abandoned import close_dead_writers as close_dead_writers
@@ -160,8 +165,13 @@ class SweepWriter:
         rows = list(zip(repeat(self._id), range(start, start + count), *columns, strict=False))
         sweeps = TABLES["sweeps"]
         held = select(sweeps.c.points).where(sweeps.c.id == self._id, sweeps.c.status == "running")
+        where = {"sweep": self._id, "start": start}
 
         def work(conn: Connection) -> int:
+            now = utc_now()
+            if conn.execute(_advance(), {**where, "end": start + count, "now": now}).rowcount:
+                conn.exec_driver_sql(_insert_text(conn.dialect.paramstyle), rows)
+                return start + count
             have = conn.execute(held.with_for_update()).scalar_one_or_none()
             if have is None:
                 raise SweepNotRunning(
@@ -177,7 +187,7 @@ class SweepWriter:
             bump = (
                 update(sweeps)
                 .where(sweeps.c.id == self._id)
-                .values(points=have + len(new), last_write_at=utc_now())
+                .values(points=have + len(new), last_write_at=now)
             )
             conn.execute(bump)
             if new:
@@ -227,6 +237,24 @@ class SweepWriter:
             name = type(exc).__name__
             reason = f"{name}: {exc}" if str(exc) else name
             self.finish("interrupted", note=f"stopped by {reason}")
+
+
+@cache
+def _advance() -> Update:
+    """The sweep row's update of a batch in the usual case: the store holds exactly the points
+    this writer counts and the sweep still runs. It moves the count and the writer's heartbeat
+    in one statement, built once; when it changes no row, the batch takes the careful way (a
+    batch sent again, or a sweep no longer running)."""
+    sweeps = TABLES["sweeps"]
+    return (
+        update(sweeps)
+        .where(
+            sweeps.c.id == bindparam("sweep"),
+            sweeps.c.status == "running",
+            sweeps.c.points == bindparam("start"),
+        )
+        .values(points=bindparam("end"), last_write_at=bindparam("now"))
+    )
 
 
 #: The columns of a sweep point row, in the order :meth:`SweepWriter.add_points` sends them.

@@ -3,12 +3,19 @@
 One :class:`Instrument` stands for one physical meter: every client sees the same settings, DUT
 and measurement, as on a bench. Each connected client has a :class:`Session` with its own error
 queue and status registers. Everything here runs on the server's event loop; a measurement is an
-asyncio task that sleeps for its duration, so other clients are served meanwhile.
+asyncio task, so other clients are served meanwhile.
+
+A measurement's duration is its whole time, as a real meter's measuring time is: the reading is
+computed first and the task sleeps only the rest of the duration (never less than nothing), so
+the simulator's own arithmetic does not add to the time a client waits. The reading's draws are
+counted only when the measurement completes, so an aborted one leaves the noise stream as it was.
 """
 
 from __future__ import annotations
 
 import asyncio
+import time
+from collections.abc import Awaitable, Callable
 from pathlib import Path
 
 import numpy as np
@@ -74,6 +81,10 @@ class Instrument:
         self.last: Reading | None = None
         self.task: asyncio.Task | None = None
         self.armed = False
+        #: The clock a measurement's own computing time is read from (seconds).
+        self.clock: Callable[[], float] = time.perf_counter
+        #: How a measurement waits out the rest of its duration.
+        self.sleep: Callable[[float], Awaitable[None]] = asyncio.sleep
         self.insert(self.dut)
 
     def reseed(self, seed: int) -> None:
@@ -190,12 +201,19 @@ class Instrument:
         return self.task
 
     async def _measure(self, conditions: Conditions) -> Reading:
-        await asyncio.sleep(measurement.duration(conditions))
+        began = self.clock()
+        counter, count = self.readings, len(conditions.frequency)
         forced = self.faults.overrange(np.asarray(conditions.frequency, dtype=float))
-        normals = self.readings.draw(streams.POINTS, len(conditions.frequency))
+        normals = counter.peek(streams.POINTS, count)
         reading = measurement.read_impedance(conditions, normals, forced, self.systematic_key)
+        await self._rest(began, measurement.duration(conditions))
+        counter.count(streams.POINTS, count)
         self.last = reading
         return reading
+
+    async def _rest(self, began: float, duration: float) -> None:
+        """Sleep what is left of ``duration`` seconds since ``began`` (by :attr:`clock`)."""
+        await self.sleep(measurement.remaining(duration, self.clock() - began))
 
     def start_dc(self) -> asyncio.Task:
         """Start a DC resistance measurement (the hardware is busy until it ends)."""
@@ -205,9 +223,13 @@ class Instrument:
         return self.task
 
     async def _measure_dc(self, conditions: Conditions) -> float:
-        await asyncio.sleep(measurement.dc_time(conditions))
-        normal = float(self.readings.draw(streams.DC, 1)[0, 0])
-        return measurement.read_dc_resistance(conditions, normal)
+        began = self.clock()
+        counter = self.readings
+        normal = float(counter.peek(streams.DC, 1)[0, 0])
+        value = measurement.read_dc_resistance(conditions, normal)
+        await self._rest(began, measurement.dc_time(conditions))
+        counter.count(streams.DC, 1)
+        return value
 
     def point_time(self) -> float:
         """Seconds per point at the present frequency and settings."""

@@ -86,6 +86,11 @@ def duration(conditions: Conditions) -> float:
     return sum(point_time(conditions, f) for f in conditions.frequency)
 
 
+def remaining(duration: float, spent: float) -> float:
+    """Seconds left of a measurement of ``duration`` after ``spent`` seconds of computing it."""
+    return max(0.0, duration - spent)
+
+
 def noise_deviation(conditions: Conditions, magnitude: np.ndarray, f: np.ndarray) -> np.ndarray:
     """One-sigma noise in ohm for readings of ``magnitude`` at ``f`` under ``conditions``."""
     meter = conditions.meter

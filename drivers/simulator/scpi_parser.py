@@ -73,6 +73,8 @@ class Command:
 
 
 def _split_outside_quotes(text: str, sep: str) -> list[str]:
+    if '"' not in text and "'" not in text:
+        return text.split(sep)
     parts, current, quote = [], [], ""
     for ch in text:
         if quote:

@@ -44,6 +44,14 @@ class ReadingCounter:
 
     def draw(self, stream: int, count: int) -> np.ndarray:
         """The normal pairs of the next ``count`` readings of ``stream``; counts them."""
-        first = self._next[stream]
-        self._next[stream] = first + count
-        return normal_pairs(self.seed, stream, first, count)
+        pairs = self.peek(stream, count)
+        self.count(stream, count)
+        return pairs
+
+    def peek(self, stream: int, count: int) -> np.ndarray:
+        """The normal pairs of the next ``count`` readings of ``stream``, not yet counted."""
+        return normal_pairs(self.seed, stream, self._next[stream], count)
+
+    def count(self, stream: int, count: int) -> None:
+        """Count ``count`` readings of ``stream`` as completed (their draws were peeked)."""
+        self._next[stream] += count

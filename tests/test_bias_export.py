@@ -144,7 +144,7 @@ def test_the_rise_picture_draws_the_rise_and_the_settled_value():
     lines = {line.get_gid(): line for line in fig.axes[0].get_lines()}
     assert np.array_equal(lines["rise"].get_xdata(), result.times)
     assert np.array_equal(lines["rise"].get_ydata(), result.rise)
-    assert set(lines["final"].get_ydata()) == {result.rise[-1]}
+    assert set(lines["final"].get_ydata()) == {result.steps[-1][1]}  # the settled rise
     assert set(lines["target"].get_ydata()) == {40.0}
 
 

@@ -14,6 +14,7 @@ from acquire.bias.rated import SATURATION, TEMPERATURE_RISE, rated_current
 from acquire.bias.resistance_rise import (
     current_for_rise,
     has_settled,
+    settled_rise,
     temperature_rise,
     winding_temperature,
 )
@@ -52,6 +53,21 @@ def test_settling_needs_a_full_window_and_a_small_change():
     assert not has_settled(t[:5], rise[:5], window=60, tolerance=0.2)  # window not yet spanned
     assert not has_settled(t[:20], rise[:20], window=60, tolerance=0.2)  # still warming
     assert has_settled(t, rise, window=60, tolerance=0.2)  # 40·e^-9 ≈ 0.005 K left
+
+
+def test_settling_looks_at_the_trend_not_the_noise():
+    # A settled winding read with noise σ = 0.5 K (e.g. a low resistance near the meter's floor):
+    # the readings spread over about ±1.5 K, yet their trend over the window is flat. The trend
+    # of n readings has a standard deviation of σ·√(12/n)·(window/span) ≈ 0.5·√(12/121) = 0.16 K
+    # (least-squares slope, computed), so a 0.5 K tolerance is three of them.
+    rng = np.random.default_rng(3)
+    t = np.linspace(0, 600, 241)
+    flat = 40 + rng.normal(0, 0.5, t.size)
+    assert np.ptp(flat[t >= 300]) > 2.0  # the spread alone would never settle
+    assert has_settled(t, flat, window=300, tolerance=0.5)
+    assert settled_rise(t, flat, window=300) == pytest.approx(40, abs=0.3)
+    rising = flat + t / 120  # still warming by 2.5 K over the window
+    assert not has_settled(t, rising, window=300, tolerance=0.5)
 
 
 def test_current_for_rise_follows_the_square_law():

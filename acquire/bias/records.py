@@ -117,4 +117,8 @@ class RiseResult:
 
     @property
     def final_rise(self) -> float | None:
+        """The settled rise (the line fitted over the settle window, at its end) when the run
+        settled, else the last reading's rise; None without readings."""
+        if self.settled and self.steps:
+            return float(self.steps[-1][1])
         return float(self.rise[-1]) if self.rise.size else None

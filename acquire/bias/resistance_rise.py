@@ -44,19 +44,44 @@ def temperature_rise(
     return winding_temperature(r_hot, r_cold, t_cold, zero) - t_ambient
 
 
-def has_settled(times: np.ndarray, rises: np.ndarray, window: float, tolerance: float) -> bool:
-    """Whether the rise changed by at most ``tolerance`` (K) over the last ``window`` seconds.
+def _last_window(times: np.ndarray, rises: np.ndarray, window: float) -> tuple[np.ndarray, ...]:
+    keep = times >= times[-1] - window
+    return times[keep], rises[keep]
 
-    Needs readings spanning at least the window. A first-order warming approaches its end value
-    exponentially, so a small change over a window several times shorter than the time constant
-    is the usual sign of a settled winding (common practice, no published source).
+
+def has_settled(times: np.ndarray, rises: np.ndarray, window: float, tolerance: float) -> bool:
+    """Whether the rise's straight-line trend over the last ``window`` seconds changes it by at
+    most ``tolerance`` (K).
+
+    Needs readings spanning at least the window. The trend is the least-squares slope of the
+    readings in the window, times the window: unlike the spread of the readings (which grows
+    with their noise however still the winding is), its noise shrinks as √(12/n)·σ with n
+    readings of noise σ, so more readings in the window settle a noisy winding. A first-order
+    warming approaches its end value exponentially: a window at least as long as the part's
+    thermal time constant leaves a remaining rise of at most about the tolerance (common
+    practice, no published source).
     """
     times = np.asarray(times, dtype=float)
     rises = np.asarray(rises, dtype=float)
-    if times.size < 2 or times[-1] - times[0] < window:
+    if times.size < 3 or times[-1] - times[0] < window:
         return False
-    recent = rises[times >= times[-1] - window]
-    return bool(recent.max() - recent.min() <= tolerance)
+    t, r = _last_window(times, rises, window)
+    if t.size < 3 or np.ptp(t) == 0:
+        return False
+    slope = np.polyfit(t - t.mean(), r, 1)[0]
+    return bool(abs(slope) * window <= tolerance)
+
+
+def settled_rise(times: np.ndarray, rises: np.ndarray, window: float) -> float:
+    """The rise at the last reading, from the straight line fitted over the last ``window``
+    seconds (less noisy than the last reading alone)."""
+    times = np.asarray(times, dtype=float)
+    rises = np.asarray(rises, dtype=float)
+    t, r = _last_window(times, rises, window)
+    if t.size < 2 or np.ptp(t) == 0:
+        return float(rises[-1])
+    slope, level = np.polyfit(t - t.mean(), r, 1)
+    return float(level + slope * (t[-1] - t.mean()))
 
 
 def current_for_rise(current: float, rise: float, target: float) -> float:

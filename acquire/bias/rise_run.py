@@ -27,7 +27,12 @@ import numpy as np
 from acquire import signals
 from acquire.bias.ramp import Energised, energised
 from acquire.bias.records import COMPLETE, INTERRUPTED, RiseResult, RiseSettings
-from acquire.bias.resistance_rise import current_for_rise, has_settled, temperature_rise
+from acquire.bias.resistance_rise import (
+    current_for_rise,
+    has_settled,
+    settled_rise,
+    temperature_rise,
+)
 from acquire.bias.sweep_run import stop_note
 from acquire.errors import BiasError
 
@@ -224,7 +229,7 @@ def _hold(
         if has_settled(np.array(times), np.array(rises), settings.settle_window,
                        settings.settle_tolerance):  # fmt: skip
             run.settled = True
-            return rise
+            return settled_rise(np.array(times), np.array(rises), settings.settle_window)
         if clock() - began >= settings.time_limit:
             return rise
         sleep(interval)

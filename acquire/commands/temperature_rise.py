@@ -2,8 +2,10 @@
 
 The winding's DC resistance is read cold, with no current and the winding at the --ambient
 temperature (let the part rest at room temperature first). Then --current is held through it
-and the DC resistance is read every --interval until the rise has settled (changed by at most
---settle-tolerance over the last --settle-window) or --time-limit passes. The rise follows by
+and the DC resistance is read every --interval until the rise has settled (its straight-line
+trend over the last --settle-window changes it by at most --settle-tolerance; make the window
+at least the part's thermal time constant) or --time-limit passes. The rise reported is that
+line's value at the end, less noisy than one reading. The rise follows by
 the resistance method for copper windings: T = R/R_cold · (234.5 + T_cold) − 234.5 (IEC 60076-2,
 234.5 °C being where copper's resistance extrapolates to zero).
 
@@ -54,10 +56,10 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--interval", default="5s", help="time between resistance readings (default 5s)"
     )
     parser.add_argument(
-        "--settle-window", default="120s", help="window the rise must be steady over (120s)"
+        "--settle-window", default="300s", help="window the rise must be steady over (300s)"
     )
     parser.add_argument(
-        "--settle-tolerance", default="0.2K", help="largest change over the window (0.2K)"
+        "--settle-tolerance", default="0.5K", help="largest trend over the window (0.5K)"
     )
     parser.add_argument(
         "--time-limit", default="3600s", help="longest each current is held (default 3600s)"

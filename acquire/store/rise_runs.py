@@ -46,7 +46,8 @@ class RiseRunInfo:
     """A stored temperature-rise run without its readings (``Store.load_rise_run`` gives them).
 
     ``current`` is the current held (the one asked for while the run has not finished),
-    ``final_rise`` the last reading's rise (K, None without readings). ``status`` is as
+    ``final_rise`` the settled rise (K) when the run settled, else the last reading's (None
+    without readings). ``status`` is as
     reported: a run whose writer died is ``interrupted`` here and ``abandoned`` is True.
     """
 
@@ -205,6 +206,9 @@ class RiseWriter:
 def _info(row: Any, last_rise: float | None, now: datetime, stale_after: float) -> RiseRunInfo:
     status, note = reported(row, now, stale_after)
     held = row.held_current if row.held_current is not None else row.current_asked
+    steps = json.loads(row.steps or "[]")
+    if row.settled and steps:
+        last_rise = float(steps[-1][1])
     return RiseRunInfo(
         id=row.id,
         dut=row.dut,

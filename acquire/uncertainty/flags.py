@@ -30,13 +30,15 @@ DEFAULT_NAMES = ("Ls", "Rs", "Q")
 
 def beyond_accuracy(f, z, cov, names=DEFAULT_NAMES) -> dict[str, np.ndarray]:
     """Per quantity in ``names``, a boolean array: True where its value is beyond accuracy."""
-    values = quantities(f, z)
+    values = quantities(f, z, names)
     spread = quantity_uncertainty(f, z, cov, names)
     out = {}
     with np.errstate(invalid="ignore"):
         for name in names:
             v, u = values[name], spread[name]
-            bad = ~np.isfinite(v) | ~np.isfinite(u) | (u >= np.abs(v))
+            # "v or u not finite, or u >= |v|", in fewer steps: u = 2·√var is never -inf, so
+            # u < |v| with a finite v holds exactly when both are finite and u is below |v|
+            bad = ~((u < np.abs(v)) & np.isfinite(v))
             if name in NEVER_NEGATIVE:
                 bad |= v < -u
             out[name] = bad

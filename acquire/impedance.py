@@ -44,7 +44,7 @@ Special values (the documented rule; no warning is raised and no NaN appears any
 from __future__ import annotations
 
 from collections.abc import Callable, Iterable
-from functools import cached_property
+from typing import Any
 
 import numpy as np
 
@@ -73,6 +73,26 @@ def _arrays(f, z) -> tuple[np.ndarray, np.ndarray]:
     return f, z
 
 
+class computed_once:  # noqa: N801 (used as a decorator, like property)
+    """A method turned into an attribute computed on first use and then kept on the instance.
+
+    Like :class:`functools.cached_property` without its lock (which costs more than the small
+    array operations it guards here); for objects used by one thread only.
+    """
+
+    def __init__(self, method: Callable[[Any], Any]) -> None:
+        self._method = method
+        self._name = method.__name__
+        self.__doc__ = method.__doc__
+
+    def __get__(self, obj: Any, owner: type | None = None) -> Any:
+        if obj is None:
+            return self
+        value = self._method(obj)
+        obj.__dict__[self._name] = value
+        return value
+
+
 class _Parts:
     """What several quantities share (R, X, |Z|, where R, X or Z is zero), each computed on
     first use, so that a caller asking for a few quantities pays only for those."""
@@ -81,39 +101,39 @@ class _Parts:
         self.w = w
         self.z = z
 
-    @cached_property
+    @computed_once
     def finite(self) -> np.ndarray:
         return np.isfinite(self.z)
 
-    @cached_property
+    @computed_once
     def r(self) -> np.ndarray:
         return np.where(self.finite, self.z.real, np.nan)
 
-    @cached_property
+    @computed_once
     def x(self) -> np.ndarray:
         return np.where(self.finite, self.z.imag, np.nan)
 
-    @cached_property
+    @computed_once
     def mag(self) -> np.ndarray:
         return np.abs(self.z)
 
-    @cached_property
+    @computed_once
     def mag2(self) -> np.ndarray:
         return np.where(self.finite, self.mag * self.mag, np.nan)
 
-    @cached_property
+    @computed_once
     def r0(self) -> np.ndarray:
         return self.r == 0
 
-    @cached_property
+    @computed_once
     def x0(self) -> np.ndarray:
         return self.x == 0
 
-    @cached_property
+    @computed_once
     def short(self) -> np.ndarray:
         return self.r0 & self.x0
 
-    @cached_property
+    @computed_once
     def b(self) -> np.ndarray:
         return np.where(self.short, np.nan, 0.0 - self.x / self.mag2)
 

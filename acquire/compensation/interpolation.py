@@ -41,6 +41,7 @@ import numpy as np
 from acquire.compensation import formulas
 from acquire.compensation.findings import hz
 from acquire.errors import CompensationError
+from acquire.impedance import computed_once
 
 #: Relative distance from a grid end still taken as that end.
 END_TOLERANCE = 1e-12
@@ -63,7 +64,7 @@ class Placement:
     on_grid: bool
     upper: np.ndarray | None = None
 
-    @cached_property
+    @computed_once
     def exact_at(self) -> tuple[np.ndarray, np.ndarray] | None:
         """Positions of the placed frequencies that are grid points and those grid points'
         indices, or None where there are none (worked out once, shared by every standard)."""

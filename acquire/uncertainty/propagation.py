@@ -70,7 +70,6 @@ def as_covariance(u, shape: tuple[int, ...]) -> np.ndarray:
 
 def _k_and_partials(zo, zs, zl, zt) -> tuple[np.ndarray, dict[str, np.ndarray]]:
     """``K`` of the method the standards given imply, and its derivatives."""
-    one = np.ones_like(zo if zo is not None else zs if zs is not None else zl)
     zs0 = 0.0 if zs is None else zs
     if zl is not None:
         span = zl - zs0
@@ -86,10 +85,11 @@ def _k_and_partials(zo, zs, zl, zt) -> tuple[np.ndarray, dict[str, np.ndarray]]:
             k = zt / span
             dk = {"zt": 1.0 / span, "zl": -zt / span**2, "zs": zt / span**2}
     elif zo is not None:  # open-short, open
+        one = np.ones_like(zo)
         k = zo - zs0
         dk = {"zo": one, "zs": -one}
     else:  # short
-        k = one
+        k = np.ones_like(zs)
         dk = {}
     return k, dk
 

@@ -21,12 +21,11 @@ uncertainty is NaN or infinite; no warning is raised.
 from __future__ import annotations
 
 from collections.abc import Callable
-from functools import cached_property
 
 import numpy as np
 
 from acquire.errors import InputError
-from acquire.impedance import KEYS
+from acquire.impedance import KEYS, computed_once
 from acquire.uncertainty.propagation import COVERAGE_FACTOR
 
 
@@ -37,23 +36,23 @@ class _Shared:
     def __init__(self, w: np.ndarray, r: np.ndarray, x: np.ndarray) -> None:
         self.w, self.r, self.x = w, r, x
 
-    @cached_property
+    @computed_once
     def one(self) -> np.ndarray:
         return np.ones_like(self.r)
 
-    @cached_property
+    @computed_once
     def zero(self) -> np.ndarray:
         return np.zeros_like(self.r)
 
-    @cached_property
+    @computed_once
     def m2(self) -> np.ndarray:
         return self.r * self.r + self.x * self.x
 
-    @cached_property
+    @computed_once
     def m4(self) -> np.ndarray:
         return self.m2 * self.m2
 
-    @cached_property
+    @computed_once
     def db(self) -> tuple[np.ndarray, np.ndarray]:
         r, x, m4 = self.r, self.x, self.m4
         return (2.0 * r * x / m4, (x * x - r * r) / m4)

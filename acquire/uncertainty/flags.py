@@ -15,6 +15,9 @@ point's flag words (:data:`BEYOND_ACCURACY`).
 
 from __future__ import annotations
 
+import functools
+import operator
+
 import numpy as np
 
 from acquire.impedance import quantities
@@ -56,5 +59,6 @@ def point_flags(f, z, cov, names=DEFAULT_NAMES) -> np.ndarray:
 def flags_from(beyond: dict[str, np.ndarray], names=DEFAULT_NAMES) -> np.ndarray:
     """Per point, ``"beyond-accuracy"`` where :func:`beyond_accuracy`'s judgement ``beyond``
     marks any quantity in ``names``, else ``""``."""
-    anyone = np.logical_or.reduce([np.asarray(beyond[name], dtype=bool) for name in names])
+    marks = [np.asarray(beyond[name], dtype=bool) for name in names]
+    anyone = functools.reduce(operator.or_, marks) if marks else np.logical_or.reduce(marks)
     return np.where(anyone, BEYOND_ACCURACY, "")

@@ -43,6 +43,9 @@ Special values (the documented rule; no warning is raised and no NaN appears any
 
 from __future__ import annotations
 
+from collections.abc import Callable, Iterable
+from typing import Any
+
 import numpy as np
 
 from acquire.errors import InputError
@@ -52,7 +55,7 @@ KEYS: tuple[str, ...] = ("Ls", "Rs", "Cs", "Lp", "Rp", "Cp", "Q", "D", "Z", "the
 
 
 def _angular(f: np.ndarray) -> np.ndarray:
-    if not np.all(np.isfinite(f)) or np.any(f <= 0):
+    if not np.isfinite(f).all() or (f <= 0).any():
         raise InputError("frequencies must be finite and above 0 Hz")
     return 2.0 * np.pi * f
 
@@ -61,7 +64,8 @@ def _arrays(f, z) -> tuple[np.ndarray, np.ndarray]:
     try:
         f = np.asarray(f, dtype=float)
         z = np.asarray(z, dtype=complex)
-        f, z = np.broadcast_arrays(f, z)
+        if f.shape != z.shape:
+            f, z = np.broadcast_arrays(f, z)
     except (TypeError, ValueError) as exc:
         raise InputError(
             f"frequency and impedance must be numbers of matching shape ({exc})"
@@ -69,52 +73,135 @@ def _arrays(f, z) -> tuple[np.ndarray, np.ndarray]:
     return f, z
 
 
-def quantities(f, z) -> dict[str, np.ndarray]:
+class computed_once:  # noqa: N801 (used as a decorator, like property)
+    """A method turned into an attribute computed on first use and then kept on the instance.
+
+    Like :class:`functools.cached_property` without its lock (which costs more than the small
+    array operations it guards here); for objects used by one thread only.
+    """
+
+    def __init__(self, method: Callable[[Any], Any]) -> None:
+        self._method = method
+        self._name = method.__name__
+        self.__doc__ = method.__doc__
+
+    def __get__(self, obj: Any, owner: type | None = None) -> Any:
+        if obj is None:
+            return self
+        value = self._method(obj)
+        obj.__dict__[self._name] = value
+        return value
+
+
+class _Parts:
+    """What several quantities share (R, X, |Z|, where R, X or Z is zero), each computed on
+    first use, so that a caller asking for a few quantities pays only for those."""
+
+    def __init__(self, w: np.ndarray, z: np.ndarray) -> None:
+        self.w = w
+        self.z = z
+
+    @computed_once
+    def finite(self) -> np.ndarray:
+        return np.isfinite(self.z)
+
+    @computed_once
+    def r(self) -> np.ndarray:
+        return np.where(self.finite, self.z.real, np.nan)
+
+    @computed_once
+    def x(self) -> np.ndarray:
+        return np.where(self.finite, self.z.imag, np.nan)
+
+    @computed_once
+    def mag(self) -> np.ndarray:
+        return np.abs(self.z)
+
+    @computed_once
+    def mag2(self) -> np.ndarray:
+        return np.where(self.finite, self.mag * self.mag, np.nan)
+
+    @computed_once
+    def r0(self) -> np.ndarray:
+        return self.r == 0
+
+    @computed_once
+    def x0(self) -> np.ndarray:
+        return self.x == 0
+
+    @computed_once
+    def short(self) -> np.ndarray:
+        return self.r0 & self.x0
+
+    @computed_once
+    def b(self) -> np.ndarray:
+        return np.where(self.short, np.nan, 0.0 - self.x / self.mag2)
+
+
+def _cs(p: _Parts) -> np.ndarray:
+    return np.where(p.x0, np.inf, -1.0 / (p.w * p.x))
+
+
+def _rp(p: _Parts) -> np.ndarray:
+    return np.where(p.short, np.nan, np.where(p.r0, np.inf, p.mag2 / p.r))
+
+
+def _lp(p: _Parts) -> np.ndarray:
+    return np.where(p.short, np.nan, np.where(p.x0, np.inf, p.mag2 / (p.w * p.x)))
+
+
+def _q(p: _Parts) -> np.ndarray:
+    return np.where(p.short, np.nan, np.where(p.r0, np.inf, np.abs(p.x) / p.r))
+
+
+def _d(p: _Parts) -> np.ndarray:
+    return np.where(p.short, np.nan, np.where(p.x0, np.copysign(np.inf, p.r), p.r / np.abs(p.x)))
+
+
+def _theta(p: _Parts) -> np.ndarray:
+    return np.where(p.finite & ~p.short, np.degrees(np.angle(p.z)), np.nan)
+
+
+#: Each quantity from the shared parts: the one place the rules of the module docstring live.
+_RULES: dict[str, Callable[[_Parts], np.ndarray]] = {
+    "Ls": lambda p: p.x / p.w,
+    "Rs": lambda p: p.r,
+    "Cs": _cs,
+    "Lp": _lp,
+    "Rp": _rp,
+    "Cp": lambda p: p.b / p.w,
+    "Q": _q,
+    "D": _d,
+    "Z": lambda p: p.mag,
+    "theta": _theta,
+    "X": lambda p: p.x,
+    "G": lambda p: np.where(p.short, np.nan, p.r / p.mag2),
+    "B": lambda p: p.b,
+}
+
+
+def quantities(f, z, names: Iterable[str] = KEYS) -> dict[str, np.ndarray]:
     """Series and parallel equivalents of impedance ``z`` (ohm) at frequency ``f`` (Hz).
 
     ``f`` and ``z`` are arrays of the same shape (or broadcastable: one frequency for many
-    readings). Returns a dict with exactly the keys :data:`KEYS`: ``Ls`` (H), ``Rs`` (ohm),
-    ``Cs`` (F), ``Lp`` (H), ``Rp`` (ohm), ``Cp`` (F), ``Q``, ``D`` (both dimensionless),
-    ``Z`` (ohm, the magnitude), ``theta`` (degrees, from -180 to 180, positive for inductive
-    parts), ``X`` (ohm), ``G`` and ``B`` (siemens). Signs and the values at R = 0, X = 0, Z = 0 and
-    non-finite readings follow the rules in the module docstring. Raises
-    :class:`~acquire.errors.InputError` for a frequency that is not finite and positive.
+    readings). Returns a dict with the keys ``names`` (by default exactly :data:`KEYS`):
+    ``Ls`` (H), ``Rs`` (ohm), ``Cs`` (F), ``Lp`` (H), ``Rp`` (ohm), ``Cp`` (F), ``Q``, ``D`` (both
+    dimensionless), ``Z`` (ohm, the magnitude), ``theta`` (degrees, from -180 to 180, positive
+    for inductive parts), ``X`` (ohm), ``G`` and ``B`` (siemens). Only the quantities asked for
+    are computed; each is the same, bit for bit, as in the full set. Signs and the values at
+    R = 0, X = 0, Z = 0 and non-finite readings follow the rules in the module docstring. Raises
+    :class:`~acquire.errors.InputError` for a frequency that is not finite and positive or a
+    name not in :data:`KEYS`.
     """
     f, z = _arrays(f, z)
     w = _angular(f)
-    finite = np.isfinite(z)
-    R = np.where(finite, z.real, np.nan)
-    X = np.where(finite, z.imag, np.nan)
-    mag = np.abs(z)
-    r0, x0 = R == 0, X == 0
-    short = r0 & x0
-    inf, nan = np.inf, np.nan
+    names = tuple(names)
+    unknown = [n for n in names if n not in _RULES]
+    if unknown:
+        raise InputError(f"unknown quantity {unknown[0]!r}; known: {', '.join(KEYS)}")
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        mag2 = np.where(finite, mag * mag, nan)
-        Cs = np.where(x0, inf, -1.0 / (w * X))
-        Rp = np.where(short, nan, np.where(r0, inf, mag2 / R))
-        Lp = np.where(short, nan, np.where(x0, inf, mag2 / (w * X)))
-        G = np.where(short, nan, R / mag2)
-        B = np.where(short, nan, 0.0 - X / mag2)
-        absX = np.abs(X)
-        Q = np.where(short, nan, np.where(r0, inf, absX / R))
-        D = np.where(short, nan, np.where(x0, np.copysign(inf, R), R / absX))
-    theta = np.where(finite & ~short, np.degrees(np.angle(z)), nan)
-    return {
-        "Ls": X / w,
-        "Rs": R,
-        "Cs": Cs,
-        "Lp": Lp,
-        "Rp": Rp,
-        "Cp": B / w,
-        "Q": Q,
-        "D": D,
-        "Z": mag,
-        "theta": theta,
-        "X": X,
-        "G": G,
-        "B": B,
-    }
+        parts = _Parts(w, z)
+        return {name: _RULES[name](parts) for name in names}
 
 
 def series_rl_impedance(f, rs, ls) -> np.ndarray:

@@ -134,12 +134,14 @@ class PointUncertainty:
             else:
                 cov = self._raw_cov(f, raw, u_m, settings)
             z = raw if corrected is None else corrected
-            judge = np.where(np.isfinite(cov), cov, 0.0)
+            known = np.isfinite(cov)
+            judge = cov if known.all() else np.where(known, cov, 0.0)
             judged = tuple(dict.fromkeys((*self.names, *ALSO_JUDGED)))
             beyond = beyond_accuracy(f, z, judge, judged)
-        flags = flags_from(beyond, self.names).astype(object)
-        flags[np.isinf(raw.real) | np.isinf(raw.imag)] = OVERRANGE
-        flags[np.isnan(raw.real) | np.isnan(raw.imag)] = INVALID
+            flags = flags_from(beyond, self.names).astype(object)
+            if not np.isfinite(raw).all():
+                flags[np.isinf(raw.real) | np.isinf(raw.imag)] = OVERRANGE
+                flags[np.isnan(raw.real) | np.isnan(raw.imag)] = INVALID
         return PointValues(corrected, cov, flags, beyond)
 
     def _correct(self, f, raw, u_m, references, settings) -> tuple[np.ndarray, np.ndarray]:

@@ -36,7 +36,9 @@ Like with like:
   once would). The baseline (:func:`numpy_with_uncertainty`) does the same mathematics per
   chunk in plain vectorised numpy: standards and their Type A carried to the chunk's
   frequencies, each reading's variance from the stated accuracy, the correction, its
-  derivatives, ``Σ |g|²σ²``, U with k = 2, the flags of Ls, Rs, Q, |Z| and theta. Both sides
+  derivatives, ``Σ |g|²σ²``, U with k = 2, the flags of Ls, Rs, Q, |Z| and theta. Like with
+  like in the flags too: the tool computes only the quantities it judges (``quantities`` and
+  ``quantity_uncertainty`` asked for those five names) and so does the baseline. Both sides
   keep only what depends on the frozen set and the accuracy (the baseline: log grid, carried
   forms, the accuracy's constants; the tool: its ``PreparedCorrection``, made on the first
   chunk). The figure is the worst ratio over chunkings and sizes.

@@ -41,6 +41,7 @@ import numpy as np
 from acquire.compensation import formulas
 from acquire.compensation.findings import hz
 from acquire.errors import CompensationError
+from acquire.impedance import computed_once
 
 #: Relative distance from a grid end still taken as that end.
 END_TOLERANCE = 1e-12
@@ -62,6 +63,15 @@ class Placement:
     exact: np.ndarray
     on_grid: bool
     upper: np.ndarray | None = None
+
+    @computed_once
+    def exact_at(self) -> tuple[np.ndarray, np.ndarray] | None:
+        """Positions of the placed frequencies that are grid points and those grid points'
+        indices, or None where there are none (worked out once, shared by every standard)."""
+        if not self.exact.any():
+            return None
+        where = np.flatnonzero(self.exact)
+        return where, self.index[where]
 
     def lerp(self, values: np.ndarray) -> np.ndarray:
         """``values`` (one per grid point) carried linearly, by ``weight``, to the placed
@@ -143,8 +153,9 @@ def _unflat(mid: np.ndarray, f: np.ndarray) -> np.ndarray:
 
 def _keep_exact(z_at: np.ndarray, z: np.ndarray, at: Placement) -> np.ndarray:
     """``z_at`` with the stored reading, bit for bit, at the placed grid frequencies."""
-    if at.exact.any():
-        z_at[at.exact] = z[at.index[at.exact]]
+    exact = at.exact_at
+    if exact is not None:
+        z_at[exact[0]] = z[exact[1]]
     return z_at
 
 
@@ -267,4 +278,4 @@ def uncertainty_at(grid: np.ndarray, u: np.ndarray | None, at: Placement) -> np.
     if u is None or at.on_grid:
         return None if u is None else u[at.index]
     with np.errstate(invalid="ignore"):
-        return np.where(at.exact, u[at.index], at.lerp(u))
+        return _keep_exact(at.lerp(u), u, at)

@@ -15,6 +15,9 @@ point's flag words (:data:`BEYOND_ACCURACY`).
 
 from __future__ import annotations
 
+import functools
+import operator
+
 import numpy as np
 
 from acquire.impedance import quantities
@@ -30,13 +33,15 @@ DEFAULT_NAMES = ("Ls", "Rs", "Q")
 
 def beyond_accuracy(f, z, cov, names=DEFAULT_NAMES) -> dict[str, np.ndarray]:
     """Per quantity in ``names``, a boolean array: True where its value is beyond accuracy."""
-    values = quantities(f, z)
+    values = quantities(f, z, names)
     spread = quantity_uncertainty(f, z, cov, names)
     out = {}
     with np.errstate(invalid="ignore"):
         for name in names:
             v, u = values[name], spread[name]
-            bad = ~np.isfinite(v) | ~np.isfinite(u) | (u >= np.abs(v))
+            # "v or u not finite, or u >= |v|", in fewer steps: u = 2·√var is never -inf, so
+            # u < |v| with a finite v holds exactly when both are finite and u is below |v|
+            bad = ~((u < np.abs(v)) & np.isfinite(v))
             if name in NEVER_NEGATIVE:
                 bad |= v < -u
             out[name] = bad
@@ -54,5 +59,6 @@ def point_flags(f, z, cov, names=DEFAULT_NAMES) -> np.ndarray:
 def flags_from(beyond: dict[str, np.ndarray], names=DEFAULT_NAMES) -> np.ndarray:
     """Per point, ``"beyond-accuracy"`` where :func:`beyond_accuracy`'s judgement ``beyond``
     marks any quantity in ``names``, else ``""``."""
-    anyone = np.logical_or.reduce([np.asarray(beyond[name], dtype=bool) for name in names])
+    marks = [np.asarray(beyond[name], dtype=bool) for name in names]
+    anyone = functools.reduce(operator.or_, marks) if marks else np.logical_or.reduce(marks)
     return np.where(anyone, BEYOND_ACCURACY, "")

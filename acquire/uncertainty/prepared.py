@@ -21,11 +21,10 @@ from typing import Any
 
 import numpy as np
 
-from acquire.compensation import formulas
 from acquire.compensation.interpolation import uncertainty_at
 from acquire.errors import InputError
 from acquire.uncertainty.accuracy import reading_uncertainty, repeatability
-from acquire.uncertainty.propagation import as_covariance, assemble, sensitivities
+from acquire.uncertainty.propagation import as_covariance, assemble, derivatives
 
 STANDARD_NAMES = ("open", "short", "load")
 _ROOT3 = math.sqrt(3.0)
@@ -59,20 +58,32 @@ class ReadingNoise:
     def variance(self, k_f, z: np.ndarray, u_a, repeats: int = 1) -> np.ndarray:
         """Per point, the variance (ohm²) of R and of X each: Type A ``u_a`` (one per point) or
         the stated repeatability of the mean of ``repeats`` readings, plus Type B."""
+        with np.errstate(invalid="ignore", over="ignore"):
+            return self._variance(k_f, z, u_a, repeats)
+
+    def _variance(self, k_f, z: np.ndarray, u_a, repeats: int = 1) -> np.ndarray:
+        """:meth:`variance`, inside the caller's ``np.errstate``."""
         acc, r = self._accuracy, self._ratio
         m = np.abs(z)
-        with np.errstate(invalid="ignore", over="ignore"):
-            floors = acc.low_impedance + m**2 / acc.high_impedance
-            b = acc.relative * k_f * (m + r * floors) / _ROOT3
-            if u_a is None:
-                spread = self._root_ratio * m + r * floors
-                a = acc.repeatability * k_f * self._scale * spread / math.sqrt(repeats)
-            else:
-                a = u_a
-            out = a**2 + b**2
-        bad = ~np.isfinite(m)
-        if bad.any():
-            out[bad] = np.nan
+        floors = acc.low_impedance + m**2 / acc.high_impedance
+        # x·1.0 and x/1.0 are x exactly: at the reference level, with one reading and no speed
+        # factor those steps are left out
+        r_floors = floors if r == 1.0 else r * floors
+        b = acc.relative * k_f * (m + r_floors) / _ROOT3
+        if u_a is None:
+            spread = (m if self._root_ratio == 1.0 else self._root_ratio * m) + r_floors
+            a = acc.repeatability * k_f
+            if self._scale != 1.0:
+                a = a * self._scale
+            a = a * spread
+            if repeats != 1:
+                a = a / math.sqrt(repeats)
+        else:
+            a = u_a
+        out = a**2 + b**2
+        finite = np.isfinite(m)
+        if not finite.all():
+            out[~finite] = np.nan
         return out
 
 
@@ -104,25 +115,28 @@ class PreparedCorrection:
         """``(zx, cov)`` for readings ``zm`` at 1-D frequencies ``f`` (float, complex, one shape).
 
         ``u_m`` is the DUT's Type A in any form :func:`acquire.uncertainty.as_covariance` takes.
+        The chunk's work runs inside one ``np.errstate`` (no warning is raised).
         """
+        with np.errstate(all="ignore"):
+            return self._correct(f, zm, u_m)
+
+    def _correct(self, f: np.ndarray, zm: np.ndarray, u_m) -> tuple[np.ndarray, np.ndarray]:
         forms = self._forms
         at = forms.place(f)
         zo, zs, zl, zt = forms.standards(at)
         noise = self._noise
         k_f = None if noise is None else noise.k_f(f)
-        z_std = {"open": zo, "short": zs, "load": zl}
         v_std: dict[str, Any] = {}
-        for name, z in z_std.items():
+        for name, z in (("open", zo), ("short", zs), ("load", zl)):
             if z is None:
                 continue
             u = uncertainty_at(forms.grid, self._u[name], at)
             if noise is not None:
-                v_std[name] = noise.variance(k_f, z, u, self._repeats)
+                v_std[name] = noise._variance(k_f, z, u, self._repeats)
             elif u is not None:
                 v_std[name] = u**2
-        corr = formulas.correction(zo, zs, zl, zt)
-        zx = corr.apply(zm)
-        grads = sensitivities(zm, zo, zs, zl, zt)
+        k, ratio, grads = derivatives(zm, zo, zs, zl, zt)
+        zx = k * ratio
         inputs = {"zm": self._dut(k_f, zm, u_m), "zo": v_std.get("open")}
         inputs.update(zs=v_std.get("short"), zl=v_std.get("load"))
         if self._load_true_u is not None:
@@ -130,9 +144,8 @@ class PreparedCorrection:
         terms = [(g, inputs[name]) for name, g in grads.items() if _any(inputs.get(name))]
         cov = assemble(zx, terms)
         if self._open_short:
-            with np.errstate(all="ignore"):
-                t = np.abs(zs / zo)
-                model = (t * (2.0 + t) * np.abs(zx) / _ROOT3) ** 2
+            t = np.abs(zs / zo)
+            model = (t * (2.0 + t) * np.abs(zx) / _ROOT3) ** 2
             cov[..., 0, 0] += model
             cov[..., 1, 1] += model
         return zx, cov
@@ -145,13 +158,13 @@ class PreparedCorrection:
             if u.shape != shape:
                 v = as_covariance(u, shape)
                 if self._noise is not None:
-                    b = self._noise.variance(k_f, zm, np.zeros(shape))
+                    b = self._noise._variance(k_f, zm, np.zeros(shape))
                     v[..., 0, 0] += b
                     v[..., 1, 1] += b
                 return _parts(v)
             u_m = np.broadcast_to(u, shape)
         if self._noise is not None:
-            return self._noise.variance(k_f, zm, u_m)
+            return self._noise._variance(k_f, zm, u_m)
         return None if u_m is None else u_m**2
 
 
@@ -163,5 +176,5 @@ def _any(v) -> bool:
     if v is None:
         return False
     if isinstance(v, tuple):
-        return any(np.any(part) for part in v)
-    return bool(np.any(v))
+        return any(np.asarray(part).any() for part in v)
+    return bool(np.asarray(v).any())

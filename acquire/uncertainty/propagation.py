@@ -70,7 +70,6 @@ def as_covariance(u, shape: tuple[int, ...]) -> np.ndarray:
 
 def _k_and_partials(zo, zs, zl, zt) -> tuple[np.ndarray, dict[str, np.ndarray]]:
     """``K`` of the method the standards given imply, and its derivatives."""
-    one = np.ones_like(zo if zo is not None else zs if zs is not None else zl)
     zs0 = 0.0 if zs is None else zs
     if zl is not None:
         span = zl - zs0
@@ -86,10 +85,11 @@ def _k_and_partials(zo, zs, zl, zt) -> tuple[np.ndarray, dict[str, np.ndarray]]:
             k = zt / span
             dk = {"zt": 1.0 / span, "zl": -zt / span**2, "zs": zt / span**2}
     elif zo is not None:  # open-short, open
+        one = np.ones_like(zo)
         k = zo - zs0
         dk = {"zo": one, "zs": -one}
     else:  # short
-        k = one
+        k = np.ones_like(zs)
         dk = {}
     return k, dk
 
@@ -101,25 +101,40 @@ def sensitivities(zm, zo=None, zs=None, zl=None, zt=None) -> dict[str, np.ndarra
     :func:`acquire.compensation.formulas.correction`.
     """
     zm = np.asarray(zm, dtype=complex)
-    std = [
-        None if a is None else np.broadcast_to(np.asarray(a, dtype=complex), zm.shape)
-        for a in (zo, zs, zl, zt)
-    ]
-    zo, zs, zl, zt = std
+    shape = zm.shape
+    std = [None if a is None else _complex_of_shape(a, shape) for a in (zo, zs, zl, zt)]
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        k, dk = _k_and_partials(zo, zs, zl, zt)
-        n = zm if zs is None else zm - zs
-        d = 1.0 if zo is None else zo - zm
-        ratio = n / d  # Zx / K
-        out = {"zm": k * (1.0 if zo is None else (zo - (0.0 if zs is None else zs)) / d**2)}
-        if zs is not None:
-            out["zs"] = -k / d + ratio * dk.get("zs", 0.0)
-        if zo is not None:
-            out["zo"] = -k * n / d**2 + ratio * dk["zo"]
-        if zl is not None:
-            out["zl"] = ratio * dk["zl"]
-            out["zt"] = ratio * dk["zt"]
-    return {name: np.broadcast_to(g, zm.shape) for name, g in out.items()}
+        _, _, out = derivatives(zm, *std)
+    return {
+        name: g if isinstance(g, np.ndarray) and g.shape == shape else np.broadcast_to(g, shape)
+        for name, g in out.items()
+    }
+
+
+def _complex_of_shape(a, shape: tuple[int, ...]) -> np.ndarray:
+    if isinstance(a, np.ndarray) and a.dtype == complex and a.shape == shape:
+        return a
+    return np.broadcast_to(np.asarray(a, dtype=complex), shape)
+
+
+def derivatives(zm, zo, zs, zl, zt) -> tuple[np.ndarray, np.ndarray, dict[str, np.ndarray]]:
+    """``(K, N/D, {input: ∂Zx/∂input})`` for complex arrays of one shape (None where a standard
+    was not taken); ``K·(N/D)`` is the corrected impedance, bit for bit as
+    :meth:`acquire.compensation.formulas.Correction.apply` gives it. Call inside an
+    ``np.errstate`` that ignores division, invalid and overflow (the caller's whole batch)."""
+    k, dk = _k_and_partials(zo, zs, zl, zt)
+    n = zm if zs is None else zm - zs
+    d = 1.0 if zo is None else zo - zm
+    ratio = n / d  # Zx / K
+    out = {"zm": k * (1.0 if zo is None else (zo - (0.0 if zs is None else zs)) / d**2)}
+    if zs is not None:
+        out["zs"] = -k / d + ratio * dk.get("zs", 0.0)
+    if zo is not None:
+        out["zo"] = -k * n / d**2 + ratio * dk["zo"]
+    if zl is not None:
+        out["zl"] = ratio * dk["zl"]
+        out["zt"] = ratio * dk["zt"]
+    return k, ratio, out
 
 
 def real_jacobian(g: np.ndarray) -> np.ndarray:
@@ -183,21 +198,25 @@ def sandwich(g: np.ndarray, v) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.n
 
     and for ``V = σ²·I``, since ``J·Jᵀ = |g|²·I``: ``C00 = C11 = |g|²·σ²``, ``C01 = C10 = 0``.
     """
-    p, q = g.real, g.imag
     with np.errstate(invalid="ignore", over="ignore"):
-        if not isinstance(v, tuple):
-            d = (p * p + q * q) * v
-            return d, 0.0, 0.0, d  # type: ignore[return-value]
-        a, b, c, e = v
-        pp, qq, pq = p * p, q * q, p * q
-        cross = pq * (b + c)
-        spread = pq * (a - e)
-        return (
-            pp * a - cross + qq * e,
-            spread + pp * b - qq * c,
-            spread + pp * c - qq * b,
-            (qq * a + cross + pp * e),
-        )
+        return _sandwich(g, v)
+
+
+def _sandwich(g: np.ndarray, v) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    p, q = g.real, g.imag
+    if not isinstance(v, tuple):
+        d = (p * p + q * q) * v
+        return d, 0.0, 0.0, d  # type: ignore[return-value]
+    a, b, c, e = v
+    pp, qq, pq = p * p, q * q, p * q
+    cross = pq * (b + c)
+    spread = pq * (a - e)
+    return (
+        pp * a - cross + qq * e,
+        spread + pp * b - qq * c,
+        spread + pp * c - qq * b,
+        (qq * a + cross + pp * e),
+    )
 
 
 def assemble(zx: np.ndarray, terms) -> np.ndarray:
@@ -205,14 +224,24 @@ def assemble(zx: np.ndarray, terms) -> np.ndarray:
     :func:`sandwich` takes it) as a ``zx.shape + (2, 2)`` array; NaN where ``zx`` is not finite."""
     out = np.zeros(zx.shape + (2, 2))
     with np.errstate(invalid="ignore", over="ignore"):
-        for g, v in terms:
-            c00, c01, c10, c11 = sandwich(g, v)
-            out[..., 0, 0] += c00
-            out[..., 1, 1] += c11
-            if isinstance(v, tuple):
-                out[..., 0, 1] += c01
-                out[..., 1, 0] += c10
-    out[~np.isfinite(zx)] = np.nan
+        if all(not isinstance(v, tuple) for _, v in terms):
+            # each input's parts independent with equal variance: C00 = C11, C01 = C10 = 0
+            total = np.zeros(zx.shape)
+            for g, v in terms:
+                total += _sandwich(g, v)[0]
+            out[..., 0, 0] = total
+            out[..., 1, 1] = total
+        else:
+            for g, v in terms:
+                c00, c01, c10, c11 = _sandwich(g, v)
+                out[..., 0, 0] += c00
+                out[..., 1, 1] += c11
+                if isinstance(v, tuple):
+                    out[..., 0, 1] += c01
+                    out[..., 1, 0] += c10
+    finite = np.isfinite(zx)
+    if not finite.all():
+        out[~finite] = np.nan
     return out
 
 

@@ -20,37 +20,85 @@ uncertainty is NaN or infinite; no warning is raised.
 
 from __future__ import annotations
 
+from collections.abc import Callable
+
 import numpy as np
 
 from acquire.errors import InputError
-from acquire.impedance import KEYS
+from acquire.impedance import KEYS, computed_once
 from acquire.uncertainty.propagation import COVERAGE_FACTOR
 
 
-def _gradients(w: np.ndarray, r: np.ndarray, x: np.ndarray) -> dict[str, tuple]:
-    m2 = r * r + x * x
-    m = np.sqrt(m2)
-    m4 = m2 * m2
-    dg = ((x * x - r * r) / m4, -2.0 * r * x / m4)
-    db = (2.0 * r * x / m4, (x * x - r * r) / m4)
-    sx = np.sign(x)
+class _Shared:
+    """What several gradients share, each computed on first use (a caller asking for a few
+    quantities pays only for those)."""
+
+    def __init__(self, w: np.ndarray, r: np.ndarray, x: np.ndarray) -> None:
+        self.w, self.r, self.x = w, r, x
+
+    @computed_once
+    def one(self) -> np.ndarray:
+        return np.ones_like(self.r)
+
+    @computed_once
+    def zero(self) -> np.ndarray:
+        return np.zeros_like(self.r)
+
+    @computed_once
+    def m2(self) -> np.ndarray:
+        return self.r * self.r + self.x * self.x
+
+    @computed_once
+    def m4(self) -> np.ndarray:
+        return self.m2 * self.m2
+
+    @computed_once
+    def db(self) -> tuple[np.ndarray, np.ndarray]:
+        r, x, m4 = self.r, self.x, self.m4
+        return (2.0 * r * x / m4, (x * x - r * r) / m4)
+
+
+def _z(s: _Shared) -> tuple:
+    m = np.sqrt(s.m2)
+    return (s.r / m, s.x / m)
+
+
+def _theta(s: _Shared) -> tuple:
     deg = 180.0 / np.pi
-    zero = np.zeros_like(r)
-    return {
-        "Rs": (np.ones_like(r), zero),
-        "X": (zero, np.ones_like(r)),
-        "Ls": (zero, 1.0 / w),
-        "Cs": (zero, 1.0 / (w * x * x)),
-        "Z": (r / m, x / m),
-        "theta": (-deg * x / m2, deg * r / m2),
-        "G": dg,
-        "B": db,
-        "Cp": (db[0] / w, db[1] / w),
-        "Rp": (1.0 - x * x / (r * r), 2.0 * x / r),
-        "Lp": (2.0 * r / (w * x), (1.0 - r * r / (x * x)) / w),
-        "Q": (-np.abs(x) / (r * r), sx / r),
-        "D": (1.0 / np.abs(x), -r * sx / (x * x)),
-    }
+    return (-deg * s.x / s.m2, deg * s.r / s.m2)
+
+
+def _g(s: _Shared) -> tuple:
+    r, x, m4 = s.r, s.x, s.m4
+    return ((x * x - r * r) / m4, -2.0 * r * x / m4)
+
+
+def _q(s: _Shared) -> tuple:
+    r, x = s.r, s.x
+    return (-np.abs(x) / (r * r), np.sign(x) / r)
+
+
+def _d(s: _Shared) -> tuple:
+    r, x = s.r, s.x
+    return (1.0 / np.abs(x), -r * np.sign(x) / (x * x))
+
+
+#: Each quantity's gradient ``(∂/∂R, ∂/∂X)`` from the shared parts (the table above).
+_GRADIENTS: dict[str, Callable[[_Shared], tuple]] = {
+    "Rs": lambda s: (s.one, s.zero),
+    "X": lambda s: (s.zero, s.one),
+    "Ls": lambda s: (s.zero, 1.0 / s.w),
+    "Cs": lambda s: (s.zero, 1.0 / (s.w * s.x * s.x)),
+    "Z": _z,
+    "theta": _theta,
+    "G": _g,
+    "B": lambda s: s.db,
+    "Cp": lambda s: (s.db[0] / s.w, s.db[1] / s.w),
+    "Rp": lambda s: (1.0 - s.x * s.x / (s.r * s.r), 2.0 * s.x / s.r),
+    "Lp": lambda s: (2.0 * s.r / (s.w * s.x), (1.0 - s.r * s.r / (s.x * s.x)) / s.w),
+    "Q": _q,
+    "D": _d,
+}
 
 
 def quantity_uncertainty(
@@ -64,7 +112,8 @@ def quantity_uncertainty(
     """
     f = np.asarray(f, dtype=float)
     z = np.asarray(z, dtype=complex)
-    f, z = np.broadcast_arrays(f, z)
+    if f.shape != z.shape:
+        f, z = np.broadcast_arrays(f, z)
     cov = np.asarray(cov, dtype=float)
     if cov.shape != z.shape + (2, 2):
         raise InputError(f"cov must have shape {z.shape + (2, 2)}, not {cov.shape}")
@@ -72,11 +121,12 @@ def quantity_uncertainty(
     if unknown:
         raise InputError(f"unknown quantity {unknown[0]!r}; known: {', '.join(KEYS)}")
     w = 2.0 * np.pi * f
+    c00, c01, c11 = cov[..., 0, 0], cov[..., 0, 1], cov[..., 1, 1]
     out = {}
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        grads = _gradients(w, z.real, z.imag)
+        shared = _Shared(w, z.real, z.imag)
         for name in names:
-            g0, g1 = grads[name]
-            var = g0 * g0 * cov[..., 0, 0] + 2 * g0 * g1 * cov[..., 0, 1] + g1 * g1 * cov[..., 1, 1]
+            g0, g1 = _GRADIENTS[name](shared)
+            var = g0 * g0 * c00 + 2 * g0 * g1 * c01 + g1 * g1 * c11
             out[name] = k * np.sqrt(var)
     return out

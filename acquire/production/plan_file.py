@@ -2,8 +2,11 @@
 
 The layout is our own (``acquire/examples/coil-plan.toml`` shows every key,
 ``acquire/examples/README.md`` explains them): ``[plan]``, ``[references]``, ``[meter]``,
-``[temperature]``, ``[decision]``, ``[serial]``, ``[retest]``, ``[[step]]`` tables with their
-``[[step.check]]``, ``[[bin]]`` tables with their ``[[bin.check]]`` and ``[bins]``. Every
+``[temperature]``, ``[decision]``, ``[serial]``, ``[retest]``, ``[bias]``, ``[[step]]`` tables
+with their ``[[step.check]]`` (a step may be measured under a DC ``bias``), ``[[saturation]]``
+tables (limits on the saturation current at a drop), ``[[bin]]`` tables with their
+``[[bin.check]]`` and ``[bins]``. A plan that uses any bias must state its largest, ``max_bias``
+under ``[bias]``; no bias of the plan may exceed it. Every
 quantity is text with its unit and an optional SI prefix (``"344uH"``, ``"4.95ohm"``,
 ``"10kHz"``, ``"3%"``), read with :mod:`acquire.units`; a plain number is taken in SI units.
 
@@ -14,6 +17,7 @@ A malformed plan raises :class:`PlanError`, one line:
 
 from __future__ import annotations
 
+import dataclasses
 import re
 import tomllib
 from collections.abc import Mapping
@@ -25,6 +29,8 @@ from acquire.production.plan import (
     DC_RESISTANCE,
     REJECT_BIN,
     BinRule,
+    SATURATION,
+    BiasRamp,
     Check,
     DecisionRule,
     MeterSettings,
@@ -45,14 +51,15 @@ from acquire.production.plan_values import (
     kelvin,
     read_limit,
 )
-from acquire.units import format_si, parse_quantity, parse_temperature
+from acquire.errors import InputError
+from acquire.units import format_si, parse_fraction, parse_quantity, parse_temperature
 
 __all__ = ["PlanError", "describe_plan", "example_plan_path", "load_plan", "parse_plan"]
 
 #: The top-level keys of a plan file, and the keys allowed in each of its plain tables.
 TOP_KEYS = (
-    "plan", "references", "meter", "temperature", "decision", "serial", "retest", "step", "bin",
-    "bins",
+    "plan", "references", "meter", "temperature", "decision", "serial", "retest", "bias", "step",
+    "saturation", "bin", "bins",
 )  # fmt: skip
 TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "plan": ("name", "version", "part", "notes"),
@@ -62,10 +69,14 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "decision": ("rule", "guard_factor", "statements"),
     "serial": ("pattern", "seen_before"),
     "retest": ("attempts", "on_fail", "on_error"),
+    "bias": ("max_bias", "ramp_step", "ramp_dwell"),
     "bins": ("otherwise",),
 }
 LIMIT_KEYS = ("nominal", "tolerance", "tolerance_low", "tolerance_high", "minimum", "maximum")
-STEP_KEYS = ("frequency", "dc", "check")
+STEP_KEYS = ("frequency", "dc", "bias", "check")
+SATURATION_KEYS = ("frequency", "drop", "points", "minimum", "maximum")
+#: Points of a saturation check's bias sweep when the plan does not say.
+SATURATION_POINTS = 25
 BIN_KEYS = ("name", "check")
 SPEEDS = ("fast", "medium", "slow")
 TEMPERATURE_SOURCES = ("fixed", "per-lot", "none")
@@ -149,7 +160,8 @@ class _Reader(TableReader):
         decision = self.decision(self.table(data, "decision", "decision"))
         serial = self.serial(self.table(data, "serial", "serial"))
         retest = self.retest(self.table(data, "retest", "retest"))
-        checks = self.steps(data)
+        ramp = self.bias_ramp(self.table(data, "bias", "bias"))
+        checks = self.steps(data, ramp) + self.saturation(data, ramp)
         if any(c.quantity == DC_RESISTANCE for c in checks) and temperature.source == "none":
             raise self.fail(
                 "temperature.source",
@@ -161,10 +173,10 @@ class _Reader(TableReader):
             name=name, version=version, part=part, notes=notes, checks=checks,
             fixture=fixture, max_reference_age=max_age, meter=meter, temperature=temperature,
             bins=bins, otherwise_bin=otherwise, decision=decision, serial=serial,
-            retest=retest, text=text, source=self.source,
+            retest=retest, bias=ramp, text=text, source=self.source,
         )  # fmt: skip
 
-    def steps(self, data: Mapping[str, Any]) -> tuple[Check, ...]:
+    def steps(self, data: Mapping[str, Any], ramp: BiasRamp) -> tuple[Check, ...]:
         checks: dict[str, tuple[Check, str]] = {}
         steps = self.tables(data, "step", "step")
         if not steps:
@@ -173,6 +185,7 @@ class _Reader(TableReader):
             path = f"step[{i}]"
             self.known(step, STEP_KEYS, path)
             frequency = self.step_frequency(step, path)
+            bias = self.step_bias(step, path, frequency, ramp)
             rows = self.tables(step, "check", f"{path}.check")
             if not rows:
                 raise self.fail(
@@ -180,21 +193,133 @@ class _Reader(TableReader):
                 )
             for j, row in enumerate(rows, 1):
                 check = self.check(row, frequency, f"{path}.check[{j}]", LIMIT_KEYS)
+                check = dataclasses.replace(check, bias=bias)
                 if check.key in checks:
                     self.twice(check, *checks[check.key], f"{path}.check[{j}]")
                 checks[check.key] = (check, f"{path}.check[{j}]")
         return tuple(check for check, _ in checks.values())
 
     def twice(self, check: Check, first: Check, first_path: str, path: str) -> None:
-        if first.frequency == check.frequency:
+        if first.frequency == check.frequency and first.bias == check.bias:
             raise self.fail(path, f"{check_name(check)} is checked twice (also at {first_path})",
                             "keep one check per quantity and frequency")  # fmt: skip
         raise self.fail(
             f"{path.rsplit('.', 1)[0]}.frequency",
             f"{check.frequency!r} Hz here and {first.frequency!r} Hz at {first_path} agree to "
             f"6 digits, so their checks share the name {check.key}",
-            "merge the two steps or move the frequencies apart",
+            "merge the two steps or move the frequencies (or biases) apart",
         )
+
+    def bias_ramp(self, table: Mapping[str, Any]) -> BiasRamp:
+        """The ``[bias]`` table: the plan's largest bias and its ramp (defaults of BiasRamp)."""
+        default = BiasRamp()
+        maximum = None
+        if "max_bias" in table:
+            maximum = self.current(table["max_bias"], "bias.max_bias")
+            if maximum == 0:
+                raise self.fail("bias.max_bias", "0 A allows no bias", 'write e.g. "6A"')
+        step = default.step
+        if "ramp_step" in table:
+            step = self.current(table["ramp_step"], "bias.ramp_step")
+            if step == 0:
+                raise self.fail("bias.ramp_step", "a step of 0 A never moves", 'write e.g. "0.5A"')
+        dwell = default.dwell
+        if "ramp_dwell" in table:
+            path = "bias.ramp_dwell"
+            dwell = self.quantity(
+                table["ramp_dwell"], lambda t: parse_quantity(t, "s"), path, '"50ms"'
+            )
+            if not 0 <= dwell <= 60:
+                raise self.fail(path, f"{dwell:g} s is not 0 to 60 s", 'write e.g. "50ms"')
+        return BiasRamp(maximum=maximum, step=step, dwell=dwell)
+
+    def current(self, raw: Any, path: str) -> float:
+        """A DC current of 0 A or more."""
+        value = self.quantity(raw, lambda t: parse_quantity(t, "A"), path, '"3A"')
+        if value < 0:
+            raise self.fail(path, f"{format_si(value, 'A')} is negative", 'write e.g. "3A"')
+        return value
+
+    def allowed_bias(self, value: float, ramp: BiasRamp, path: str, what: str) -> None:
+        """Refuse a bias (or a current limit) the plan's largest bias does not allow."""
+        if ramp.maximum is None:
+            raise self.fail(
+                path,
+                f"{what} needs the plan's largest bias",
+                'add max_bias = "6A" (at most what the part and fixture are rated for) under '
+                "[bias]",
+            )
+        if value > ramp.maximum:
+            raise self.fail(
+                path,
+                f"{format_si(value, 'A')} is above the plan's max_bias of "
+                f"{format_si(ramp.maximum, 'A')}",
+                "lower it, or raise bias.max_bias if the part and fixture are rated for it",
+            )
+
+    def step_bias(
+        self, step: Mapping[str, Any], path: str, frequency: float | None, ramp: BiasRamp
+    ) -> float | None:
+        """A step's DC bias in A (None: none, and "0A" is none)."""
+        if "bias" not in step:
+            return None
+        if frequency is None:
+            raise self.fail(f"{path}.bias", "the DC step is measured without bias", "remove it")
+        value = self.current(step["bias"], f"{path}.bias")
+        if value == 0:
+            return None
+        self.allowed_bias(value, ramp, f"{path}.bias", "a step under bias")
+        return value
+
+    def saturation(self, data: Mapping[str, Any], ramp: BiasRamp) -> tuple[Check, ...]:
+        """The ``[[saturation]]`` checks: the current where Ls has dropped by ``drop``."""
+        found: dict[str, Check] = {}
+        for i, row in enumerate(self.tables(data, "saturation", "saturation"), 1):
+            path = f"saturation[{i}]"
+            self.known(row, SATURATION_KEYS, path)
+            if "frequency" not in row:
+                raise self.fail(path, "the check has no frequency", 'add frequency = "100kHz"')
+            frequency = self.frequency(row["frequency"], f"{path}.frequency")
+            if "drop" not in row:
+                raise self.fail(path, "the check has no drop", 'add drop = "20%"')
+            drop = self.drop(row["drop"], f"{path}.drop")
+            points = self.count(row, "points", path, SATURATION_POINTS) or SATURATION_POINTS
+            if points < 3:
+                raise self.fail(f"{path}.points", f"{points} points cannot bracket a drop",
+                                "write 3 or more (25 is usual)")  # fmt: skip
+            limits = {k: v for k, v in row.items() if k in ("minimum", "maximum")}
+            if not limits:
+                raise self.fail(path, "the check has no limit", 'add minimum = "2.5A" (or maximum)')
+            try:
+                limit = read_limit(limits, SATURATION)
+            except LimitError as exc:
+                raise self.fail(f"{path}.{exc.key}", exc.reason, exc.todo) from None
+            check = Check(SATURATION, frequency, limit, UNITS[SATURATION])
+            for side in ("minimum", "maximum"):
+                if side in row:
+                    value = check.limit.low if side == "minimum" else check.limit.high
+                    assert value is not None
+                    self.allowed_bias(value, ramp, f"{path}.{side}", "a saturation check")
+            if ramp.maximum is None:
+                self.allowed_bias(0.0, ramp, path, "a saturation check")
+            check = dataclasses.replace(check, drop=drop, points=points)
+            if check.key in found:
+                raise self.fail(path, f"{check_name(check)} is checked twice",
+                                "keep one check per drop and frequency")  # fmt: skip
+            found[check.key] = check
+        return tuple(found.values())
+
+    def drop(self, raw: Any, path: str) -> float:
+        todo = 'write a percentage, e.g. "20%"'
+        if isinstance(raw, bool) or not isinstance(raw, str | int | float):
+            raise self.fail(path, f"{raw!r} is not a percentage", todo)
+        try:
+            value = parse_fraction(raw)
+        except InputError as exc:
+            raise self.fail(path, str(exc), todo) from None
+        if not 0 < value < 1:
+            raise self.fail(path, f"{raw!r} is not between 0 % and 100 %", todo)
+        return value
 
     def step_frequency(self, step: Mapping[str, Any], path: str) -> float | None:
         dc = self.flag(step, "dc", path, False)
@@ -286,13 +411,16 @@ class _Reader(TableReader):
             frequency = self.frequency(row["frequency"], f"{path}.frequency")
         elif "frequency" in row:
             raise self.fail(f"{path}.frequency", "Rdc is measured at DC", "remove the frequency")
-        rest = {k: v for k, v in row.items() if k != "frequency"}
-        check = self.check(rest, frequency, path, LIMIT_KEYS)
+        bias = None
+        if "bias" in row:
+            bias = self.current(row["bias"], f"{path}.bias") or None
+        rest = {k: v for k, v in row.items() if k not in ("frequency", "bias")}
+        check = dataclasses.replace(self.check(rest, frequency, path, LIMIT_KEYS), bias=bias)
         if check.key not in plan:
             raise self.fail(
                 path,
                 f"no step checks {check_name(check)}",
-                "a bin can only use a quantity and frequency a step checks",
+                "a bin can only use a quantity, frequency and bias a step checks",
             )
         return check
 

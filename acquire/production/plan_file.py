@@ -24,13 +24,14 @@ from collections.abc import Mapping
 from pathlib import Path
 from typing import Any
 
+from acquire.errors import InputError
 from acquire.impedance import KEYS
 from acquire.production.plan import (
     DC_RESISTANCE,
     REJECT_BIN,
-    BinRule,
     SATURATION,
     BiasRamp,
+    BinRule,
     Check,
     DecisionRule,
     MeterSettings,
@@ -51,7 +52,6 @@ from acquire.production.plan_values import (
     kelvin,
     read_limit,
 )
-from acquire.errors import InputError
 from acquire.units import format_si, parse_fraction, parse_quantity, parse_temperature
 
 __all__ = ["PlanError", "describe_plan", "example_plan_path", "load_plan", "parse_plan"]

@@ -35,7 +35,7 @@ WORD_LIMITS = {"parameter": 100, "unit": 20, "verdict": 40}
 
 #: The fields of a measurement that hold numbers (floats or None).
 _FLOAT_FIELDS: tuple[str, ...] = ("value", "frequency", "low", "high", "uncertainty")
-_FLOAT_FIELDS += ("tolerance_low", "tolerance_high")
+_FLOAT_FIELDS += ("tolerance_low", "tolerance_high", "bias_current")
 
 
 def new_attempt_id() -> str:
@@ -59,7 +59,8 @@ class MeasurementRecord:
     ``uncertainty`` is the expanded uncertainty U (k = 2) of ``value`` in the same unit, None when
     unknown (NaN is taken as unknown and kept as None, so a stored record reads back equal; an
     infinite U is kept). ``tolerance_low`` and ``tolerance_high`` are the test plan's tolerance
-    limits before any guard band (None for an open side; NaN is refused).
+    limits before any guard band (None for an open side; NaN is refused). ``bias_current`` is
+    the DC bias (A) the value was measured under, None for none.
     """
 
     parameter: str
@@ -72,6 +73,7 @@ class MeasurementRecord:
     uncertainty: float | None = None
     tolerance_low: float | None = None
     tolerance_high: float | None = None
+    bias_current: float | None = None
 
     def __post_init__(self) -> None:
         for name in _FLOAT_FIELDS:

@@ -86,11 +86,12 @@ RESERVED_BINS = (REJECT_BIN, "error")
 _TOML_PLACE = re.compile(r"\s*\(at (?:line (\d+), column (\d+)|end of document)\)\s*$")
 
 
-def example_plan_path() -> Path:
-    """The example plan shipped with the tool (``acquire/examples/coil-plan.toml``)."""
+def example_plan_path(kind: str = "coil") -> Path:
+    """An example plan shipped with the tool: ``acquire/examples/coil-plan.toml`` (the demo
+    coil), or with ``kind="choke"`` ``choke-plan.toml`` (a power choke under DC bias)."""
     from importlib.resources import files
 
-    return Path(str(files("acquire").joinpath("examples", "coil-plan.toml")))
+    return Path(str(files("acquire").joinpath("examples", f"{kind}-plan.toml")))
 
 
 def load_plan(path: str | Path) -> TestPlan:

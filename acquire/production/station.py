@@ -35,6 +35,7 @@ from acquire.production.admission import SerialBook, clean_serial
 from acquire.production.judgement import UnitJudgement, error_judgement, judge_unit
 from acquire.production.measure import UnitMeasurement, measure_unit
 from acquire.production.plan import CONDITIONAL_PASS, PASS, REJECT_BIN, TestPlan
+from acquire.production.plan_text import planned_energy
 from acquire.production.reference_guard import CAPTURE_HINT, check_problems, reference_blocks
 from acquire.production.screen import NOT_TESTED, ShownUnit, StationStatus
 from acquire.signals import held, stop_reason
@@ -119,23 +120,6 @@ def _unknown_u_note(judgement: UnitJudgement, plan: TestPlan) -> str:
 
 #: What a unit of a session run unattended with bias checks records.
 UNATTENDED_NOTE = "run unattended: the stored energy under bias was not confirmed by an operator"
-
-
-def planned_energy(plan: TestPlan) -> float | None:
-    """½·L·I² at the plan's largest bias with L the largest zero-bias Ls or Lp its limits allow
-    (the high limit, else the nominal); None when no such limit gives one. Under bias a core's
-    inductance falls, so this over-estimates what a conforming part stores."""
-    if plan.bias.maximum is None:
-        return None
-    found = [
-        c.limit.high if c.limit.high is not None else c.limit.nominal
-        for c in plan.checks
-        if c.quantity in ("Ls", "Lp") and c.bias is None and c.frequency is not None
-    ]
-    known = [x for x in found if x is not None and x > 0]
-    if not known:
-        return None
-    return float(stored_energy(max(known), plan.bias.maximum))
 
 
 def measurement_records(

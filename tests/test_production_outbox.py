@@ -46,7 +46,8 @@ def _full_unit() -> UnitRecord:
         outcome="conditional pass",
         measurements=(
             MeasurementRecord(
-                "Ls", 3.441e-4, "H", 1e4, 3.357e-4, 3.523e-4, "pass", 2.0e-6, 3.337e-4, 3.543e-4
+                "Ls", 3.441e-4, "H", 1e4, 3.357e-4, 3.523e-4, "pass", 2.0e-6, 3.337e-4, 3.543e-4,
+                bias_current=2.5,
             ),
             MeasurementRecord(
                 "Rdc", 4.97, "ohm", None, 4.70, 5.20, "conditional pass", math.inf, 4.653, 5.247

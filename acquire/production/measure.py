@@ -181,7 +181,8 @@ def _under_bias(
         supply = timed.meter.bias()
     ramp = plan.bias
     assert ramp.maximum is not None  # the plan file requires it when any check has a bias
-    values, u, applied = dict(done.values), dict(done.uncertainty), {}
+    values, u = dict(done.values), dict(done.uncertainty)
+    applied: dict[str, float] = {}
     try:
         with energised(supply, ramp.maximum, ramp.step, ramp.dwell) as held:
             for level in plan.bias_levels:
@@ -197,7 +198,8 @@ def _under_bias(
                 if isinstance(outcome.error, KeyboardInterrupt):
                     raise outcome.error
                 if outcome.interrupted:
-                    return replace(done, values={}, uncertainty={}, error=outcome.reason,
+                    fault = f"{outcome.reason} (under a bias of {level:g} A)"
+                    return replace(done, values={}, uncertainty={}, error=fault,
                                    meter_seconds=timed.seconds)  # fmt: skip
                 assert outcome.cov is not None
                 more, more_u = _ac_values(

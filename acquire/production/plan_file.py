@@ -278,6 +278,8 @@ class _Reader(TableReader):
         for i, row in enumerate(self.tables(data, "saturation", "saturation"), 1):
             path = f"saturation[{i}]"
             self.known(row, SATURATION_KEYS, path)
+            if ramp.maximum is None:
+                self.allowed_bias(0.0, ramp, path, "a saturation check")
             if "frequency" not in row:
                 raise self.fail(path, "the check has no frequency", 'add frequency = "100kHz"')
             frequency = self.frequency(row["frequency"], f"{path}.frequency")
@@ -301,8 +303,6 @@ class _Reader(TableReader):
                     value = check.limit.low if side == "minimum" else check.limit.high
                     assert value is not None
                     self.allowed_bias(value, ramp, f"{path}.{side}", "a saturation check")
-            if ramp.maximum is None:
-                self.allowed_bias(0.0, ramp, path, "a saturation check")
             check = dataclasses.replace(check, drop=drop, points=points)
             if check.key in found:
                 raise self.fail(path, f"{check_name(check)} is checked twice",

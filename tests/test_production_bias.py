@@ -434,7 +434,7 @@ def big_choke_station(tmp_path: Path, screen: Any, **context: Any) -> Station:
 def test_above_the_threshold_the_operator_must_confirm(tmp_path):
     screen = Asking(["no"])
     station = big_choke_station(tmp_path, screen)
-    assert station.energy == pytest.approx(0.5 * 11e-3 * 36)  # ½·L·I², computed
+    assert station.bias.energy == pytest.approx(0.5 * 11e-3 * 36)  # ½·L·I², computed
     final = station.run(interactive=True)
     assert "Type yes" in screen.prompts[0] and "198.0 mJ" in screen.prompts[0]
     assert "not confirmed" in final.message and final.tested == 0
@@ -447,6 +447,6 @@ def test_piped_serials_need_unattended_and_unattended_asks_nothing(tmp_path):
     assert "--unattended" in final.message and final.tested == 0
     screen = Asking([])
     station = big_choke_station(tmp_path, screen, unattended=True)
-    assert not station.needs_confirmation()
+    assert not station.bias.needs_confirmation()
     station.run(interactive=False)
     assert screen.prompts == ["serial"]

@@ -8,15 +8,9 @@ outbox while the store is away: the screen says how many wait). A meter fault ma
 attempt's outcome "error": it is recorded and the serial may be tested again. :meth:`Station.run`
 repeats that for every line the screen reads until the end of input or Ctrl-C.
 
-A plan with checks under a DC bias measures them inside :func:`acquire.bias.ramp.energised`
-(:mod:`acquire.production.measure`), so the bias is back at zero and off when a unit's
-measurement ends, however it ends; the station also ramps the supply to zero and switches it off
-before every prompt for a part and when the session ends, as a second line of protection. The
-energy a unit stores at the plan's largest bias (½·L·I², L its zero-bias Ls) is shown from the
-first unit on; before the first unit, and whenever that energy (or, before any unit, the plan's
-estimate from its zero-bias Ls limits) is unknown or above
-:data:`acquire.bias.energy.CONFIRM_ABOVE`, the operator must confirm, unless the session runs
-``unattended`` (then recorded on every unit).
+A plan with checks under a DC bias holds the bias only while a unit is measured
+(:mod:`acquire.production.measure`); :mod:`acquire.production.station_bias` switches it off
+before every prompt and at the end, shows the stored energy and asks for its confirmation.
 
 The station knows nothing of the command line: the meter, the record keeper, the screen and the
 ways to read the store come in as objects.
@@ -30,18 +24,16 @@ from typing import Any
 
 import numpy as np
 
-from acquire.bias.energy import CONFIRM_ABOVE, stored_energy
 from acquire.production.admission import SerialBook, clean_serial
 from acquire.production.judgement import UnitJudgement, error_judgement, judge_unit
 from acquire.production.measure import UnitMeasurement, measure_unit
 from acquire.production.plan import CONDITIONAL_PASS, PASS, REJECT_BIN, TestPlan
-from acquire.production.plan_text import planned_energy
 from acquire.production.reference_guard import CAPTURE_HINT, check_problems, reference_blocks
 from acquire.production.screen import NOT_TESTED, ShownUnit, StationStatus
+from acquire.production.station_bias import BiasGuard
 from acquire.signals import held, stop_reason
 from acquire.store.records import MeasurementRecord, UnitRecord, new_attempt_id
 from acquire.store.schema import utc_now
-from acquire.units import format_si
 from drivers.errors import InstrumentError
 
 #: How many recent units the screen lists.
@@ -50,11 +42,8 @@ SHOWN_UNITS = 8
 
 @dataclass(frozen=True)
 class StationContext:
-    """Who and what a session's units are recorded with.
-
-    ``supply`` is the DC bias supply for a plan with checks under bias (None: the meter's own,
-    ``meter.bias()``); ``unattended`` runs such a plan without asking the operator to confirm
-    the stored energy (recorded on every unit)."""
+    """Who and what a session's units are recorded with; ``supply`` the DC bias supply (None:
+    the meter's own), ``unattended`` skips confirming the stored energy (recorded)."""
 
     plan: TestPlan
     lot: str
@@ -118,10 +107,6 @@ def _unknown_u_note(judgement: UnitJudgement, plan: TestPlan) -> str:
     )
 
 
-#: What a unit of a session run unattended with bias checks records.
-UNATTENDED_NOTE = "run unattended: the stored energy under bias was not confirmed by an operator"
-
-
 def measurement_records(
     judgement: UnitJudgement, bias: dict[str, float] | None = None
 ) -> tuple[MeasurementRecord, ...]:
@@ -183,9 +168,7 @@ class Station:
         self._in_fixture = ""
         self._checked: tuple[Any, list[str]] = (object(), [])
         #: The stored energy at the plan's largest bias: measured on a unit, else planned.
-        self.energy: float | None = planned_energy(context.plan)
-        self.energy_measured = False
-        self.confirmed = False
+        self.bias = BiasGuard(context.plan, self.supply, context.unattended)
 
     # -- state ---------------------------------------------------------------------------------
 
@@ -230,22 +213,8 @@ class Station:
             last=tuple(self.last[:SHOWN_UNITS]),
             current=self.current,
             message=self.message,
-            energy=self.energy_line(),
+            energy=self.bias.line(),
         )
-
-    def energy_line(self) -> str:
-        """The stored-energy line of a plan with bias checks ('' for a plan without)."""
-        plan = self.context.plan
-        if not plan.needs_bias or plan.bias.maximum is None:
-            return ""
-        at = format_si(plan.bias.maximum, "A")
-        if self.energy is None:
-            return (
-                f"stored energy at {at}: unknown until the first unit is measured; "
-                "ramped to 0 A before every part change"
-            )
-        how = "measured, ½·L·I²" if self.energy_measured else "from the plan's limits, ½·L·I²"
-        return f"stored energy at {at}: {format_si(self.energy, 'J')} ({how})"
 
     def show(self) -> None:
         self.screen.show(self.status())
@@ -285,7 +254,7 @@ class Station:
         started = utc_now()
         attempt_id = new_attempt_id()
         measured = self._measure_unit(serial)
-        self._note_energy(measured)
+        self.bias.note_unit(measured)
         with held():  # a stop signal or Ctrl-C from here ends the session once it is recorded
             return self._conclude(serial, admission.attempt, attempt_id, started, measured)
 
@@ -345,75 +314,20 @@ class Station:
         c = self.context
         if c.plan.needs_bias:
             return self._measure(
-                self.meter, c.plan, self.references, c.temperature, supply=self.supply
+                self.meter, c.plan, self.references, c.temperature, supply=self.supply()
             )
         return self._measure(self.meter, c.plan, self.references, c.temperature)
 
-    @property
     def supply(self) -> Any:
         """The bias supply: the context's, else the meter's own."""
         return self.context.supply if self.context.supply is not None else self.meter.bias()
-
-    def bias_off(self) -> None:
-        """Ramp the bias to zero and switch it off (a plan with bias checks; nothing otherwise).
-        A meter that does not answer leaves a warning: nothing then shows the bias is off."""
-        plan = self.context.plan
-        if not plan.needs_bias:
-            return
-        try:
-            with held():
-                self.supply.ramp_to(0.0, plan.bias.step, plan.bias.dwell)
-        except InstrumentError as exc:
-            self.message = (
-                f"could not confirm the bias is off ({exc}): check the meter and the supply "
-                "before touching the part"
-            )
-
-    def needs_confirmation(self) -> bool:
-        """True while the operator must confirm the stored energy before the next unit."""
-        if not self.context.plan.needs_bias or self.context.unattended or self.confirmed:
-            return False
-        return self.energy is None or self.energy > CONFIRM_ABOVE
-
-    def confirm(self, interactive: bool) -> bool:
-        """Ask the operator to confirm the stored energy; False ends the session."""
-        what = "unknown" if self.energy is None else f"{format_si(self.energy, 'J')}"
-        if not interactive:
-            self.message = (
-                f"session ended: the stored energy at the largest bias is {what} (confirmation "
-                f"needed above {CONFIRM_ABOVE:g} J); run with --unattended to go on without an "
-                "operator"
-            )
-            return False
-        answer = self.screen.ask(
-            f"the part will store {what} at the largest bias; an interrupted current arcs. "
-            "Type yes to go on"
-        )
-        if answer is None or answer.strip().lower() != "yes":
-            self.message = "session ended: the stored energy was not confirmed"
-            return False
-        self.confirmed = True
-        return True
 
     def _has(self, operation: str) -> bool:
         has = getattr(self.meter, "has", None)
         return bool(has(operation)) if has is not None else False
 
-    def _note_energy(self, measured: UnitMeasurement) -> None:
-        """The first unit that gives a zero-bias Ls gives the energy shown from then on."""
-        top = self.context.plan.bias.maximum
-        if self.energy_measured or measured.inductance is None or top is None:
-            return
-        if self.context.plan.needs_bias:
-            self.energy = float(stored_energy(measured.inductance, top))
-            self.energy_measured = True
-
     def _notes(self, measured: UnitMeasurement, judgement: UnitJudgement) -> str:
-        c = self.context
-        note = measured.error or _unknown_u_note(judgement, c.plan)
-        if c.plan.needs_bias and c.unattended:
-            note = f"{note}; {UNATTENDED_NOTE}" if note else UNATTENDED_NOTE
-        return note
+        return self.bias.note(measured.error or _unknown_u_note(judgement, self.context.plan))
 
     def _record(
         self,
@@ -458,13 +372,13 @@ class Station:
         self.show()
         try:
             while True:
-                self.bias_off()
-                if self.needs_confirmation() and not self.confirm(interactive):
-                    self.show()
-                    break
+                self.message = self.bias.off() or self.message  # bias off before a prompt
+                ended = self.bias.needs_confirmation() and self.bias.confirm(
+                    self.screen.ask, interactive
+                )
                 blocked = self.blocked
-                if blocked and not interactive:
-                    self.message = f"session ended: the station is stopped: {blocked}"
+                if ended or (blocked and not interactive):
+                    self.message = ended or f"session ended: the station is stopped: {blocked}"
                     self.show()
                     break
                 prompt = "press Enter when new references are captured" if blocked else "serial"
@@ -480,5 +394,5 @@ class Station:
         except KeyboardInterrupt as stop:
             self.message = f"session ended: {stop_reason(stop)}"
         finally:
-            self.bias_off()
+            self.message = self.bias.off() or self.message
         return self.status()

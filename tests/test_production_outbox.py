@@ -46,14 +46,13 @@ def _full_unit() -> UnitRecord:
         outcome="conditional pass",
         measurements=(
             MeasurementRecord(
-                "Ls", 3.441e-4, "H", 1e4, 3.357e-4, 3.523e-4, "pass", 2.0e-6, 3.337e-4, 3.543e-4,
-                bias_current=2.5,
+                "Ls", 3.441e-4, "H", 1e4, 3.357e-4, 3.523e-4, "pass", 2.0e-6, 3.337e-4, 3.543e-4
             ),
             MeasurementRecord(
                 "Rdc", 4.97, "ohm", None, 4.70, 5.20, "conditional pass", math.inf, 4.653, 5.247
             ),
             MeasurementRecord("Q", math.nan, "", 1e5, 30.0, None, "fail", None, 30.0, None),
-            MeasurementRecord("X", -math.inf, "ohm", 1e6, None, None, "fail"),
+            MeasurementRecord("X", -math.inf, "ohm", 1e6, None, None, "fail", bias_current=2.5),
         ),  # fmt: skip
         lot="LOT-7\nsecond line",
         attempt=3,

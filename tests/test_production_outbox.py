@@ -52,7 +52,7 @@ def _full_unit() -> UnitRecord:
                 "Rdc", 4.97, "ohm", None, 4.70, 5.20, "conditional pass", math.inf, 4.653, 5.247
             ),
             MeasurementRecord("Q", math.nan, "", 1e5, 30.0, None, "fail", None, 30.0, None),
-            MeasurementRecord("X", -math.inf, "ohm", 1e6, None, None, "fail"),
+            MeasurementRecord("X", -math.inf, "ohm", 1e6, None, None, "fail", bias_current=2.5),
         ),  # fmt: skip
         lot="LOT-7\nsecond line",
         attempt=3,

@@ -6,7 +6,10 @@ DC resistance step, each with the quantities judged and their limits (nominal ±
 minimum and/or maximum; Ls and Lp are the series and parallel inductance, Rs and Rp the
 resistances, Q = |X|/R the quality factor, D = 1/Q, Rdc the winding's DC resistance corrected to
 20 °C), the decision rule, the bins, and the serial and retest policies. acquire/examples/README.md
-explains every key; `acquire plan example` prints the example plan to copy.
+explains every key; `acquire plan example` prints the example plan to copy, and
+`acquire plan example --choke` a power choke's: Ls under a DC bias (a step's `bias`, never above
+the plan's `max_bias` under [bias]) and a minimum or maximum on the saturation current, the bias
+current at which Ls has dropped by a stated percentage ([[saturation]]).
 
 The decision rule follows ILAC-G8:09/2019: simple acceptance judges the value against the
 tolerance limits; guarded acceptance narrows them at each end by a guard band w = factor × U,
@@ -18,6 +21,7 @@ A malformed plan is refused with one line naming the file, the key (or the line,
 syntax error) and what to change; the exit code is then 2.
 
     acquire plan example > my-plan.toml
+    acquire plan example --choke > my-choke-plan.toml
     acquire plan check my-plan.toml
     acquire plan check my-plan.toml --json
 """
@@ -40,10 +44,18 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     check.add_argument(
         "--json", action="store_true", help="print the checked plan as JSON (SI units)"
     )
-    actions.add_parser(
+    example = actions.add_parser(
         "example",
         help="print the example test plan (for the demo coil) to copy",
-        description="Print the example test plan; redirect it to a file and edit it.",
+        description="Print the example test plan; redirect it to a file and edit it. With "
+        "--choke, the plan of a power choke measured under DC bias: a biased choke stores "
+        "½·L·I² and a current broken while it flows arcs; follow the meter and fixture makers' "
+        "instructions, local codes and licensed practice.",
+    )
+    example.add_argument(
+        "--choke",
+        action="store_true",
+        help="the power-choke plan instead: Ls at 0 A and under bias, a saturation-current limit",
     )
 
 
@@ -51,7 +63,8 @@ def run(args: argparse.Namespace) -> int:
     from acquire.production.plan_file import describe_plan, example_plan_path, load_plan
 
     if args.action == "example":
-        print(example_plan_path().read_text(encoding="utf-8"), end="")
+        kind = "choke" if args.choke else "coil"
+        print(example_plan_path(kind).read_text(encoding="utf-8"), end="")
         return 0
     plan = load_plan(args.file)
     if args.json:
@@ -64,6 +77,8 @@ def run(args: argparse.Namespace) -> int:
         print(line)
     frequencies = len(plan.frequencies)
     dc = " and DC" if plan.needs_dc_resistance else ""
+    if plan.needs_bias:
+        dc += f", under bias up to {plan.bias.maximum:g} A"
     print(
         f"plan is valid: {_count(len(plan.checks), 'check')} at "
         f"{_count(frequencies, 'frequency', 'frequencies')}{dc}, {_count(len(plan.bins), 'bin')}"

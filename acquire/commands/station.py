@@ -17,9 +17,18 @@ to retry. References older than the plan allows, or captured on another meter or
 the station until new ones are captured (--use-stale-references REASON goes on anyway and
 records the reason on every unit). Ctrl-C or the end of input ends the session with its summary.
 
+A plan with checks under DC bias (a power choke's inductance at a bias, its saturation current)
+is measured with the meter's own bias, or with a DC current source given by --bias-source. The
+plan's max_bias must be within the supply's limit, or the station does not start.
+
 Safety: measure only discharged parts that are not connected to any supply; an inductor that
-carried DC bias stores energy. Mains-powered fixtures must be set up as local codes, the meter
-maker's instructions and licensed practice require.
+carries DC bias stores ½·L·I², and a current broken while it flows arcs and can destroy the
+meter's input and hurt the operator. The station ramps the bias to zero and switches it off after
+each unit, before every prompt for a part, at the end, on Ctrl-C, SIGTERM, a meter fault or any
+error; it shows the energy stored at the plan's largest bias and asks the operator to confirm
+above 0.1 J (or when it is not yet known) unless --unattended is given, which every unit then
+records. Never open the fixture while a bias flows. Mains-powered fixtures must be set up as
+local codes, the meter maker's instructions and licensed practice require.
 """
 
 from __future__ import annotations
@@ -71,6 +80,24 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "acquire-outbox-<station>.db)",
     )
     parser.add_argument("--no-bell", action="store_true", help="do not ring on a fail")
+    parser.add_argument(
+        "--bias-source",
+        metavar="RESOURCE",
+        help="a DC current source for the plan's bias checks (default: the meter's own bias)",
+    )
+    parser.add_argument(
+        "--bias-source-dialect",
+        default="simulated-source",
+        metavar="NAME",
+        help="dialect of --bias-source: a shipped name or a file (default: simulated-source)",
+    )
+    parser.add_argument(
+        "--unattended",
+        action="store_true",
+        help="run a plan with bias checks without asking to confirm the energy the part "
+        "stores; recorded on every unit. Only where no one can touch the fixture while a bias "
+        "flows",
+    )
 
 
 def _reason(text: str | None) -> str:
@@ -130,7 +157,25 @@ def _check_uncertainty_known(plan, meter) -> None:
         )
 
 
+def _bias_supply(plan, meter, source):
+    """The bias supply of a plan with bias checks (None without): ``source`` (a DC current
+    source) or the meter's own bias, refused when the plan's max_bias is above its limit."""
+    from acquire.errors import BiasError
+
+    if not plan.needs_bias:
+        return None
+    supply = source if source is not None else meter.bias()
+    if plan.bias.maximum > supply.limit:
+        raise BiasError(
+            f"the plan's max_bias of {plan.bias.maximum:g} A is above the bias supply's limit of "
+            f"{supply.limit:g} A; lower max_bias or use a supply rated for it"
+        )
+    return supply
+
+
 def run(args: argparse.Namespace) -> int:
+    from contextlib import ExitStack
+
     from acquire.display import text_console
     from acquire.production.measure import apply_settings
     from acquire.production.outbox import Outbox, RecordKeeper, default_outbox_path
@@ -140,6 +185,7 @@ def run(args: argparse.Namespace) -> int:
     from acquire.production.station import Station, StationContext
     from acquire.store import open_store
     from acquire.sweep_setup import find_reference_set
+    from drivers.bias import CurrentSource
     from drivers.meter import ImpedanceMeter
 
     plan = load_plan(args.plan)
@@ -164,9 +210,16 @@ def run(args: argparse.Namespace) -> int:
             return newest_for_fixture(store, plan.fixture)
 
         references = reload()
-        with ImpedanceMeter.open(
-            args.resource, dialect=args.dialect, backend=args.backend
-        ) as meter:
+        with ExitStack() as bench:
+            meter = bench.enter_context(
+                ImpedanceMeter.open(args.resource, dialect=args.dialect, backend=args.backend)
+            )
+            source = None
+            if args.bias_source and plan.needs_bias:
+                source = bench.enter_context(
+                    CurrentSource.open(args.bias_source, dialect=args.bias_source_dialect)
+                )
+            supply = _bias_supply(plan, meter, source)
             _check_uncertainty_known(plan, meter)
             apply_settings(meter, plan)
             identity = meter.identify()
@@ -185,6 +238,8 @@ def run(args: argparse.Namespace) -> int:
                 fixture_id=store.record_fixture(plan.fixture) if plan.fixture else None,
                 temperature=temperature,
                 override=override,
+                supply=supply,
+                unattended=args.unattended,
             )
             store.record_lot(lot)
             screen = StationScreen(console, interactive=interactive, bell=not args.no_bell)

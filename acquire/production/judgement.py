@@ -154,13 +154,15 @@ class Judged:
 
     @property
     def name(self) -> str:
-        """The check as people read it: ``"Ls @ 10 kHz"``, ``"Rdc (20 °C)"``."""
+        """The check as people read it: ``"Ls @ 10 kHz"``, ``"Rdc (20 °C)"``,
+        ``"Ls @ 100 kHz, 3 A bias"``, ``"Isat20% @ 100 kHz"``."""
         c = self.check
         if c.frequency is None:
             if c.quantity == DC_RESISTANCE:
                 return f"{c.quantity} ({REFERENCE_TEMPERATURE:g} °C)"
             return c.quantity
-        return f"{c.quantity} @ {_short(c.frequency, 'Hz')}"
+        name = f"{c.name} @ {_short(c.frequency, 'Hz')}"
+        return name if c.bias is None else f"{name}, {c.bias:g} A bias"
 
     def describe(self) -> str:
         """One plain line: ``"Ls @ 10 kHz 338.2 µH below 339.5 µH (low limit)"``."""
@@ -168,6 +170,8 @@ class Judged:
         v = self.value
         if math.isnan(v):
             return f"{self.name}: no valid reading"
+        if math.isinf(v) and self.check.saturation:
+            return f"{self.name}: the drop was not reached up to the plan's largest bias"
         if math.isinf(v):
             return f"{self.name}: overrange"
 

@@ -16,6 +16,14 @@ most 1 kHz, where the leads' skin effect is negligible; otherwise nothing is rem
 value is corrected to 20 °C with copper's temperature coefficient. The meter's stated accuracy
 (its dialect's ``[accuracy]``) is applied to a DC reading as to an impedance at ``f = 0``.
 
+A plan with checks under a DC bias then measures, inside
+:func:`acquire.bias.ramp.energised` (the plan's largest bias, ramp step and dwell), at each bias
+level in ascending order: the frequencies of the checks at that level and of every saturation
+check whose sweep has a point there, in one list sweep per level. Every bias is ramped back to
+zero and switched off before :func:`measure_unit` returns or raises, whatever ended it. The
+references were captured at zero bias and correct the readings under bias as they are. A
+saturation check's value and U come from :mod:`acquire.production.saturation_check`.
+
 A meter fault (any :class:`drivers.errors.InstrumentError`) never raises: the unit comes back
 with ``error`` set and no values, to be judged "error". Ctrl-C during the sweep is raised again.
 The plan's meter settings are applied once per session by :func:`apply_settings`, not per unit.
@@ -26,17 +34,19 @@ from __future__ import annotations
 import math
 import time
 from collections.abc import Callable
-from dataclasses import dataclass
+from dataclasses import dataclass, field, replace
 from typing import Any
 
 import numpy as np
 
+from acquire.bias.ramp import energised
 from acquire.errors import InputError
-from acquire.impedance import quantities
+from acquire.impedance import KEYS, quantities
 from acquire.plan import FrequencyPlan
 from acquire.production import dc_resistance as dc
 from acquire.production.conformance import combined_standard
-from acquire.production.plan import DC_RESISTANCE, TestPlan
+from acquire.production.plan import DC_RESISTANCE, Check, TestPlan
+from acquire.production.saturation_check import saturation_value
 from acquire.sweep import run_sweep
 from acquire.sweep_uncertainty import PointUncertainty
 from acquire.uncertainty import half_width, quantity_uncertainty, repeatability
@@ -57,6 +67,9 @@ class UnitMeasurement:
     the leads removed (ohm, before the temperature correction; None when the plan has no DC
     step); ``temperature`` the winding temperature used (°C; None without a DC step);
     ``error`` '' or the meter's fault; ``meter_seconds`` the time spent waiting for the meter.
+    ``bias`` maps each check measured under bias to the bias read back (A);  ``inductance``
+    is the zero-bias Ls at the lowest frequency measured (H; None when unmeasured), for the
+    energy the unit stores at the plan's largest bias.
     """
 
     values: dict[str, float]
@@ -68,6 +81,8 @@ class UnitMeasurement:
     temperature: float | None
     error: str
     meter_seconds: float
+    bias: dict[str, float] = field(default_factory=dict)
+    inductance: float | None = None
 
     @property
     def ok(self) -> bool:
@@ -88,7 +103,11 @@ def apply_settings(meter: Any, plan: TestPlan) -> None:
 
 
 def measure_unit(
-    meter: Any, plan: TestPlan, references: Any, temperature: float | None = None
+    meter: Any,
+    plan: TestPlan,
+    references: Any,
+    temperature: float | None = None,
+    supply: Any = None,
 ) -> UnitMeasurement:
     """Measure one unit in the fixture as ``plan`` says; see the module docstring.
 
@@ -97,6 +116,9 @@ def measure_unit(
     the plan's fixed temperature. A plan that checks ``Rdc`` with no temperature known raises
     :class:`~acquire.errors.InputError`, and a reference set whose grid does not cover the
     plan's frequencies :class:`~acquire.errors.CompensationError`, before anything is measured.
+    ``supply`` is the DC bias supply (:class:`drivers.bias.BiasSupply`) for a plan with bias
+    checks; None takes the meter's own (``meter.bias()``). A plan whose largest bias is above
+    the supply's limit raises :class:`~acquire.errors.BiasError` before any bias flows.
     """
     t = _temperature(plan, temperature)
     timed = _TimedMeter(meter)
@@ -106,6 +128,7 @@ def measure_unit(
     freq, raw, corrected = empty, empty.astype(complex), None
     values: dict[str, float] = {}
     u: dict[str, float] = {}
+    curve: dict[float, list[tuple[float, float, float]]] = {}
     if f.size:
         outcome = run_sweep(
             timed,
@@ -124,6 +147,7 @@ def measure_unit(
             )
         assert outcome.cov is not None  # an uncertainty model was given
         values, u = _ac_values(plan, outcome.frequency, outcome.shown, outcome.cov)
+        _add_to_curve(curve, 0.0, outcome.frequency, outcome.shown, outcome.cov)
     r_dut = None
     if plan.needs_dc_resistance:
         assert t is not None
@@ -135,7 +159,89 @@ def measure_unit(
         r_dut, values[DC_RESISTANCE], u[DC_RESISTANCE] = _dc_values(
             readings, references, uncertainty, plan, t
         )
-    return UnitMeasurement(values, u, freq, raw, corrected, r_dut, t, "", timed.seconds)
+    done = UnitMeasurement(values, u, freq, raw, corrected, r_dut, t, "", timed.seconds)
+    if f.size:
+        done = replace(done, inductance=curve[float(f[0])][0][1])
+    if not plan.needs_bias:
+        return done
+    return _under_bias(timed, plan, references, supply, uncertainty, done, curve)
+
+
+def _under_bias(
+    timed: _TimedMeter,
+    plan: TestPlan,
+    references: Any,
+    supply: Any,
+    uncertainty: PointUncertainty,
+    done: UnitMeasurement,
+    curve: dict[float, list[tuple[float, float, float]]],
+) -> UnitMeasurement:
+    """Measure the checks under bias, level by level, ascending; then the saturation checks."""
+    if supply is None:
+        supply = timed.meter.bias()
+    ramp = plan.bias
+    assert ramp.maximum is not None  # the plan file requires it when any check has a bias
+    values, u = dict(done.values), dict(done.uncertainty)
+    applied: dict[str, float] = {}
+    try:
+        with energised(supply, ramp.maximum, ramp.step, ramp.dwell) as held:
+            for level in plan.bias_levels:
+                read_back = held.go(level)
+                outcome = run_sweep(
+                    timed,
+                    FrequencyPlan(plan.frequencies_at(level)),
+                    references,
+                    block=None,
+                    uncertainty=uncertainty,
+                    repeats=plan.meter.repeats,
+                )
+                if isinstance(outcome.error, KeyboardInterrupt):
+                    raise outcome.error
+                if outcome.interrupted:
+                    fault = f"{outcome.reason} (under a bias of {level:g} A)"
+                    return replace(done, values={}, uncertainty={}, error=fault,
+                                   meter_seconds=timed.seconds)  # fmt: skip
+                assert outcome.cov is not None
+                more, more_u = _ac_values(
+                    plan, outcome.frequency, outcome.shown, outcome.cov, level
+                )
+                values |= more
+                u |= more_u
+                applied |= dict.fromkeys(more, read_back)
+                _add_to_curve(curve, level, outcome.frequency, outcome.shown, outcome.cov)
+    except InstrumentError as exc:
+        fault = f"meter fault under bias: {exc}"
+        return replace(done, values={}, uncertainty={}, error=fault, meter_seconds=timed.seconds)
+    for check in plan.checks:
+        if check.saturation:
+            values[check.key], u[check.key] = _saturation(plan, check, curve)
+    return replace(done, values=values, uncertainty=u, bias=applied, meter_seconds=timed.seconds)
+
+
+def _add_to_curve(
+    curve: dict[float, list[tuple[float, float, float]]],
+    level: float,
+    f: np.ndarray,
+    z: np.ndarray,
+    cov: np.ndarray,
+) -> None:
+    """Append (bias, Ls, U of Ls) at each frequency swept to ``curve[frequency]``."""
+    ls = quantities(f, z)["Ls"]
+    big_u = quantity_uncertainty(f, z, cov, ("Ls",))["Ls"]
+    for fi, li, ui in zip(f, ls, big_u, strict=True):
+        curve.setdefault(float(fi), []).append((level, float(li), float(ui)))
+
+
+def _saturation(
+    plan: TestPlan, check: Check, curve: dict[float, list[tuple[float, float, float]]]
+) -> tuple[float, float]:
+    """A saturation check's value and U from the Ls measured at its sweep's points."""
+    assert check.frequency is not None and check.drop is not None
+    points = set(plan.sweep(check))
+    rows = sorted(r for r in curve[float(check.frequency)] if r[0] in points)
+    current, ls, big_u = (np.array(col) for col in zip(*rows, strict=True))
+    value, U, _ = saturation_value(current, ls, big_u, check.drop, check.limit)
+    return value, U
 
 
 def _temperature(plan: TestPlan, given: float | None) -> float | None:
@@ -154,20 +260,23 @@ def _temperature(plan: TestPlan, given: float | None) -> float | None:
 
 
 def _ac_names(plan: TestPlan) -> tuple[str, ...]:
-    return tuple(dict.fromkeys(c.quantity for c in plan.checks if c.frequency is not None))
+    """The impedance quantities the plan's AC checks need (Ls for a saturation check)."""
+    names = ("Ls" if c.saturation else c.quantity for c in plan.checks if c.frequency is not None)
+    return tuple(dict.fromkeys(names))
 
 
 def _ac_values(
-    plan: TestPlan, f: np.ndarray, z: np.ndarray, cov: np.ndarray
+    plan: TestPlan, f: np.ndarray, z: np.ndarray, cov: np.ndarray, bias: float | None = None
 ) -> tuple[dict[str, float], dict[str, float]]:
-    """Each AC check's value and U from the sweep's (corrected, else raw) points."""
-    names = _ac_names(plan)
+    """The value and U of each AC check at ``bias`` (None: zero) from the sweep's (corrected,
+    else raw) points."""
+    names = tuple(n for n in _ac_names(plan) if n in KEYS)
     q = quantities(f, z)
     big_u = quantity_uncertainty(f, z, cov, names)
     where = {float(fi): i for i, fi in enumerate(f)}
     values, u = {}, {}
     for check in plan.checks:
-        if check.frequency is None:
+        if check.frequency is None or check.saturation or check.bias != bias:
             continue
         i = where[float(check.frequency)]
         values[check.key] = float(q[check.quantity][i])

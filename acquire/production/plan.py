@@ -6,7 +6,10 @@ values are SI (henry, ohm, hertz, seconds, degrees Celsius for temperatures).
 
 - A :class:`Check` judges one quantity (a key of :data:`acquire.impedance.KEYS`, or ``"Rdc"``,
   the winding's DC resistance corrected to 20 °C) at one frequency (None for ``Rdc``) against
-  its :class:`Limit` (the tolerance limits, before any guard band).
+  its :class:`Limit` (the tolerance limits, before any guard band). An AC check may be made
+  under a DC ``bias`` (A); a saturation check (quantity ``"Isat"``) judges the current at which
+  Ls has dropped by ``drop`` from its zero-bias value, found on a bias sweep of ``points``
+  points from 0 A to the plan's largest bias (:class:`BiasRamp`).
 - A :class:`BinRule` is a class (for example a tighter tolerance on Ls) a passing unit goes into
   when every one of its checks is satisfied; the first rule satisfied wins.
 - The :class:`DecisionRule` states, as ILAC-G8:09/2019 asks, simple or guard-banded acceptance
@@ -22,6 +25,8 @@ import numpy as np
 
 #: The quantity name of the winding's DC resistance (corrected to 20 °C).
 DC_RESISTANCE = "Rdc"
+#: The quantity name of a saturation current (A): where Ls has dropped by a stated fraction.
+SATURATION = "Isat"
 #: Reference temperature of a corrected DC resistance, °C.
 REFERENCE_TEMPERATURE = 20.0
 
@@ -54,17 +59,41 @@ class Limit:
 
 @dataclass(frozen=True)
 class Check:
-    """One judged quantity at one frequency (Hz; None for the DC resistance ``Rdc``)."""
+    """One judged quantity at one frequency (Hz; None for the DC resistance ``Rdc``).
+
+    ``bias`` is the DC bias (A) the quantity is measured under (None: none). A saturation check
+    (quantity :data:`SATURATION`) has its ``drop`` (a fraction, 0 to 1) and the ``points`` of its
+    bias sweep, from 0 A to the plan's largest bias.
+    """
 
     quantity: str
     frequency: float | None
     limit: Limit
     unit: str = ""
+    bias: float | None = None
+    drop: float | None = None
+    points: int | None = None
+
+    @property
+    def name(self) -> str:
+        """The quantity as recorded: ``"Ls"``, or ``"Isat20%"`` for a saturation current."""
+        if self.drop is None:
+            return self.quantity
+        return f"{self.quantity}{self.drop * 100:g}%"
 
     @property
     def key(self) -> str:
-        """A short unique name: ``"Ls@10000"`` (frequency in Hz, as ``%g``), ``"Rdc"``."""
-        return self.quantity if self.frequency is None else f"{self.quantity}@{self.frequency:g}"
+        """A short unique name: ``"Ls@10000"`` (frequency in Hz, as ``%g``), ``"Rdc"``,
+        ``"Ls@100000@3A"`` under a bias (A, as ``%g``), ``"Isat20%@100000"``. A check without a
+        bias keeps the name it had before biases existed."""
+        if self.frequency is None:
+            return self.name
+        key = f"{self.name}@{self.frequency:g}"
+        return key if self.bias is None else f"{key}@{self.bias:g}A"
+
+    @property
+    def saturation(self) -> bool:
+        return self.quantity == SATURATION
 
 
 @dataclass(frozen=True)
@@ -112,6 +141,16 @@ class Temperature:
 
 
 @dataclass(frozen=True)
+class BiasRamp:
+    """The plan's DC bias: the largest bias any check may use (A; None when no check uses
+    one), and how it is ramped: at most ``step`` (A) at a time, ``dwell`` (s) after each step."""
+
+    maximum: float | None = None
+    step: float = 0.5
+    dwell: float = 0.05
+
+
+@dataclass(frozen=True)
 class SerialPolicy:
     """Serials must match ``pattern`` (a Python regular expression, matched in full).
 
@@ -156,6 +195,7 @@ class TestPlan:
     decision: DecisionRule = field(default_factory=DecisionRule)
     serial: SerialPolicy = field(default_factory=SerialPolicy)
     retest: RetestPolicy = field(default_factory=RetestPolicy)
+    bias: BiasRamp = field(default_factory=BiasRamp)
     text: str = ""
     source: str = ""
 
@@ -171,6 +211,34 @@ class TestPlan:
         """The distinct AC frequencies of the checks, ascending (one list sweep measures all)."""
         found = {c.frequency for c in self.checks if c.frequency is not None}
         return np.array(sorted(found), dtype=float)
+
+    def frequencies_at(self, bias: float | None) -> np.ndarray:
+        """The distinct frequencies of the AC checks measured at ``bias`` (None: zero bias),
+        with every saturation sweep's frequencies at the sweep's points, ascending."""
+        found = {c.frequency for c in self.checks if not c.saturation and c.bias == bias}
+        level = 0.0 if bias is None else bias
+        found |= {c.frequency for c in self.checks if c.saturation and level in self.sweep(c)}
+        return np.array(sorted(f for f in found if f is not None), dtype=float)
+
+    def sweep(self, check: Check) -> tuple[float, ...]:
+        """The bias currents (A) of a saturation check's sweep: ``points`` from 0 A to the
+        plan's largest bias, evenly spaced."""
+        if not check.saturation or self.bias.maximum is None or check.points is None:
+            return ()
+        return tuple(float(x) for x in np.linspace(0.0, self.bias.maximum, check.points))
+
+    @property
+    def bias_levels(self) -> tuple[float, ...]:
+        """Every bias above zero that a unit is measured at (A), ascending."""
+        found = {c.bias for c in self.checks if c.bias is not None}
+        for check in self.checks:
+            found.update(self.sweep(check))
+        return tuple(sorted(b for b in found if b is not None and b > 0))
+
+    @property
+    def needs_bias(self) -> bool:
+        """True when any check is measured under a DC bias (a biased or saturation check)."""
+        return bool(self.bias_levels)
 
     @property
     def needs_dc_resistance(self) -> bool:

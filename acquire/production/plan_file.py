@@ -2,8 +2,11 @@
 
 The layout is our own (``acquire/examples/coil-plan.toml`` shows every key,
 ``acquire/examples/README.md`` explains them): ``[plan]``, ``[references]``, ``[meter]``,
-``[temperature]``, ``[decision]``, ``[serial]``, ``[retest]``, ``[[step]]`` tables with their
-``[[step.check]]``, ``[[bin]]`` tables with their ``[[bin.check]]`` and ``[bins]``. Every
+``[temperature]``, ``[decision]``, ``[serial]``, ``[retest]``, ``[bias]``, ``[[step]]`` tables
+with their ``[[step.check]]`` (a step may be measured under a DC ``bias``), ``[[saturation]]``
+tables (limits on the saturation current at a drop), ``[[bin]]`` tables with their
+``[[bin.check]]`` and ``[bins]``. A plan that uses any bias must state its largest, ``max_bias``
+under ``[bias]``; no bias of the plan may exceed it. Every
 quantity is text with its unit and an optional SI prefix (``"344uH"``, ``"4.95ohm"``,
 ``"10kHz"``, ``"3%"``), read with :mod:`acquire.units`; a plain number is taken in SI units.
 
@@ -14,6 +17,7 @@ A malformed plan raises :class:`PlanError`, one line:
 
 from __future__ import annotations
 
+import dataclasses
 import re
 import tomllib
 from collections.abc import Mapping
@@ -24,6 +28,7 @@ from acquire.impedance import KEYS
 from acquire.production.plan import (
     DC_RESISTANCE,
     REJECT_BIN,
+    BiasRamp,
     BinRule,
     Check,
     DecisionRule,
@@ -33,12 +38,12 @@ from acquire.production.plan import (
     Temperature,
     TestPlan,
 )
+from acquire.production.plan_bias import BiasTables
 from acquire.production.plan_text import describe_plan
 from acquire.production.plan_values import (
     UNITS,
     LimitError,
     PlanError,
-    TableReader,
     age_seconds,
     check_name,
     either,
@@ -51,8 +56,8 @@ __all__ = ["PlanError", "describe_plan", "example_plan_path", "load_plan", "pars
 
 #: The top-level keys of a plan file, and the keys allowed in each of its plain tables.
 TOP_KEYS = (
-    "plan", "references", "meter", "temperature", "decision", "serial", "retest", "step", "bin",
-    "bins",
+    "plan", "references", "meter", "temperature", "decision", "serial", "retest", "bias", "step",
+    "saturation", "bin", "bins",
 )  # fmt: skip
 TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "plan": ("name", "version", "part", "notes"),
@@ -62,10 +67,11 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "decision": ("rule", "guard_factor", "statements"),
     "serial": ("pattern", "seen_before"),
     "retest": ("attempts", "on_fail", "on_error"),
+    "bias": ("max_bias", "ramp_step", "ramp_dwell"),
     "bins": ("otherwise",),
 }
 LIMIT_KEYS = ("nominal", "tolerance", "tolerance_low", "tolerance_high", "minimum", "maximum")
-STEP_KEYS = ("frequency", "dc", "check")
+STEP_KEYS = ("frequency", "dc", "bias", "check")
 BIN_KEYS = ("name", "check")
 SPEEDS = ("fast", "medium", "slow")
 TEMPERATURE_SOURCES = ("fixed", "per-lot", "none")
@@ -75,11 +81,12 @@ RESERVED_BINS = (REJECT_BIN, "error")
 _TOML_PLACE = re.compile(r"\s*\(at (?:line (\d+), column (\d+)|end of document)\)\s*$")
 
 
-def example_plan_path() -> Path:
-    """The example plan shipped with the tool (``acquire/examples/coil-plan.toml``)."""
+def example_plan_path(kind: str = "coil") -> Path:
+    """An example plan shipped with the tool: ``acquire/examples/coil-plan.toml`` (the demo
+    coil), or with ``kind="choke"`` ``choke-plan.toml`` (a power choke under DC bias)."""
     from importlib.resources import files
 
-    return Path(str(files("acquire").joinpath("examples", "coil-plan.toml")))
+    return Path(str(files("acquire").joinpath("examples", f"{kind}-plan.toml")))
 
 
 def load_plan(path: str | Path) -> TestPlan:
@@ -128,7 +135,7 @@ def _toml_message(message: str, text: str, source: str) -> str:
     return f"{source}: {where}: {reason}; fix the TOML syntax (see acquire/examples/README.md)"
 
 
-class _Reader(TableReader):
+class _Reader(BiasTables):
     """Reads a parsed TOML document into a :class:`TestPlan`."""
 
     def plan(self, data: dict[str, Any], text: str) -> TestPlan:
@@ -149,7 +156,8 @@ class _Reader(TableReader):
         decision = self.decision(self.table(data, "decision", "decision"))
         serial = self.serial(self.table(data, "serial", "serial"))
         retest = self.retest(self.table(data, "retest", "retest"))
-        checks = self.steps(data)
+        ramp = self.bias_ramp(self.table(data, "bias", "bias"))
+        checks = self.steps(data, ramp) + self.saturation(data, ramp)
         if any(c.quantity == DC_RESISTANCE for c in checks) and temperature.source == "none":
             raise self.fail(
                 "temperature.source",
@@ -161,10 +169,10 @@ class _Reader(TableReader):
             name=name, version=version, part=part, notes=notes, checks=checks,
             fixture=fixture, max_reference_age=max_age, meter=meter, temperature=temperature,
             bins=bins, otherwise_bin=otherwise, decision=decision, serial=serial,
-            retest=retest, text=text, source=self.source,
+            retest=retest, bias=ramp, text=text, source=self.source,
         )  # fmt: skip
 
-    def steps(self, data: Mapping[str, Any]) -> tuple[Check, ...]:
+    def steps(self, data: Mapping[str, Any], ramp: BiasRamp) -> tuple[Check, ...]:
         checks: dict[str, tuple[Check, str]] = {}
         steps = self.tables(data, "step", "step")
         if not steps:
@@ -173,6 +181,7 @@ class _Reader(TableReader):
             path = f"step[{i}]"
             self.known(step, STEP_KEYS, path)
             frequency = self.step_frequency(step, path)
+            bias = self.step_bias(step, path, frequency, ramp)
             rows = self.tables(step, "check", f"{path}.check")
             if not rows:
                 raise self.fail(
@@ -180,20 +189,21 @@ class _Reader(TableReader):
                 )
             for j, row in enumerate(rows, 1):
                 check = self.check(row, frequency, f"{path}.check[{j}]", LIMIT_KEYS)
+                check = dataclasses.replace(check, bias=bias)
                 if check.key in checks:
                     self.twice(check, *checks[check.key], f"{path}.check[{j}]")
                 checks[check.key] = (check, f"{path}.check[{j}]")
         return tuple(check for check, _ in checks.values())
 
     def twice(self, check: Check, first: Check, first_path: str, path: str) -> None:
-        if first.frequency == check.frequency:
+        if first.frequency == check.frequency and first.bias == check.bias:
             raise self.fail(path, f"{check_name(check)} is checked twice (also at {first_path})",
                             "keep one check per quantity and frequency")  # fmt: skip
         raise self.fail(
             f"{path.rsplit('.', 1)[0]}.frequency",
             f"{check.frequency!r} Hz here and {first.frequency!r} Hz at {first_path} agree to "
             f"6 digits, so their checks share the name {check.key}",
-            "merge the two steps or move the frequencies apart",
+            "merge the two steps or move the frequencies (or biases) apart",
         )
 
     def step_frequency(self, step: Mapping[str, Any], path: str) -> float | None:
@@ -207,14 +217,6 @@ class _Reader(TableReader):
                 path, "the step has no frequency", 'add frequency = "10kHz" or dc = true'
             )
         return self.frequency(step["frequency"], f"{path}.frequency")
-
-    def frequency(self, raw: Any, path: str) -> float:
-        value = self.quantity(raw, lambda t: parse_quantity(t, "Hz"), path, '"10kHz"')
-        if value <= 0:
-            raise self.fail(
-                path, f"{format_si(value, 'Hz')} is not above 0 Hz", 'write e.g. "10kHz"'
-            )
-        return value
 
     def check(
         self, row: Mapping[str, Any], frequency: float | None, path: str, allowed: tuple[str, ...]
@@ -286,13 +288,16 @@ class _Reader(TableReader):
             frequency = self.frequency(row["frequency"], f"{path}.frequency")
         elif "frequency" in row:
             raise self.fail(f"{path}.frequency", "Rdc is measured at DC", "remove the frequency")
-        rest = {k: v for k, v in row.items() if k != "frequency"}
-        check = self.check(rest, frequency, path, LIMIT_KEYS)
+        bias = None
+        if "bias" in row:
+            bias = self.current(row["bias"], f"{path}.bias") or None
+        rest = {k: v for k, v in row.items() if k not in ("frequency", "bias")}
+        check = dataclasses.replace(self.check(rest, frequency, path, LIMIT_KEYS), bias=bias)
         if check.key not in plan:
             raise self.fail(
                 path,
                 f"no step checks {check_name(check)}",
-                "a bin can only use a quantity and frequency a step checks",
+                "a bin can only use a quantity, frequency and bias a step checks",
             )
         return check
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 import math
 from typing import Any
 
+from acquire.bias.energy import CONFIRM_ABOVE, stored_energy
 from acquire.production.plan import REFERENCE_TEMPERATURE, REJECT_BIN, Check, TestPlan
 from acquire.production.plan_values import check_name, show
 
@@ -84,9 +85,10 @@ def describe_plan(plan: TestPlan) -> list[str]:
     if len(f):
         listed = ", ".join(show(x, "Hz") for x in f)
         count = "1 frequency" if len(f) == 1 else f"{len(f)} frequencies"
-        lines.append(f"{step}. one list sweep of {count}: {listed}")
+        at_zero = " at zero bias" if plan.needs_bias else ""
+        lines.append(f"{step}. one list sweep{at_zero} of {count}: {listed}")
         for check in plan.checks:
-            if check.frequency is not None:
+            if check.frequency is not None and check.bias is None and not check.saturation:
                 lines.append(f"   check {_limit_line(check)}")
         step += 1
     if plan.needs_dc_resistance:
@@ -102,6 +104,9 @@ def describe_plan(plan: TestPlan) -> list[str]:
         for check in plan.checks:
             if check.frequency is None:
                 lines.append(f"   check {_limit_line(check)}")
+        step += 1
+    if plan.needs_bias:
+        lines += bias_lines(plan, step)
         step += 1
     words = decision_words(plan)
     lines.append(f"{step}. decision: {words[0]}")
@@ -130,9 +135,69 @@ def describe_plan(plan: TestPlan) -> list[str]:
     return lines
 
 
+def planned_energy(plan: TestPlan) -> float | None:
+    """½·L·I² at the plan's largest bias with L the largest zero-bias Ls or Lp its limits allow
+    (the high limit, else the nominal); None when no such limit gives one. Under bias a core's
+    inductance falls, so this over-estimates what a conforming part stores."""
+    if plan.bias.maximum is None:
+        return None
+    found = [
+        c.limit.high if c.limit.high is not None else c.limit.nominal
+        for c in plan.checks
+        if c.quantity in ("Ls", "Lp") and c.bias is None and c.frequency is not None
+    ]
+    known = [x for x in found if x is not None and x > 0]
+    if not known:
+        return None
+    return float(stored_energy(max(known), plan.bias.maximum))
+
+
+def bias_lines(plan: TestPlan, step: int) -> list[str]:
+    """The step under DC bias: levels, saturation checks, and the safety note."""
+    ramp = plan.bias
+    top = show(ramp.maximum or 0.0, "A")
+    levels = plan.bias_levels
+    lines = [
+        f"{step}. under DC bias (never above {top}; ramped in steps of at most "
+        f"{show(ramp.step, 'A')}, {show(ramp.dwell, 's')} after each): {len(levels)} bias "
+        f"level{'s' * (len(levels) != 1)} from {show(levels[0], 'A')} up to "
+        f"{show(levels[-1], 'A')}, ascending, one list sweep at each",
+    ]
+    for check in plan.checks:
+        if check.bias is not None:
+            lines.append(f"   check {_limit_line(check)}")
+    for check in plan.checks:
+        if check.saturation:
+            assert check.frequency is not None and check.points is not None
+            lines.append(
+                f"   check {_limit_line(check)}: the current where Ls at "
+                f"{show(check.frequency, 'Hz')} has dropped by {(check.drop or 0.0) * 100:g} % "
+                f"from zero bias, on {check.points} points from 0 A to {top} (interpolated "
+                f"between points; not reached: above {top})"
+            )
+    planned = planned_energy(plan)
+    estimate = (
+        "the plan's zero-bias Ls limits give no estimate" if planned is None
+        else f"at most about {show(planned, 'J')} from the plan's zero-bias Ls limits"
+    )  # fmt: skip
+    lines += [
+        "   references: open/short/load were captured at zero bias and correct the readings "
+        "under bias as they are",
+        "   safety: a choke carrying DC stores ½·L·I², and a current broken while it flows "
+        "arcs and can harm the meter and the operator; the bias is ramped to 0 A and switched "
+        "off after each unit, before every prompt for a part, and on any stop or fault. The "
+        f"energy stored at {top} is known only once a unit is measured ({estimate}): the "
+        "station shows it from the first unit and asks for confirmation above "
+        f"{CONFIRM_ABOVE:g} J. Follow the meter and fixture makers' instructions, local codes "
+        "and licensed practice",
+    ]
+    return lines
+
+
 def _check_data(check: Check) -> dict[str, Any]:
     return {
         "key": check.key, "quantity": check.quantity, "frequency": check.frequency,
+        "bias": check.bias, "drop": check.drop, "points": check.points,
         "unit": check.unit, "low": check.limit.low, "high": check.limit.high,
         "nominal": check.limit.nominal, "limit": check.limit.text,
     }  # fmt: skip
@@ -148,6 +213,8 @@ def plan_summary(plan: TestPlan) -> dict[str, Any]:
         "meter": {"level": plan.meter.level, "speed": plan.meter.speed,
                   "averaging": plan.meter.averaging, "repeats": plan.meter.repeats},
         "frequencies": [float(x) for x in plan.frequencies],
+        "bias": {"max_bias": plan.bias.maximum, "ramp_step": plan.bias.step,
+                 "ramp_dwell": plan.bias.dwell, "levels": list(plan.bias_levels)},
         "checks": [_check_data(c) for c in plan.checks],
         "temperature": {"source": t.source, "value": t.value, "half_width": t.half_width},
         "decision": {"guarded": d.guarded, "guard_factor": d.factor, "binary": d.binary},

@@ -16,16 +16,17 @@ from collections.abc import Callable, Mapping
 from typing import Any
 
 from acquire.errors import InputError
-from acquire.production.plan import DC_RESISTANCE, Check, Limit
+from acquire.production.plan import DC_RESISTANCE, SATURATION, Check, Limit
 from acquire.units import format_si, parse_fraction, parse_quantity
 
 #: The unit each checkable quantity is shown in ("" for the plain numbers Q and D).
 UNITS: dict[str, str] = {
     "Ls": "H", "Lp": "H", "Rs": "Ω", "Rp": "Ω", "Z": "Ω", "X": "Ω", "Cs": "F", "Cp": "F",
-    "G": "S", "B": "S", "Q": "", "D": "", "theta": "°", DC_RESISTANCE: "Ω",
+    "G": "S", "B": "S", "Q": "", "D": "", "theta": "°", DC_RESISTANCE: "Ω", SATURATION: "A",
 }  # fmt: skip
 #: How a value of each unit is written in a plan, for the refusal messages.
 EXAMPLES = {"H": '"344uH"', "Ω": '"4.95ohm"', "F": '"100pF"', "S": '"10mS"', "": "40"}
+EXAMPLES["A"] = '"2.5A"'
 EXAMPLES["°"] = '"85deg"'
 _CONTROL = re.compile(r"[\x00-\x1f\x7f]")
 _AGE = re.compile(
@@ -295,9 +296,11 @@ def kelvin(raw: str | int | float) -> float:
 
 
 def check_name(check: Check) -> str:
+    """``"Ls at 100 kHz"``, ``"Ls at 100 kHz under 3 A bias"``, ``"Isat20% at 100 kHz"``."""
     if check.frequency is None:
-        return check.quantity
-    return f"{check.quantity} at {show(check.frequency, 'Hz')}"
+        return check.name
+    name = f"{check.name} at {show(check.frequency, 'Hz')}"
+    return name if check.bias is None else f"{name} under {check.bias:g} A bias"
 
 
 def either(words: tuple[str, ...]) -> str:

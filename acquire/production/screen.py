@@ -82,7 +82,8 @@ class StationStatus:
     ``waiting`` units are in the outbox, not yet in the store. ``blocked`` says why the station
     is stopped and what to do ("" when it runs); ``override`` the reason given for using
     references despite a block. ``last`` holds the latest units, newest first; ``current`` the
-    one just judged; ``message`` one line for the operator (a refused serial, a hint).
+    one just judged; ``message`` one line for the operator (a refused serial, a hint);
+    ``energy`` the energy a unit stores at the plan's largest bias ('' without bias checks).
     """
 
     station: str
@@ -100,6 +101,7 @@ class StationStatus:
     last: tuple[ShownUnit, ...] = ()
     current: ShownUnit | None = None
     message: str = ""
+    energy: str = ""
 
     @property
     def yield_(self) -> float:
@@ -132,6 +134,8 @@ def render(status: StationStatus, width: int = 80, height: int | None = None) ->
     With ``height``, the table of the last units gives up rows (and goes, if need be) so that
     the screen fits that many lines and the verdict never scrolls off the top."""
     parts: list[RenderableType] = [_header(status)]
+    if status.energy:
+        parts.append(Text(f"BIAS: {status.energy}", style=WARNING))
     if status.blocked:
         parts.append(
             Text(f"STATION STOPPED: {status.blocked}", style="bold white on red", justify="left")
@@ -355,6 +359,9 @@ class StationScreen:
                 return
             if status.current is not None and status.current != self._last_unit:
                 self._plain(plain_line(status.current))
+            last = self._last_status
+            if status.energy and (last is None or status.energy != last.energy):
+                self._plain(status.energy)
             if status.blocked and status.blocked != self._last_blocked:
                 self._plain(f"station stopped: {status.blocked}")
             if status.message:

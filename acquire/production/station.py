@@ -8,6 +8,10 @@ outbox while the store is away: the screen says how many wait). A meter fault ma
 attempt's outcome "error": it is recorded and the serial may be tested again. :meth:`Station.run`
 repeats that for every line the screen reads until the end of input or Ctrl-C.
 
+A plan with checks under a DC bias holds the bias only while a unit is measured
+(:mod:`acquire.production.measure`); :mod:`acquire.production.station_bias` switches it off
+before every prompt and at the end, shows the stored energy and asks for its confirmation.
+
 The station knows nothing of the command line: the meter, the record keeper, the screen and the
 ways to read the store come in as objects.
 """
@@ -26,6 +30,7 @@ from acquire.production.measure import UnitMeasurement, measure_unit
 from acquire.production.plan import CONDITIONAL_PASS, PASS, REJECT_BIN, TestPlan
 from acquire.production.reference_guard import CAPTURE_HINT, check_problems, reference_blocks
 from acquire.production.screen import NOT_TESTED, ShownUnit, StationStatus
+from acquire.production.station_bias import BiasGuard
 from acquire.signals import held, stop_reason
 from acquire.store.records import MeasurementRecord, UnitRecord, new_attempt_id
 from acquire.store.schema import utc_now
@@ -37,7 +42,8 @@ SHOWN_UNITS = 8
 
 @dataclass(frozen=True)
 class StationContext:
-    """Who and what a session's units are recorded with."""
+    """Who and what a session's units are recorded with; ``supply`` the DC bias supply (None:
+    the meter's own), ``unattended`` skips confirming the stored energy (recorded)."""
 
     plan: TestPlan
     lot: str
@@ -49,6 +55,8 @@ class StationContext:
     fixture_id: int | None = None
     temperature: float | None = None
     override: str = ""
+    supply: Any = None
+    unattended: bool = False
 
 
 @dataclass
@@ -99,12 +107,16 @@ def _unknown_u_note(judgement: UnitJudgement, plan: TestPlan) -> str:
     )
 
 
-def measurement_records(judgement: UnitJudgement) -> tuple[MeasurementRecord, ...]:
+def measurement_records(
+    judgement: UnitJudgement, bias: dict[str, float] | None = None
+) -> tuple[MeasurementRecord, ...]:
     """The judged values as store records: the acceptance limits applied, the tolerance limits,
-    the verdict and the expanded uncertainty of each."""
+    the verdict and the expanded uncertainty of each, and the bias read back for a check
+    measured under bias (``bias`` maps check keys to A)."""
+    bias = bias or {}
     return tuple(
         MeasurementRecord(
-            j.check.quantity,
+            j.check.name,
             j.value,
             j.check.unit,
             j.check.frequency,
@@ -114,6 +126,7 @@ def measurement_records(judgement: UnitJudgement) -> tuple[MeasurementRecord, ..
             uncertainty=j.uncertainty,
             tolerance_low=j.check.limit.low,
             tolerance_high=j.check.limit.high,
+            bias_current=bias.get(j.check.key, j.check.bias),
         )
         for j in judgement.judged
     )
@@ -154,6 +167,8 @@ class Station:
         self.message = ""
         self._in_fixture = ""
         self._checked: tuple[Any, list[str]] = (object(), [])
+        #: The stored energy at the plan's largest bias: measured on a unit, else planned.
+        self.bias = BiasGuard(context.plan, self.supply, context.unattended)
 
     # -- state ---------------------------------------------------------------------------------
 
@@ -198,6 +213,7 @@ class Station:
             last=tuple(self.last[:SHOWN_UNITS]),
             current=self.current,
             message=self.message,
+            energy=self.bias.line(),
         )
 
     def show(self) -> None:
@@ -238,6 +254,7 @@ class Station:
         started = utc_now()
         attempt_id = new_attempt_id()
         measured = self._measure_unit(serial)
+        self.bias.note_unit(measured)
         with held():  # a stop signal or Ctrl-C from here ends the session once it is recorded
             return self._conclude(serial, admission.attempt, attempt_id, started, measured)
 
@@ -295,11 +312,22 @@ class Station:
                 return _fault(f"meter fault: {exc}")
         self._in_fixture = serial
         c = self.context
+        if c.plan.needs_bias:
+            return self._measure(
+                self.meter, c.plan, self.references, c.temperature, supply=self.supply()
+            )
         return self._measure(self.meter, c.plan, self.references, c.temperature)
+
+    def supply(self) -> Any:
+        """The bias supply: the context's, else the meter's own."""
+        return self.context.supply if self.context.supply is not None else self.meter.bias()
 
     def _has(self, operation: str) -> bool:
         has = getattr(self.meter, "has", None)
         return bool(has(operation)) if has is not None else False
+
+    def _notes(self, measured: UnitMeasurement, judgement: UnitJudgement) -> str:
+        return self.bias.note(measured.error or _unknown_u_note(judgement, self.context.plan))
 
     def _record(
         self,
@@ -315,7 +343,7 @@ class Station:
         return UnitRecord(
             serial=serial,
             outcome=judgement.outcome,
-            measurements=measurement_records(judgement),
+            measurements=measurement_records(judgement, measured.bias),
             lot=c.lot,
             attempt=attempt,
             bin=judgement.bin,
@@ -327,7 +355,7 @@ class Station:
             fixture_id=c.fixture_id,
             started_at=started,
             finished_at=utc_now(),
-            notes=measured.error or _unknown_u_note(judgement, c.plan),
+            notes=self._notes(measured, judgement),
             attempt_id=attempt_id,
             reference_override=override,
             temperature=measured.temperature,
@@ -344,9 +372,13 @@ class Station:
         self.show()
         try:
             while True:
+                self.message = self.bias.off() or self.message  # bias off before a prompt
+                ended = self.bias.needs_confirmation() and self.bias.confirm(
+                    self.screen.ask, interactive
+                )
                 blocked = self.blocked
-                if blocked and not interactive:
-                    self.message = f"session ended: the station is stopped: {blocked}"
+                if ended or (blocked and not interactive):
+                    self.message = ended or f"session ended: the station is stopped: {blocked}"
                     self.show()
                     break
                 prompt = "press Enter when new references are captured" if blocked else "serial"
@@ -361,4 +393,6 @@ class Station:
                 self.test(line)
         except KeyboardInterrupt as stop:
             self.message = f"session ended: {stop_reason(stop)}"
+        finally:
+            self.message = self.bias.off() or self.message
         return self.status()

@@ -30,6 +30,7 @@ BENCHMARKS = (
     "bench_store",
     "bench_station",
     "bench_memory",
+    "bench_simulator",
 )
 
 

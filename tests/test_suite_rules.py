@@ -47,3 +47,22 @@ def test_no_test_or_benchmark_cites_an_issue():
         for line in cites_an_issue(path.read_text(encoding="utf-8"))
     ]
     assert not found, "name the source, not the issue: " + ", ".join(found)
+
+
+def test_every_speed_benchmark_is_run_by_run_all_and_prints_its_goals():
+    # benchmarks/run_all.py prints every goal in one table: a benchmark it does not list, or one
+    # that prints its goal without goals.report (so run_all cannot read it), would be missed.
+    import ast
+
+    folder = TESTS.parent / "benchmarks"
+    tree = ast.parse((folder / "run_all.py").read_text(encoding="utf-8"))
+    listed = next(
+        ast.literal_eval(node.value)
+        for node in tree.body
+        if isinstance(node, ast.Assign) and getattr(node.targets[0], "id", "") == "BENCHMARKS"
+    )
+    timed = {p.stem for p in folder.glob("bench_*.py")}
+    assert set(listed) == timed
+    for name in listed:
+        text = (folder / f"{name}.py").read_text(encoding="utf-8")
+        assert "report(" in text and "--quick" in text, name

@@ -23,7 +23,7 @@ from rich.table import Table
 from rich.text import Text
 
 from acquire.capture import SAFETY, capture_references
-from acquire.dashboard import open_view, summary
+from acquire.dashboard import open_view
 from acquire.demo_lot import production_lot
 from acquire.demo_report import write_report
 from acquire.errors import AcquireError
@@ -31,6 +31,7 @@ from acquire.plan import FrequencyPlan, log_plan
 from acquire.sweep import SweepOutcome, run_sweep
 from acquire.sweep_setup import begin, prepare_state, review_readings, uncertainty_model
 from acquire.sweep_state import SweepState
+from acquire.sweep_summary import summary
 from acquire.units import format_si
 
 #: What the demo measures: a coil and a fixture of our own invention (sim_profiles/).

@@ -13,7 +13,7 @@ import time
 import pytest
 
 from acquire.cli import main
-from acquire.commands.bias_sweep import check_energy
+from acquire.commands.bias_common import check_energy
 from acquire.errors import BiasError
 from drivers.simulator import running
 from drivers.simulator.profiles import dut_from_dict

@@ -11,11 +11,12 @@ import numpy as np
 import pytest
 from rich.console import Console
 
-from acquire.dashboard import DashboardView, LiveDashboard, PlainProgress, open_view, summary
+from acquire.dashboard import DashboardView, LiveDashboard, PlainProgress, open_view
 from acquire.display import format_duration, format_value
 from acquire.plan import list_plan, log_plan
 from acquire.resonance import self_resonance, summary_frequencies
 from acquire.sweep_state import SweepState
+from acquire.sweep_summary import summary
 from acquire.textplot import MARKER, draw, x_axis
 
 L, R, C = 340e-6, 4.8, 1.5e-12  # demo data: a coil of our own invention

@@ -154,7 +154,7 @@ def _measure(args: argparse.Namespace) -> int:
 
     from acquire.commands.options import plan_from_args
     from acquire.csvout import write_sweep_csv
-    from acquire.dashboard import open_view, summary
+    from acquire.dashboard import open_view
     from acquire.destination import check_destination
     from acquire.display import text_console
     from acquire.errors import InputError
@@ -169,6 +169,7 @@ def _measure(args: argparse.Namespace) -> int:
         uncertainty_model,
         warn_about_references,
     )
+    from acquire.sweep_summary import summary
     from acquire.units import parse_quantity
     from drivers.meter import ImpedanceMeter
 

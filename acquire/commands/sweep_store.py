@@ -175,9 +175,9 @@ def _show(args: argparse.Namespace) -> int:
     from rich.text import Text
 
     from acquire.commands.options import open_existing_store
-    from acquire.dashboard import summary
     from acquire.display import text_console
     from acquire.report.sweep_export import to_state
+    from acquire.sweep_summary import summary
 
     with open_existing_store(args.store) as store:
         sweep = _load(store, args.sweep_id)

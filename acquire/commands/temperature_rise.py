@@ -30,7 +30,7 @@ import argparse
 import sys
 from typing import Any
 
-from acquire.commands.bias_sweep import add_bias_arguments, add_outputs
+from acquire.commands.bias_common import add_bias_arguments, add_outputs
 from acquire.commands.options import add_dialect, add_resource, add_store
 
 HELP = "hold a DC current through a winding and measure its temperature rise; --rise finds it"
@@ -96,12 +96,12 @@ def run(args: argparse.Namespace) -> int:
         from acquire.commands.bias_store import run_action
 
         return run_action(args)
-    from acquire.commands.bias_sweep import measuring_needs
+    from acquire.commands.bias_common import measuring_needs
 
     measuring_needs(args, "temperature-rise", "--current", "--ambient")
     from acquire.bias.records import RiseSettings
     from acquire.bias.rise_run import measure_rise
-    from acquire.commands.bias_sweep import (
+    from acquire.commands.bias_common import (
         allowed_maximum,
         bias_options,
         bias_supply,

@@ -231,7 +231,7 @@ def _numbers(values: np.ndarray) -> list[float | str]:
 
 def to_state(sweep: StoredSweep, references: Any = None) -> Any:
     """A :class:`acquire.sweep_state.SweepState` holding the stored sweep as it ended, for
-    :func:`acquire.dashboard.summary` (the same table the sweep printed at its end).
+    :func:`acquire.sweep_summary.summary` (the same table the sweep printed at its end).
 
     Flags come from the store; which quantity a flagged point hides is judged again from the
     stored U of R and X taken as uncorrelated. With ``references`` (the sweep's reference set)

@@ -199,10 +199,8 @@ def _row(source: str, ss: float, df: int, over: tuple[float, int] | None) -> Ano
     if over is None:
         return AnovaRow(source, ss, df, ms, math.nan, math.nan)
     ms_over, df_over = over
-    if ms_over > 0:
-        ratio = ms / ms_over
-    else:  # no scatter to test against: any effect is certain, none is undefined
-        ratio = math.inf if ms > 0 else math.nan
+    # with no scatter to test against, any effect is certain and none is undefined
+    ratio = ms / ms_over if ms_over > 0 else (math.inf if ms > 0 else math.nan)
     return AnovaRow(source, ss, df, ms, ratio, float(f_dist.sf(ratio, df, df_over)))
 
 

@@ -73,7 +73,7 @@ def read_grr_csv(path: str | Path) -> GrrData:
             lines.append(line)
     rows = list(csv.reader(lines))
     if not rows:
-        raise InputError(f"{path}: no header row; the first line must name part,operator,trial,value")
+        raise InputError(f"{path}: no header row; the first line names part,operator,trial,value")
     header = [h.strip() for h in rows[0]]
     keys = [_header_key(h) for h in header]
     extra = [h for h, k in zip(header, keys, strict=True) if k not in COLUMNS]

@@ -23,7 +23,7 @@ import numpy as np
 from matplotlib.figure import Figure
 
 from acquire.msa.average_range import ChartLimits, average_chart, range_chart
-from acquire.msa.grr_report import GrrAnalysis
+from acquire.msa.grr_report import GrrAnalysis, shown
 from acquire.report import look
 
 #: Bars of the components picture: (label, hatch-free fill).
@@ -34,8 +34,7 @@ SOURCES = (("gauge R&R", "grr"), ("repeatability", "repeatability"),
 
 
 def _title(a: GrrAnalysis, what: str) -> str:
-    name = a.quantity or "value"
-    return look.plain(f"{name}: {what}")
+    return look.plain(f"{shown(a.quantity or 'value')}: {what}")
 
 
 def component_percentages(a: GrrAnalysis) -> dict[str, list[float]]:
@@ -59,8 +58,8 @@ def components_figure(a: GrrAnalysis) -> Figure:
     x = np.arange(len(SOURCES), dtype=float)
     width = 0.8 / len(heights)
     for n, (kind, values) in enumerate(heights.items()):
-        shown = np.nan_to_num(np.asarray(values, dtype=float), nan=0.0)
-        ax.bar(x + (n - (len(heights) - 1) / 2) * width, shown, width, label=kind,
+        drawn = np.nan_to_num(np.asarray(values, dtype=float), nan=0.0)
+        ax.bar(x + (n - (len(heights) - 1) / 2) * width, drawn, width, label=kind,
                       facecolor=FILLS[n], edgecolor=look.INK, linewidth=0.8)  # fmt: skip
     for edge in (10.0, 30.0):
         ax.axhline(edge, gid="band", **look.LINES["acceptance"])
@@ -71,9 +70,9 @@ def components_figure(a: GrrAnalysis) -> Figure:
     ax.set_ylim(0.0, max(105.0, *(np.nan_to_num(v).max() * 1.05 for v in heights.values())))
     ax.legend(loc="upper left", bbox_to_anchor=(1.06, 1.0), borderaxespad=0.0)
     ax.set_title(_title(a, "components of variation (ANOVA method)"), loc="left")
-    tol = ", tolerance" if a.tolerance is not None else ""
-    ax.set_xlabel(f"dashed: the 10 % and 30 % band edges of %GRR (common practice); "
-                  f"% of total variance, total σ{tol}")  # fmt: skip
+    tol = f"; of the tolerance ({a.sigmas:g}σ)" if a.tolerance is not None else ""
+    ax.set_xlabel("dashed: the 10 % and 30 % band edges of %GRR (common practice)\n"
+                  f"percent of the total variance; of the total σ{tol}")  # fmt: skip
     return figure
 
 
@@ -98,7 +97,7 @@ def _by_operator(ax: Any, a: GrrAnalysis, chart: ChartLimits, name: str) -> np.n
     ax.set_xticks(x[:, :].T.ravel(), [str(q) for _ in range(o) for q in a.cube.parts],
                   fontsize=7)  # fmt: skip
     for j, op in enumerate(a.cube.operators):
-        ax.annotate(look.plain(op), (float(x[:, j].mean()), 1.0),
+        ax.annotate(look.plain(shown(op)), (float(x[:, j].mean()), 1.0),
                     xycoords=("data", "axes fraction"), xytext=(0, 3),
                     textcoords="offset points", ha="center", fontsize=8)  # fmt: skip
     return x
@@ -149,7 +148,7 @@ def by_part_figure(a: GrrAnalysis) -> Figure:
     _values_by(ax, positions, y.reshape(y.shape[0], -1).ravel(), y.mean(axis=(1, 2)))
     ax.set_xticks(index, [str(q) for q in a.cube.parts])
     ax.set_xlabel("part")
-    look.si_axis(ax.yaxis, look.plain(a.quantity or "value"), a.unit, y.ravel())
+    look.si_axis(ax.yaxis, look.plain(shown(a.quantity or "value")), a.unit, y.ravel())
     ax.set_title(_title(a, "measurements by part"), loc="left")
     return figure
 
@@ -163,9 +162,9 @@ def by_operator_figure(a: GrrAnalysis) -> Figure:
     per = np.moveaxis(y, 1, 0).reshape(y.shape[1], -1)
     positions = np.repeat(index, per.shape[1])
     _values_by(ax, positions, per.ravel(), per.mean(axis=1))
-    ax.set_xticks(index, [look.plain(op) for op in a.cube.operators])
+    ax.set_xticks(index, [look.plain(shown(op)) for op in a.cube.operators])
     ax.set_xlabel("operator")
-    look.si_axis(ax.yaxis, look.plain(a.quantity or "value"), a.unit, y.ravel())
+    look.si_axis(ax.yaxis, look.plain(shown(a.quantity or "value")), a.unit, y.ravel())
     ax.set_title(_title(a, "measurements by operator"), loc="left")
     return figure
 

@@ -17,8 +17,15 @@ from typing import Any
 
 import numpy as np
 
-from acquire.msa.anova import SPREAD_SIGMAS, AnovaRow, AnovaStudy, crossed_anova, pooling_text
-from acquire.msa.anova import POOL_ABOVE, percent_tolerance
+from acquire.msa.anova import (
+    POOL_ABOVE,
+    SPREAD_SIGMAS,
+    AnovaRow,
+    AnovaStudy,
+    crossed_anova,
+    percent_tolerance,
+    pooling_text,
+)
 from acquire.msa.average_range import AverageRange, average_range, not_covered
 from acquire.msa.grr_data import StudyCube, study_cube
 from acquire.msa.records import GrrData
@@ -41,6 +48,12 @@ LABELS = {
     "operator": "    operator", "interaction": "    part x operator", "part_variation": "part",
     "total_variation": "total",
 }  # fmt: skip
+
+
+def shown(name: str) -> str:
+    """``name`` as it may be printed: each character that is not printable (an escape, a
+    control character) as its Python escape, so no name can drive a terminal."""
+    return "".join(c if c.isprintable() else repr(c)[1:-1] for c in str(name))
 
 
 def band(percent: float) -> str | None:
@@ -206,9 +219,9 @@ def print_text(a: GrrAnalysis, console: Any) -> None:
     from rich.table import Table
     from rich.text import Text
 
-    s, c, u = a.anova, a.anova.components, a.unit
-    what = a.quantity or "value"
-    console.print(Text(f"gauge R&R study: {a.source}" if a.source else "gauge R&R study"))
+    s, u = a.anova, a.unit
+    what = shown(a.quantity or "value")
+    console.print(Text(f"gauge R&R study: {shown(a.source)}" if a.source else "gauge R&R study"))
     console.print(Text(f"{what}: {s.parts} parts x {s.operators} operators x {s.trials} trials "
                        f"= {a.cube.values.size} measurements"))  # fmt: skip
     ops = Table(title="operators", title_justify="left", show_edge=False)
@@ -216,7 +229,7 @@ def print_text(a: GrrAnalysis, console: Any) -> None:
         ops.add_column(name, justify="left" if name == "operator" else "right")
     for j, name in enumerate(a.cube.operators):
         values = a.cube.values[:, j, :]
-        ops.add_row(Text(name), _show(float(values.mean()), u),
+        ops.add_row(Text(shown(name)), _show(float(values.mean()), u),
                     _show(float(np.ptp(values, axis=1).mean()), u))  # fmt: skip
     console.print(ops)
     console.print(anova_table(s.full, "ANOVA with the part x operator interaction", u))
@@ -246,8 +259,10 @@ def print_text(a: GrrAnalysis, console: Any) -> None:
     console.print(Text(line))
     if tol:
         pt = a.percent_tolerance("grr")
-        console.print(Text(f"%GRR of tolerance ({_show(a.tolerance or math.nan, u)}, "
-                           f"{a.sigmas:g}σ spread): {_pct(pt)} ({band(pt) or 'undefined'})"))  # fmt: skip
+        width = _show(a.tolerance or math.nan, u)
+        verdict = band(pt) or "undefined"
+        console.print(Text(f"%GRR of tolerance ({width}, {a.sigmas:g}σ spread): {_pct(pt)} "
+                           f"({verdict})"))  # fmt: skip
     else:
         console.print(Text("%GRR of tolerance: not given (give --tolerance USL-LSL)"))
     ndc = "undefined (no measurement spread)" if s.ndc is None else str(s.ndc)

@@ -22,7 +22,6 @@ may be acceptable depending on the application, over 30 % unacceptable.
 from __future__ import annotations
 
 import argparse
-import importlib
 
 from acquire.commands.options import add_store, print_json
 
@@ -40,11 +39,12 @@ by operator, and the measurements by part and by operator as PNG files into FOLD
 def _run_action():
     """The `run` action's module (a guided study on the station), when this build has it."""
     try:
-        return importlib.import_module("acquire.commands.grr_run")
+        import acquire.commands.grr_run as runner
     except ModuleNotFoundError as exc:
         if exc.name != "acquire.commands.grr_run":
             raise
         return None
+    return runner
 
 
 def add_arguments(parser: argparse.ArgumentParser) -> None:

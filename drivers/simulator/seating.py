@@ -28,15 +28,12 @@ from __future__ import annotations
 import dataclasses
 import hashlib
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
 
 from drivers.simulator.profiles import DutProfile, FixtureProfile, draw_unit
 from drivers.simulator.scpi_parser import expect, integer, quote, string
-
-if TYPE_CHECKING:
-    from drivers.simulator.instrument import Instrument, Session
 
 #: Keys of the seed sequences of this module's draws (apart from every other stream's).
 _PART, _OPERATOR, _SEATING = 0x5EA701, 0x5EA702, 0x5EA703
@@ -129,7 +126,7 @@ class Seating:
         """The fixture as a measurement sees it: with the seated part's contact."""
         return with_contact(fixture, self.offset)
 
-    def seat(self, instrument: Instrument, part: int) -> DutProfile:
+    def seat(self, instrument: Any, part: int) -> DutProfile:
         """Seat study part ``part`` by the present operator in ``instrument``'s fixture."""
         seed, fixture = instrument.seed, instrument.fixture
         offset = operator_offset(seed, self.operator, fixture) + seating_draw(
@@ -144,7 +141,7 @@ class Seating:
 class SeatingCommands:
     """Handlers of ``SIMulate:PART`` and ``SIMulate:OPERator`` (mixed into the command table)."""
 
-    instrument: Instrument
+    instrument: Any  # the Instrument (not imported: it holds a Seating)
 
     def seating_table(self) -> tuple[tuple[str, Any, Any], ...]:
         """``(pattern, command, query)`` of each seating header."""
@@ -154,19 +151,19 @@ class SeatingCommands:
             ("SIMulate:OPERator", s.sim_operator, s.sim_operator_query),
         )
 
-    async def sim_part(self, session: Session, params) -> None:
+    async def sim_part(self, session: Any, params) -> None:
         expect(params, 1)
         self.instrument.seating.seat(self.instrument, integer(params[0], 1, PART_MAX))
 
-    async def sim_part_query(self, session: Session, params) -> str:
+    async def sim_part_query(self, session: Any, params) -> str:
         expect(params, 0)
         return str(self.instrument.seating.part)
 
-    async def sim_operator(self, session: Session, params) -> None:
+    async def sim_operator(self, session: Any, params) -> None:
         expect(params, 1)
         self.instrument.seating.operator = " ".join(string(params[0]).split())[:NAME_MAX]
 
-    async def sim_operator_query(self, session: Session, params) -> str:
+    async def sim_operator_query(self, session: Any, params) -> str:
         expect(params, 0)
         return quote(self.instrument.seating.operator)
 

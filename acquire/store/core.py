@@ -10,7 +10,16 @@ from typing import TYPE_CHECKING, Any
 from sqlalchemy import Engine
 
 from acquire.errors import StoreError
-from acquire.store import bias_runs, catalog, lot_query, production, references, rise_runs, sweeps
+from acquire.store import (
+    bias_runs,
+    catalog,
+    grr_studies,
+    lot_query,
+    production,
+    references,
+    rise_runs,
+    sweeps,
+)
 from acquire.store.engine import Database
 from acquire.store.lot_query import LotFilter, OutcomeCounts
 from acquire.store.migrate import ensure_schema, stored_revision
@@ -33,6 +42,7 @@ if TYPE_CHECKING:
 
     from acquire.bias.records import BiasSettings, BiasSweepResult, RiseResult, RiseSettings
     from acquire.compensation import ReferenceSet
+    from acquire.msa.records import GrrData
 
 
 def open_store(
@@ -268,6 +278,22 @@ class Store:
 
     def list_rise_runs(self) -> list[rise_runs.RiseRunInfo]:
         return rise_runs.list_rise_runs(self._db, self._stale_after)
+
+    # gauge R&R studies (acquire.store.grr_studies)
+    def begin_grr_study(self, settings: grr_studies.GrrStudySettings) -> grr_studies.GrrStudyWriter:
+        return grr_studies.begin_grr_study(self._db, settings)
+
+    def load_grr_study(self, study_id: int) -> tuple[grr_studies.GrrStudyInfo, GrrData]:
+        return grr_studies.load_grr_study(self._db, study_id, self._stale_after)
+
+    def grr_study_info(self, study_id: int) -> grr_studies.GrrStudyInfo:
+        return grr_studies.grr_study_info(self._db, study_id, self._stale_after)
+
+    def grr_measurements(self, study_id: int) -> list[grr_studies.GrrMeasurement]:
+        return grr_studies.grr_measurements(self._db, study_id)
+
+    def list_grr_studies(self) -> list[grr_studies.GrrStudyInfo]:
+        return grr_studies.list_grr_studies(self._db, self._stale_after)
 
     # production
     def save_unit(self, unit: UnitRecord) -> bool:

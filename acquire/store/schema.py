@@ -53,12 +53,23 @@ the winding's DC resistance (ohm) and rise (K) ``elapsed`` seconds after the cur
 Both record their writer as sweeps do (a ``running`` one whose writer is gone is reported as
 interrupted). A measurement's ``bias_current`` is its DC bias (A), NULL for none.
 
+A gauge R&R study (``grr_studies``) keeps its ``name``, the plan (``plan_id``, ``plan_hash``), the
+``quantity`` studied (a plan check's key, e.g. ``Ls@100000``) and its SI ``unit``, the numbers of
+``parts``, ``operators`` and ``trials``, the operators' names in the order given
+(``operator_names``, a JSON list in text), the ``tolerance`` (in the unit, NULL when none was
+given), the ``seed`` of the measuring order (decimal text), ``station``, ``meter`` and reference
+set, and a writer's status columns; ``grr_measurements`` one row per measurement: ``part``
+(1..parts), ``operator`` (a name), ``trial`` (1..trials), ``order_index`` (its place in the
+study's measuring order, from 0), ``value`` and ``uncertainty`` (expanded, k = 2; NaN as NULL)
+and ``measured_at``.
+
 Revisions: the layout is changed only by Alembic migrations (:mod:`acquire.store.migrations`);
 this module describes the newest revision, :data:`SCHEMA_REVISION`. Revision 0001 is the layout
 of the first released program (which marked its stores with ``schema_version`` 2); 0002 adds the
 uncertainty and flag columns above; 0003 the production columns (uncertainty, tolerance limits,
 references override, temperature); 0004 the measurements' test time and the test-order index;
-0005 the bias sweeps, temperature-rise runs and a measurement's bias current.
+0005 the bias sweeps, temperature-rise runs and a measurement's bias current; 0007 the gauge
+R&R studies.
 ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
@@ -87,8 +98,8 @@ from sqlalchemy import (
     text,
 )
 
-#: The newest schema revision (the Alembic revision id of ``migrations/versions/0005_*.py``).
-SCHEMA_REVISION = "0005"
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0007_*.py``).
+SCHEMA_REVISION = "0007"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
 #: Bias-sweep and temperature-rise run states as stored.
@@ -327,7 +338,49 @@ def build_metadata() -> MetaData:
         sqlite_with_rowid=False,
     )
     _bias_tables(md)
+    _grr_tables(md)
     return md
+
+
+def _grr_tables(md: MetaData) -> None:
+    """Gauge R&R studies and their measurements."""
+    states = ", ".join(f"'{s}'" for s in RUN_STATES)
+    Table(
+        "grr_studies",
+        md,
+        _id(),
+        _text("name"),
+        _ref("plan_id", "plans"),
+        _text("plan_hash"),
+        _text("quantity"),
+        _text("unit"),
+        Column("parts", Integer, nullable=False),
+        Column("operators", Integer, nullable=False),
+        Column("trials", Integer, nullable=False),
+        Column("operator_names", Text, nullable=False),
+        _real("tolerance"),
+        Column("seed", Text, nullable=False),
+        _text("station"),
+        _text("meter"),
+        _ref("reference_set_id", "reference_sets"),
+        Column("measurements", Integer, nullable=False, default=0),
+        *_writer_columns(),
+        CheckConstraint(f"status IN ({states})", name="ck_grr_studies_status"),
+    )
+    Table(
+        "grr_measurements",
+        md,
+        Column("grr_study_id", Integer, ForeignKey("grr_studies.id"), primary_key=True),
+        Column("idx", Integer, primary_key=True, autoincrement=False),
+        Column("part", Integer, nullable=False),
+        Column("operator", Text, nullable=False),
+        Column("trial", Integer, nullable=False),
+        Column("order_index", Integer, nullable=False),
+        _real("value"),
+        _real("uncertainty"),
+        Column("measured_at", UtcDateTime, nullable=False),
+        sqlite_with_rowid=False,
+    )
 
 
 def _writer_columns() -> list[Column]:

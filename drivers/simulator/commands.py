@@ -27,6 +27,7 @@ from drivers.simulator.scpi_parser import (
     quote,
     split_message,
 )
+from drivers.simulator.seating import SeatingCommands
 from drivers.simulator.simulate import SimulateCommands
 
 
@@ -54,7 +55,7 @@ async def execute_message(tree: CommandTree, session: Session, text: str) -> byt
     return b";".join(replies) if replies else None
 
 
-class Commands(SimulateCommands, BiasCommands):
+class Commands(SimulateCommands, BiasCommands, SeatingCommands):
     """Binds the command table to one :class:`Instrument`."""
 
     def __init__(self, instrument: Instrument) -> None:
@@ -105,6 +106,7 @@ class Commands(SimulateCommands, BiasCommands):
             ("SIMulate:FAULt:RATE", s.sim_fault_rate, None),
             ("SIMulate:FAULt:CLEar", s.sim_fault_clear, None),
             *s.bias_table(),
+            *s.seating_table(),
         ):
             self.tree.add(pattern, write, read)
 

@@ -25,6 +25,7 @@ from drivers.errors import InstrumentError, ProfileError
 from drivers.simulator.faults import FaultSpec
 from drivers.simulator.instrument import Instrument
 from drivers.simulator.profiles import DutProfile, FixtureProfile, MeterProfile, load_dut
+from drivers.simulator.seating import SeatingOffset, operator_offset, part_unit, sent_name
 from drivers.simulator.server import LOOPBACK, SimulatorServer
 
 T = TypeVar("T")
@@ -151,6 +152,18 @@ class SimulatorHandle:
     def seen_impedance(self, f: np.ndarray | float) -> np.ndarray:
         """Exact impedance the meter sees: the DUT through the fixture, no noise."""
         return self.fixture.seen(f, self.dut.impedance(f)).reshape(np.shape(f))
+
+    def seating_offset(self, operator: str) -> SeatingOffset:
+        """The true offset of ``operator``'s seatings under the present fixture and seed, without
+        each seating's random part (:mod:`drivers.simulator.seating`); ``operator`` as a client
+        names it (escaped as :func:`~drivers.simulator.seating.seating_message` sends it)."""
+        i = self._instrument
+        return self._call(lambda: operator_offset(i.seed, sent_name(operator), i.fixture))
+
+    def part_profile(self, part: int) -> DutProfile:
+        """Study part ``part`` as ``SIMulate:PART`` draws it, before any seating offset."""
+        i = self._instrument
+        return self._call(lambda: part_unit(i.nominal, i.seed, part))
 
     def load_true(self, f: np.ndarray | float) -> np.ndarray:
         """True impedance of the shipped ``load`` standard at ``f``."""

@@ -36,6 +36,7 @@ from drivers.simulator.profiles import (
     load_meter,
 )
 from drivers.simulator.scpi_parser import ScpiError
+from drivers.simulator.seating import Seating
 from drivers.simulator.state import ClientStatus, Settings
 
 
@@ -75,6 +76,8 @@ class Instrument:
         self.faults = Faults(np.random.default_rng(0))
         #: DC current through the DUT (meter bias, source) and the winding's temperature.
         self.bias = BiasState(self.meter)
+        #: Who seats study parts, and the part seated now (:mod:`drivers.simulator.seating`).
+        self.seating = Seating()
         self.reseed(seed)
         self.dut = self.nominal = load_dut(operator_choice(dut, profile_dir))
         self.unit = 0
@@ -99,6 +102,7 @@ class Instrument:
         self.systematic_key = np.random.SeedSequence([seed, streams.SYSTEMATIC])
         self.spread_rng = np.random.default_rng(spread)
         self.faults.reseed(np.random.default_rng(fault))
+        self.seating.reseed()
 
     def insert(
         self, name_or_profile: str | Path | DutProfile, deferred: bool = False, client: bool = False
@@ -114,6 +118,7 @@ class Instrument:
         else:
             dut = load_dut(name_or_profile)
         self.dut = dut
+        self.seating.clear()
         if dut.kind not in STANDARD_KINDS and dut.kind != "none":
             self.nominal = dut
             self.unit = 0
@@ -124,6 +129,7 @@ class Instrument:
     def next_unit(self) -> DutProfile:
         """Put the next production unit in: the last inserted DUT's values drawn from its spread."""
         self.unit += 1
+        self.seating.clear()
         self.dut = draw_unit(self.nominal, self.spread_rng)
         return self.dut
 
@@ -168,7 +174,7 @@ class Instrument:
             averaging=s.averaging,
             noise=self.noise,
             dut=self.bias.biased(self.dut),
-            fixture=self.fixture,
+            fixture=self.seating.fixture(self.fixture),
             meter=self.meter,
             time_override=self.time_override,
         )

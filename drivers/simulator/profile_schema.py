@@ -104,6 +104,9 @@ FIXTURE_SCHEMA = {
     "series_inductance": Key("H"),
     "shunt_capacitance": Key("F"),
     "shunt_conductance": Key("S"),
+    "seating_spread": Key("", 0.0),
+    "seating_contact": Key("ohm", 0.0),
+    "seating_repeat": Key("", 0.0),
 }
 LINE_SCHEMA = {
     "impedance": Key("ohm", positive=True),

@@ -157,6 +157,12 @@ class FixtureProfile:
     line: LineSpec | None = None
     description: str = ""
     path: Path | None = None
+    #: How operators seat a part (:mod:`drivers.simulator.seating`): the relative standard
+    #: deviation of each operator's inductance offset, the scale of their contact resistance
+    #: (ohm), and the relative standard deviation of each seating's own random part.
+    seating_spread: float = 0.0
+    seating_contact: float = 0.0
+    seating_repeat: float = 0.0
 
     def abcd(self, f: np.ndarray | float) -> np.ndarray:
         """The fixture's ABCD matrices, shape ``(N, 2, 2)``."""

@@ -26,7 +26,9 @@ Kinds and their keys (``?`` marks an optional key, with its default):
 - ``open``, ``short``: ideal standards, no values.
 - ``fixture``: ``series_resistance`` ohm, ``series_inductance`` H, ``shunt_capacitance`` F,
   ``shunt_conductance`` S, and an optional ``[line]`` table with ``impedance`` ohm, ``length`` m,
-  ``velocity_factor?`` = 0.66 (a lossless line between the meter and the leads).
+  ``velocity_factor?`` = 0.66 (a lossless line between the meter and the leads); how operators
+  seat a part: ``seating_spread?`` = 0, ``seating_contact?`` ohm = 0, ``seating_repeat?`` = 0
+  (:mod:`drivers.simulator.seating`).
 - ``meter``: identity and noise of the simulated meter, its bias limit, the DC source's limit
   and the ambient temperature (see :class:`MeterProfile`).
 

@@ -39,6 +39,7 @@ COMMANDS: dict[str, str] = {
     "temperature-rise": "temperature_rise",
     "lot": "lot",
     "report": "report",
+    "verify": "verify",
 }
 
 DESCRIPTION = """\

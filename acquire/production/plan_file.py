@@ -26,6 +26,7 @@ from acquire.production.plan import (
     REJECT_BIN,
     BinRule,
     Check,
+    CheckStandardPlan,
     DecisionRule,
     MeterSettings,
     RetestPolicy,
@@ -52,7 +53,7 @@ __all__ = ["PlanError", "describe_plan", "example_plan_path", "load_plan", "pars
 #: The top-level keys of a plan file, and the keys allowed in each of its plain tables.
 TOP_KEYS = (
     "plan", "references", "meter", "temperature", "decision", "serial", "retest", "step", "bin",
-    "bins",
+    "bins", "check_standard",
 )  # fmt: skip
 TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "plan": ("name", "version", "part", "notes"),
@@ -63,6 +64,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "serial": ("pattern", "seen_before"),
     "retest": ("attempts", "on_fail", "on_error"),
     "bins": ("otherwise",),
+    "check_standard": ("name", "max_age"),
 }
 LIMIT_KEYS = ("nominal", "tolerance", "tolerance_low", "tolerance_high", "minimum", "maximum")
 STEP_KEYS = ("frequency", "dc", "check")
@@ -157,11 +159,14 @@ class _Reader(TableReader):
                 'set source = "fixed" with a value, or source = "per-lot"',
             )
         bins, otherwise = self.bins(data, {c.key: c for c in checks})
+        standard = None
+        if "check_standard" in data:
+            standard = self.check_standard(self.table(data, "check_standard", "check_standard"))
         return TestPlan(
             name=name, version=version, part=part, notes=notes, checks=checks,
             fixture=fixture, max_reference_age=max_age, meter=meter, temperature=temperature,
             bins=bins, otherwise_bin=otherwise, decision=decision, serial=serial,
-            retest=retest, text=text, source=self.source,
+            retest=retest, check_standard=standard, text=text, source=self.source,
         )  # fmt: skip
 
     def steps(self, data: Mapping[str, Any]) -> tuple[Check, ...]:
@@ -303,6 +308,20 @@ class _Reader(TableReader):
         if value <= 0:
             raise self.fail(path, "the age must be above 0", 'write e.g. "8h"')
         return value
+
+    def check_standard(self, table: Mapping[str, Any]) -> CheckStandardPlan:
+        name = self.name(table, "name", "check_standard")
+        if not name:
+            raise self.fail(
+                "check_standard.name", "the check standard has no name", 'add name = "..."'
+            )
+        max_age = None
+        if "max_age" in table:
+            path = "check_standard.max_age"
+            max_age = self.quantity(table["max_age"], age_seconds, path, '"12h" or 12 (hours)')
+            if max_age <= 0:
+                raise self.fail(path, "the age must be above 0", 'write e.g. "12h"')
+        return CheckStandardPlan(name=name, max_age=max_age)
 
     def meter(self, table: Mapping[str, Any]) -> MeterSettings:
         level = None

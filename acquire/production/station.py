@@ -21,6 +21,7 @@ from typing import Any
 import numpy as np
 
 from acquire.production.admission import SerialBook, clean_serial
+from acquire.production.check_guard import CHECK_HINT, guard_acknowledgement, guard_blocks
 from acquire.production.judgement import UnitJudgement, error_judgement, judge_unit
 from acquire.production.measure import UnitMeasurement, measure_unit
 from acquire.production.plan import CONDITIONAL_PASS, PASS, REJECT_BIN, TestPlan
@@ -139,6 +140,7 @@ class Station:
         reload_references: Callable[[], tuple[int | None, Any]],
         history: Callable[[str], list[str]],
         measure: Callable[..., UnitMeasurement] = measure_unit,
+        check: Any = None,
     ) -> None:
         self.meter = meter
         self.context = context
@@ -154,6 +156,7 @@ class Station:
         self.message = ""
         self._in_fixture = ""
         self._checked: tuple[Any, list[str]] = (object(), [])
+        self.check = check  # a CheckGuard (acquire.production.check_guard), or None
 
     # -- state ---------------------------------------------------------------------------------
 
@@ -172,10 +175,11 @@ class Station:
     @property
     def blocked(self) -> str:
         """The reason the station is stopped ('' when it runs, or runs on an override)."""
-        found = self.blocks
-        if not found or self.context.override:
-            return ""
-        return f"{'; '.join(found)}. {CAPTURE_HINT}"
+        found, held = self.blocks, guard_blocks(self.check)
+        parts = (
+            [] if not found or self.context.override else [f"{'; '.join(found)}. {CAPTURE_HINT}"]
+        )
+        return " ".join(parts + ([f"{'; '.join(held)}. {CHECK_HINT}"] if held else []))
 
     def status(self) -> StationStatus:
         c, t = self.context, self.tally
@@ -216,6 +220,8 @@ class Station:
     def reload_references(self) -> None:
         """Take the newest reference set of the plan's fixture from the store."""
         self.reference_id, self.references = self._reload()
+        if self.check is not None:
+            self.check.refresh()
         self.message = (
             f"references reloaded: set {self.reference_id}"
             if self.reference_id is not None
@@ -331,6 +337,7 @@ class Station:
             attempt_id=attempt_id,
             reference_override=override,
             temperature=measured.temperature,
+            check_acknowledgement_id=guard_acknowledgement(self.check),
         )
 
     # -- the session -----------------------------------------------------------------------------

@@ -35,7 +35,9 @@ plan's tolerance limits (NULL for an open side), and ``uncertainty`` the expande
 (k = 2, in the value's SI unit) of the value, NULL when unknown (an infinite one is stored as
 infinity). A unit's ``temperature`` is the winding temperature (°C) its DC resistance was
 corrected from, NULL when none was used; ``reference_override`` is "" or the reason the operator
-gave for measuring with references the station would otherwise have refused.
+gave for measuring with references the station would otherwise have refused;
+``check_acknowledgement_id`` the acknowledgement of a stopped check standard in force when the
+unit was tested (NULL for none).
 
 A bias sweep (``bias_sweeps``) keeps what was asked: the bias ``currents`` and the ``drops``
 (fractions) as JSON lists in text, the measuring ``frequency`` (Hz), the largest bias allowed
@@ -58,7 +60,8 @@ this module describes the newest revision, :data:`SCHEMA_REVISION`. Revision 000
 of the first released program (which marked its stores with ``schema_version`` 2); 0002 adds the
 uncertainty and flag columns above; 0003 the production columns (uncertainty, tolerance limits,
 references override, temperature); 0004 the measurements' test time and the test-order index;
-0005 the bias sweeps, temperature-rise runs and a measurement's bias current.
+0005 the bias sweeps, temperature-rise runs and a measurement's bias current; 0006 the check
+standards, their results and acknowledgements, and a unit's ``check_acknowledgement_id``.
 ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
@@ -87,8 +90,8 @@ from sqlalchemy import (
     text,
 )
 
-#: The newest schema revision (the Alembic revision id of ``migrations/versions/0005_*.py``).
-SCHEMA_REVISION = "0005"
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0006_*.py``).
+SCHEMA_REVISION = "0006"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
 #: Bias-sweep and temperature-rise run states as stored.
@@ -286,6 +289,7 @@ def build_metadata() -> MetaData:
         _ref("lot_id", "lots"),
         Column("reference_override", Text, nullable=False, default="", server_default=""),
         _real("temperature"),
+        _ref("check_acknowledgement_id", "check_acknowledgements"),
         Index("ix_units_lot_id", "lot_id"),
     )
     Table(
@@ -327,7 +331,54 @@ def build_metadata() -> MetaData:
         sqlite_with_rowid=False,
     )
     _bias_tables(md)
+    _check_tables(md)
     return md
+
+
+def _check_tables(md: MetaData) -> None:
+    """Check standards, each check's values (one row per quantity) and the acknowledgements.
+
+    A check result's ``check_id`` (a UUID) groups the quantities measured in one check;
+    ``quantity`` is the plan's check key (``"Ls@10000"``), ``value`` and ``uncertainty`` (U,
+    k = 2) are SI, NULL when not finite; ``rules`` is '' or the run rules the value broke when it
+    was stored, joined by "; ". An acknowledgement names what it acknowledged (the reasons the
+    station was stopped, as text) and the ``check_id`` of the newest check then (NULL: none).
+    """
+    Table(
+        "check_standards",
+        md,
+        _id(),
+        Column("key", String(64), nullable=False, unique=True),
+        _text("name"),
+        Column("created_at", UtcDateTime, nullable=False),
+    )
+    Table(
+        "check_results",
+        md,
+        _id(),
+        Column("standard_id", Integer, ForeignKey("check_standards.id"), nullable=False),
+        Column("check_id", String(36), nullable=False),
+        Column("checked_at", UtcDateTime, nullable=False),
+        _text("station"),
+        _text("plan_hash"),
+        _text("quantity"),
+        _text("si_unit"),
+        _real("value"),
+        _real("uncertainty"),
+        _text("rules"),
+        Index("ix_check_results_standard", "standard_id", "checked_at", "id"),
+    )
+    Table(
+        "check_acknowledgements",
+        md,
+        _id(),
+        Column("standard_id", Integer, ForeignKey("check_standards.id"), nullable=False),
+        Column("made_at", UtcDateTime, nullable=False),
+        _text("made_by"),
+        _text("reason"),
+        _text("acknowledged"),
+        Column("check_id", String(36), nullable=True),
+    )
 
 
 def _writer_columns() -> list[Column]:

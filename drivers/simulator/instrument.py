@@ -22,6 +22,7 @@ import numpy as np
 
 from drivers.simulator import measurement, streams
 from drivers.simulator.bias import BiasState
+from drivers.simulator.drift import Drift
 from drivers.simulator.faults import Faults, FaultSpec
 from drivers.simulator.measurement import Conditions, Reading
 from drivers.simulator.profile_names import load_offered, operator_choice
@@ -75,6 +76,8 @@ class Instrument:
         self.faults = Faults(np.random.default_rng(0))
         #: DC current through the DUT (meter bias, source) and the winding's temperature.
         self.bias = BiasState(self.meter)
+        #: Simulated days for a drifting standard (``SIMulate:DRIFt:DAYS``; :mod:`.drift`).
+        self.drift = Drift()
         self.reseed(seed)
         self.dut = self.nominal = load_dut(operator_choice(dut, profile_dir))
         self.unit = 0
@@ -167,7 +170,7 @@ class Instrument:
             periods=s.periods,
             averaging=s.averaging,
             noise=self.noise,
-            dut=self.bias.biased(self.dut),
+            dut=self.bias.biased(self.drift.apply(self.dut)),
             fixture=self.fixture,
             meter=self.meter,
             time_override=self.time_override,

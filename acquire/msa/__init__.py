@@ -1,0 +1,1 @@
+"""Measurement systems analysis: is the station itself trustworthy (check standards, gauge R&R)."""

@@ -11,17 +11,36 @@ unit tested meanwhile. The operator's ``--use-stale-references`` does not lift t
 
 from __future__ import annotations
 
-from collections.abc import Callable
+from collections.abc import Callable, Mapping
 from datetime import UTC, datetime
 from typing import Any
 
 from acquire.display import format_duration
+from acquire.production.plan import CheckStandardPlan
+from acquire.production.plan_values import age_seconds
 
 #: What the operator is told to do when the check standard stops the station.
 CHECK_HINT = (
     "Measure the check standard (`acquire verify`) or have an engineer acknowledge it "
     "(`acquire verify acknowledge`), then press Enter"
 )
+
+
+def read_section(reader: Any, table: Mapping[str, Any]) -> CheckStandardPlan:
+    """A plan's ``[check_standard]`` table (``name``, ``max_age``), read by the plan file's
+    ``reader`` (:class:`acquire.production.plan_values.TableReader`); raises its PlanError."""
+    name = reader.name(table, "name", "check_standard")
+    if not name:
+        raise reader.fail(
+            "check_standard.name", "the check standard has no name", 'add name = "..."'
+        )
+    max_age = None
+    if "max_age" in table:
+        path = "check_standard.max_age"
+        max_age = reader.quantity(table["max_age"], age_seconds, path, '"12h" or 12 (hours)')
+        if max_age <= 0:
+            raise reader.fail(path, "the age must be above 0", 'write e.g. "12h"')
+    return CheckStandardPlan(name=name, max_age=max_age)
 
 
 def in_force(summary: Any, max_age: float | None, now: datetime | None = None) -> Any:

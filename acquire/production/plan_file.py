@@ -21,12 +21,12 @@ from pathlib import Path
 from typing import Any
 
 from acquire.impedance import KEYS
+from acquire.production.check_guard import read_section
 from acquire.production.plan import (
     DC_RESISTANCE,
     REJECT_BIN,
     BinRule,
     Check,
-    CheckStandardPlan,
     DecisionRule,
     MeterSettings,
     RetestPolicy,
@@ -161,7 +161,7 @@ class _Reader(TableReader):
         bins, otherwise = self.bins(data, {c.key: c for c in checks})
         standard = None
         if "check_standard" in data:
-            standard = self.check_standard(self.table(data, "check_standard", "check_standard"))
+            standard = read_section(self, self.table(data, "check_standard", "check_standard"))
         return TestPlan(
             name=name, version=version, part=part, notes=notes, checks=checks,
             fixture=fixture, max_reference_age=max_age, meter=meter, temperature=temperature,
@@ -308,20 +308,6 @@ class _Reader(TableReader):
         if value <= 0:
             raise self.fail(path, "the age must be above 0", 'write e.g. "8h"')
         return value
-
-    def check_standard(self, table: Mapping[str, Any]) -> CheckStandardPlan:
-        name = self.name(table, "name", "check_standard")
-        if not name:
-            raise self.fail(
-                "check_standard.name", "the check standard has no name", 'add name = "..."'
-            )
-        max_age = None
-        if "max_age" in table:
-            path = "check_standard.max_age"
-            max_age = self.quantity(table["max_age"], age_seconds, path, '"12h" or 12 (hours)')
-            if max_age <= 0:
-                raise self.fail(path, "the age must be above 0", 'write e.g. "12h"')
-        return CheckStandardPlan(name=name, max_age=max_age)
 
     def meter(self, table: Mapping[str, Any]) -> MeterSettings:
         level = None

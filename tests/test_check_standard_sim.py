@@ -92,8 +92,11 @@ def test_drift_is_caught_the_station_stops_and_the_acknowledgement_is_recorded(b
     for day in range(1, 31):
         _scpi(sim, f"SIM:DRIFT:DAYS {day}")
         if _verify(bench) == 1:
-            caught = day
-            break
+            with open_store(bench["url"]) as store:
+                broken = store.check_summary("CS-1").broken
+            if any(quantity.startswith("Ls@") for quantity, _ in broken):
+                caught = day  # the drift of L itself, not a chance alarm on another quantity
+                break
     out = capsys.readouterr().out
     assert caught is not None, "a drift of 0.01 % a day went uncaught for 30 days"
     assert "STOPPED" in out and "broke a run rule" in out

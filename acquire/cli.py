@@ -40,6 +40,7 @@ COMMANDS: dict[str, str] = {
     "lot": "lot",
     "report": "report",
     "grr": "grr",
+    "verify": "verify",
 }
 
 DESCRIPTION = """\

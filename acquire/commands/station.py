@@ -15,7 +15,11 @@ reached, units wait in a local outbox file beside the store (--outbox) and are w
 each, when it is back. A meter fault makes the attempt's outcome "error"; scan the serial again
 to retry. References older than the plan allows, or captured on another meter or fixture, stop
 the station until new ones are captured (--use-stale-references REASON goes on anyway and
-records the reason on every unit). Ctrl-C or the end of input ends the session with its summary.
+records the reason on every unit). A plan naming a check standard ([check_standard]) stops the
+station while that standard's newest check is too old or broke a run rule, until it is measured
+again (`acquire verify`) or an engineer acknowledges it (`acquire verify acknowledge`); the
+acknowledgement is recorded on every unit tested under it. Ctrl-C or the end of input ends the
+session with its summary.
 
 A plan with checks under DC bias (a power choke's inductance at a bias, its saturation current)
 is measured with the meter's own bias, or with a DC current source given by --bias-source. The
@@ -171,6 +175,14 @@ def _bias_supply(plan, meter, source):
             f"{supply.limit:g} A; lower max_bias or use a supply rated for it"
         )
     return supply
+def _check_guard(store, plan):
+    """The station's check-standard guard, when the plan names a standard."""
+    if plan.check_standard is None:
+        return None
+    from acquire.production.check_guard import CheckGuard
+
+    name = plan.check_standard.name
+    return CheckGuard(lambda: store.check_summary(name), plan.check_standard.max_age)
 
 
 def run(args: argparse.Namespace) -> int:
@@ -246,6 +258,7 @@ def run(args: argparse.Namespace) -> int:
             station = Station(
                 meter, context, keeper, screen, references, reload,
                 history=lambda serial: [u.outcome for u in store.unit_attempts(serial)],
+                check=_check_guard(store, plan),
             )  # fmt: skip
             earlier = store.lot_units(lot)
             earlier = earlier[earlier.station == station_name]

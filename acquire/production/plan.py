@@ -175,6 +175,16 @@ class RetestPolicy:
 
 
 @dataclass(frozen=True)
+class CheckStandardPlan:
+    """The check standard a station's results depend on (``[check_standard]``): its ``name``, and
+    ``max_age`` (seconds; None: no limit), how old its newest check may be before the station
+    stops (:mod:`acquire.production.check_guard`)."""
+
+    name: str
+    max_age: float | None = None
+
+
+@dataclass(frozen=True)
 class TestPlan:
     """A whole test plan; ``text`` is the file's exact text (stored with every unit, with its
     SHA-256 :attr:`hash`), ``source`` where it was read from."""
@@ -196,6 +206,7 @@ class TestPlan:
     serial: SerialPolicy = field(default_factory=SerialPolicy)
     retest: RetestPolicy = field(default_factory=RetestPolicy)
     bias: BiasRamp = field(default_factory=BiasRamp)
+    check_standard: CheckStandardPlan | None = None
     text: str = ""
     source: str = ""
 

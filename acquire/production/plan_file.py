@@ -25,6 +25,7 @@ from pathlib import Path
 from typing import Any
 
 from acquire.impedance import KEYS
+from acquire.production.check_guard import read_section
 from acquire.production.plan import (
     DC_RESISTANCE,
     REJECT_BIN,
@@ -57,7 +58,7 @@ __all__ = ["PlanError", "describe_plan", "example_plan_path", "load_plan", "pars
 #: The top-level keys of a plan file, and the keys allowed in each of its plain tables.
 TOP_KEYS = (
     "plan", "references", "meter", "temperature", "decision", "serial", "retest", "bias", "step",
-    "saturation", "bin", "bins",
+    "saturation", "bin", "bins", "check_standard",
 )  # fmt: skip
 TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "plan": ("name", "version", "part", "notes"),
@@ -69,6 +70,7 @@ TABLE_KEYS: dict[str, tuple[str, ...]] = {
     "retest": ("attempts", "on_fail", "on_error"),
     "bias": ("max_bias", "ramp_step", "ramp_dwell"),
     "bins": ("otherwise",),
+    "check_standard": ("name", "max_age"),
 }
 LIMIT_KEYS = ("nominal", "tolerance", "tolerance_low", "tolerance_high", "minimum", "maximum")
 STEP_KEYS = ("frequency", "dc", "bias", "check")
@@ -165,11 +167,14 @@ class _Reader(BiasTables):
                 'set source = "fixed" with a value, or source = "per-lot"',
             )
         bins, otherwise = self.bins(data, {c.key: c for c in checks})
+        standard = None
+        if "check_standard" in data:
+            standard = read_section(self, self.table(data, "check_standard", "check_standard"))
         return TestPlan(
             name=name, version=version, part=part, notes=notes, checks=checks,
             fixture=fixture, max_reference_age=max_age, meter=meter, temperature=temperature,
             bins=bins, otherwise_bin=otherwise, decision=decision, serial=serial,
-            retest=retest, bias=ramp, text=text, source=self.source,
+            retest=retest, bias=ramp, check_standard=standard, text=text, source=self.source,
         )  # fmt: skip
 
     def steps(self, data: Mapping[str, Any], ramp: BiasRamp) -> tuple[Check, ...]:

@@ -25,6 +25,7 @@ from typing import Any
 import numpy as np
 
 from acquire.production.admission import SerialBook, clean_serial
+from acquire.production.check_guard import CHECK_HINT, guard_acknowledgement, guard_blocks
 from acquire.production.judgement import UnitJudgement, error_judgement, judge_unit
 from acquire.production.measure import UnitMeasurement, measure_unit
 from acquire.production.plan import CONDITIONAL_PASS, PASS, REJECT_BIN, TestPlan
@@ -152,6 +153,7 @@ class Station:
         reload_references: Callable[[], tuple[int | None, Any]],
         history: Callable[[str], list[str]],
         measure: Callable[..., UnitMeasurement] = measure_unit,
+        check: Any = None,
     ) -> None:
         self.meter = meter
         self.context = context
@@ -169,6 +171,7 @@ class Station:
         self._checked: tuple[Any, list[str]] = (object(), [])
         #: The stored energy at the plan's largest bias: measured on a unit, else planned.
         self.bias = BiasGuard(context.plan, self.supply, context.unattended)
+        self.check = check  # a CheckGuard (acquire.production.check_guard), or None
 
     # -- state ---------------------------------------------------------------------------------
 
@@ -187,10 +190,11 @@ class Station:
     @property
     def blocked(self) -> str:
         """The reason the station is stopped ('' when it runs, or runs on an override)."""
-        found = self.blocks
-        if not found or self.context.override:
-            return ""
-        return f"{'; '.join(found)}. {CAPTURE_HINT}"
+        found, held = self.blocks, guard_blocks(self.check)
+        parts = (
+            [] if not found or self.context.override else [f"{'; '.join(found)}. {CAPTURE_HINT}"]
+        )
+        return " ".join(parts + ([f"{'; '.join(held)}. {CHECK_HINT}"] if held else []))
 
     def status(self) -> StationStatus:
         c, t = self.context, self.tally
@@ -232,6 +236,8 @@ class Station:
     def reload_references(self) -> None:
         """Take the newest reference set of the plan's fixture from the store."""
         self.reference_id, self.references = self._reload()
+        if self.check is not None:
+            self.check.refresh()
         self.message = (
             f"references reloaded: set {self.reference_id}"
             if self.reference_id is not None
@@ -359,6 +365,7 @@ class Station:
             attempt_id=attempt_id,
             reference_override=override,
             temperature=measured.temperature,
+            check_acknowledgement_id=guard_acknowledgement(self.check),
         )
 
     # -- the session -----------------------------------------------------------------------------

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from collections.abc import Iterable
+from datetime import datetime
 from pathlib import Path
 from types import TracebackType
 from typing import TYPE_CHECKING, Any
@@ -14,6 +15,7 @@ from acquire.store import (
     bias_runs,
     catalog,
     grr_studies,
+    check_results,
     lot_query,
     production,
     references,
@@ -333,6 +335,44 @@ class Store:
         self, chosen: LotFilter, parameter: str | None = None, frequency: float | None = None
     ) -> pd.DataFrame:
         return lot_query.measurement_rows(self._db, chosen, parameter, frequency)
+
+    # check standards (acquire.store.check_results)
+    def save_check(
+        self,
+        standard: str,
+        values: list[check_results.CheckValue],
+        station: str = "",
+        plan_hash: str = "",
+        checked_at: datetime | None = None,
+    ) -> str:
+        return check_results.save_check(self._db, standard, values, station, plan_hash, checked_at)
+
+    def check_history(
+        self, standard: str, quantity: str | None = None
+    ) -> list[check_results.CheckRow]:
+        return check_results.check_history(self._db, standard, quantity)
+
+    def check_summary(self, standard: str) -> check_results.CheckSummary:
+        return check_results.check_summary(self._db, standard)
+
+    def list_check_standards(self) -> list[tuple[str, int, datetime | None]]:
+        return check_results.list_standards(self._db)
+
+    def acknowledge_check(
+        self,
+        standard: str,
+        made_by: str,
+        reason: str,
+        acknowledged: str,
+        check_id: str | None,
+        made_at: datetime | None = None,
+    ) -> check_results.Acknowledgement:
+        return check_results.acknowledge(
+            self._db, standard, made_by, reason, acknowledged, check_id, made_at
+        )
+
+    def check_acknowledgements(self, standard: str) -> list[check_results.Acknowledgement]:
+        return check_results.acknowledgements(self._db, standard)
 
     # lifetime
     def close(self) -> None:

@@ -53,6 +53,7 @@ _UNIT_FIELDS = (
     "attempt_id",
     "reference_override",
     "temperature",
+    "check_acknowledgement_id",
 )
 
 

@@ -119,7 +119,8 @@ class UnitRecord:
     ``reference_override`` is "" or the reason the operator gave for measuring with references
     the station would have refused (too old, failed a check); ``temperature`` is the winding
     temperature (°C) the DC resistance was corrected from, None when none was used (NaN is taken
-    as None).
+    as None). ``check_acknowledgement_id`` is the acknowledgement of a stopped check standard
+    (``Store.acknowledge_check``) in force when the unit was tested, None for none.
     """
 
     serial: str
@@ -140,6 +141,7 @@ class UnitRecord:
     attempt_id: str = field(default_factory=new_attempt_id)
     reference_override: str = ""
     temperature: float | None = None
+    check_acknowledgement_id: int | None = None
 
     def __post_init__(self) -> None:
         try:

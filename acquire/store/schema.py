@@ -35,7 +35,9 @@ plan's tolerance limits (NULL for an open side), and ``uncertainty`` the expande
 (k = 2, in the value's SI unit) of the value, NULL when unknown (an infinite one is stored as
 infinity). A unit's ``temperature`` is the winding temperature (°C) its DC resistance was
 corrected from, NULL when none was used; ``reference_override`` is "" or the reason the operator
-gave for measuring with references the station would otherwise have refused.
+gave for measuring with references the station would otherwise have refused;
+``check_acknowledgement_id`` the acknowledgement of a stopped check standard in force when the
+unit was tested (NULL for none).
 
 A bias sweep (``bias_sweeps``) keeps what was asked: the bias ``currents`` and the ``drops``
 (fractions) as JSON lists in text, the measuring ``frequency`` (Hz), the largest bias allowed
@@ -68,8 +70,9 @@ this module describes the newest revision, :data:`SCHEMA_REVISION`. Revision 000
 of the first released program (which marked its stores with ``schema_version`` 2); 0002 adds the
 uncertainty and flag columns above; 0003 the production columns (uncertainty, tolerance limits,
 references override, temperature); 0004 the measurements' test time and the test-order index;
-0005 the bias sweeps, temperature-rise runs and a measurement's bias current; 0007 the gauge
-R&R studies.
+0005 the bias sweeps, temperature-rise runs and a measurement's bias current; 0006 the check
+standards, their results and acknowledgements, and a unit's ``check_acknowledgement_id``; 0007
+the gauge R&R studies.
 ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
@@ -97,6 +100,8 @@ from sqlalchemy import (
     TypeDecorator,
     text,
 )
+
+from acquire.store.check_tables import check_tables
 
 #: The newest schema revision (the Alembic revision id of ``migrations/versions/0007_*.py``).
 SCHEMA_REVISION = "0007"
@@ -297,6 +302,7 @@ def build_metadata() -> MetaData:
         _ref("lot_id", "lots"),
         Column("reference_override", Text, nullable=False, default="", server_default=""),
         _real("temperature"),
+        _ref("check_acknowledgement_id", "check_acknowledgements"),
         Index("ix_units_lot_id", "lot_id"),
     )
     Table(
@@ -338,6 +344,7 @@ def build_metadata() -> MetaData:
         sqlite_with_rowid=False,
     )
     _bias_tables(md)
+    check_tables(md, UtcDateTime)
     _grr_tables(md)
     return md
 

@@ -13,6 +13,7 @@ import numpy as np
 from drivers.renamed import NEW_SPEED, OLD_PAIRS
 from drivers.simulator import state
 from drivers.simulator.bias_commands import BiasCommands
+from drivers.simulator.drift import DriftCommands
 from drivers.simulator.instrument import Instrument, Session
 from drivers.simulator.measurement import Reading, encode, reading_values
 from drivers.simulator.scpi_parser import (
@@ -55,7 +56,7 @@ async def execute_message(tree: CommandTree, session: Session, text: str) -> byt
     return b";".join(replies) if replies else None
 
 
-class Commands(SimulateCommands, BiasCommands, SeatingCommands):
+class Commands(SimulateCommands, BiasCommands, SeatingCommands, DriftCommands):
     """Binds the command table to one :class:`Instrument`."""
 
     def __init__(self, instrument: Instrument) -> None:
@@ -107,6 +108,7 @@ class Commands(SimulateCommands, BiasCommands, SeatingCommands):
             ("SIMulate:FAULt:CLEar", s.sim_fault_clear, None),
             *s.bias_table(),
             *s.seating_table(),
+            *s.drift_table(),
         ):
             self.tree.add(pattern, write, read)
 

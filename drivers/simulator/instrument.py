@@ -22,6 +22,7 @@ import numpy as np
 
 from drivers.simulator import measurement, streams
 from drivers.simulator.bias import BiasState
+from drivers.simulator.drift import Drift
 from drivers.simulator.faults import Faults, FaultSpec
 from drivers.simulator.measurement import Conditions, Reading
 from drivers.simulator.profile_names import load_offered, operator_choice
@@ -78,6 +79,8 @@ class Instrument:
         self.bias = BiasState(self.meter)
         #: Who seats study parts, and the part seated now (:mod:`drivers.simulator.seating`).
         self.seating = Seating()
+        #: Simulated days for a drifting standard (``SIMulate:DRIFt:DAYS``; :mod:`.drift`).
+        self.drift = Drift()
         self.reseed(seed)
         self.dut = self.nominal = load_dut(operator_choice(dut, profile_dir))
         self.unit = 0
@@ -173,7 +176,7 @@ class Instrument:
             periods=s.periods,
             averaging=s.averaging,
             noise=self.noise,
-            dut=self.bias.biased(self.dut),
+            dut=self.bias.biased(self.drift.apply(self.dut)),
             fixture=self.seating.fixture(self.fixture),
             meter=self.meter,
             time_override=self.time_override,

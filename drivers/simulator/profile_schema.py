@@ -40,6 +40,7 @@ DUT_SCHEMA: dict[str, dict[str, Key]] = {
         "thermal_resistance": Key("K/W", None, positive=True),
         "thermal_time_constant": Key("s", None, positive=True),
         "reference_temperature": Key("degC", None),
+        "drift_per_day": Key("1/day", None),
     },
     "resistor": {
         "resistance": Key("ohm"),

@@ -19,7 +19,9 @@ Kinds and their keys (``?`` marks an optional key, with its default):
   K/W and ``thermal_time_constant?`` s (both or neither), ``reference_temperature?`` °C = 20
   where ``dc_resistance`` holds (:mod:`drivers.simulator.thermal`). With a wire length the DC
   resistance is ``ρ·l/(πa²)``; ``values["dc_resistance"]`` always holds it, and the physics
-  uses it (a drawn unit's resistance stands for a longer or shorter wire).
+  uses it (a drawn unit's resistance stands for a longer or shorter wire). A drifting
+  standard, ``drift_per_day?`` (a fraction of L per simulated day, not negative; none: no drift;
+  :mod:`drivers.simulator.drift`).
 - ``resistor`` and ``load`` (a load standard): ``resistance`` ohm, ``series_inductance?`` H = 0,
   ``parallel_capacitance?`` F = 0.
 - ``capacitor``: ``capacitance`` F, ``series_resistance?`` ohm = 0, ``series_inductance?`` H = 0.

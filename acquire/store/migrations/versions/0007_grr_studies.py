@@ -10,7 +10,7 @@ The tables are written out here, frozen, rather than taken from :mod:`acquire.st
 which follows the newest revision.
 
 Revision ID: 0007
-Revises: 0005
+Revises: 0006
 """
 
 from __future__ import annotations
@@ -21,7 +21,7 @@ from alembic import op
 from acquire.store.schema import UtcDateTime
 
 revision = "0007"
-down_revision = "0005"
+down_revision = "0006"
 branch_labels = None
 depends_on = None
 

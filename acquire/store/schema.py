@@ -58,7 +58,8 @@ this module describes the newest revision, :data:`SCHEMA_REVISION`. Revision 000
 of the first released program (which marked its stores with ``schema_version`` 2); 0002 adds the
 uncertainty and flag columns above; 0003 the production columns (uncertainty, tolerance limits,
 references override, temperature); 0004 the measurements' test time and the test-order index;
-0005 the bias sweeps, temperature-rise runs and a measurement's bias current.
+0005 the bias sweeps, temperature-rise runs and a measurement's bias current; 0008 the indexes
+that count a lot's outcomes (each serial's attempts in order, the failing measurements).
 ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
@@ -87,8 +88,11 @@ from sqlalchemy import (
     text,
 )
 
-#: The newest schema revision (the Alembic revision id of ``migrations/versions/0005_*.py``).
-SCHEMA_REVISION = "0005"
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0008_*.py``).
+SCHEMA_REVISION = "0008"
+#: The condition of ``ix_measurements_failing``: a verdict that counts a check as failing
+#: (not a pass, a conditional pass or "" (not judged); acquire.store.lot_query.NOT_FAILING).
+FAILING_VERDICT = "verdict NOT IN ('pass', 'conditional pass', '')"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
 #: Bias-sweep and temperature-rise run states as stored.
@@ -286,7 +290,7 @@ def build_metadata() -> MetaData:
         _ref("lot_id", "lots"),
         Column("reference_override", Text, nullable=False, default="", server_default=""),
         _real("temperature"),
-        Index("ix_units_lot_id", "lot_id"),
+        Index("ix_units_lot_serial", "lot_id", "serial_key", "attempt", "id"),
     )
     Table(
         "measurements",
@@ -323,6 +327,13 @@ def build_metadata() -> MetaData:
             "high_limit",
             "tolerance_low",
             "tolerance_high",
+        ),
+        Index(
+            "ix_measurements_failing",
+            "lot_id",
+            "unit_id",
+            sqlite_where=text(FAILING_VERDICT),
+            postgresql_where=text(FAILING_VERDICT),
         ),
         sqlite_with_rowid=False,
     )

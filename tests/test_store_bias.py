@@ -23,6 +23,7 @@ from acquire.bias.records import COMPLETE, FAILED, INTERRUPTED, BiasSweepResult,
 from acquire.bias.saturation import DropCurrent
 from acquire.errors import StoreError
 from acquire.store import open_store
+from acquire.store.schema import SCHEMA_REVISION
 
 
 @pytest.fixture(params=["sqlite", "postgresql"])
@@ -228,4 +229,4 @@ def test_a_revision_0003_store_upgrades_with_every_row_kept(place):
     assert len(after.pop("bias_sweeps")) == 1 and len(after.pop("rise_runs")) == 1
     _same_rows(before, after)
     assert _raw(url, schema, "SELECT DISTINCT bias_current FROM measurements") == [(None,)]
-    assert _raw(url, schema, "SELECT version_num FROM alembic_version") == [("0005",)]
+    assert _raw(url, schema, "SELECT version_num FROM alembic_version") == [(SCHEMA_REVISION,)]

@@ -112,8 +112,12 @@ def expected(units: list[UnitRecord]) -> dict:
         )
         first.setdefault(unit.serial, unit)
     bins: dict[str, int] = {}
+    failing: dict[str, int] = {}
     for unit in latest.values():
         bins[unit.bin] = bins.get(unit.bin, 0) + 1
+        for key in {quantity_key(m.parameter, m.frequency) for m in unit.measurements
+                    if m.verdict == "fail"}:  # fmt: skip
+            failing[key] = failing.get(key, 0) + 1
     return {
         "quantities": numbers,
         "units": len(latest),
@@ -121,6 +125,7 @@ def expected(units: list[UnitRecord]) -> dict:
         "passed": sum(u.outcome == "pass" for u in latest.values()),
         "first_pass": sum(u.outcome == "pass" for u in first.values()),
         "bins": bins,
+        "failing": failing,
     }
 
 
@@ -140,6 +145,7 @@ def test_lot_statistics_agree_with_an_independent_computation(engine, seed, tmp_
     assert (stats.passed, stats.first_pass) == (want["passed"], want["first_pass"])
     assert stats.yield_ == want["passed"] / want["units"]
     assert stats.bins == want["bins"]
+    assert stats.failing == want["failing"] and want["failing"]  # the latest attempts' failures
     got = {q.key: q for q in stats.quantities}
     assert set(got) == set(want["quantities"])
     for key, numbers in want["quantities"].items():

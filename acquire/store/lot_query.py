@@ -17,11 +17,12 @@ from datetime import datetime
 from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import Connection, and_, case, func, or_, select, true
+from sqlalchemy import text as sql_text
 
 from acquire.errors import StoreError
 from acquire.store.engine import Database
 from acquire.store.records import PASS
-from acquire.store.schema import TABLES, identity_key
+from acquire.store.schema import FAILING_VERDICT, TABLES, identity_key
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -70,14 +71,18 @@ class LotFilter:
         return out
 
 
-def _finished():
-    u = TABLES["units"]
+def _finished(u: Any = None):
+    u = TABLES["units"] if u is None else u
     return func.coalesce(u.c.finished_at, u.c.started_at)
 
 
-def _conditions(conn: Connection, chosen: LotFilter, measurements: bool) -> list[Any]:
-    """WHERE terms on ``units`` (and on ``measurements``' own lot column when ``measurements``)."""
-    u, m = TABLES["units"], TABLES["measurements"]
+def _conditions(
+    conn: Connection, chosen: LotFilter, measurements: bool, units: Any = None
+) -> list[Any]:
+    """WHERE terms on ``units`` (or its alias ``units``; and on ``measurements``' own lot
+    column when ``measurements``)."""
+    u = TABLES["units"] if units is None else units
+    m = TABLES["measurements"]
     terms: list[Any] = []
     if chosen.lot is not None:
         lots = TABLES["lots"]
@@ -87,9 +92,9 @@ def _conditions(conn: Connection, chosen: LotFilter, measurements: bool) -> list
             raise StoreError(f"there is no lot {chosen.lot!r} in the store (check its name)")
         terms.append((m.c.lot_id if measurements else u.c.lot_id) == lot_id)
     if chosen.since is not None:
-        terms.append(_finished() >= chosen.since)
+        terms.append(_finished(u) >= chosen.since)
     if chosen.until is not None:
-        terms.append(_finished() < chosen.until)
+        terms.append(_finished(u) < chosen.until)
     if chosen.station is not None:
         terms.append(u.c.station == chosen.station)
     if chosen.plan_hash is not None:
@@ -146,49 +151,74 @@ class OutcomeCounts:
     failing: dict[tuple[str, float | None], int]
 
 
+def _later_attempt(conn: Connection, chosen: LotFilter, unit: Any) -> Any:
+    """EXISTS a chosen attempt on ``unit``'s serial after it (attempt number, then row id)."""
+    later = TABLES["units"].alias("later")
+    after = or_(
+        later.c.attempt > unit.c.attempt,
+        and_(later.c.attempt == unit.c.attempt, later.c.id > unit.c.id),
+    )
+    terms = _conditions(conn, chosen, measurements=False, units=later)
+    return select(later.c.id).where(later.c.serial_key == unit.c.serial_key, after, *terms).exists()
+
+
+#: Failing measurements, as ``ix_measurements_failing`` holds them (the index's own condition,
+#: literal values, so that SQLite sees that the query asks for the index's rows).
+FAILING_SQL = f"measurements.{FAILING_VERDICT}"
+
+
 def outcome_counts(db: Database, chosen: LotFilter) -> OutcomeCounts:
     """Yields, bins and failing checks of the chosen attempts, counted per serial by the
-    database (first and latest attempt by attempt number, then row id, among those chosen)."""
+    database (first and latest attempt by attempt number, then row id, among those chosen).
+
+    One pass over the chosen units (in the order of ``ix_units_lot_serial`` when a lot is
+    chosen) numbers each serial's attempts and counts them; the failing checks start from the
+    failing measurements (``ix_measurements_failing``, few) and keep those of attempts that no
+    later chosen attempt of the same serial follows."""
     u, m = TABLES["units"], TABLES["measurements"]
 
     def work(conn: Connection) -> OutcomeCounts:
-        first = func.row_number().over(partition_by=u.c.serial_key, order_by=(u.c.attempt, u.c.id))
-        last = func.row_number().over(
-            partition_by=u.c.serial_key, order_by=(u.c.attempt.desc(), u.c.id.desc())
-        )
+        serial, order = u.c.serial_key, (u.c.attempt, u.c.id)
+        number = func.row_number().over(partition_by=serial, order_by=order)
+        attempts = func.count().over(partition_by=serial, order_by=order, rows=(None, None))
         ranked = (
-            select(u.c.id, u.c.outcome, u.c.bin, first.label("first"), last.label("last"))
+            select(u.c.outcome, u.c.bin, number.label("n"), attempts.label("of"))
             .where(and_(true(), *_conditions(conn, chosen, measurements=False)))
             .subquery("ranked")
         )
         passing = ranked.c.outcome == PASS
-        total = conn.execute(
+        first, last = ranked.c.n == 1, ranked.c.n == ranked.c.of
+        per_bin = conn.execute(
             select(
+                ranked.c.bin,
                 func.count(),
-                func.sum(case((ranked.c.first == 1, 1), else_=0)),
-                func.sum(case((and_(ranked.c.last == 1, passing), 1), else_=0)),
-                func.sum(case((and_(ranked.c.first == 1, passing), 1), else_=0)),
+                func.sum(case((first, 1), else_=0)),
+                func.sum(case((last, 1), else_=0)),
+                func.sum(case((and_(last, passing), 1), else_=0)),
+                func.sum(case((and_(first, passing), 1), else_=0)),
             )
-        ).one()
-        bins = conn.execute(
-            select(ranked.c.bin, func.count())
-            .where(ranked.c.last == 1)
             .group_by(ranked.c.bin)
             .order_by(ranked.c.bin)
         ).all()
+        failing_rows = (
+            select(m.c.parameter, m.c.frequency, m.c.unit_id)
+            .select_from(m.join(u, u.c.id == m.c.unit_id))
+            .where(sql_text(FAILING_SQL), *_conditions(conn, chosen, measurements=True))
+            .where(~_later_attempt(conn, chosen, u))
+            .subquery("failing")
+        )
+        f = failing_rows.c
         failing = conn.execute(
-            select(m.c.parameter, m.c.frequency, func.count(func.distinct(m.c.unit_id)))
-            .select_from(m.join(ranked, ranked.c.id == m.c.unit_id))
-            .where(ranked.c.last == 1, m.c.verdict.not_in(NOT_FAILING))
-            .group_by(m.c.parameter, m.c.frequency)
-            .order_by(m.c.parameter, m.c.frequency)
+            select(f.parameter, f.frequency, func.count(func.distinct(f.unit_id)))
+            .group_by(f.parameter, f.frequency)
+            .order_by(f.parameter, f.frequency)
         ).all()
         return OutcomeCounts(
-            int(total[0]),
-            int(total[1] or 0),
-            int(total[2] or 0),
-            int(total[3] or 0),
-            {str(b): int(n) for b, n in bins},
+            sum(int(r[1]) for r in per_bin),
+            sum(int(r[2] or 0) for r in per_bin),
+            sum(int(r[4] or 0) for r in per_bin),
+            sum(int(r[5] or 0) for r in per_bin),
+            {str(r[0]): int(r[3]) for r in per_bin if r[3]},
             {(p, None if f == DC else f): int(n) for p, f, n in failing},
         )
 

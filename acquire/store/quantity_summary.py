@@ -1,10 +1,13 @@
 """Per quantity numbers of a selection of units, read from the test-order index.
 
 One grouped query counts each quantity's measurements, finite values and passes and gives the
-smallest, largest and number of each stated limit. Then, per quantity, the finite values are
-read in test order (the unit's test time, then the unit's row id, then the measurement's
-sequence number), which is the order of ``ix_measurements_lot_order``: no sort, no look-up of
-the table. Mean, the sum of squared deviations from that mean (a second pass over the values, so
+smallest, largest and number of each stated limit. Then one query reads every quantity's finite
+values, quantity after quantity, each in test order (the unit's test time, then the unit's row
+id, then the measurement's sequence number), which is the order of ``ix_measurements_lot_order``:
+no sort, no look-up of the table; the driver hands them straight to numpy
+(:mod:`acquire.store.driver_read`) and the counts split them by quantity. On PostgreSQL both
+queries read one snapshot (REPEATABLE READ), so a unit stored meanwhile cannot shift them.
+Mean, the sum of squared deviations from that mean (a second pass over the values, so
 a large mean does not eat the digits of a small spread), extremes and moving ranges are worked
 out with numpy on those values. An invalid reading is skipped, so the moving ranges join the
 finite values on either side of it. Units tested at the same time keep the order they were
@@ -18,6 +21,7 @@ from typing import Any
 
 from sqlalchemy import Connection, and_, case, func, select, true
 
+from acquire.store.driver_read import read_floats
 from acquire.store.engine import Database
 from acquire.store.lot_query import LotFilter, _conditions
 from acquire.store.records import PASS
@@ -25,6 +29,9 @@ from acquire.store.schema import TABLES
 
 #: The limit columns, as :attr:`QuantityRow.limits` names them.
 LIMIT_COLUMNS = ("low_limit", "high_limit", "tolerance_low", "tolerance_high")
+_m = TABLES["measurements"]
+#: Test order within a quantity (the tail of ``ix_measurements_lot_order``).
+TEST_ORDER = (_m.c.tested_at, _m.c.unit_id, _m.c.seq)
 
 
 @dataclass(frozen=True)
@@ -65,9 +72,16 @@ def quantity_rows(db: Database, chosen: LotFilter) -> list[QuantityRow]:
 
     m = TABLES["measurements"]
     keys = (m.c.parameter, m.c.frequency, m.c.si_unit)
+    finite = and_(m.c.value_special == "", m.c.value.is_not(None))
+    # The same condition in a form the planner does not treat as "value_special is constant":
+    # SQLite then reads the whole ordered query from the index, with no sort.
+    finite_in_order = and_(func.length(m.c.value_special) == 0, m.c.value.is_not(None))
     spans = [f(m.c[n]) for n in LIMIT_COLUMNS for f in (func.min, func.max, func.count)]
 
     def work(conn: Connection) -> list[QuantityRow]:
+        if conn.dialect.name == "postgresql":
+            # One snapshot for the counts and the values (READ COMMITTED takes one a statement).
+            conn.exec_driver_sql("SET TRANSACTION ISOLATION LEVEL REPEATABLE READ READ ONLY")
         source, terms = _source(conn, chosen)
         grouped = (
             select(
@@ -75,6 +89,7 @@ def quantity_rows(db: Database, chosen: LotFilter) -> list[QuantityRow]:
                 func.count(),
                 func.count(m.c.value),
                 func.count(case((m.c.verdict == PASS, 1))),
+                func.count(case((finite, 1))),
                 *spans,
             )
             .select_from(source)
@@ -82,23 +97,24 @@ def quantity_rows(db: Database, chosen: LotFilter) -> list[QuantityRow]:
             .group_by(*keys)
             .order_by(*keys)
         )
+        rows = conn.execute(grouped).all()
+        values = (
+            select(m.c.value)
+            .select_from(source)
+            .where(and_(true(), *terms), finite_in_order)
+            .order_by(*keys, m.c.value_special, *TEST_ORDER)
+        )
+        every = read_floats(conn, values, sum(int(r[6]) for r in rows))
+        ends = np.cumsum([int(r[6]) for r in rows])
         out = []
-        for row in conn.execute(grouped).all():
-            p, f, unit, count, valid, passed = row[:6]
-            values = (
-                select(m.c.value)
-                .select_from(source)
-                .where(and_(true(), *terms))
-                .where(m.c.parameter == p, m.c.frequency == f, m.c.si_unit == unit)
-                .where(m.c.value_special == "", m.c.value.is_not(None))
-                .order_by(m.c.tested_at, m.c.unit_id, m.c.seq)
-            )
-            x = np.array(conn.execute(values).scalars().all(), dtype=float)
+        for row, end in zip(rows, ends, strict=True):
+            p, f, unit, count, valid, passed, n = row[:7]
+            x = every[end - n : end]
             mean = float(x.mean()) if x.size else None
             ss = float(np.sum((x - mean) ** 2)) if mean is not None else None
             ranges = np.abs(np.diff(x))
             limits = {
-                name: tuple(row[6 + 3 * k : 9 + 3 * k]) for k, name in enumerate(LIMIT_COLUMNS)
+                name: tuple(row[7 + 3 * k : 10 + 3 * k]) for k, name in enumerate(LIMIT_COLUMNS)
             }
             out.append(
                 QuantityRow(

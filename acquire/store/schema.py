@@ -72,7 +72,8 @@ uncertainty and flag columns above; 0003 the production columns (uncertainty, to
 references override, temperature); 0004 the measurements' test time and the test-order index;
 0005 the bias sweeps, temperature-rise runs and a measurement's bias current; 0006 the check
 standards, their results and acknowledgements, and a unit's ``check_acknowledgement_id``; 0007
-the gauge R&R studies.
+the gauge R&R studies; 0008 the indexes that count a lot's outcomes (each serial's attempts in
+order, the failing measurements).
 ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
@@ -103,8 +104,11 @@ from sqlalchemy import (
 
 from acquire.store.check_tables import check_tables
 
-#: The newest schema revision (the Alembic revision id of ``migrations/versions/0007_*.py``).
-SCHEMA_REVISION = "0007"
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0008_*.py``).
+SCHEMA_REVISION = "0008"
+#: The condition of ``ix_measurements_failing``: a verdict that counts a check as failing
+#: (not a pass, a conditional pass or "" (not judged); acquire.store.lot_query.NOT_FAILING).
+FAILING_VERDICT = "verdict NOT IN ('pass', 'conditional pass', '')"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
 #: Bias-sweep and temperature-rise run states as stored.
@@ -303,7 +307,7 @@ def build_metadata() -> MetaData:
         Column("reference_override", Text, nullable=False, default="", server_default=""),
         _real("temperature"),
         _ref("check_acknowledgement_id", "check_acknowledgements"),
-        Index("ix_units_lot_id", "lot_id"),
+        Index("ix_units_lot_serial", "lot_id", "serial_key", "attempt", "id"),
     )
     Table(
         "measurements",
@@ -340,6 +344,13 @@ def build_metadata() -> MetaData:
             "high_limit",
             "tolerance_low",
             "tolerance_high",
+        ),
+        Index(
+            "ix_measurements_failing",
+            "lot_id",
+            "unit_id",
+            sqlite_where=text(FAILING_VERDICT),
+            postgresql_where=text(FAILING_VERDICT),
         ),
         sqlite_with_rowid=False,
     )

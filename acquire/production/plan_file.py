@@ -50,6 +50,7 @@ from acquire.production.plan_values import (
     either,
     kelvin,
     read_limit,
+    toml_message,
 )
 from acquire.units import format_si, parse_quantity, parse_temperature
 
@@ -79,8 +80,6 @@ SPEEDS = ("fast", "medium", "slow")
 TEMPERATURE_SOURCES = ("fixed", "per-lot", "none")
 #: Bin names the station itself uses (compared without case).
 RESERVED_BINS = (REJECT_BIN, "error")
-
-_TOML_PLACE = re.compile(r"\s*\(at (?:line (\d+), column (\d+)|end of document)\)\s*$")
 
 
 def example_plan_path(kind: str = "coil") -> Path:
@@ -116,25 +115,13 @@ def parse_plan(text: str, source: str = "<text>") -> TestPlan:
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
-        raise PlanError(_toml_message(str(exc), text, source)) from None
+        raise PlanError(toml_message(str(exc), text, source)) from None
     except ValueError:  # Python's limit on the digits of an integer (4300 by default)
         raise PlanError(
             f"{source}: an integer of thousands of digits; TOML integers fit in 64 bits "
             "(TOML 1.0, Integer): write a quantity with its unit instead"
         ) from None
     return _Reader(source).plan(data, text)
-
-
-def _toml_message(message: str, text: str, source: str) -> str:
-    place = _TOML_PLACE.search(message)
-    reason = message[: place.start()] if place else message
-    if place and place.group(1):
-        where = f"line {place.group(1)}"
-        reason += f" (column {place.group(2)})"
-    else:
-        where = f"line {max(len(text.splitlines()), 1)}"
-        reason += " (at the end of the file)"
-    return f"{source}: {where}: {reason}; fix the TOML syntax (see acquire/examples/README.md)"
 
 
 class _Reader(BiasTables):

@@ -306,3 +306,20 @@ def check_name(check: Check) -> str:
 def either(words: tuple[str, ...]) -> str:
     quoted = [f'"{w}"' for w in words]
     return quoted[0] if len(quoted) == 1 else f"{', '.join(quoted[:-1])} or {quoted[-1]}"
+
+
+#: Where a TOML parser's message says the fault is.
+TOML_PLACE = re.compile(r"\s*\(at (?:line (\d+), column (\d+)|end of document)\)\s*$")
+
+
+def toml_message(message: str, text: str, source: str) -> str:
+    """A TOML parser's complaint as one line naming the plan file and where in it."""
+    place = TOML_PLACE.search(message)
+    reason = message[: place.start()] if place else message
+    if place and place.group(1):
+        where = f"line {place.group(1)}"
+        reason += f" (column {place.group(2)})"
+    else:
+        where = f"line {max(len(text.splitlines()), 1)}"
+        reason += " (at the end of the file)"
+    return f"{source}: {where}: {reason}; fix the TOML syntax (see acquire/examples/README.md)"

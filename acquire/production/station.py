@@ -32,8 +32,9 @@ from acquire.production.plan import CONDITIONAL_PASS, PASS, REJECT_BIN, TestPlan
 from acquire.production.reference_guard import CAPTURE_HINT, check_problems, reference_blocks
 from acquire.production.screen import NOT_TESTED, ShownUnit, StationStatus
 from acquire.production.station_bias import BiasGuard
+from acquire.production.unit_record import measurement_records, unknown_u_note
 from acquire.signals import held, stop_reason
-from acquire.store.records import MeasurementRecord, UnitRecord, new_attempt_id
+from acquire.store.records import UnitRecord, new_attempt_id
 from acquire.store.schema import utc_now
 from drivers.errors import InstrumentError
 
@@ -92,45 +93,6 @@ def _fault(text: str) -> UnitMeasurement:
     """A unit whose measurement a meter fault stopped before it began."""
     empty = np.zeros(0)
     return UnitMeasurement({}, {}, empty, empty.astype(complex), None, None, None, text, 0.0)
-
-
-def _unknown_u_note(judgement: UnitJudgement, plan: TestPlan) -> str:
-    """What the record must say when a guard band met a value with no uncertainty: its
-    acceptance limits are infinite (nothing could be accepted), stored as empty limits."""
-    if plan.decision.factor <= 0:
-        return ""
-    unknown = [j.check.key for j in judgement.judged if not np.isfinite(j.uncertainty)]
-    if not unknown:
-        return ""
-    return (
-        f"no uncertainty for {', '.join(unknown)}: under the guard band no value could be "
-        "accepted (its stored acceptance limits are empty)"
-    )
-
-
-def measurement_records(
-    judgement: UnitJudgement, bias: dict[str, float] | None = None
-) -> tuple[MeasurementRecord, ...]:
-    """The judged values as store records: the acceptance limits applied, the tolerance limits,
-    the verdict and the expanded uncertainty of each, and the bias read back for a check
-    measured under bias (``bias`` maps check keys to A)."""
-    bias = bias or {}
-    return tuple(
-        MeasurementRecord(
-            j.check.name,
-            j.value,
-            j.check.unit,
-            j.check.frequency,
-            j.low,
-            j.high,
-            j.verdict,
-            uncertainty=j.uncertainty,
-            tolerance_low=j.check.limit.low,
-            tolerance_high=j.check.limit.high,
-            bias_current=bias.get(j.check.key, j.check.bias),
-        )
-        for j in judgement.judged
-    )
 
 
 class Station:
@@ -333,7 +295,7 @@ class Station:
         return bool(has(operation)) if has is not None else False
 
     def _notes(self, measured: UnitMeasurement, judgement: UnitJudgement) -> str:
-        return self.bias.note(measured.error or _unknown_u_note(judgement, self.context.plan))
+        return self.bias.note(measured.error or unknown_u_note(judgement, self.context.plan))
 
     def _record(
         self,

@@ -1,26 +1,14 @@
 """The check-standard tables of the newest schema revision (0006), added to the store's metadata
-by :func:`acquire.store.schema.build_metadata` (which hands over its UTC time type)."""
+by :func:`acquire.store.schema.build_metadata`."""
 
 from __future__ import annotations
 
-from typing import Any
+from sqlalchemy import Column, ForeignKey, Index, Integer, MetaData, String, Table
 
-from sqlalchemy import Column, Double, ForeignKey, Index, Integer, MetaData, String, Table, Text
-
-
-def _id() -> Column:
-    return Column("id", Integer, primary_key=True, autoincrement=True)
+from acquire.store.columns import UtcDateTime, _id, _real, _text
 
 
-def _text(name: str) -> Column:
-    return Column(name, Text, nullable=False, default="")
-
-
-def _real(name: str) -> Column:
-    return Column(name, Double, nullable=True)
-
-
-def check_tables(md: MetaData, UtcDateTime: Any) -> None:  # noqa: N803 - the type's name
+def check_tables(md: MetaData) -> None:
     """Check standards, each check's values (one row per quantity) and the acknowledgements.
 
     A check result's ``check_id`` (a UUID) groups the quantities measured in one check;

@@ -14,8 +14,8 @@ from acquire.errors import StoreError
 from acquire.store import (
     bias_runs,
     catalog,
-    grr_studies,
     check_results,
+    grr_studies,
     lot_query,
     production,
     references,

@@ -86,10 +86,8 @@ from datetime import UTC, datetime
 
 from sqlalchemy import (
     JSON,
-    Boolean,
     CheckConstraint,
     Column,
-    DateTime,
     Double,
     ForeignKey,
     Index,
@@ -98,11 +96,14 @@ from sqlalchemy import (
     String,
     Table,
     Text,
-    TypeDecorator,
     text,
 )
 
 from acquire.store.check_tables import check_tables
+from acquire.store.columns import RUN_STATES as RUN_STATES
+from acquire.store.columns import UtcDateTime as UtcDateTime
+from acquire.store.columns import _id, _real, _ref, _text
+from acquire.store.run_tables import bias_tables, grr_tables
 
 #: The newest schema revision (the Alembic revision id of ``migrations/versions/0008_*.py``).
 SCHEMA_REVISION = "0008"
@@ -111,30 +112,6 @@ SCHEMA_REVISION = "0008"
 FAILING_VERDICT = "verdict NOT IN ('pass', 'conditional pass', '')"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
-#: Bias-sweep and temperature-rise run states as stored.
-RUN_STATES = ("running", "complete", "interrupted", "failed")
-
-
-class UtcDateTime(TypeDecorator):
-    """A timezone-aware datetime stored as UTC (naive UTC text on SQLite, timestamptz on PG)."""
-
-    impl = DateTime(timezone=True)
-    cache_ok = True
-
-    def process_bind_param(self, value, dialect):
-        if value is None:
-            return None
-        if value.tzinfo is None:
-            raise ValueError("times given to the store must be timezone-aware (use UTC)")
-        value = value.astimezone(UTC)
-        return value.replace(tzinfo=None) if dialect.name == "sqlite" else value
-
-    def process_result_value(self, value, dialect):
-        if value is None:
-            return None
-        if value.tzinfo is None:
-            return value.replace(tzinfo=UTC)
-        return value.astimezone(UTC)
 
 
 def utc_now() -> datetime:
@@ -145,22 +122,6 @@ def utc_now() -> datetime:
 def identity_key(*parts: str) -> str:
     """The SHA-256 key of an identity made of several strings (unambiguous for any content)."""
     return hashlib.sha256(json.dumps(list(parts), ensure_ascii=False).encode()).hexdigest()
-
-
-def _id() -> Column:
-    return Column("id", Integer, primary_key=True, autoincrement=True)
-
-
-def _ref(name: str, table: str, index: bool = False) -> Column:
-    return Column(name, Integer, ForeignKey(f"{table}.id"), nullable=True, index=index)
-
-
-def _text(name: str) -> Column:
-    return Column(name, Text, nullable=False, default="")
-
-
-def _real(name: str) -> Column:
-    return Column(name, Double, nullable=True)
 
 
 def build_metadata() -> MetaData:
@@ -354,130 +315,10 @@ def build_metadata() -> MetaData:
         ),
         sqlite_with_rowid=False,
     )
-    _bias_tables(md)
-    check_tables(md, UtcDateTime)
-    _grr_tables(md)
+    bias_tables(md)
+    check_tables(md)
+    grr_tables(md)
     return md
-
-
-def _grr_tables(md: MetaData) -> None:
-    """Gauge R&R studies and their measurements."""
-    states = ", ".join(f"'{s}'" for s in RUN_STATES)
-    Table(
-        "grr_studies",
-        md,
-        _id(),
-        _text("name"),
-        _ref("plan_id", "plans"),
-        _text("plan_hash"),
-        _text("quantity"),
-        _text("unit"),
-        Column("parts", Integer, nullable=False),
-        Column("operators", Integer, nullable=False),
-        Column("trials", Integer, nullable=False),
-        Column("operator_names", Text, nullable=False),
-        _real("tolerance"),
-        Column("seed", Text, nullable=False),
-        _text("station"),
-        _text("meter"),
-        _ref("reference_set_id", "reference_sets"),
-        Column("measurements", Integer, nullable=False, default=0),
-        *_writer_columns(),
-        CheckConstraint(f"status IN ({states})", name="ck_grr_studies_status"),
-    )
-    Table(
-        "grr_measurements",
-        md,
-        Column("grr_study_id", Integer, ForeignKey("grr_studies.id"), primary_key=True),
-        Column("idx", Integer, primary_key=True, autoincrement=False),
-        Column("part", Integer, nullable=False),
-        Column("operator", Text, nullable=False),
-        Column("trial", Integer, nullable=False),
-        Column("order_index", Integer, nullable=False),
-        _real("value"),
-        _real("uncertainty"),
-        Column("measured_at", UtcDateTime, nullable=False),
-        sqlite_with_rowid=False,
-    )
-
-
-def _writer_columns() -> list[Column]:
-    """Status, note, times and the writing process of a run, as a sweep has them."""
-    return [
-        Column("status", String(16), nullable=False),
-        _text("note"),
-        Column("started_at", UtcDateTime, nullable=False),
-        Column("finished_at", UtcDateTime, nullable=True),
-        Column("last_write_at", UtcDateTime, nullable=True),
-        Column("writer_host", Text, nullable=True),
-        Column("writer_pid", Integer, nullable=True),
-    ]
-
-
-def _bias_tables(md: MetaData) -> None:
-    """Bias sweeps with their points and drop currents; temperature-rise runs with readings."""
-    states = ", ".join(f"'{s}'" for s in RUN_STATES)
-    Table(
-        "bias_sweeps",
-        md,
-        _id(),
-        _text("dut"),
-        _text("fixture"),
-        _text("meter"),
-        _text("supply"),
-        _ref("reference_set_id", "reference_sets"),
-        Column("frequency", Double, nullable=False),
-        Column("currents", Text, nullable=False),
-        Column("drops", Text, nullable=False),
-        *(_real(name) for name in ("maximum", "step", "dwell", "energy")),
-        _text("confirmed"),
-        Column("points", Integer, nullable=False, default=0),
-        *_writer_columns(),
-        CheckConstraint(f"status IN ({states})", name="ck_bias_sweeps_status"),
-    )
-    Table(
-        "bias_points",
-        md,
-        Column("bias_sweep_id", Integer, ForeignKey("bias_sweeps.id"), primary_key=True),
-        Column("idx", Integer, primary_key=True, autoincrement=False),
-        *(_real(name) for name in ("setpoint", "applied", "raw_r", "raw_x")),
-        *(_real(name) for name in ("corrected_r", "corrected_x", "ls", "rs", "q")),
-        sqlite_with_rowid=False,
-    )
-    Table(
-        "bias_drops",
-        md,
-        Column("bias_sweep_id", Integer, ForeignKey("bias_sweeps.id"), primary_key=True),
-        Column("idx", Integer, primary_key=True, autoincrement=False),
-        Column("drop_fraction", Double, nullable=False),
-        _real("drop_current"),
-        _real("highest_current"),
-        sqlite_with_rowid=False,
-    )
-    Table(
-        "rise_runs",
-        md,
-        _id(),
-        _text("dut"),
-        _text("meter"),
-        _text("supply"),
-        *(_real(name) for name in ("current_asked", "ambient", "time_limit")),
-        *(_real(name) for name in ("settle_window", "settle_tolerance", "target_rise")),
-        *(_real(name) for name in ("r_cold", "t_cold", "held_current")),
-        Column("settled", Boolean, nullable=True),
-        Column("steps", Text, nullable=False, default="[]"),
-        Column("readings", Integer, nullable=False, default=0),
-        *_writer_columns(),
-        CheckConstraint(f"status IN ({states})", name="ck_rise_runs_status"),
-    )
-    Table(
-        "rise_readings",
-        md,
-        Column("rise_run_id", Integer, ForeignKey("rise_runs.id"), primary_key=True),
-        Column("idx", Integer, primary_key=True, autoincrement=False),
-        *(_real(name) for name in ("elapsed", "resistance", "rise")),
-        sqlite_with_rowid=False,
-    )
 
 
 #: The tables of the newest schema revision.

@@ -19,7 +19,6 @@ import json
 import math
 from dataclasses import dataclass
 from datetime import datetime
-from types import TracebackType
 from typing import Any
 
 import numpy as np
@@ -30,6 +29,7 @@ from acquire.bias.saturation import DropCurrent
 from acquire.errors import StoreError
 from acquire.store.engine import Database
 from acquire.store.run_rows import (
+    RunWriter,
     check_end,
     finish_run,
     holding,
@@ -37,7 +37,6 @@ from acquire.store.run_rows import (
     number,
     read_float,
     reported,
-    stop_note,
     writer_row,
 )
 from acquire.store.schema import TABLES, utc_now
@@ -108,25 +107,14 @@ def begin_bias_sweep(db: Database, settings: BiasSettings) -> BiasSweepWriter:
     return BiasSweepWriter(db, sweep_id)
 
 
-class BiasSweepWriter:
+class BiasSweepWriter(RunWriter):
     """Stores the points of one bias sweep as they complete; finish it, or use it as a context
     manager (a normal exit finishes it ``complete``, an exception ``interrupted``)."""
-
-    def __init__(self, db: Database, sweep_id: int) -> None:
-        self._db = db
-        self._id = sweep_id
-        self._points = 0
-        self._finished: str | None = None
-
-    @property
-    def id(self) -> int:
-        """The bias sweep's id in the store."""
-        return self._id
 
     @property
     def points(self) -> int:
         """How many points are stored."""
-        return self._points
+        return self._count
 
     def add_point(
         self,
@@ -167,7 +155,7 @@ class BiasSweepWriter:
             conn.execute(bump.values(points=have + 1, last_write_at=utc_now()))
             return have + 1
 
-        self._points = self._db.write("storing a bias point", work, idempotent=True)
+        self._count = self._db.write("storing a bias point", work, idempotent=True)
 
     def finish(
         self, status: str = "complete", drops: tuple[DropCurrent, ...] = (), note: str = ""
@@ -190,20 +178,8 @@ class BiasSweepWriter:
         finish_run(self._db, sweeps, self._id, values, table, rows, "bias sweep")
         self._finished = status
 
-    def __enter__(self) -> BiasSweepWriter:
-        return self
-
-    def __exit__(
-        self,
-        kind: type[BaseException] | None,
-        exc: BaseException | None,
-        tb: TracebackType | None,
-    ) -> None:
-        if self._finished is None:
-            if exc is None:
-                self.finish("complete")
-            else:
-                self.finish("interrupted", note=stop_note(exc))
+    def _end(self, status: str, note: str) -> None:
+        self.finish(status, note=note)
 
 
 def list_bias_sweeps(

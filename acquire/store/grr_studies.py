@@ -17,7 +17,6 @@ import json
 from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime
-from types import TracebackType
 
 import numpy as np
 from sqlalchemy import Connection, select, update
@@ -26,13 +25,13 @@ from acquire.errors import StoreError
 from acquire.msa.records import GrrData
 from acquire.store.engine import Database
 from acquire.store.run_rows import (
+    RunWriter,
     check_end,
     finish_run,
     holding,
     number,
     read_float,
     reported,
-    stop_note,
     writer_row,
 )
 from acquire.store.schema import TABLES, utc_now
@@ -134,19 +133,8 @@ def begin_grr_study(db: Database, settings: GrrStudySettings) -> GrrStudyWriter:
     return GrrStudyWriter(db, study_id)
 
 
-class GrrStudyWriter:
+class GrrStudyWriter(RunWriter):
     """Stores a study's measurements as they are taken; see the module docstring."""
-
-    def __init__(self, db: Database, study_id: int) -> None:
-        self._db = db
-        self._id = study_id
-        self._count = 0
-        self._finished: str | None = None
-
-    @property
-    def id(self) -> int:
-        """The study's id in the store."""
-        return self._id
 
     @property
     def count(self) -> int:
@@ -203,20 +191,8 @@ class GrrStudyWriter:
         finish_run(self._db, studies, self._id, {"status": status, "note": note}, table, [], WHAT)
         self._finished = status
 
-    def __enter__(self) -> GrrStudyWriter:
-        return self
-
-    def __exit__(
-        self,
-        kind: type[BaseException] | None,
-        exc: BaseException | None,
-        tb: TracebackType | None,
-    ) -> None:
-        if self._finished is None:
-            if exc is None:
-                self.finish("complete")
-            else:
-                self.finish("interrupted", stop_note(exc))
+    def _end(self, status: str, note: str) -> None:
+        self.finish(status, note=note)
 
 
 def _info(row, now: datetime, stale_after: float) -> GrrStudyInfo:

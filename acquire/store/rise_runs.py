@@ -16,7 +16,6 @@ from __future__ import annotations
 import json
 from dataclasses import dataclass
 from datetime import datetime
-from types import TracebackType
 from typing import Any
 
 import numpy as np
@@ -26,13 +25,13 @@ from acquire.bias.records import RiseResult, RiseSettings
 from acquire.errors import StoreError
 from acquire.store.engine import Database
 from acquire.store.run_rows import (
+    RunWriter,
     check_end,
     finish_run,
     holding,
     number,
     read_float,
     reported,
-    stop_note,
     writer_row,
 )
 from acquire.store.schema import TABLES, utc_now
@@ -96,33 +95,22 @@ def begin_rise_run(db: Database, settings: RiseSettings) -> RiseWriter:
     return RiseWriter(db, run_id)
 
 
-class RiseWriter:
+class RiseWriter(RunWriter):
     """Stores the readings of one temperature-rise run as they come; finish it with the result,
     or use it as a context manager (an exception marks the run ``interrupted``; a normal exit
     without ``finish`` marks it ``complete`` with what it holds)."""
 
-    def __init__(self, db: Database, run_id: int) -> None:
-        self._db = db
-        self._id = run_id
-        self._readings = 0
-        self._finished: str | None = None
-
-    @property
-    def id(self) -> int:
-        """The run's id in the store."""
-        return self._id
-
     @property
     def readings(self) -> int:
         """How many readings are stored."""
-        return self._readings
+        return self._count
 
     def add_reading(self, t: float, r: float, rise: float) -> None:
         """Store one reading in one transaction: ``t`` seconds after the current started, the
         winding's DC resistance ``r`` (ohm) and its rise (K)."""
         if self._finished is not None:
             raise StoreError(f"temperature-rise run {self._id} is already {self._finished}")
-        self._readings = self._store([(t, r, rise)], self._readings)
+        self._count = self._store([(t, r, rise)], self._count)
 
     def _store(self, readings: list[tuple[float, float, float]], start: int) -> int:
         runs, table = TABLES["rise_runs"], TABLES["rise_readings"]
@@ -158,14 +146,14 @@ class RiseWriter:
         note = result.note if note is None else note
         check_end(status, "temperature-rise run", self._finished)
         times = np.asarray(result.times, dtype=float)
-        if self._readings < times.size:
+        if self._count < times.size:
             tail = zip(
-                times[self._readings :].tolist(),
-                np.asarray(result.resistance, dtype=float)[self._readings :].tolist(),
-                np.asarray(result.rise, dtype=float)[self._readings :].tolist(),
+                times[self._count :].tolist(),
+                np.asarray(result.resistance, dtype=float)[self._count :].tolist(),
+                np.asarray(result.rise, dtype=float)[self._count :].tolist(),
                 strict=True,
             )
-            self._readings = self._store(list(tail), self._readings)
+            self._count = self._store(list(tail), self._count)
         steps = [[float(c), float(r)] for c, r in result.steps]
         values = {
             "status": status,
@@ -186,21 +174,6 @@ class RiseWriter:
         check_end(status, what, self._finished)
         finish_run(self._db, runs, self._id, {"status": status, "note": note}, table, [], what)
         self._finished = status
-
-    def __enter__(self) -> RiseWriter:
-        return self
-
-    def __exit__(
-        self,
-        kind: type[BaseException] | None,
-        exc: BaseException | None,
-        tb: TracebackType | None,
-    ) -> None:
-        if self._finished is None:
-            if exc is None:
-                self._end("complete", "")
-            else:
-                self._end("interrupted", stop_note(exc))
 
 
 def _info(row: Any, last_rise: float | None, now: datetime, stale_after: float) -> RiseRunInfo:

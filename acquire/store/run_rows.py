@@ -13,7 +13,8 @@ import math
 import os
 import socket
 from datetime import datetime
-from typing import Any
+from types import TracebackType
+from typing import Any, Self
 
 from sqlalchemy import Connection, Table, select, update
 
@@ -79,6 +80,41 @@ def holding(conn: Connection, table: Table, run_id: int, count: str, what: str) 
             "abandoned): begin a new one"
         )
     return int(have)
+
+
+class RunWriter:
+    """What a writer of one run holds: its store, the run's id, how many rows it has stored and
+    its one end. As a context manager, a normal exit ends the run ``complete`` and an exception
+    ``interrupted`` (with the exception in the note); a subclass says how it ends (``_end``)."""
+
+    def __init__(self, db: Database, run_id: int) -> None:
+        self._db = db
+        self._id = run_id
+        self._count = 0
+        self._finished: str | None = None
+
+    @property
+    def id(self) -> int:
+        """The run's id in the store."""
+        return self._id
+
+    def _end(self, status: str, note: str) -> None:
+        raise NotImplementedError
+
+    def __enter__(self) -> Self:
+        return self
+
+    def __exit__(
+        self,
+        kind: type[BaseException] | None,
+        exc: BaseException | None,
+        tb: TracebackType | None,
+    ) -> None:
+        if self._finished is None:
+            if exc is None:
+                self._end("complete", "")
+            else:
+                self._end("interrupted", stop_note(exc))
 
 
 def stop_note(exc: BaseException | None) -> str:

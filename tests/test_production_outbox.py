@@ -69,6 +69,7 @@ def _full_unit() -> UnitRecord:
         attempt_id="1b4e28ba-2fa1-41d2-883f-0016d3cca427",
         reference_override="references 9 h old; approved",
         temperature=23.4,
+        check_acknowledgement_id=7,
     )
 
 

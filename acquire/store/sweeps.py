@@ -30,17 +30,16 @@ import socket
 from collections.abc import Sequence
 from datetime import datetime
 from functools import cache, partial
-from itertools import repeat
 from types import TracebackType
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from sqlalchemy import Connection, Update, bindparam, func, select, update
+from sqlalchemy import Connection, Select, bindparam, func, select, update
 
 from acquire.errors import StoreError
 from acquire.store.abandoned import close_dead_writers as close_dead_writers
 from acquire.store.abandoned import rows_changed, writer_gone
-from acquire.store.engine import Database, float_column, to_json
+from acquire.store.engine import Database, to_json
 from acquire.store.records import SweepInfo
 from acquire.store.schema import SWEEP_STATES, TABLES, utc_now
 
@@ -151,47 +150,39 @@ class SweepWriter:
         marks = _flags(flags, f.size)
         if f.size == 0:
             return
-        columns = (
-            f.tolist(),
-            float_column(raw.real),
-            float_column(raw.imag),
-            float_column(cor.real),
-            float_column(cor.imag),
-            float_column(u[:, 0]),
-            float_column(u[:, 1]),
-            marks,
-        )
         start, count = self._points, f.size
-        rows = list(zip(repeat(self._id), range(start, start + count), *columns, strict=False))
-        sweeps = TABLES["sweeps"]
-        held = select(sweeps.c.points).where(sweeps.c.id == self._id, sweeps.c.status == "running")
-        where = {"sweep": self._id, "start": start}
+        rows = point_rows(self._id, start, f, raw, cor, u, marks)
+        sweep_id = self._id
 
         def work(conn: Connection) -> int:
             now = utc_now()
-            if conn.execute(_advance(), {**where, "end": start + count, "now": now}).rowcount:
-                conn.exec_driver_sql(_insert_text(conn.dialect.paramstyle), rows)
+            dialect = conn.dialect
+            advance = (start + count, _time_value(dialect, now), sweep_id, start)
+            insert = _insert_text(dialect.paramstyle)
+            if conn.exec_driver_sql(_advance_text(dialect.paramstyle), advance).rowcount:
+                conn.exec_driver_sql(insert, rows)
                 return start + count
-            have = conn.execute(held.with_for_update()).scalar_one_or_none()
+            have = conn.execute(_held(), {"sweep": sweep_id}).scalar_one_or_none()
             if have is None:
                 raise SweepNotRunning(
-                    f"sweep {self._id} is no longer running in the store (it was finished or "
+                    f"sweep {sweep_id} is no longer running in the store (it was finished or "
                     "closed as abandoned): begin a new sweep"
                 )
             if not start <= have <= start + count:
                 raise StoreError(
-                    f"sweep {self._id} holds {have} points in the store, but this writer "
+                    f"sweep {sweep_id} holds {have} points in the store, but this writer "
                     f"counts {start}: another program writes to it; begin a new sweep"
                 )
             new = rows[have - start :]
+            sweeps = TABLES["sweeps"]
             bump = (
                 update(sweeps)
-                .where(sweeps.c.id == self._id)
+                .where(sweeps.c.id == sweep_id)
                 .values(points=have + len(new), last_write_at=now)
             )
             conn.execute(bump)
             if new:
-                conn.exec_driver_sql(_insert_text(conn.dialect.paramstyle), new)
+                conn.exec_driver_sql(insert, new)
             return have + len(new)
 
         self._points = self._db.write("storing sweep points", work, idempotent=True)
@@ -239,22 +230,50 @@ class SweepWriter:
             self.finish("interrupted", note=f"stopped by {reason}")
 
 
+def _marks(paramstyle: str, count: int) -> list[str]:
+    mark = {"qmark": "?", "format": "%s", "pyformat": "%s", "numeric": ":{}"}.get(paramstyle)
+    if mark is None:
+        raise StoreError(f"the database driver's parameter style {paramstyle!r} is not supported")
+    return [mark.format(i + 1) for i in range(count)]
+
+
 @cache
-def _advance() -> Update:
+def _advance_text(paramstyle: str) -> str:
     """The sweep row's update of a batch in the usual case: the store holds exactly the points
     this writer counts and the sweep still runs. It moves the count and the writer's heartbeat
-    in one statement, built once; when it changes no row, the batch takes the careful way (a
-    batch sent again, or a sweep no longer running)."""
+    in one statement, written once in the driver's own parameter style (parameters: the new
+    count, the time as :func:`_time_value` gives it, the sweep's id, the count before); when it
+    changes no row, the batch takes the careful way (a batch sent again, or a sweep no longer
+    running)."""
+    end, now, sweep, start = _marks(paramstyle, 4)
+    return (
+        f"UPDATE sweeps SET points = {end}, last_write_at = {now} "
+        f"WHERE sweeps.id = {sweep} AND sweeps.status = 'running' AND sweeps.points = {start}"
+    )
+
+
+@cache
+def _held() -> Select:
+    """The careful way's locked read of the points a running sweep holds (``sweep``: its id)."""
     sweeps = TABLES["sweeps"]
     return (
-        update(sweeps)
-        .where(
-            sweeps.c.id == bindparam("sweep"),
-            sweeps.c.status == "running",
-            sweeps.c.points == bindparam("start"),
-        )
-        .values(points=bindparam("end"), last_write_at=bindparam("now"))
+        select(sweeps.c.points)
+        .where(sweeps.c.id == bindparam("sweep"), sweeps.c.status == "running")
+        .with_for_update()
     )
+
+
+@cache
+def _time_processor(dialect: Any) -> Any:
+    column = TABLES["sweeps"].c.last_write_at
+    return column.type.dialect_impl(dialect).bind_processor(dialect)
+
+
+def _time_value(dialect: Any, when: datetime) -> Any:
+    """``when`` as the driver's parameter for ``sweeps.last_write_at``: the column's own bind
+    processing (UTC; SQLAlchemy's text format on SQLite), as a Core statement would send it."""
+    process = _time_processor(dialect)
+    return when if process is None else process(when)
 
 
 #: The columns of a sweep point row, in the order :meth:`SweepWriter.add_points` sends them.
@@ -265,11 +284,38 @@ ROW_COLUMNS = ("sweep_id", "idx", *POINT_COLUMNS, "flags")
 def _insert_text(paramstyle: str) -> str:
     """The INSERT of one point row in the driver's own parameter style, given all rows at once
     to the driver's ``executemany`` (no statement compiled per batch, no dict per row)."""
-    mark = {"qmark": "?", "format": "%s", "pyformat": "%s", "numeric": ":{}"}.get(paramstyle)
-    if mark is None:
-        raise StoreError(f"the database driver's parameter style {paramstyle!r} is not supported")
-    marks = ", ".join(mark.format(i + 1) for i in range(len(ROW_COLUMNS)))
+    marks = ", ".join(_marks(paramstyle, len(ROW_COLUMNS)))
     return f"INSERT INTO sweep_points ({', '.join(ROW_COLUMNS)}) VALUES ({marks})"
+
+
+def point_rows(
+    sweep_id: int,
+    start: int,
+    f: np.ndarray,
+    raw: np.ndarray,
+    cor: np.ndarray,
+    u: np.ndarray,
+    marks: list[str],
+) -> list[tuple[Any, ...]]:
+    """The rows of a batch in :data:`ROW_COLUMNS` order, built column by column with numpy:
+    Python ints, floats and strings, NaN as None (stored as NULL) and infinity kept, in
+    every column but the frequency."""
+    n = f.size
+    numbers = np.empty((n, len(POINT_COLUMNS) - 1))
+    numbers[:, 0], numbers[:, 1] = raw.real, raw.imag
+    numbers[:, 2], numbers[:, 3] = cor.real, cor.imag
+    numbers[:, 4:] = u
+    table = np.empty((n, len(ROW_COLUMNS)), dtype=object)
+    table[:, 0] = sweep_id
+    table[:, 1] = range(start, start + n)
+    table[:, 2] = f
+    values = table[:, 3:-1]
+    values[...] = numbers
+    missing = np.isnan(numbers)
+    if missing.any():
+        values[missing] = None
+    table[:, -1] = marks
+    return list(map(tuple, table.tolist()))
 
 
 def _uncertainty(uncertainty: np.ndarray | None, n: int) -> np.ndarray:

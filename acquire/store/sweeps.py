@@ -29,12 +29,12 @@ import os
 import socket
 from collections.abc import Sequence
 from datetime import datetime
-from functools import cache, partial
+from functools import partial
 from types import TracebackType
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from sqlalchemy import Connection, Select, bindparam, func, select, update
+from sqlalchemy import Connection, func, select, update
 
 from acquire.errors import StoreError
 from acquire.store.abandoned import close_dead_writers as close_dead_writers
@@ -42,14 +42,22 @@ from acquire.store.abandoned import rows_changed, writer_gone
 from acquire.store.engine import Database, to_json
 from acquire.store.records import SweepInfo
 from acquire.store.schema import SWEEP_STATES, TABLES, utc_now
+from acquire.store.sweep_batch import POINT_COLUMNS as POINT_COLUMNS
+from acquire.store.sweep_batch import (
+    advance_text,
+    check_flags,
+    check_uncertainty,
+    held_points,
+    insert_text,
+    point_rows,
+    time_value,
+)
 
 if TYPE_CHECKING:
     import pandas as pd
 
 #: Seconds without a write after which a running sweep is taken as abandoned.
 STALE_AFTER_S = 3600.0
-#: The numeric columns of a sweep point, as ``sweep_points`` returns them (then ``flags``).
-POINT_COLUMNS = ("frequency", "raw_r", "raw_x", "corrected_r", "corrected_x", "u_r", "u_x")
 
 
 class SweepNotRunning(StoreError):
@@ -146,8 +154,8 @@ class SweepWriter:
                 f"sweep points need matching 1-D arrays, got frequency {f.shape}, "
                 f"raw {raw.shape}, corrected {cor.shape}"
             )
-        u = _uncertainty(uncertainty, f.size)
-        marks = _flags(flags, f.size)
+        u = check_uncertainty(uncertainty, f.size)
+        marks = check_flags(flags, f.size)
         if f.size == 0:
             return
         start, count = self._points, f.size
@@ -157,12 +165,12 @@ class SweepWriter:
         def work(conn: Connection) -> int:
             now = utc_now()
             dialect = conn.dialect
-            advance = (start + count, _time_value(dialect, now), sweep_id, start)
-            insert = _insert_text(dialect.paramstyle)
-            if conn.exec_driver_sql(_advance_text(dialect.paramstyle), advance).rowcount:
+            advance = (start + count, time_value(dialect, now), sweep_id, start)
+            insert = insert_text(dialect.paramstyle)
+            if conn.exec_driver_sql(advance_text(dialect.paramstyle), advance).rowcount:
                 conn.exec_driver_sql(insert, rows)
                 return start + count
-            have = conn.execute(_held(), {"sweep": sweep_id}).scalar_one_or_none()
+            have = conn.execute(held_points(), {"sweep": sweep_id}).scalar_one_or_none()
             if have is None:
                 raise SweepNotRunning(
                     f"sweep {sweep_id} is no longer running in the store (it was finished or "
@@ -228,117 +236,6 @@ class SweepWriter:
             name = type(exc).__name__
             reason = f"{name}: {exc}" if str(exc) else name
             self.finish("interrupted", note=f"stopped by {reason}")
-
-
-def _marks(paramstyle: str, count: int) -> list[str]:
-    mark = {"qmark": "?", "format": "%s", "pyformat": "%s", "numeric": ":{}"}.get(paramstyle)
-    if mark is None:
-        raise StoreError(f"the database driver's parameter style {paramstyle!r} is not supported")
-    return [mark.format(i + 1) for i in range(count)]
-
-
-@cache
-def _advance_text(paramstyle: str) -> str:
-    """The sweep row's update of a batch in the usual case: the store holds exactly the points
-    this writer counts and the sweep still runs. It moves the count and the writer's heartbeat
-    in one statement, written once in the driver's own parameter style (parameters: the new
-    count, the time as :func:`_time_value` gives it, the sweep's id, the count before); when it
-    changes no row, the batch takes the careful way (a batch sent again, or a sweep no longer
-    running)."""
-    end, now, sweep, start = _marks(paramstyle, 4)
-    return (
-        f"UPDATE sweeps SET points = {end}, last_write_at = {now} "
-        f"WHERE sweeps.id = {sweep} AND sweeps.status = 'running' AND sweeps.points = {start}"
-    )
-
-
-@cache
-def _held() -> Select:
-    """The careful way's locked read of the points a running sweep holds (``sweep``: its id)."""
-    sweeps = TABLES["sweeps"]
-    return (
-        select(sweeps.c.points)
-        .where(sweeps.c.id == bindparam("sweep"), sweeps.c.status == "running")
-        .with_for_update()
-    )
-
-
-@cache
-def _time_processor(dialect: Any) -> Any:
-    column = TABLES["sweeps"].c.last_write_at
-    return column.type.dialect_impl(dialect).bind_processor(dialect)
-
-
-def _time_value(dialect: Any, when: datetime) -> Any:
-    """``when`` as the driver's parameter for ``sweeps.last_write_at``: the column's own bind
-    processing (UTC; SQLAlchemy's text format on SQLite), as a Core statement would send it."""
-    process = _time_processor(dialect)
-    return when if process is None else process(when)
-
-
-#: The columns of a sweep point row, in the order :meth:`SweepWriter.add_points` sends them.
-ROW_COLUMNS = ("sweep_id", "idx", *POINT_COLUMNS, "flags")
-
-
-@cache
-def _insert_text(paramstyle: str) -> str:
-    """The INSERT of one point row in the driver's own parameter style, given all rows at once
-    to the driver's ``executemany`` (no statement compiled per batch, no dict per row)."""
-    marks = ", ".join(_marks(paramstyle, len(ROW_COLUMNS)))
-    return f"INSERT INTO sweep_points ({', '.join(ROW_COLUMNS)}) VALUES ({marks})"
-
-
-def point_rows(
-    sweep_id: int,
-    start: int,
-    f: np.ndarray,
-    raw: np.ndarray,
-    cor: np.ndarray,
-    u: np.ndarray,
-    marks: list[str],
-) -> list[tuple[Any, ...]]:
-    """The rows of a batch in :data:`ROW_COLUMNS` order, built column by column with numpy:
-    Python ints, floats and strings, NaN as None (stored as NULL) and infinity kept, in
-    every column but the frequency."""
-    n = f.size
-    numbers = np.empty((n, len(POINT_COLUMNS) - 1))
-    numbers[:, 0], numbers[:, 1] = raw.real, raw.imag
-    numbers[:, 2], numbers[:, 3] = cor.real, cor.imag
-    numbers[:, 4:] = u
-    table = np.empty((n, len(ROW_COLUMNS)), dtype=object)
-    table[:, 0] = sweep_id
-    table[:, 1] = range(start, start + n)
-    table[:, 2] = f
-    values = table[:, 3:-1]
-    values[...] = numbers
-    missing = np.isnan(numbers)
-    if missing.any():
-        values[missing] = None
-    table[:, -1] = marks
-    return list(map(tuple, table.tolist()))
-
-
-def _uncertainty(uncertainty: np.ndarray | None, n: int) -> np.ndarray:
-    if uncertainty is None:
-        return np.full((n, 2), np.nan)
-    u = np.asarray(uncertainty, dtype=float)
-    if u.shape != (n, 2):
-        raise StoreError(
-            f"the uncertainty of {n} sweep points must be an array of shape ({n}, 2) "
-            f"(U of R and of X per point), not {u.shape}"
-        )
-    return u
-
-
-def _flags(flags: Sequence[str] | None, n: int) -> list[str]:
-    if flags is None:
-        return [""] * n
-    if isinstance(flags, str):
-        raise StoreError("give the flags of sweep points as one string per point, not one string")
-    marks = list(flags)
-    if len(marks) != n or not all(isinstance(m, str) for m in marks):
-        raise StoreError(f"give the flags of {n} sweep points as {n} strings ('' for none)")
-    return marks
 
 
 def _sweep_info(row: Any, now: datetime, stale_after: float) -> SweepInfo:

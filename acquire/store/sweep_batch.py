@@ -14,6 +14,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from datetime import datetime
 from functools import cache
+from itertools import repeat
 from typing import Any
 
 import numpy as np
@@ -132,6 +133,6 @@ def check_flags(flags: Sequence[str] | None, n: int) -> list[str]:
     if isinstance(flags, str):
         raise StoreError("give the flags of sweep points as one string per point, not one string")
     marks = list(flags)
-    if len(marks) != n or not all(isinstance(m, str) for m in marks):
+    if len(marks) != n or not all(map(isinstance, marks, repeat(str))):
         raise StoreError(f"give the flags of {n} sweep points as {n} strings ('' for none)")
     return marks

@@ -29,9 +29,11 @@ NAN, INF = math.nan, math.inf
 
 @pytest.fixture(params=["sqlite", "postgresql"])
 def store(request, tmp_path):
-    with store_location(request.param, tmp_path) as (url, schema):
-        with open_store(url, schema=schema) as opened:
-            yield opened
+    with (
+        store_location(request.param, tmp_path) as (url, schema),
+        open_store(url, schema=schema) as opened,
+    ):
+        yield opened
 
 
 def _batch() -> dict:

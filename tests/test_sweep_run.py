@@ -123,7 +123,12 @@ def test_ctrl_c_keeps_the_completed_points_marked_interrupted(store):
 
         writer = _begin(store, dut="demo-coil")
         outcome = run_sweep(
-            meter, plan, writer=writer, state=state, on_progress=operator_presses_ctrl_c
+            meter,
+            plan,
+            writer=writer,
+            state=state,
+            on_progress=operator_presses_ctrl_c,
+            block_seconds=0.05,  # several blocks in this short sweep, so Ctrl-C comes mid-way
         )
     assert outcome.status == "interrupted" and outcome.reason == "stopped with Ctrl-C"
     assert isinstance(outcome.error, KeyboardInterrupt)

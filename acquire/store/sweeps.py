@@ -29,28 +29,35 @@ import os
 import socket
 from collections.abc import Sequence
 from datetime import datetime
-from functools import cache, partial
-from itertools import repeat
+from functools import partial
 from types import TracebackType
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from sqlalchemy import Connection, Update, bindparam, func, select, update
+from sqlalchemy import Connection, func, select, update
 
 from acquire.errors import StoreError
 from acquire.store.abandoned import close_dead_writers as close_dead_writers
 from acquire.store.abandoned import rows_changed, writer_gone
-from acquire.store.engine import Database, float_column, to_json
+from acquire.store.engine import Database, to_json
 from acquire.store.records import SweepInfo
 from acquire.store.schema import SWEEP_STATES, TABLES, utc_now
+from acquire.store.sweep_batch import POINT_COLUMNS as POINT_COLUMNS
+from acquire.store.sweep_batch import (
+    advance_text,
+    check_flags,
+    check_uncertainty,
+    held_points,
+    insert_text,
+    point_rows,
+    time_value,
+)
 
 if TYPE_CHECKING:
     import pandas as pd
 
 #: Seconds without a write after which a running sweep is taken as abandoned.
 STALE_AFTER_S = 3600.0
-#: The numeric columns of a sweep point, as ``sweep_points`` returns them (then ``flags``).
-POINT_COLUMNS = ("frequency", "raw_r", "raw_x", "corrected_r", "corrected_x", "u_r", "u_x")
 
 
 class SweepNotRunning(StoreError):
@@ -147,51 +154,43 @@ class SweepWriter:
                 f"sweep points need matching 1-D arrays, got frequency {f.shape}, "
                 f"raw {raw.shape}, corrected {cor.shape}"
             )
-        u = _uncertainty(uncertainty, f.size)
-        marks = _flags(flags, f.size)
+        u = check_uncertainty(uncertainty, f.size)
+        marks = check_flags(flags, f.size)
         if f.size == 0:
             return
-        columns = (
-            f.tolist(),
-            float_column(raw.real),
-            float_column(raw.imag),
-            float_column(cor.real),
-            float_column(cor.imag),
-            float_column(u[:, 0]),
-            float_column(u[:, 1]),
-            marks,
-        )
         start, count = self._points, f.size
-        rows = list(zip(repeat(self._id), range(start, start + count), *columns, strict=False))
-        sweeps = TABLES["sweeps"]
-        held = select(sweeps.c.points).where(sweeps.c.id == self._id, sweeps.c.status == "running")
-        where = {"sweep": self._id, "start": start}
+        rows = point_rows(self._id, start, f, raw, cor, u, marks)
+        sweep_id = self._id
 
         def work(conn: Connection) -> int:
             now = utc_now()
-            if conn.execute(_advance(), {**where, "end": start + count, "now": now}).rowcount:
-                conn.exec_driver_sql(_insert_text(conn.dialect.paramstyle), rows)
+            dialect = conn.dialect
+            advance = (start + count, time_value(dialect, now), sweep_id, start)
+            insert = insert_text(dialect.paramstyle)
+            if conn.exec_driver_sql(advance_text(dialect.paramstyle), advance).rowcount:
+                conn.exec_driver_sql(insert, rows)
                 return start + count
-            have = conn.execute(held.with_for_update()).scalar_one_or_none()
+            have = conn.execute(held_points(), {"sweep": sweep_id}).scalar_one_or_none()
             if have is None:
                 raise SweepNotRunning(
-                    f"sweep {self._id} is no longer running in the store (it was finished or "
+                    f"sweep {sweep_id} is no longer running in the store (it was finished or "
                     "closed as abandoned): begin a new sweep"
                 )
             if not start <= have <= start + count:
                 raise StoreError(
-                    f"sweep {self._id} holds {have} points in the store, but this writer "
+                    f"sweep {sweep_id} holds {have} points in the store, but this writer "
                     f"counts {start}: another program writes to it; begin a new sweep"
                 )
             new = rows[have - start :]
+            sweeps = TABLES["sweeps"]
             bump = (
                 update(sweeps)
-                .where(sweeps.c.id == self._id)
+                .where(sweeps.c.id == sweep_id)
                 .values(points=have + len(new), last_write_at=now)
             )
             conn.execute(bump)
             if new:
-                conn.exec_driver_sql(_insert_text(conn.dialect.paramstyle), new)
+                conn.exec_driver_sql(insert, new)
             return have + len(new)
 
         self._points = self._db.write("storing sweep points", work, idempotent=True)
@@ -237,62 +236,6 @@ class SweepWriter:
             name = type(exc).__name__
             reason = f"{name}: {exc}" if str(exc) else name
             self.finish("interrupted", note=f"stopped by {reason}")
-
-
-@cache
-def _advance() -> Update:
-    """The sweep row's update of a batch in the usual case: the store holds exactly the points
-    this writer counts and the sweep still runs. It moves the count and the writer's heartbeat
-    in one statement, built once; when it changes no row, the batch takes the careful way (a
-    batch sent again, or a sweep no longer running)."""
-    sweeps = TABLES["sweeps"]
-    return (
-        update(sweeps)
-        .where(
-            sweeps.c.id == bindparam("sweep"),
-            sweeps.c.status == "running",
-            sweeps.c.points == bindparam("start"),
-        )
-        .values(points=bindparam("end"), last_write_at=bindparam("now"))
-    )
-
-
-#: The columns of a sweep point row, in the order :meth:`SweepWriter.add_points` sends them.
-ROW_COLUMNS = ("sweep_id", "idx", *POINT_COLUMNS, "flags")
-
-
-@cache
-def _insert_text(paramstyle: str) -> str:
-    """The INSERT of one point row in the driver's own parameter style, given all rows at once
-    to the driver's ``executemany`` (no statement compiled per batch, no dict per row)."""
-    mark = {"qmark": "?", "format": "%s", "pyformat": "%s", "numeric": ":{}"}.get(paramstyle)
-    if mark is None:
-        raise StoreError(f"the database driver's parameter style {paramstyle!r} is not supported")
-    marks = ", ".join(mark.format(i + 1) for i in range(len(ROW_COLUMNS)))
-    return f"INSERT INTO sweep_points ({', '.join(ROW_COLUMNS)}) VALUES ({marks})"
-
-
-def _uncertainty(uncertainty: np.ndarray | None, n: int) -> np.ndarray:
-    if uncertainty is None:
-        return np.full((n, 2), np.nan)
-    u = np.asarray(uncertainty, dtype=float)
-    if u.shape != (n, 2):
-        raise StoreError(
-            f"the uncertainty of {n} sweep points must be an array of shape ({n}, 2) "
-            f"(U of R and of X per point), not {u.shape}"
-        )
-    return u
-
-
-def _flags(flags: Sequence[str] | None, n: int) -> list[str]:
-    if flags is None:
-        return [""] * n
-    if isinstance(flags, str):
-        raise StoreError("give the flags of sweep points as one string per point, not one string")
-    marks = list(flags)
-    if len(marks) != n or not all(isinstance(m, str) for m in marks):
-        raise StoreError(f"give the flags of {n} sweep points as {n} strings ('' for none)")
-    return marks
 
 
 def _sweep_info(row: Any, now: datetime, stale_after: float) -> SweepInfo:

@@ -15,7 +15,7 @@ from drivers.simulator import state
 from drivers.simulator.bias_commands import BiasCommands
 from drivers.simulator.drift import DriftCommands
 from drivers.simulator.instrument import Instrument, Session
-from drivers.simulator.measurement import Reading, encode, reading_values
+from drivers.simulator.measurement import Reading, ascii_values, encode, reading_values
 from drivers.simulator.scpi_parser import (
     CommandTree,
     ScpiError,
@@ -287,6 +287,11 @@ class Commands(SimulateCommands, BiasCommands, SeatingCommands, DriftCommands):
 
     def _reply(self, reading: Reading) -> bytes:
         s = self.instrument.settings
+        if s.data_format == "ASC":
+            texts = ascii_values(reading, s.pair, s.circuit, s.angle_unit)
+            if self.instrument.faults.short_reading():
+                texts = texts[:-1]
+            return ",".join(texts).encode("ascii")
         values = reading_values(reading, s.pair, s.circuit, s.angle_unit)
         if self.instrument.faults.short_reading():
             values = values[:-1]

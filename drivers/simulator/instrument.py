@@ -7,8 +7,11 @@ asyncio task, so other clients are served meanwhile.
 
 A measurement's duration is its whole time, as a real meter's measuring time is: the reading is
 computed first and the task sleeps only the rest of the duration (never less than nothing), so
-the simulator's own arithmetic does not add to the time a client waits. The reading's draws are
-counted only when the measurement completes, so an aborted one leaves the noise stream as it was.
+the simulator's own arithmetic does not add to the time a client waits. The ASCII reply is
+written within that time too (a real meter's reply is ready when its measurement ends), and
+the last millisecond of the wait is slept on the clock (:func:`precise_sleep`), not left to the
+event loop's millisecond timer. The reading's draws are counted only when the measurement
+completes, so an aborted one leaves the noise stream as it was.
 """
 
 from __future__ import annotations
@@ -39,6 +42,21 @@ from drivers.simulator.profiles import (
 from drivers.simulator.scpi_parser import ScpiError
 from drivers.simulator.seating import Seating
 from drivers.simulator.state import ClientStatus, Settings
+
+#: Seconds by which the event loop's timers may wake late on their own: the selector waits
+#: whole milliseconds, rounded up. :func:`precise_sleep` sleeps the last of a wait on the clock.
+TIMER_GRAIN_S = 0.001
+
+
+async def precise_sleep(seconds: float) -> None:
+    """Sleep ``seconds``: on the event loop (other clients are served) up to the last
+    :data:`TIMER_GRAIN_S`, then the rest on the clock, so that a measurement ends when its
+    duration does and not up to a millisecond later."""
+    end = time.perf_counter() + seconds
+    await asyncio.sleep(max(0.0, seconds - TIMER_GRAIN_S))
+    left = end - time.perf_counter()
+    if left > 0:
+        time.sleep(left)
 
 
 class Session:
@@ -90,7 +108,7 @@ class Instrument:
         #: The clock a measurement's own computing time is read from (seconds).
         self.clock: Callable[[], float] = time.perf_counter
         #: How a measurement waits out the rest of its duration.
-        self.sleep: Callable[[float], Awaitable[None]] = asyncio.sleep
+        self.sleep: Callable[[float], Awaitable[None]] = precise_sleep
         self.insert(self.dut)
 
     def reseed(self, seed: int) -> None:
@@ -215,6 +233,9 @@ class Instrument:
         forced = self.faults.overrange(np.asarray(conditions.frequency, dtype=float))
         normals = counter.peek(streams.POINTS, count)
         reading = measurement.read_impedance(conditions, normals, forced, self.systematic_key)
+        s = self.settings
+        if s.data_format == "ASC":
+            measurement.ascii_values(reading, s.pair, s.circuit, s.angle_unit)
         await self._rest(began, measurement.duration(conditions))
         counter.count(streams.POINTS, count)
         self.last = reading

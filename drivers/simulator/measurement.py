@@ -26,7 +26,7 @@ stream), so the noise draws are exactly those of a meter without systematic erro
 from __future__ import annotations
 
 import struct
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -38,12 +38,19 @@ from drivers.simulator.scpi_parser import block, format_number
 
 @dataclass(frozen=True, eq=False)
 class Reading:
-    """Complex impedance per frequency, with overrange and invalid points flagged."""
+    """Complex impedance per frequency, with overrange and invalid points flagged.
+
+    ``texts`` keeps the reading's values written as ASCII reply fields, per ``(pair, circuit,
+    angle unit)`` (:func:`ascii_values`), so that a reply prepared while the measurement runs is
+    not written again when it is sent."""
 
     frequency: np.ndarray
     z: np.ndarray
     overrange: np.ndarray
     invalid: np.ndarray
+    texts: dict[tuple[tuple[str, str], str, str], list[str]] = field(
+        default_factory=dict, repr=False
+    )
 
 
 @dataclass(frozen=True)
@@ -214,6 +221,20 @@ def reading_values(
     values[reading.overrange] = OVERRANGE
     values[reading.invalid] = INVALID
     return values.ravel()
+
+
+def ascii_values(
+    reading: Reading, pair: tuple[str, str], circuit: str = "SER", angle_unit: str = "DEG"
+) -> list[str]:
+    """:func:`reading_values` written as ASCII reply fields (:func:`format_number`), kept on the
+    reading: the meter prepares them within the measurement's time, as a real meter's reply is
+    ready when its measurement ends (:meth:`Instrument._measure`)."""
+    key = (pair, circuit, angle_unit)
+    texts = reading.texts.get(key)
+    if texts is None:
+        values = reading_values(reading, pair, circuit, angle_unit)
+        texts = reading.texts[key] = [format_number(v) for v in values.tolist()]
+    return texts
 
 
 def encode(values: np.ndarray, data_format: str, byte_order: str) -> bytes:

@@ -44,6 +44,8 @@ MULTIPLIERS: dict[str, float] = {
 
 _HEADER = re.compile(r"^:?(\*[A-Z]+\??|[A-Z][A-Z0-9_]*(?::[A-Z][A-Z0-9_]*)*\??)$")
 _NUMBER = re.compile(r"^([+-]?(?:\d+\.?\d*|\.\d+)(?:E[+-]?\d+)?)\s*([A-Z]*)$")
+#: A plain decimal number, no blanks, no suffix (the usual case, read without the general rules).
+_PLAIN = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[Ee][+-]?\d+)?")
 _PATTERN_NODE = re.compile(r"(\[)?:?(\*?[A-Za-z]+):?(\])?")
 
 
@@ -215,15 +217,18 @@ def number(
 
     Out of ``[minimum, maximum]`` is -222; a word where a number belongs is -104.
     """
-    word = text.strip().upper()
-    named = {"MIN": minimum, "MINIMUM": minimum, "MAX": maximum, "MAXIMUM": maximum}
-    named |= {"DEF": default, "DEFAULT": default}
-    if word in named and named[word] is not None:
-        return float(named[word])  # type: ignore[arg-type]
-    match = _NUMBER.match(word)
-    if not match:
-        raise ScpiError(-104, f"expected a number, got {text.strip()!r}")
-    value = float(match.group(1)) * _suffix_scale(match.group(2), unit, text.strip())
+    if _PLAIN.fullmatch(text):
+        value = float(text)
+    else:
+        word = text.strip().upper()
+        named = {"MIN": minimum, "MINIMUM": minimum, "MAX": maximum, "MAXIMUM": maximum}
+        named |= {"DEF": default, "DEFAULT": default}
+        if word in named and named[word] is not None:
+            return float(named[word])  # type: ignore[arg-type]
+        match = _NUMBER.match(word)
+        if not match:
+            raise ScpiError(-104, f"expected a number, got {text.strip()!r}")
+        value = float(match.group(1)) * _suffix_scale(match.group(2), unit, text.strip())
     if not math.isfinite(value):
         raise ScpiError(-222, f"{text.strip()!r} is not finite")
     if (minimum is not None and value < minimum * (1 - 1e-12)) or (

@@ -1,0 +1,138 @@
+"""A sweep batch as the database driver takes it: the SQL written once per parameter style,
+and the rows built column by column with numpy (:func:`point_rows`).
+
+The statements are plain SQL given to ``Connection.exec_driver_sql`` (nothing compiled per
+batch, no dict per row; SQLAlchemy still wraps the driver's errors, so a store that is out of
+reach is reported as one): the sweep row's update in the usual case and the points'
+``executemany``. The heartbeat time gets the column's own bind processing, and NaN is sent as
+None, so the rows stored are those an INSERT built with SQLAlchemy Core stores
+(``tests/test_store_sweep_rows.py``).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from datetime import datetime
+from functools import cache
+from itertools import repeat
+from typing import Any
+
+import numpy as np
+from sqlalchemy import Select, bindparam, select
+
+from acquire.errors import StoreError
+from acquire.store.schema import TABLES
+
+#: The numeric columns of a sweep point, as ``sweep_points`` returns them (then ``flags``).
+POINT_COLUMNS = ("frequency", "raw_r", "raw_x", "corrected_r", "corrected_x", "u_r", "u_x")
+
+
+def _marks(paramstyle: str, count: int) -> list[str]:
+    mark = {"qmark": "?", "format": "%s", "pyformat": "%s", "numeric": ":{}"}.get(paramstyle)
+    if mark is None:
+        raise StoreError(f"the database driver's parameter style {paramstyle!r} is not supported")
+    return [mark.format(i + 1) for i in range(count)]
+
+
+@cache
+def advance_text(paramstyle: str) -> str:
+    """The sweep row's update of a batch in the usual case: the store holds exactly the points
+    this writer counts and the sweep still runs. It moves the count and the writer's heartbeat
+    in one statement, written once in the driver's own parameter style (parameters: the new
+    count, the time as :func:`time_value` gives it, the sweep's id, the count before); when it
+    changes no row, the batch takes the careful way (a batch sent again, or a sweep no longer
+    running)."""
+    end, now, sweep, start = _marks(paramstyle, 4)
+    return (
+        f"UPDATE sweeps SET points = {end}, last_write_at = {now} "
+        f"WHERE sweeps.id = {sweep} AND sweeps.status = 'running' AND sweeps.points = {start}"
+    )
+
+
+@cache
+def held_points() -> Select:
+    """The careful way's locked read of the points a running sweep holds (``sweep``: its id)."""
+    sweeps = TABLES["sweeps"]
+    return (
+        select(sweeps.c.points)
+        .where(sweeps.c.id == bindparam("sweep"), sweeps.c.status == "running")
+        .with_for_update()
+    )
+
+
+@cache
+def _time_processor(dialect: Any) -> Any:
+    column = TABLES["sweeps"].c.last_write_at
+    return column.type.dialect_impl(dialect).bind_processor(dialect)
+
+
+def time_value(dialect: Any, when: datetime) -> Any:
+    """``when`` as the driver's parameter for ``sweeps.last_write_at``: the column's own bind
+    processing (UTC; SQLAlchemy's text format on SQLite), as a Core statement would send it."""
+    process = _time_processor(dialect)
+    return when if process is None else process(when)
+
+
+#: The columns of a sweep point row, in the order ``SweepWriter.add_points`` sends them.
+ROW_COLUMNS = ("sweep_id", "idx", *POINT_COLUMNS, "flags")
+
+
+@cache
+def insert_text(paramstyle: str) -> str:
+    """The INSERT of one point row in the driver's own parameter style, given all rows at once
+    to the driver's ``executemany`` (no statement compiled per batch, no dict per row)."""
+    marks = ", ".join(_marks(paramstyle, len(ROW_COLUMNS)))
+    return f"INSERT INTO sweep_points ({', '.join(ROW_COLUMNS)}) VALUES ({marks})"
+
+
+def point_rows(
+    sweep_id: int,
+    start: int,
+    f: np.ndarray,
+    raw: np.ndarray,
+    cor: np.ndarray,
+    u: np.ndarray,
+    marks: list[str],
+) -> list[tuple[Any, ...]]:
+    """The rows of a batch in :data:`ROW_COLUMNS` order, built column by column with numpy:
+    Python ints, floats and strings, NaN as None (stored as NULL) and infinity kept, in
+    every column but the frequency."""
+    n = f.size
+    numbers = np.empty((n, len(POINT_COLUMNS) - 1))
+    numbers[:, 0], numbers[:, 1] = raw.real, raw.imag
+    numbers[:, 2], numbers[:, 3] = cor.real, cor.imag
+    numbers[:, 4:] = u
+    table = np.empty((n, len(ROW_COLUMNS)), dtype=object)
+    table[:, 0] = sweep_id
+    table[:, 1] = range(start, start + n)
+    table[:, 2] = f
+    values = table[:, 3:-1]
+    values[...] = numbers
+    missing = np.isnan(numbers)
+    if missing.any():
+        values[missing] = None
+    table[:, -1] = marks
+    return list(map(tuple, table.tolist()))
+
+
+def check_uncertainty(uncertainty: np.ndarray | None, n: int) -> np.ndarray:
+    if uncertainty is None:
+        return np.full((n, 2), np.nan)
+    u = np.asarray(uncertainty, dtype=float)
+    if u.shape != (n, 2):
+        raise StoreError(
+            f"the uncertainty of {n} sweep points must be an array of shape ({n}, 2) "
+            f"(U of R and of X per point), not {u.shape}"
+        )
+    return u
+
+
+def check_flags(flags: Sequence[str] | None, n: int) -> list[str]:
+    if flags is None:
+        return [""] * n
+    if isinstance(flags, str):
+        raise StoreError("give the flags of sweep points as one string per point, not one string")
+    marks = list(flags)
+    if len(marks) != n or not all(map(isinstance, marks, repeat(str))):
+        raise StoreError(f"give the flags of {n} sweep points as {n} strings ('' for none)")
+    return marks

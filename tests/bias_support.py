@@ -98,7 +98,7 @@ def rise_result(dut: str = "choke 7", readings: int = 12) -> RiseResult:
         settled=True,
         status=COMPLETE,
         steps=((3.0, 37.6), (3.1, 39.9)),
-        note="settled within 0.5 K over 60 s",
+        note="",
     )
 
 

@@ -199,3 +199,31 @@ def test_export_writes_the_csv_and_the_picture_but_never_over_the_store(stored, 
     assert (folder / "store.db").read_bytes() == before
     with pytest.raises(InputError, match="not a .* id"):
         _run(adder, "export", "x1", "--csv", str(folder / "other.csv"), "--store", url)
+
+
+def test_the_rated_current_is_the_lower_of_the_two_stored_currents(stored, capsys):
+    # The rated current is the lower of the saturation and temperature-rise currents, naming the
+    # one that limits it (IEC 62024-2's framing of the rated current; from memory).
+    url, _ = stored
+    sweep = bias_result(dut=HOSTILE)
+    by_drop = {round(d.drop, 6): d for d in sweep.drops}
+    heating = rise_result().current  # 3.1 A for a 40 K rise
+    for drop, word in ((0.1, "10%"), (0.7, "70%")):
+        asked = ("rated", "1", "--rise-run", "1", "--drop", word, "--store", url)
+        assert _run(add_actions, *asked) == 0
+        out = capsys.readouterr().out
+        saturation = by_drop[drop].current
+        if saturation is not None and saturation < heating:
+            assert f"rated current: {saturation:.3g} A, limited by saturation" in out
+        else:
+            assert f"rated current: {heating:.3g} A, limited by temperature rise" in out
+    # one case of each: 10 % is reached below 3.1 A; 70 % not within the sweep (above 3.1 A)
+    assert by_drop[0.1].current < heating and by_drop[0.7].current is None
+    assert by_drop[0.7].highest > heating
+    with pytest.raises(InputError, match="no saturation current at a 25 % drop"):
+        _run(add_actions, "rated", "1", "--rise-run", "1", "--drop", "25%", "--store", url)
+    with open_store(url) as store:
+        held = store.begin_rise_run(rise_result().settings)
+        held.finish(rise_result(), status="interrupted", note="stopped")
+    with pytest.raises(InputError, match="did not find the current for a rise"):
+        _run(add_actions, "rated", "1", "--rise-run", "2", "--store", url)

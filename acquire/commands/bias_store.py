@@ -9,6 +9,9 @@ instead of measuring:
   show     one run: its settings, result and points
   export   a run as a --csv file, or as a --picture (PNG): Ls and Q against the bias current,
            or the temperature rise against time
+  rated    (bias-sweep only) a choke's rated current from a stored bias sweep and a stored
+           temperature-rise search (--rise-run ID): the lower of its saturation current at
+           --drop and its temperature-rise current, and which of the two limits it
 
 A stored bias sweep's open/short references were captured at zero bias; its safety record
 (the maximum bias, the energy stored at the largest bias, how going ahead was confirmed) is
@@ -21,7 +24,7 @@ import argparse
 
 from acquire.commands.options import DEFAULT_STORE
 
-ACTIONS = ("list", "show", "export")
+ACTIONS = ("list", "show", "export", "rated")
 KINDS = {"bias": "bias sweep", "rise": "temperature-rise run"}
 
 
@@ -56,6 +59,24 @@ def _actions(parser: argparse.ArgumentParser, kind: str) -> None:
     to.add_argument("--csv", dest="to_csv", metavar="FILE", help="CSV with a # key: value head")
     picture = "Ls and Q against bias current" if kind == "bias" else "the rise against time"
     to.add_argument("--picture", dest="to_png", metavar="FILE.png", help=f"PNG: {picture}")
+    if kind == "bias":
+        rated = actions.add_parser(
+            "rated", help="the rated current: the lower of the saturation and temperature-rise "
+            "currents, from a stored bias sweep and temperature-rise search",
+        )  # fmt: skip
+        _add_store(rated)
+        rated.set_defaults(stored_kind=kind)
+        rated.add_argument("run_id", metavar="ID", help="the bias sweep's id")
+        rated.add_argument(
+            "--rise-run",
+            required=True,
+            metavar="ID",
+            help="a stored temperature-rise run that searched a rise (--rise)",
+        )
+        rated.add_argument(
+            "--drop", default="20%", help="the drop the saturation current is rated at (20%%)"
+        )
+        rated.add_argument("--json", action="store_true", help="print the result as JSON")
 
 
 def add_actions(parser: argparse.ArgumentParser) -> None:
@@ -71,7 +92,8 @@ def add_rise_actions(parser: argparse.ArgumentParser) -> None:
 def run_action(args: argparse.Namespace) -> int:
     """Run the action chosen on ``acquire bias-sweep`` or ``acquire temperature-rise``."""
     kind = getattr(args, "stored_kind", "bias")
-    return {"list": _list, "show": _show, "export": _export}[args.action](args, kind)
+    actions = {"list": _list, "show": _show, "export": _export, "rated": _rated}
+    return actions[args.action](args, kind)
 
 
 def run_id(text: str, kind: str) -> int:
@@ -212,4 +234,54 @@ def _export(args: argparse.Namespace, kind: str) -> int:
     console = text_console()
     console.print(Text(f"{KINDS[kind]} {run_id(args.run_id, kind)} written to {path}"),
                   soft_wrap=True)  # fmt: skip
+    return 0
+
+
+def _rated(args: argparse.Namespace, kind: str) -> int:
+    """The rated current from a stored bias sweep and a stored temperature-rise search."""
+    from acquire.bias.rated import rated_current
+    from acquire.commands.options import open_existing_store, print_json
+    from acquire.errors import InputError
+    from acquire.report.bias_export import percent
+    from acquire.units import parse_fraction
+
+    drop = parse_fraction(args.drop)
+    with open_existing_store(args.store) as store:
+        sweep = _load(store, args.run_id, "bias")
+        rise = _load(store, args.rise_run, "rise")
+    found = [d for d in sweep.drops if abs(d.drop - drop) < 1e-9]
+    if not found:
+        asked = ", ".join(percent(d.drop) for d in sweep.drops) or "none"
+        raise InputError(
+            f"bias sweep {run_id(args.run_id, 'bias')} found no saturation current at a "
+            f"{percent(drop)} drop (it has {asked}); give one of those with --drop"
+        )
+    target = rise.settings.target_rise
+    if target is None or rise.status != "complete" or rise.note or not rise.settled:
+        raise InputError(
+            f"temperature-rise run {run_id(args.rise_run, 'rise')} did not find the current for "
+            "a rise (it held one current, or its search did not end); run `acquire "
+            "temperature-rise --rise 40K ...` and give that run"
+        )
+    rated = rated_current(found[0], rise.current)
+    saturation = f"saturation current at a {percent(drop)} drop: {found[0].text()}"
+    heating = f"temperature-rise current for {target:g} K: {rise.current:.3g} A"
+    if args.json:
+        print_json(
+            {
+                "saturation_drop": drop,
+                "saturation_current_a": found[0].current,
+                "saturation_above_a": None if found[0].reached else found[0].highest,
+                "rise_k": target,
+                "temperature_rise_current_a": rise.current,
+                "rated_current_a": rated.current,
+                "rated_above_a": rated.at_least,
+                "limited_by": rated.limited_by,
+            },
+            indent=2,
+        )
+        return 0
+    print(saturation)
+    print(heating)
+    print(f"rated current: {rated.text()}")
     return 0

@@ -23,7 +23,6 @@ from acquire.errors import StoreError
 from acquire.store.catalog import get_or_create, lot_row
 from acquire.store.engine import (
     Database,
-    finite_or_none,
     insert_ignoring,
 )
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord

@@ -106,23 +106,52 @@ def store_location(engine: str, folder: Path) -> Iterator[tuple[str, str | None]
 
 
 class RoundTrips:
-    """Counts the requests a store's engine sends to PostgreSQL: each statement, plus the BEGIN
-    that psycopg sends before the first statement of a transaction and the COMMIT that ends it
-    (none in autocommit). On SQLite it counts the statements."""
+    """Counts what a store sends to its database, at the driver (the store may run its hot
+    statements on the driver's cursor, past SQLAlchemy's events).
 
-    def __init__(self, engine) -> None:
+    PostgreSQL: each statement a psycopg cursor executes, plus the BEGIN that psycopg sends
+    before the first statement of a transaction and the COMMIT that ends it (none in
+    autocommit): the requests that wait for the server, round trips. SQLite: each statement
+    SQLite runs other than BEGIN and COMMIT (an ``executemany`` runs once per row)."""
+
+    def __init__(self, store) -> None:
         from sqlalchemy import event
 
         self.count = 0
-        event.listen(engine, "before_cursor_execute", self._seen)
+        for _, conn in store._db._connections:
+            self._watch(conn.connection.driver_connection)
+        event.listen(store.engine, "connect", lambda raw, _record: self._watch(raw))
 
-    def _seen(self, conn, cursor, statement, parameters, context, executemany) -> None:
+    def _watch(self, raw) -> None:
+        if hasattr(raw, "set_trace_callback"):
+            raw.set_trace_callback(self._traced)
+        else:
+            raw.cursor_factory = _counting_cursor(raw.cursor_factory, self)
+
+    def _traced(self, statement: str) -> None:
+        if statement.split(None, 1)[0].upper() not in ("BEGIN", "COMMIT"):
+            self.count += 1
+
+    def sent(self, raw) -> None:
+        """One statement sent on psycopg connection ``raw`` (with BEGIN and COMMIT if it
+        opens a transaction)."""
         self.count += 1
-        raw = conn.connection.driver_connection
-        info = getattr(raw, "info", None)
-        idle = info is not None and info.transaction_status == info.transaction_status.IDLE
+        idle = raw.info.transaction_status == raw.info.transaction_status.IDLE
         if idle and not raw.autocommit:
             self.count += 2
+
+
+def _counting_cursor(base, trips: RoundTrips):
+    class Counting(base):
+        def execute(self, *args, **kwargs):
+            trips.sent(self.connection)
+            return super().execute(*args, **kwargs)
+
+        def executemany(self, *args, **kwargs):
+            trips.sent(self.connection)
+            return super().executemany(*args, **kwargs)
+
+    return Counting
 
 
 def attempt_id(worker: int, index: int, seed: int = 0) -> str:
@@ -185,10 +214,18 @@ def _main(argv: list[str] | None = None) -> int:
     )
     p.add_argument("--start-at", type=float, help="wait until this time.time() before writing")
     p.add_argument("--count-round-trips", action="store_true", help="report them in the JSON")
+    p.add_argument(
+        "--bare",
+        action="store_true",
+        help="PostgreSQL baseline: psycopg alone sends the store's one statement per unit with "
+        "its parameters (prepared before the timing), autocommit; no replays",
+    )
     args = p.parse_args(argv)
+    if args.bare:
+        return _bare_main(args)
     stored = replayed_new = 0
     with open_store(args.url, schema=args.schema) as store:
-        trips = RoundTrips(store.engine) if args.count_round_trips else None
+        trips = RoundTrips(store) if args.count_round_trips else None
         units = (
             synthetic_unit(i, args.lot, args.worker, args.measurements) for i in range(args.count)
         )
@@ -211,6 +248,40 @@ def _main(argv: list[str] | None = None) -> int:
     if trips is not None:
         summary["round_trips"] = trips.count
     print(json.dumps(summary))
+    return 0
+
+
+def _bare_main(args: argparse.Namespace) -> int:
+    """What the machine allows: the unit statement of ``unit_insert.postgres_sql`` with the same
+    parameters, sent by psycopg alone in autocommit (the server's durability unchanged)."""
+    import psycopg
+
+    from acquire.store import open_store
+    from acquire.store.production import unit_parameters
+    from acquire.store.unit_insert import postgres_parameters, postgres_sql
+
+    with open_store(args.url, schema=args.schema) as store:
+        lot_id = store.record_lot(args.lot)
+        dialect = store.engine.dialect
+        params = [
+            postgres_parameters(*unit_parameters(dialect, unit, lot_id))
+            for unit in (
+                synthetic_unit(i, args.lot, args.worker, args.measurements)
+                for i in range(args.count)
+            )
+        ]
+    plain = args.url.replace("postgresql+psycopg://", "postgresql://", 1)
+    options = {} if args.schema is None else {"options": f"-csearch_path={args.schema}"}
+    sql = postgres_sql()
+    with psycopg.connect(plain, autocommit=True, **options) as conn, conn.cursor() as cursor:
+        if args.start_at is not None:
+            time.sleep(max(0.0, args.start_at - time.time()))
+        began = time.perf_counter()
+        stored = 0
+        for values in params:
+            stored += cursor.execute(sql, values, prepare=True).fetchone() is not None
+        elapsed = time.perf_counter() - began
+    print(json.dumps({"stored": stored, "replayed_new": 0, "seconds": elapsed, "round_trips": 0}))
     return 0
 
 

@@ -23,7 +23,6 @@ from acquire.errors import StoreError
 from acquire.store.catalog import get_or_create, lot_row
 from acquire.store.engine import (
     Database,
-    finite_or_none,
     insert_ignoring,
 )
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
@@ -80,16 +79,32 @@ def tested_at(row: dict[str, Any]) -> Any:
 
 def _measurement_tuples(unit: UnitRecord, lot_id: int | None, tested: Any) -> list[tuple]:
     """The unit's measurement rows as tuples of ``MEASUREMENT_COLUMNS[1:]`` (no ``unit_id``);
-    ``tested`` is the unit's :func:`tested_at`."""
+    ``tested`` is the unit's :func:`tested_at`. Numbers become Python floats, NaN None (as
+    :func:`finite_or_none`), written out here: this runs for every measurement stored."""
+    isfinite = math.isfinite
     rows = []
     for seq, m in enumerate(unit.measurements):
-        value, special = _split(m.value)
-        frequency = DC if m.frequency is None else finite_or_none(m.frequency)
+        value = float(m.value)
+        special = "" if isfinite(value) else repr(value)
+        f, low, high, u, bias = m.frequency, m.low, m.high, m.uncertainty, m.bias_current
         rows.append(
-            (seq, m.parameter, frequency, value, m.unit, finite_or_none(m.low))
-            + (finite_or_none(m.high), m.verdict, lot_id, special)
-            + (finite_or_none(m.uncertainty), m.tolerance_low, m.tolerance_high, tested)
-            + (finite_or_none(m.bias_current),)
+            (
+                seq,
+                m.parameter,
+                DC if f is None else None if f != f else float(f),
+                value if not special else None,
+                m.unit,
+                None if low is None or low != low else float(low),
+                None if high is None or high != high else float(high),
+                m.verdict,
+                lot_id,
+                special,
+                None if u is None or u != u else float(u),
+                m.tolerance_low,
+                m.tolerance_high,
+                tested,
+                None if bias is None or bias != bias else float(bias),
+            )
         )
     return rows
 
@@ -111,6 +126,9 @@ def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> d
     return found
 
 
+#: Where a unit's :func:`tested_at` candidates lie in :data:`UNIT_COLUMNS`, in its order.
+_TESTED_AT = tuple(UNIT_COLUMNS.index(n) for n in ("finished_at", "started_at", "saved_at"))
+
 #: The columns of a measurement row, in the table's order.
 MEASUREMENT_COLUMNS = tuple(c.name for c in TABLES["measurements"].columns)
 
@@ -121,6 +139,14 @@ def _new_unit(dialect: str, *returning: str) -> Any:
     units = TABLES["units"]
     ignoring = insert_ignoring(dialect, units, ("attempt_id",))
     return ignoring.returning(*(units.c[name] for name in returning))
+
+
+def unit_parameters(dialect: Any, unit: UnitRecord, lot_id: int | None) -> tuple[list, list]:
+    """(unit head, measurement rows) of ``unit`` as :mod:`acquire.store.unit_insert` takes them
+    (values bind-processed for ``dialect``)."""
+    head = unit_values(dialect, _unit_row(unit, lot_id))
+    tested = next(head[k] for k in _TESTED_AT if head[k] is not None)
+    return head, _measurement_tuples(unit, lot_id, tested)
 
 
 def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool:
@@ -136,8 +162,7 @@ def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool
             lots = db.write("recording a lot", lambda c: _lot_ids(c, [unit.lot], lot_cache), True)
             lot_cache.update(lots)
         lot_id = lot_cache[unit.lot]
-    head = unit_values(db.engine.dialect, _unit_row(unit, lot_id))
-    rows = _measurement_tuples(unit, lot_id, tested_at(dict(zip(UNIT_COLUMNS, head, strict=True))))
+    head, rows = unit_parameters(db.engine.dialect, unit, lot_id)
     return db.write("saving a unit", lambda c: insert(c, head, rows) is not None, idempotent=True)
 
 

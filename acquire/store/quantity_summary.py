@@ -73,13 +73,16 @@ def quantity_rows(db: Database, chosen: LotFilter) -> list[QuantityRow]:
     m = TABLES["measurements"]
     keys = (m.c.parameter, m.c.frequency, m.c.si_unit)
     finite = and_(m.c.value_special == "", m.c.value.is_not(None))
-    # The same condition in a form the planner does not treat as "value_special is constant":
-    # SQLite then reads the whole ordered query from the index, with no sort.
-    finite_in_order = and_(func.length(m.c.value_special) == 0, m.c.value.is_not(None))
+    # On SQLite the same condition in a form its planner does not treat as "value_special is
+    # constant": SQLite then reads the whole ordered query from the index, with no sort. Not on
+    # PostgreSQL, whose planner, not seeing an index condition in length(), sorts the lot's
+    # measurements instead (EXPLAIN ANALYZE on a 100,000-unit lot: 1.6 s against 0.3 s).
+    sqlite_finite = and_(func.length(m.c.value_special) == 0, m.c.value.is_not(None))
     spans = [f(m.c[n]) for n in LIMIT_COLUMNS for f in (func.min, func.max, func.count)]
 
     def work(conn: Connection) -> list[QuantityRow]:
-        if conn.dialect.name == "postgresql":
+        postgres = conn.dialect.name == "postgresql"
+        if postgres:
             # One snapshot for the counts and the values (READ COMMITTED takes one a statement).
             conn.exec_driver_sql("SET TRANSACTION ISOLATION LEVEL REPEATABLE READ READ ONLY")
         source, terms = _source(conn, chosen)
@@ -101,7 +104,7 @@ def quantity_rows(db: Database, chosen: LotFilter) -> list[QuantityRow]:
         values = (
             select(m.c.value)
             .select_from(source)
-            .where(and_(true(), *terms), finite_in_order)
+            .where(and_(true(), *terms), finite if postgres else sqlite_finite)
             .order_by(*keys, m.c.value_special, *TEST_ORDER)
         )
         every = read_floats(conn, values, sum(int(r[6]) for r in rows))

@@ -13,9 +13,14 @@ it once.
   store's ``BEGIN IMMEDIATE`` transaction; the SQL text is written once and handed straight to
   the driver (nothing compiled per unit).
 
-Both are plain SQL given to ``Connection.exec_driver_sql``: the parameters are prepared here with
-the columns' own SQLAlchemy bind processing (timezone-aware times to UTC), so the rows stored are
-the same as an INSERT built with SQLAlchemy Core would store.
+Both are plain SQL given to the driver's own cursor on the connection of the store's transaction
+(``Database.write``): SQLAlchemy adds nothing per unit but that transaction. The parameters are
+prepared here with the columns' own SQLAlchemy bind processing, applied only to the columns that
+have one (the times: timezone-aware to UTC, and on SQLite to SQLAlchemy's text format), so the
+rows stored are the same as an INSERT built with SQLAlchemy Core would store. On PostgreSQL the
+statement is prepared on the server once per connection. A driver error is handed to
+SQLAlchemy's own handling (so it is wrapped, and a lost connection invalidated, as for any
+statement of the store).
 """
 
 from __future__ import annotations
@@ -54,12 +59,18 @@ def _unit_processors(dialect: Any) -> tuple[Any, ...]:
     )
 
 
+@cache
+def _processed(dialect: Any) -> tuple[tuple[int, Any], ...]:
+    """(position, processor) of the unit columns that have a bind processor."""
+    return tuple((k, p) for k, p in enumerate(_unit_processors(dialect)) if p is not None)
+
+
 def unit_values(dialect: Any, row: dict[str, Any]) -> list[Any]:
     """``row`` (a unit's columns) as the driver's parameters, in :data:`UNIT_COLUMNS` order."""
-    out = []
-    for name, process in zip(UNIT_COLUMNS, _unit_processors(dialect), strict=True):
-        value = row[name]
-        out.append(process(value) if process is not None and value is not None else value)
+    out = [row[name] for name in UNIT_COLUMNS]
+    for k, process in _processed(dialect):
+        if out[k] is not None:
+            out[k] = process(out[k])
     return out
 
 
@@ -99,15 +110,47 @@ def postgres_sql() -> str:
     )
 
 
+def _driver_error(conn: Connection, exc: Exception, sql: str, params: Any, cursor: Any) -> None:
+    """Raise ``exc`` (from the driver) as SQLAlchemy would for a statement it ran itself."""
+    conn._handle_dbapi_exception(exc, sql, params, cursor, None)  # raises
+
+
 def insert_sqlite(conn: Connection, head: list[Any], rows: list[tuple]) -> int | None:
     """Store a unit (``head`` from :func:`unit_values`) and its measurement ``rows`` (tuples of
     the measurement columns after ``unit_id``) in the open transaction; its id, or None when its
     attempt id was already stored."""
     unit_sql, measurement_sql = sqlite_sql()
-    unit_id = conn.exec_driver_sql(unit_sql, tuple(head)).scalar()
-    if unit_id is not None and rows:
-        conn.exec_driver_sql(measurement_sql, [(unit_id, *r) for r in rows])
+    raw: Any = conn.connection.driver_connection
+    cursor = raw.cursor()
+    sql, params = unit_sql, head
+    try:
+        found = cursor.execute(unit_sql, head).fetchone()
+        if found is None:
+            return None
+        unit_id = found[0]
+        if rows:
+            sql, params = measurement_sql, [(unit_id, *r) for r in rows]
+            cursor.executemany(measurement_sql, params)
+    except conn.dialect.loaded_dbapi.Error as exc:
+        _driver_error(conn, exc, sql, params, cursor)
+    finally:
+        cursor.close()
     return unit_id
+
+
+def postgres_parameters(head: list[Any], rows: list[tuple]) -> dict[str, Any]:
+    """The parameters of :func:`postgres_sql` for a unit ``head`` and its measurement ``rows``
+    (as :func:`insert_sqlite` takes them): a value per unit column, a list per measurement
+    column."""
+    params: dict[str, Any] = dict(zip(_UNIT_KEYS, head, strict=True))
+    columns = list(zip(*rows, strict=True)) if rows else [()] * len(_MEASUREMENT_KEYS)
+    for key, values in zip(_MEASUREMENT_KEYS, columns, strict=True):
+        params[key] = list(values)
+    return params
+
+
+_UNIT_KEYS = tuple(f"u_{name}" for name in UNIT_COLUMNS)
+_MEASUREMENT_KEYS = tuple(f"m_{name}" for name in MEASUREMENT_COLUMNS[1:])
 
 
 def insert_postgres(conn: Connection, head: list[Any], rows: list[tuple]) -> int | None:
@@ -118,15 +161,18 @@ def insert_postgres(conn: Connection, head: list[Any], rows: list[tuple]) -> int
     (psycopg sends BEGIN with a connection's first statement): the driver connection is put in
     autocommit for this one statement and given back as it was.
     """
-    params: dict[str, Any] = {f"u_{n}": v for n, v in zip(UNIT_COLUMNS, head, strict=True)}
-    columns = list(zip(*rows, strict=True)) if rows else [()] * (len(MEASUREMENT_COLUMNS) - 1)
-    for name, values in zip(MEASUREMENT_COLUMNS[1:], columns, strict=True):
-        params[f"m_{name}"] = list(values)
+    params = postgres_parameters(head, rows)
     raw: Any = conn.connection.driver_connection
     was = raw.autocommit
     raw.autocommit = True
+    sql = postgres_sql()
     try:
-        return conn.exec_driver_sql(postgres_sql(), params).scalar()
+        with raw.cursor() as cursor:
+            try:
+                found = cursor.execute(sql, params, prepare=True).fetchone()
+            except conn.dialect.loaded_dbapi.Error as exc:
+                _driver_error(conn, exc, sql, params, cursor)
+        return None if found is None else found[0]
     finally:
         if not raw.closed and raw.info.transaction_status == raw.info.transaction_status.IDLE:
             raw.autocommit = was

@@ -175,6 +175,8 @@ def _bias_supply(plan, meter, source):
             f"{supply.limit:g} A; lower max_bias or use a supply rated for it"
         )
     return supply
+
+
 def _check_guard(store, plan):
     """The station's check-standard guard, when the plan names a standard."""
     if plan.check_standard is None:

@@ -31,7 +31,7 @@ from rich.segment import Segment
 from rich.table import Table
 from rich.text import Text
 
-from acquire.display import UNITS, format_duration, format_measured, lines_taken
+from acquire.display import UNITS, format_duration, format_measured
 from acquire.impedance import quantities
 from acquire.sweep_state import SweepState
 from acquire.textplot import draw, x_axis, y_labels, y_limits
@@ -65,38 +65,42 @@ class DashboardView:
     def __rich_console__(self, console: Console, options: ConsoleOptions) -> RenderResult:
         width = options.max_width
         height = options.height or console.height
-        yield render(self.state, width=width, height=height, now=self.now)
-
-
-def render(
-    state: SweepState, width: int = 100, height: int = 30, now: datetime | None = None
-) -> Group:
-    """The whole live view for a terminal ``width`` x ``height`` cells."""
-    f, raw, corrected = state.points()
-    z = raw if corrected is None else corrected
-    # the latest point only: the plots draw from the state's per-column picks
-    q = quantities(f[-1:], z[-1:]) if f.size else None
-    srf = state.resonance(f.size) if f.size else None
-    side = width >= 80
-    plot_width = width - (SIDE_WIDTH + 1 if side else 0)
-    status = _side(state, f, z, q, srf, now)
-    parts: list = [_header(state, now), _progress(state, width)]
-    warnings = state.all_warnings()
-    if warnings:
-        parts.append(Text("\n".join(f"warning: {w}" for w in warnings), style="yellow"))
-    room = height - sum(lines_taken(part, width) for part in parts)
-    if not side:
-        room -= lines_taken(status, width)
-    plots = _plots(state, f, z, srf, plot_width, room)
-    body: Table | Group
-    if side:
-        body = Table.grid(padding=(0, 1))
-        body.add_column(width=plot_width)
-        body.add_column(width=SIDE_WIDTH)
-        body.add_row(plots, status)
-    else:
-        body = Group(plots, status)
-    return Group(*parts, body)
+        # each part laid out once; the plots and the side column are put side by side line by
+        # line (as a two-column grid would place them, without measuring one each frame)
+        state, now = self.state, self.now
+        f, raw, corrected = state.points()
+        z = raw if corrected is None else corrected
+        q = quantities(f[-1:], z[-1:]) if f.size else None
+        srf = state.resonance(f.size) if f.size else None
+        side = width >= 80
+        plot_width = width - (SIDE_WIDTH + 1 if side else 0)
+        status = _side(state, f, z, q, srf, now)
+        opts = options.update(width=width, height=None)
+        parts: list = [_header(state, now), _progress(state, width)]
+        warnings = state.all_warnings()
+        if warnings:
+            parts.append(Text("\n".join(f"warning: {w}" for w in warnings), style="yellow"))
+        lines = [line for part in parts for line in console.render_lines(part, opts, pad=False)]
+        room = height - len(lines)
+        if side:
+            right = console.render_lines(status, opts.update_width(SIDE_WIDTH))
+        else:
+            right = console.render_lines(status, opts, pad=False)
+            room -= len(right)
+        plots = _plots(state, f, z, srf, plot_width, room)
+        left = plots.rendered(console, plot_width, pad=side)
+        if side:
+            blank = [Segment(" " * SIDE_WIDTH)]
+            left += [[Segment(" " * plot_width)]] * (len(right) - len(left))
+            right += [blank] * (len(left) - len(right))
+            gap = Segment(" ")
+            lines += [[*a, gap, *b] for a, b in zip(left, right, strict=True)]
+        else:
+            lines += left + right
+        newline = Segment.line()
+        for line in lines:
+            yield from line
+            yield newline
 
 
 def _header(state: SweepState, now: datetime | None) -> Text:
@@ -145,7 +149,7 @@ def _plots(
     srf: float | None,
     width: int,
     height: int,
-) -> Group:
+) -> Lines:
     names = state.quantities
     # ``height`` is what is left below the header: each plot has a title and an axis line
     rows_each = max(min(height // max(len(names), 1) - 2, 12), 2)
@@ -159,7 +163,7 @@ def _plots(
     picks = state.plot_columns(names, 2 * max(cells, 2), x_range, f.size)
     sample = state.range_sample()[: f.size] if f.size else np.empty(0, dtype=np.int64)
     q_sample = quantities(f[sample], z[sample]) if sample.size else None
-    parts = []
+    parts: list[list[tuple[str, str]]] = []
     for k, name in enumerate(names):
         colour = COLOURS[k % len(COLOURS)]
         unit = UNITS.get(name, "")
@@ -178,8 +182,8 @@ def _plots(
         for lab, row in zip(labels, plot.rows, strict=True):
             lines.append([(lab.rjust(label_width)[-label_width:] + "│", "dim"), (row, colour)])
         lines.append([(" " * (label_width + 1) + x_axis(x_range, cells), "dim")])
-        parts.append(Lines(lines))
-    return Group(*parts)
+        parts.extend(lines)
+    return Lines(parts)
 
 
 class Lines:
@@ -190,11 +194,17 @@ class Lines:
         self.lines = lines
 
     def __rich_console__(self, console: Console, options: ConsoleOptions) -> RenderResult:
-        width = options.max_width
-        for line in self.lines:
-            segments = [Segment(text, console.get_style(style)) for text, style in line]
-            yield from Segment.adjust_line_length(segments, width, pad=False)
+        for line in self.rendered(console, options.max_width, pad=False):
+            yield from line
             yield Segment.line()
+
+    def rendered(self, console: Console, width: int, pad: bool = True) -> list[list[Segment]]:
+        """Each line as segments, cropped (and with ``pad``, padded) to ``width`` cells."""
+        style = console.get_style
+        return [
+            Segment.adjust_line_length([Segment(t, style(s)) for t, s in line], width, pad=pad)
+            for line in self.lines
+        ]
 
 
 def _y_axis(

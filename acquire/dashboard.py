@@ -23,19 +23,18 @@ from datetime import UTC, datetime
 from typing import IO
 
 import numpy as np
-from rich.console import Console, ConsoleOptions, Group, RenderResult
+from rich.console import Console, ConsoleOptions, RenderResult
 from rich.live import Live
-from rich.panel import Panel
 from rich.progress_bar import ProgressBar
 from rich.segment import Segment
 from rich.table import Table
 from rich.text import Text
 
+from acquire.dashboard_side import latest_rows, point_u, side_column, side_lines
 from acquire.display import UNITS, format_duration, format_measured
 from acquire.impedance import quantities
 from acquire.sweep_state import SweepState
 from acquire.textplot import draw, x_axis, y_labels, y_limits
-from acquire.uncertainty import quantity_uncertainty
 from acquire.units import format_si
 
 COLOURS = ("cyan", "magenta", "green", "yellow", "blue", "red")
@@ -74,7 +73,7 @@ class DashboardView:
         srf = state.resonance(f.size) if f.size else None
         side = width >= 80
         plot_width = width - (SIDE_WIDTH + 1 if side else 0)
-        status = _side(state, f, z, q, srf, now)
+        rows = latest_rows(state, f, z, q)
         opts = options.update(width=width, height=None)
         parts: list = [_header(state, now), _progress(state, width)]
         warnings = state.all_warnings()
@@ -83,9 +82,9 @@ class DashboardView:
         lines = [line for part in parts for line in console.render_lines(part, opts, pad=False)]
         room = height - len(lines)
         if side:
-            right = console.render_lines(status, opts.update_width(SIDE_WIDTH))
+            right = side_lines(console, opts.update_width(SIDE_WIDTH), rows, srf)
         else:
-            right = console.render_lines(status, opts, pad=False)
+            right = console.render_lines(side_column(rows, srf), opts, pad=False)
             room -= len(right)
         plots = _plots(state, f, z, srf, plot_width, room)
         left = plots.rendered(console, plot_width, pad=side)
@@ -224,55 +223,6 @@ def _y_axis(
         return True, y_limits(np.array(extremes), True) or (0.0, 1.0)
     y = np.where(state.hidden_at(name, sample), np.nan, q_sample[name])
     return False, y_limits(y, False, lowest=lowest) or (0.0, 1.0)
-
-
-def _side(
-    state: SweepState,
-    f: np.ndarray,
-    z: np.ndarray,
-    q: dict[str, np.ndarray] | None,
-    srf: float | None,
-    now: datetime | None,
-) -> Group:
-    latest = Table.grid(padding=(0, 1))
-    latest.add_column(style="bold")
-    latest.add_column(justify="right")
-    if q is not None and f.size:
-        latest.add_row("f", format_si(float(f[-1]), "Hz"))
-        names = tuple(dict.fromkeys((*state.quantities, "Z", "theta")))
-        last = slice(f.size - 1, f.size)
-        u = point_u(state, f, z, last, names)
-        for name in names:
-            latest.add_row(
-                "|Z|" if name == "Z" else "θ" if name == "theta" else name,
-                format_measured(
-                    name,
-                    float(q[name][-1]),
-                    None if u is None else float(u[name][0]),
-                    bool(state.hidden_at(name, last)[0]),
-                ),
-            )
-    else:
-        latest.add_row("", "no points yet")
-    parts: list = [Panel(latest, title="latest point", title_align="left")]
-    if srf is not None:
-        parts.append(
-            Panel(
-                Text(f"≈ {format_si(srf, 'Hz')}\nreactance turns capacitive here (┊ on the plots)"),
-                title="self-resonance",
-                title_align="left",
-                border_style="magenta",
-            )
-        )
-    return Group(*parts)
-
-
-def point_u(state: SweepState, f: np.ndarray, z: np.ndarray, part, names):
-    """Expanded uncertainty of ``names`` at the points ``part`` of ``f`` and the shown ``z`` (the
-    state's first ``f.size`` points), or None when the view does not show uncertainty."""
-    if not state.show_uncertainty:
-        return None
-    return quantity_uncertainty(f[part], z[part], state.cov[: f.size][part], names)
 
 
 class LiveDashboard:

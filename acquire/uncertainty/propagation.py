@@ -222,23 +222,36 @@ def _sandwich(g: np.ndarray, v) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.
 def assemble(zx: np.ndarray, terms) -> np.ndarray:
     """``Σ J·V·Jᵀ`` over ``terms`` (pairs of a complex derivative and a covariance as
     :func:`sandwich` takes it) as a ``zx.shape + (2, 2)`` array; NaN where ``zx`` is not finite."""
-    out = np.zeros(zx.shape + (2, 2))
     with np.errstate(invalid="ignore", over="ignore"):
-        if all(not isinstance(v, tuple) for _, v in terms):
-            # each input's parts independent with equal variance: C00 = C11, C01 = C10 = 0
-            total = np.zeros(zx.shape)
-            for g, v in terms:
-                total += _sandwich(g, v)[0]
+        return assemble_quiet(zx, terms)
+
+
+def assemble_quiet(zx: np.ndarray, terms) -> np.ndarray:
+    """:func:`assemble` inside the caller's ``np.errstate`` (ignoring invalid and overflow)."""
+    out = np.zeros(zx.shape + (2, 2))
+    if all(not isinstance(v, tuple) for _, v in terms):
+        # each input's parts independent with equal variance: C00 = C11, C01 = C10 = 0; the
+        # first term starts the total (0 + x is x: a variance is never -0.0)
+        total = None
+        for g, v in terms:
+            d = _sandwich(g, v)[0]
+            if total is None:
+                total = (
+                    d if isinstance(d, np.ndarray) and d.shape == zx.shape else d + out[..., 0, 0]
+                )
+            else:
+                total += d
+        if total is not None:
             out[..., 0, 0] = total
             out[..., 1, 1] = total
-        else:
-            for g, v in terms:
-                c00, c01, c10, c11 = _sandwich(g, v)
-                out[..., 0, 0] += c00
-                out[..., 1, 1] += c11
-                if isinstance(v, tuple):
-                    out[..., 0, 1] += c01
-                    out[..., 1, 0] += c10
+    else:
+        for g, v in terms:
+            c00, c01, c10, c11 = _sandwich(g, v)
+            out[..., 0, 0] += c00
+            out[..., 1, 1] += c11
+            if isinstance(v, tuple):
+                out[..., 0, 1] += c01
+                out[..., 1, 0] += c10
     finite = np.isfinite(zx)
     if not finite.all():
         out[~finite] = np.nan

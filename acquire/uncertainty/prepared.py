@@ -155,7 +155,8 @@ class PreparedCorrection:
                     v_std[name] = noise._variance(k_f, z, u, self._repeats)
                 elif u is not None:
                     v_std[name] = u**2
-        k, ratio, grads = derivatives(zm, zo, zs, zl, zt)
+        with_zt = self._load_true_u is not None
+        k, ratio, grads = derivatives(zm, zo, zs, zl, zt, with_zt)
         zx = k * ratio
         inputs = {"zm": self._dut(k_f, zm, u_m), "zo": v_std.get("open")}
         inputs.update(zs=v_std.get("short"), zl=v_std.get("load"))

@@ -68,22 +68,26 @@ def as_covariance(u, shape: tuple[int, ...]) -> np.ndarray:
     return out
 
 
-def _k_and_partials(zo, zs, zl, zt) -> tuple[np.ndarray, dict[str, np.ndarray]]:
-    """``K`` of the method the standards given imply, and its derivatives."""
+def _k_and_partials(zo, zs, zl, zt, with_zt=True) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    """``K`` of the method the standards given imply, and its derivatives (that by ``zt`` left
+    out unless ``with_zt``)."""
     zs0 = 0.0 if zs is None else zs
     if zl is not None:
         span = zl - zs0
         if zo is not None:  # open-short-load (or open-load with zs0 = 0)
             k = zt * (zo - zl) / span
             dk = {
-                "zt": (zo - zl) / span,
                 "zo": zt / span,
                 "zl": -zt * (zo - zs0) / span**2,
                 "zs": zt * (zo - zl) / span**2,
             }
+            if with_zt:
+                dk["zt"] = (zo - zl) / span
         else:  # short-load, load
             k = zt / span
-            dk = {"zt": 1.0 / span, "zl": -zt / span**2, "zs": zt / span**2}
+            dk = {"zl": -zt / span**2, "zs": zt / span**2}
+            if with_zt:
+                dk["zt"] = 1.0 / span
     elif zo is not None:  # open-short, open
         one = np.ones_like(zo)
         k = zo - zs0
@@ -117,12 +121,14 @@ def _complex_of_shape(a, shape: tuple[int, ...]) -> np.ndarray:
     return np.broadcast_to(np.asarray(a, dtype=complex), shape)
 
 
-def derivatives(zm, zo, zs, zl, zt) -> tuple[np.ndarray, np.ndarray, dict[str, np.ndarray]]:
+def derivatives(
+    zm, zo, zs, zl, zt, with_zt: bool = True
+) -> tuple[np.ndarray, np.ndarray, dict[str, np.ndarray]]:
     """``(K, N/D, {input: ∂Zx/∂input})`` for complex arrays of one shape (None where a standard
-    was not taken); ``K·(N/D)`` is the corrected impedance, bit for bit as
+    was not taken; ``∂Zx/∂Zt`` only ``with_zt``); ``K·(N/D)`` is the corrected impedance, bit for bit as
     :meth:`acquire.compensation.formulas.Correction.apply` gives it. Call inside an
     ``np.errstate`` that ignores division, invalid and overflow (the caller's whole batch)."""
-    k, dk = _k_and_partials(zo, zs, zl, zt)
+    k, dk = _k_and_partials(zo, zs, zl, zt, with_zt)
     n = zm if zs is None else zm - zs
     d = 1.0 if zo is None else zo - zm
     ratio = n / d  # Zx / K
@@ -133,7 +139,8 @@ def derivatives(zm, zo, zs, zl, zt) -> tuple[np.ndarray, np.ndarray, dict[str, n
         out["zo"] = -k * n / d**2 + ratio * dk["zo"]
     if zl is not None:
         out["zl"] = ratio * dk["zl"]
-        out["zt"] = ratio * dk["zt"]
+        if with_zt:
+            out["zt"] = ratio * dk["zt"]
     return k, ratio, out
 
 

@@ -143,7 +143,9 @@ class PreparedCorrection:
             # every held standard with its Type A: one variance for all of them side by side
             # (the same operations, point by point, as one standard at a time)
             z_at = {"open": zo, "short": zs, "load": zl}
-            side = np.stack([z_at[name] for name in self._held], 1)
+            side = np.empty((zm.shape[0], len(self._held)), dtype=complex)
+            for i, name in enumerate(self._held):
+                side[:, i] = z_at[name]
             v = noise._variance(k_f[:, None], side, self._carried_u(at), self._repeats)
             v_std = {name: v[:, i] for i, name in enumerate(self._held)}
         else:

@@ -35,6 +35,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property
+from typing import Any
 
 import numpy as np
 
@@ -164,7 +165,7 @@ def _unflat(mid: np.ndarray, f: np.ndarray) -> np.ndarray:
     return mid
 
 
-def _keep_exact(z_at: np.ndarray, z: np.ndarray, at: Placement) -> np.ndarray:
+def _keep_exact(z_at: Any, z: Any, at: Placement) -> Any:
     """``z_at`` with the stored reading, bit for bit, at the placed grid frequencies."""
     exact = at.exact_at
     if exact is not None:
@@ -248,7 +249,7 @@ class GridForms:
         form), so that a placement carries them all in one step."""
         flats = self._flats
         held = tuple(i for i, a in enumerate(flats) if a is not None)
-        side = np.stack([flats[i] for i in held], 1) if held else None
+        side = np.stack([flats[i] for i in held], 1) if held else None  # type: ignore[misc]
         return held, side
 
     def place(self, f: np.ndarray) -> Placement:
@@ -265,11 +266,11 @@ class GridForms:
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             # every form carried in one step (lerp, then the imaginary part times f), then each
             # taken back from its form as one at a time would be
-            c: list[np.ndarray | None] = [None, None, None, None]
+            c: list[Any] = [None, None, None, None]
             if side is not None:
                 carried = _unflat(at.lerp_side(side), at.f[:, None])
-                for k, i in enumerate(held):
-                    c[i] = carried[:, k]
+                for column, which in enumerate(held):
+                    c[which] = carried[:, column]
             o, s, lo, t = c
             zs_at = None if s is None else _keep_exact(s, zs, at)
             if o is None:

@@ -108,7 +108,7 @@ def sensitivities(zm, zo=None, zs=None, zl=None, zt=None) -> dict[str, np.ndarra
     shape = zm.shape
     std = [None if a is None else _complex_of_shape(a, shape) for a in (zo, zs, zl, zt)]
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        _, _, out = derivatives(zm, *std)
+        _, _, out = derivatives(zm, std[0], std[1], std[2], std[3])
     return {
         name: g if isinstance(g, np.ndarray) and g.shape == shape else np.broadcast_to(g, shape)
         for name, g in out.items()
@@ -125,8 +125,8 @@ def derivatives(
     zm, zo, zs, zl, zt, with_zt: bool = True
 ) -> tuple[np.ndarray, np.ndarray, dict[str, np.ndarray]]:
     """``(K, N/D, {input: ∂Zx/∂input})`` for complex arrays of one shape (None where a standard
-    was not taken; ``∂Zx/∂Zt`` only ``with_zt``); ``K·(N/D)`` is the corrected impedance, bit for bit as
-    :meth:`acquire.compensation.formulas.Correction.apply` gives it. Call inside an
+    was not taken; ``∂Zx/∂Zt`` only ``with_zt``); ``K·(N/D)`` is the corrected impedance, bit
+    for bit as :meth:`acquire.compensation.formulas.Correction.apply` gives it. Call inside an
     ``np.errstate`` that ignores division, invalid and overflow (the caller's whole batch)."""
     k, dk = _k_and_partials(zo, zs, zl, zt, with_zt)
     n = zm if zs is None else zm - zs

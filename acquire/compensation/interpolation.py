@@ -46,6 +46,8 @@ from acquire.impedance import computed_once
 
 #: Relative distance from a grid end still taken as that end.
 END_TOLERANCE = 1e-12
+#: Up to this many placed frequencies the standards' forms are carried side by side.
+SIDE_BY_SIDE_UP_TO = 512
 
 
 @dataclass(frozen=True, eq=False)
@@ -262,16 +264,22 @@ class GridForms:
         if at.on_grid:
             i = at.index
             return tuple(None if z is None else z[i] for z in (zo, zs, zl, zt))  # type: ignore[return-value]
-        held, side = self._side
+        flats = self._flats
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            # every form carried in one step (lerp, then the imaginary part times f), then each
-            # taken back from its form as one at a time would be
+            # a few points (a sweep's chunk): every form carried in one step (lerp, then the
+            # imaginary part times f), as fewer numpy calls cost less than the arithmetic; many
+            # points: each form on its own, contiguous. Either way each is then taken back from
+            # its form as one at a time would be (the same operations, point by point)
             c: list[Any] = [None, None, None, None]
-            if side is not None:
-                carried = _unflat(at.lerp_side(side), at.f[:, None])
-                for column, which in enumerate(held):
-                    c[which] = carried[:, column]
-            o, s, lo, t = c
+            if at.f.size > SIDE_BY_SIDE_UP_TO:
+                o, s, lo, t = (None if a is None else _unflat(at.lerp(a), at.f) for a in flats)
+            else:
+                held, side = self._side
+                if side is not None:
+                    carried = _unflat(at.lerp_side(side), at.f[:, None])
+                    for column, which in enumerate(held):
+                        c[which] = carried[:, column]
+                o, s, lo, t = c
             zs_at = None if s is None else _keep_exact(s, zs, at)
             if o is None:
                 zo_at = None

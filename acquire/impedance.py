@@ -200,8 +200,15 @@ def quantities(f, z, names: Iterable[str] = KEYS) -> dict[str, np.ndarray]:
     if unknown:
         raise InputError(f"unknown quantity {unknown[0]!r}; known: {', '.join(KEYS)}")
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        parts = _Parts(w, z)
-        return {name: _RULES[name](parts) for name in names}
+        return quantities_at(w, z, names)
+
+
+def quantities_at(w: np.ndarray, z: np.ndarray, names: tuple[str, ...]) -> dict[str, np.ndarray]:
+    """:func:`quantities` for checked inputs: ``w = 2·π·f`` (float) and ``z`` (complex) of one
+    shape, ``names`` all in :data:`KEYS`; the caller ignores division, invalid and overflow in
+    an ``np.errstate`` of its own (a sweep's chunk does once for all its steps)."""
+    parts = _Parts(w, z)
+    return {name: _RULES[name](parts) for name in names}
 
 
 def series_rl_impedance(f, rs, ls) -> np.ndarray:

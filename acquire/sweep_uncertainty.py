@@ -28,13 +28,15 @@ from typing import Any
 import numpy as np
 
 from acquire.compensation.interpolation import GridForms
+from acquire.impedance import _angular as angular
 from acquire.uncertainty import (
     COVERAGE_FACTOR,
-    beyond_accuracy,
     correct_with_uncertainty,
     flags_from,
     reading_covariance,
 )
+from acquire.uncertainty.flags import check_names
+from acquire.uncertainty.flags import judge as judge_points
 from acquire.uncertainty.prepared import PreparedCorrection
 
 #: Quantities judged for the display besides the shown ones (the latest-point panel's |Z| and
@@ -137,7 +139,8 @@ class PointUncertainty:
             known = np.isfinite(cov)
             judge = cov if known.all() else np.where(known, cov, 0.0)
             judged = tuple(dict.fromkeys((*self.names, *ALSO_JUDGED)))
-            beyond = beyond_accuracy(f, z, judge, judged)
+            check_names(judged)
+            beyond = judge_points(angular(f), z, judge, judged)
             flags = flags_from(beyond, self.names).astype(object)
             if not np.isfinite(raw).all():
                 flags[np.isinf(raw.real) | np.isinf(raw.imag)] = OVERRANGE
@@ -154,7 +157,7 @@ class PointUncertainty:
         if kept is None or kept.refs is not references:
             kept = PreparedCorrection(references, self.accuracy, **settings)
             object.__setattr__(self, "_prepared", kept)
-        return kept.correct(f, raw, u_m)
+        return kept.batch(f, raw, u_m)
 
     def _raw_cov(self, f, raw, u_m, settings) -> np.ndarray:
         if self.accuracy is None and u_m is None:

@@ -35,6 +35,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property
+from typing import Any
 
 import numpy as np
 
@@ -45,6 +46,8 @@ from acquire.impedance import computed_once
 
 #: Relative distance from a grid end still taken as that end.
 END_TOLERANCE = 1e-12
+#: Up to this many placed frequencies the standards' forms are carried side by side.
+SIDE_BY_SIDE_UP_TO = 512
 
 
 @dataclass(frozen=True, eq=False)
@@ -84,6 +87,17 @@ class Placement:
             upper = np.minimum(self.index + 1, values.shape[0] - 1)
         return a + self.weight * (values[upper] - a)
 
+    def lerp_side(self, values: np.ndarray) -> np.ndarray:
+        """:meth:`lerp` of several quantities side by side, ``values`` of shape (grid point,
+        quantity): the same operations, point by point, in one step for all of them."""
+        a = values[self.index]
+        if self.weight is None:
+            return a
+        upper = self.upper
+        if upper is None:
+            upper = np.minimum(self.index + 1, values.shape[0] - 1)
+        return a + self.weight[:, None] * (values[upper] - a)
+
 
 def place(grid: np.ndarray, f: np.ndarray, log_grid: np.ndarray | None = None) -> Placement:
     """Locate 1-D frequencies ``f`` on the strictly increasing ``grid``; refuse any outside it.
@@ -105,7 +119,9 @@ def place(grid: np.ndarray, f: np.ndarray, log_grid: np.ndarray | None = None) -
         index = np.zeros(f.shape, dtype=np.intp)
         return Placement(f, index, None, np.ones(f.shape, bool), True)
     index = np.searchsorted(grid, f, side="right") - 1
-    np.clip(index, 0, grid.size - 2, out=index)
+    # f is at or above grid[0] here, so index >= 0: only the top needs bounding (np.clip's
+    # own checks cost more than the bound itself on a sweep's small chunks)
+    np.minimum(index, grid.size - 2, out=index)
     exact = grid[index] == f
     if high >= hi:
         top = f == hi
@@ -151,7 +167,7 @@ def _unflat(mid: np.ndarray, f: np.ndarray) -> np.ndarray:
     return mid
 
 
-def _keep_exact(z_at: np.ndarray, z: np.ndarray, at: Placement) -> np.ndarray:
+def _keep_exact(z_at: Any, z: Any, at: Placement) -> Any:
     """``z_at`` with the stored reading, bit for bit, at the placed grid frequencies."""
     exact = at.exact_at
     if exact is not None:
@@ -229,6 +245,15 @@ class GridForms:
                 lo = _flat(grid, formulas.correction(zo, zs, None, None).apply(zl))
         return o, s, lo, t
 
+    @cached_property
+    def _side(self) -> tuple[tuple[int, ...], np.ndarray | None]:
+        """Which of the carried forms the set has, and those forms side by side (grid point,
+        form), so that a placement carries them all in one step."""
+        flats = self._flats
+        held = tuple(i for i, a in enumerate(flats) if a is not None)
+        side = np.stack([flats[i] for i in held], 1) if held else None  # type: ignore[misc]
+        return held, side
+
     def place(self, f: np.ndarray) -> Placement:
         """:func:`place` on this grid, with its log kept."""
         return place(self.grid, f, self.log_grid if self.grid.size > 1 else None)
@@ -239,18 +264,37 @@ class GridForms:
         if at.on_grid:
             i = at.index
             return tuple(None if z is None else z[i] for z in (zo, zs, zl, zt))  # type: ignore[return-value]
-        o, s, lo, t = self._flats
+        flats = self._flats
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-            zs_at = None if zs is None else _keep_exact(_carried(s, at, False, None), zs, at)
-            zo_at = None if zo is None else _keep_exact(_carried(o, at, True, zs_at), zo, at)
-            zt_at = None if zt is None else _keep_exact(_carried(t, at, False, None), zt, at)
-            if zl is None:
+            # a few points (a sweep's chunk): every form carried in one step (lerp, then the
+            # imaginary part times f), as fewer numpy calls cost less than the arithmetic; many
+            # points: each form on its own, contiguous. Either way each is then taken back from
+            # its form as one at a time would be (the same operations, point by point)
+            c: list[Any] = [None, None, None, None]
+            if at.f.size > SIDE_BY_SIDE_UP_TO:
+                o, s, lo, t = (None if a is None else _unflat(at.lerp(a), at.f) for a in flats)
+            else:
+                held, side = self._side
+                if side is not None:
+                    carried = _unflat(at.lerp_side(side), at.f[:, None])
+                    for column, which in enumerate(held):
+                        c[which] = carried[:, column]
+                o, s, lo, t = c
+            zs_at = None if s is None else _keep_exact(s, zs, at)
+            if o is None:
+                zo_at = None
+            else:
+                zo_at = 1.0 / o
+                if zs_at is not None:
+                    zo_at = zo_at + zs_at
+                zo_at = _keep_exact(zo_at, zo, at)
+            zt_at = None if t is None else _keep_exact(t, zt, at)
+            if lo is None:
                 zl_at = None
             elif zo is None and zs is None:
-                zl_at = _keep_exact(_carried(lo, at, False, None), zl, at)
+                zl_at = _keep_exact(lo, zl, at)
             else:
-                bare_at = _carried(lo, at, False, None)
-                zl_at = formulas.correction(zo_at, zs_at, None, None).reading(bare_at)
+                zl_at = formulas.correction(zo_at, zs_at, None, None).reading(lo)
                 zl_at = _keep_exact(zl_at, zl, at)
         return zo_at, zs_at, zl_at, zt_at
 

@@ -20,8 +20,9 @@ import operator
 
 import numpy as np
 
-from acquire.impedance import quantities
-from acquire.uncertainty.quantities import quantity_uncertainty
+from acquire.errors import InputError
+from acquire.impedance import KEYS, _angular, _arrays, quantities_at
+from acquire.uncertainty.quantities import spread_at
 
 #: The flag word of a point with a value past the tool's accuracy (store column ``flags``).
 BEYOND_ACCURACY = "beyond-accuracy"
@@ -33,18 +34,40 @@ DEFAULT_NAMES = ("Ls", "Rs", "Q")
 
 def beyond_accuracy(f, z, cov, names=DEFAULT_NAMES) -> dict[str, np.ndarray]:
     """Per quantity in ``names``, a boolean array: True where its value is beyond accuracy."""
-    values = quantities(f, z, names)
-    spread = quantity_uncertainty(f, z, cov, names)
+    f, z = _arrays(f, z)
+    w = _angular(f)
+    names = tuple(names)
+    check_names(names)
+    cov = np.asarray(cov, dtype=float)
+    if cov.shape != z.shape + (2, 2):
+        raise InputError(f"cov must have shape {z.shape + (2, 2)}, not {cov.shape}")
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return judge(w, z, cov, names)
+
+
+def check_names(names: tuple[str, ...]) -> None:
+    """Refuse a name not in :data:`acquire.impedance.KEYS`."""
+    unknown = [n for n in names if n not in KEYS]
+    if unknown:
+        raise InputError(f"unknown quantity {unknown[0]!r}; known: {', '.join(KEYS)}")
+
+
+def judge(w, z, cov, names: tuple[str, ...]) -> dict[str, np.ndarray]:
+    """:func:`beyond_accuracy` for checked inputs (the inputs are checked once, not by both the
+    values and their uncertainty): ``w = 2·π·f`` (float), ``z`` (complex) and ``cov`` (float,
+    ``z.shape + (2, 2)``), ``names`` known; the caller ignores division, invalid and overflow
+    in an ``np.errstate`` of its own."""
+    values = quantities_at(w, z, names)
+    spread = spread_at(w, z, cov, names)
     out = {}
-    with np.errstate(invalid="ignore"):
-        for name in names:
-            v, u = values[name], spread[name]
-            # "v or u not finite, or u >= |v|", in fewer steps: u = 2·√var is never -inf, so
-            # u < |v| with a finite v holds exactly when both are finite and u is below |v|
-            bad = ~((u < np.abs(v)) & np.isfinite(v))
-            if name in NEVER_NEGATIVE:
-                bad |= v < -u
-            out[name] = bad
+    for name in names:
+        v, u = values[name], spread[name]
+        # "v or u not finite, or u >= |v|", in fewer steps: u = 2·√var is never -inf, so
+        # u < |v| with a finite v holds exactly when both are finite and u is below |v|
+        bad = ~((u < np.abs(v)) & np.isfinite(v))
+        if name in NEVER_NEGATIVE:
+            bad |= v < -u
+        out[name] = bad
     return out
 
 

@@ -24,7 +24,7 @@ import numpy as np
 from acquire.compensation.interpolation import uncertainty_at
 from acquire.errors import InputError
 from acquire.uncertainty.accuracy import reading_uncertainty, repeatability
-from acquire.uncertainty.propagation import as_covariance, assemble, derivatives
+from acquire.uncertainty.propagation import as_covariance, assemble_quiet, derivatives
 
 STANDARD_NAMES = ("open", "short", "load")
 _ROOT3 = math.sqrt(3.0)
@@ -110,6 +110,16 @@ class PreparedCorrection:
         self._noise = None if accuracy is None else ReadingNoise(accuracy, level, speed, averaging)
         self._load_true_u = load_true_u
         self._open_short = forms.zo is not None and forms.zs is not None and forms.zl is None
+        held = [
+            name
+            for name, z in zip(STANDARD_NAMES, (forms.zo, forms.zs, forms.zl), strict=True)
+            if z is not None
+        ]
+        self._held = tuple(held)
+        # the held standards' Type A side by side (grid point, standard), carried in one step
+        self._u_side: np.ndarray | None = None
+        if held and all(self._u[name] is not None for name in held):
+            self._u_side = np.stack([np.asarray(self._u[name], dtype=float) for name in held], 1)
 
     def correct(self, f: np.ndarray, zm: np.ndarray, u_m=None) -> tuple[np.ndarray, np.ndarray]:
         """``(zx, cov)`` for readings ``zm`` at 1-D frequencies ``f`` (float, complex, one shape).
@@ -118,37 +128,67 @@ class PreparedCorrection:
         The chunk's work runs inside one ``np.errstate`` (no warning is raised).
         """
         with np.errstate(all="ignore"):
-            return self._correct(f, zm, u_m)
+            return self.batch(f, zm, u_m)
 
-    def _correct(self, f: np.ndarray, zm: np.ndarray, u_m) -> tuple[np.ndarray, np.ndarray]:
+    def batch(self, f: np.ndarray, zm: np.ndarray, u_m) -> tuple[np.ndarray, np.ndarray]:
+        """:meth:`correct` inside the caller's ``np.errstate``, which ignores every error (a
+        sweep's chunk enters one for all its steps)."""
         forms = self._forms
         at = forms.place(f)
         zo, zs, zl, zt = forms.standards(at)
         noise = self._noise
         k_f = None if noise is None else noise.k_f(f)
         v_std: dict[str, Any] = {}
-        for name, z in (("open", zo), ("short", zs), ("load", zl)):
-            if z is None:
-                continue
-            u = uncertainty_at(forms.grid, self._u[name], at)
-            if noise is not None:
-                v_std[name] = noise._variance(k_f, z, u, self._repeats)
-            elif u is not None:
-                v_std[name] = u**2
-        k, ratio, grads = derivatives(zm, zo, zs, zl, zt)
+        if self._u_side is not None and noise is not None and k_f is not None:
+            # every held standard with its Type A: one variance for all of them side by side
+            # (the same operations, point by point, as one standard at a time)
+            z_at = {"open": zo, "short": zs, "load": zl}
+            side = np.empty((zm.shape[0], len(self._held)), dtype=complex)
+            for i, name in enumerate(self._held):
+                side[:, i] = z_at[name]
+            v = noise._variance(k_f[:, None], side, self._carried_u(at), self._repeats)
+            v_std = {name: v[:, i] for i, name in enumerate(self._held)}
+        else:
+            for name, z in (("open", zo), ("short", zs), ("load", zl)):
+                if z is None:
+                    continue
+                u = uncertainty_at(forms.grid, self._u[name], at)
+                if noise is not None:
+                    v_std[name] = noise._variance(k_f, z, u, self._repeats)
+                elif u is not None:
+                    v_std[name] = u**2
+        with_zt = self._load_true_u is not None
+        k, ratio, grads = derivatives(zm, zo, zs, zl, zt, with_zt)
         zx = k * ratio
         inputs = {"zm": self._dut(k_f, zm, u_m), "zo": v_std.get("open")}
         inputs.update(zs=v_std.get("short"), zl=v_std.get("load"))
         if self._load_true_u is not None:
             inputs["zt"] = _parts(as_covariance(self._load_true_u, zm.shape))
         terms = [(g, inputs[name]) for name, g in grads.items() if _any(inputs.get(name))]
-        cov = assemble(zx, terms)
+        cov = assemble_quiet(zx, terms)
         if self._open_short:
             t = np.abs(zs / zo)
             model = (t * (2.0 + t) * np.abs(zx) / _ROOT3) ** 2
             cov[..., 0, 0] += model
             cov[..., 1, 1] += model
         return zx, cov
+
+    def _carried_u(self, at) -> np.ndarray:
+        """The held standards' Type A at the placed frequencies, (point, standard): what
+        :func:`~acquire.compensation.interpolation.uncertainty_at` gives for each."""
+        u = self._u_side
+        assert u is not None
+        a = u[at.index]
+        if at.on_grid:
+            return a
+        upper = at.upper
+        if upper is None:
+            upper = np.minimum(at.index + 1, u.shape[0] - 1)
+        a = a + at.weight[:, None] * (u[upper] - a)
+        exact = at.exact_at
+        if exact is not None:
+            a[exact[0]] = u[exact[1]]
+        return a
 
     def _dut(self, k_f, zm, u_m):
         """The DUT reading's variance (one per point) or covariance components."""

@@ -68,22 +68,26 @@ def as_covariance(u, shape: tuple[int, ...]) -> np.ndarray:
     return out
 
 
-def _k_and_partials(zo, zs, zl, zt) -> tuple[np.ndarray, dict[str, np.ndarray]]:
-    """``K`` of the method the standards given imply, and its derivatives."""
+def _k_and_partials(zo, zs, zl, zt, with_zt=True) -> tuple[np.ndarray, dict[str, np.ndarray]]:
+    """``K`` of the method the standards given imply, and its derivatives (that by ``zt`` left
+    out unless ``with_zt``)."""
     zs0 = 0.0 if zs is None else zs
     if zl is not None:
         span = zl - zs0
         if zo is not None:  # open-short-load (or open-load with zs0 = 0)
             k = zt * (zo - zl) / span
             dk = {
-                "zt": (zo - zl) / span,
                 "zo": zt / span,
                 "zl": -zt * (zo - zs0) / span**2,
                 "zs": zt * (zo - zl) / span**2,
             }
+            if with_zt:
+                dk["zt"] = (zo - zl) / span
         else:  # short-load, load
             k = zt / span
-            dk = {"zt": 1.0 / span, "zl": -zt / span**2, "zs": zt / span**2}
+            dk = {"zl": -zt / span**2, "zs": zt / span**2}
+            if with_zt:
+                dk["zt"] = 1.0 / span
     elif zo is not None:  # open-short, open
         one = np.ones_like(zo)
         k = zo - zs0
@@ -104,7 +108,7 @@ def sensitivities(zm, zo=None, zs=None, zl=None, zt=None) -> dict[str, np.ndarra
     shape = zm.shape
     std = [None if a is None else _complex_of_shape(a, shape) for a in (zo, zs, zl, zt)]
     with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        _, _, out = derivatives(zm, *std)
+        _, _, out = derivatives(zm, std[0], std[1], std[2], std[3])
     return {
         name: g if isinstance(g, np.ndarray) and g.shape == shape else np.broadcast_to(g, shape)
         for name, g in out.items()
@@ -117,12 +121,14 @@ def _complex_of_shape(a, shape: tuple[int, ...]) -> np.ndarray:
     return np.broadcast_to(np.asarray(a, dtype=complex), shape)
 
 
-def derivatives(zm, zo, zs, zl, zt) -> tuple[np.ndarray, np.ndarray, dict[str, np.ndarray]]:
+def derivatives(
+    zm, zo, zs, zl, zt, with_zt: bool = True
+) -> tuple[np.ndarray, np.ndarray, dict[str, np.ndarray]]:
     """``(K, N/D, {input: ∂Zx/∂input})`` for complex arrays of one shape (None where a standard
-    was not taken); ``K·(N/D)`` is the corrected impedance, bit for bit as
-    :meth:`acquire.compensation.formulas.Correction.apply` gives it. Call inside an
+    was not taken; ``∂Zx/∂Zt`` only ``with_zt``); ``K·(N/D)`` is the corrected impedance, bit
+    for bit as :meth:`acquire.compensation.formulas.Correction.apply` gives it. Call inside an
     ``np.errstate`` that ignores division, invalid and overflow (the caller's whole batch)."""
-    k, dk = _k_and_partials(zo, zs, zl, zt)
+    k, dk = _k_and_partials(zo, zs, zl, zt, with_zt)
     n = zm if zs is None else zm - zs
     d = 1.0 if zo is None else zo - zm
     ratio = n / d  # Zx / K
@@ -133,7 +139,8 @@ def derivatives(zm, zo, zs, zl, zt) -> tuple[np.ndarray, np.ndarray, dict[str, n
         out["zo"] = -k * n / d**2 + ratio * dk["zo"]
     if zl is not None:
         out["zl"] = ratio * dk["zl"]
-        out["zt"] = ratio * dk["zt"]
+        if with_zt:
+            out["zt"] = ratio * dk["zt"]
     return k, ratio, out
 
 
@@ -222,23 +229,36 @@ def _sandwich(g: np.ndarray, v) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.
 def assemble(zx: np.ndarray, terms) -> np.ndarray:
     """``Σ J·V·Jᵀ`` over ``terms`` (pairs of a complex derivative and a covariance as
     :func:`sandwich` takes it) as a ``zx.shape + (2, 2)`` array; NaN where ``zx`` is not finite."""
-    out = np.zeros(zx.shape + (2, 2))
     with np.errstate(invalid="ignore", over="ignore"):
-        if all(not isinstance(v, tuple) for _, v in terms):
-            # each input's parts independent with equal variance: C00 = C11, C01 = C10 = 0
-            total = np.zeros(zx.shape)
-            for g, v in terms:
-                total += _sandwich(g, v)[0]
+        return assemble_quiet(zx, terms)
+
+
+def assemble_quiet(zx: np.ndarray, terms) -> np.ndarray:
+    """:func:`assemble` inside the caller's ``np.errstate`` (ignoring invalid and overflow)."""
+    out = np.zeros(zx.shape + (2, 2))
+    if all(not isinstance(v, tuple) for _, v in terms):
+        # each input's parts independent with equal variance: C00 = C11, C01 = C10 = 0; the
+        # first term starts the total (0 + x is x: a variance is never -0.0)
+        total = None
+        for g, v in terms:
+            d = _sandwich(g, v)[0]
+            if total is None:
+                total = (
+                    d if isinstance(d, np.ndarray) and d.shape == zx.shape else d + out[..., 0, 0]
+                )
+            else:
+                total += d
+        if total is not None:
             out[..., 0, 0] = total
             out[..., 1, 1] = total
-        else:
-            for g, v in terms:
-                c00, c01, c10, c11 = _sandwich(g, v)
-                out[..., 0, 0] += c00
-                out[..., 1, 1] += c11
-                if isinstance(v, tuple):
-                    out[..., 0, 1] += c01
-                    out[..., 1, 0] += c10
+    else:
+        for g, v in terms:
+            c00, c01, c10, c11 = _sandwich(g, v)
+            out[..., 0, 0] += c00
+            out[..., 1, 1] += c11
+            if isinstance(v, tuple):
+                out[..., 0, 1] += c01
+                out[..., 1, 0] += c10
     finite = np.isfinite(zx)
     if not finite.all():
         out[~finite] = np.nan

@@ -121,12 +121,19 @@ def quantity_uncertainty(
     if unknown:
         raise InputError(f"unknown quantity {unknown[0]!r}; known: {', '.join(KEYS)}")
     w = 2.0 * np.pi * f
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        return spread_at(w, z, cov, tuple(names), k)
+
+
+def spread_at(w, z, cov, names: tuple[str, ...], k: float = COVERAGE_FACTOR):
+    """:func:`quantity_uncertainty` for checked inputs: ``w = 2·π·f``, ``z`` and ``cov`` of
+    matching shapes, ``names`` all in :data:`acquire.impedance.KEYS`; the caller ignores
+    division, invalid and overflow in an ``np.errstate`` of its own."""
     c00, c01, c11 = cov[..., 0, 0], cov[..., 0, 1], cov[..., 1, 1]
     out = {}
-    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
-        shared = _Shared(w, z.real, z.imag)
-        for name in names:
-            g0, g1 = _GRADIENTS[name](shared)
-            var = g0 * g0 * c00 + 2 * g0 * g1 * c01 + g1 * g1 * c11
-            out[name] = k * np.sqrt(var)
+    shared = _Shared(w, z.real, z.imag)
+    for name in names:
+        g0, g1 = _GRADIENTS[name](shared)
+        var = g0 * g0 * c00 + 2 * g0 * g1 * c01 + g1 * g1 * c11
+        out[name] = k * np.sqrt(var)
     return out

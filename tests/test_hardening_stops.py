@@ -327,7 +327,7 @@ def test_a_repeated_batch_after_a_lost_answer_is_stored_once(tmp_path):
         f = np.array([1e3, 2e3, 3e3, 4e3])
         z = np.array([1 + 1j, 2 + 2j, 3 + 3j, 4 + 4j])
         writer.add_points(f[:2], z[:2])
-        writer._points = 0  # as if the answer to that commit never arrived
+        writer._count = 0  # as if the answer to that commit never arrived
         writer.add_points(f, z)
         assert writer.points == 4
         points = store.sweep_points(writer.id)

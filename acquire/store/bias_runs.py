@@ -28,6 +28,7 @@ from acquire.bias.records import BiasCurve, BiasSettings, BiasSweepResult
 from acquire.bias.saturation import DropCurrent
 from acquire.errors import StoreError
 from acquire.store.engine import Database
+from acquire.store.records import ReportedRun
 from acquire.store.run_rows import (
     RunWriter,
     check_end,
@@ -49,7 +50,7 @@ POINT_COLUMNS = (
 
 
 @dataclass(frozen=True)
-class BiasSweepInfo:
+class BiasSweepInfo(ReportedRun):
     """A stored bias sweep without its points (``Store.load_bias_sweep`` gives them).
 
     ``status`` is as reported: a sweep whose writer died says ``running`` in the database
@@ -71,10 +72,6 @@ class BiasSweepInfo:
     started_at: datetime
     finished_at: datetime | None
     recorded_status: str
-
-    @property
-    def abandoned(self) -> bool:
-        return self.recorded_status == "running" and self.status == "interrupted"
 
 
 def begin_bias_sweep(db: Database, settings: BiasSettings) -> BiasSweepWriter:

@@ -248,8 +248,21 @@ class ReferenceSetInfo:
     saved_at: datetime | None = None
 
 
+class ReportedRun:
+    """A stored run as the store reports it: ``status`` may say ``interrupted`` where the
+    database still holds ``running`` (``recorded_status``) because its writer is gone."""
+
+    status: str
+    recorded_status: str
+
+    @property
+    def abandoned(self) -> bool:
+        """The writer died without finishing the run (found by the store, not recorded)."""
+        return self.recorded_status == "running" and self.status == "interrupted"
+
+
 @dataclass(frozen=True)
-class SweepInfo:
+class SweepInfo(ReportedRun):
     """A stored sweep, without its points (see ``Store.sweep_points``).
 
     ``status`` is ``"complete"``, ``"interrupted"`` or ``"running"``. A sweep whose writer died
@@ -273,7 +286,3 @@ class SweepInfo:
     recorded_status: str
     last_write_at: datetime | None
     writer: str
-
-    @property
-    def abandoned(self) -> bool:
-        return self.recorded_status == "running" and self.status == "interrupted"

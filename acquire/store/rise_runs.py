@@ -24,6 +24,7 @@ from sqlalchemy import Connection, select, update
 from acquire.bias.records import RiseResult, RiseSettings
 from acquire.errors import StoreError
 from acquire.store.engine import Database
+from acquire.store.records import ReportedRun
 from acquire.store.run_rows import (
     RunWriter,
     check_end,
@@ -41,7 +42,7 @@ READING_COLUMNS = ("elapsed", "resistance", "rise")
 
 
 @dataclass(frozen=True)
-class RiseRunInfo:
+class RiseRunInfo(ReportedRun):
     """A stored temperature-rise run without its readings (``Store.load_rise_run`` gives them).
 
     ``current`` is the current held (the one asked for while the run has not finished),
@@ -65,10 +66,6 @@ class RiseRunInfo:
     started_at: datetime
     finished_at: datetime | None
     recorded_status: str
-
-    @property
-    def abandoned(self) -> bool:
-        return self.recorded_status == "running" and self.status == "interrupted"
 
 
 def begin_rise_run(db: Database, settings: RiseSettings) -> RiseWriter:

@@ -30,7 +30,6 @@ import socket
 from collections.abc import Sequence
 from datetime import datetime
 from functools import partial
-from types import TracebackType
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
@@ -41,6 +40,7 @@ from acquire.store.abandoned import close_dead_writers as close_dead_writers
 from acquire.store.abandoned import rows_changed, writer_gone
 from acquire.store.engine import Database, to_json
 from acquire.store.records import SweepInfo
+from acquire.store.run_rows import RunWriter
 from acquire.store.schema import SWEEP_STATES, TABLES, utc_now
 from acquire.store.sweep_batch import POINT_COLUMNS as POINT_COLUMNS
 from acquire.store.sweep_batch import (
@@ -100,25 +100,14 @@ def begin_sweep(
     return SweepWriter(db, sweep_id)
 
 
-class SweepWriter:
+class SweepWriter(RunWriter):
     """Streams the points of one sweep into the store; finish it, or use it as a context manager
     (a normal exit finishes it ``complete``, an exception ``interrupted``)."""
-
-    def __init__(self, db: Database, sweep_id: int) -> None:
-        self._db = db
-        self._id = sweep_id
-        self._points = 0
-        self._finished: str | None = None
-
-    @property
-    def id(self) -> int:
-        """The sweep's id in the store."""
-        return self._id
 
     @property
     def points(self) -> int:
         """How many points this writer has stored."""
-        return self._points
+        return self._count
 
     @property
     def finished(self) -> str | None:
@@ -158,7 +147,7 @@ class SweepWriter:
         marks = check_flags(flags, f.size)
         if f.size == 0:
             return
-        start, count = self._points, f.size
+        start, count = self._count, f.size
         rows = point_rows(self._id, start, f, raw, cor, u, marks)
         sweep_id = self._id
 
@@ -193,7 +182,7 @@ class SweepWriter:
                 conn.exec_driver_sql(insert, new)
             return have + len(new)
 
-        self._points = self._db.write("storing sweep points", work, idempotent=True)
+        self._count = self._db.write("storing sweep points", work, idempotent=True)
 
     def finish(self, status: str = "complete", note: str = "") -> None:
         """Mark the sweep ``complete`` or ``interrupted`` (with an optional note)."""
@@ -219,23 +208,8 @@ class SweepWriter:
             raise SweepNotRunning(f"sweep {self._id} was no longer running in the store")
         self._finished = status
 
-    def __enter__(self) -> SweepWriter:
-        return self
-
-    def __exit__(
-        self,
-        kind: type[BaseException] | None,
-        exc: BaseException | None,
-        tb: TracebackType | None,
-    ) -> None:
-        if self._finished is not None:
-            return
-        if exc is None:
-            self.finish("complete")
-        else:
-            name = type(exc).__name__
-            reason = f"{name}: {exc}" if str(exc) else name
-            self.finish("interrupted", note=f"stopped by {reason}")
+    def _end(self, status: str, note: str) -> None:
+        self.finish(status, note=note)
 
 
 def _sweep_info(row: Any, now: datetime, stale_after: float) -> SweepInfo:

@@ -138,21 +138,6 @@ def measure_rise(
     return RiseOutcome(result, error)
 
 
-def run_temperature_rise(
-    meter: Any,
-    supply: Any,
-    settings: RiseSettings,
-    writer: RiseWriter | None = None,
-    on_reading: Callable[[RiseReading], None] | None = None,
-    clock: Callable[[], float] = time.monotonic,
-    **options: Any,
-) -> RiseResult:
-    """:func:`measure_rise`, its result only (``status`` and ``note`` say how it ended)."""
-    return measure_rise(
-        meter, supply, settings, writer=writer, on_reading=on_reading, clock=clock, **options
-    ).result
-
-
 def _search(
     meter: Any,
     held: Energised,

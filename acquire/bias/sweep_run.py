@@ -132,19 +132,6 @@ def sweep_bias(
     return BiasSweepOutcome(result, error)
 
 
-def run_bias_sweep(
-    meter: Any,
-    supply: Any,
-    settings: BiasSettings,
-    references: Any = None,
-    writer: BiasSweepWriter | None = None,
-    on_point: Callable[[BiasPoint], None] | None = None,
-    repeats: int = 1,
-) -> BiasSweepResult:
-    """:func:`sweep_bias`, its result only (``status`` and ``note`` say how it ended)."""
-    return sweep_bias(meter, supply, settings, references, writer, on_point, repeats).result
-
-
 def _measure(
     meter: Any, frequency: float, references: Any, repeats: int
 ) -> tuple[complex, complex | None, float, float, float]:

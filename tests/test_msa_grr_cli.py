@@ -71,6 +71,13 @@ def test_cli_refusal_is_one_line(tmp_path: Path, capsys) -> None:
     assert err.startswith("acquire grr: error: unbalanced study") and "\n" not in err
 
 
+def test_a_missing_file_says_what_to_give(tmp_path: Path, capsys) -> None:
+    assert main(["grr", "analyse", str(tmp_path / "missing.csv")]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "missing.csv: no such file; give a CSV with the columns part,operator,trial,value" in err
+    assert "Errno" not in err and "\n" not in err
+
+
 def test_cli_text_keeps_hostile_names_as_text(tmp_path: Path, capsys) -> None:
     path = write_study(tmp_path / "s.csv")
     assert main(["grr", "analyse", str(path), "--tolerance", "20uH"]) == 0

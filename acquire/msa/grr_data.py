@@ -61,6 +61,13 @@ def read_grr_csv(path: str | Path) -> GrrData:
         text = p.read_text(encoding="utf-8-sig")
     except UnicodeDecodeError:
         raise InputError(f"{path}: not a UTF-8 text file") from None
+    except FileNotFoundError:
+        raise InputError(
+            f"{path}: no such file; give a CSV with the columns part,operator,trial,value, or "
+            "a stored study's number (`acquire grr analyse 3`)"
+        ) from None
+    except OSError as exc:
+        raise InputError(f"{path}: cannot be read ({exc.strerror}); check the path") from None
     quantity = ""
     lines = []
     for line in text.splitlines():

@@ -187,6 +187,24 @@ def _check_guard(store, plan):
     return CheckGuard(lambda: store.check_summary(name), plan.check_standard.max_age)
 
 
+def _store_watchers(store) -> list:
+    """Watchers that keep this station's state in the store, for the line overview page."""
+    return []
+
+
+def _publish_watchers(args: argparse.Namespace, store) -> list:
+    """Watchers that publish this station's state and units (--publish)."""
+    return []
+
+
+def _state_of(station, facts):
+    """How the station's shown status becomes the state its watchers are told."""
+    from acquire.production.check_guard import guard_blocks
+    from acquire.production.station_watch import describe
+
+    return lambda status: describe(status, facts, station.blocks, guard_blocks(station.check))
+
+
 def run(args: argparse.Namespace) -> int:
     from contextlib import ExitStack
 
@@ -197,7 +215,9 @@ def run(args: argparse.Namespace) -> int:
     from acquire.production.reference_guard import newest_for_fixture
     from acquire.production.screen import StationScreen
     from acquire.production.station import Station, StationContext
+    from acquire.production.station_watch import StationFacts, WatchedScreen
     from acquire.store import open_store
+    from acquire.store.schema import utc_now
     from acquire.sweep_setup import find_reference_set
     from drivers.bias import CurrentSource
     from drivers.meter import ImpedanceMeter
@@ -256,19 +276,30 @@ def run(args: argparse.Namespace) -> int:
                 unattended=args.unattended,
             )
             store.record_lot(lot)
-            screen = StationScreen(console, interactive=interactive, bell=not args.no_bell)
+            facts = StationFacts(
+                plan_hash=plan.hash, meter=str(identity), fixture=plan.fixture,
+                started_at=utc_now(),
+            )  # fmt: skip
+            watchers = _store_watchers(store) + _publish_watchers(args, store)
+            shown = StationScreen(console, interactive=interactive, bell=not args.no_bell)
+            screen = WatchedScreen(shown, lambda status: station_state(status), watchers)
             station = Station(
                 meter, context, keeper, screen, references, reload,
                 history=lambda serial: [u.outcome for u in store.unit_attempts(serial)],
                 check=_check_guard(store, plan),
             )  # fmt: skip
+            station_state = _state_of(station, facts)
             earlier = store.lot_units(lot)
             earlier = earlier[earlier.station == station_name]
             if station.resume(earlier.itertuples()):
                 station.message = (
                     f"lot {lot} goes on: {len(earlier)} attempts already recorded at this station"
                 )
-            final = station.run(interactive)
+            try:
+                final = station.run(interactive)
+            finally:
+                ended = station.status()
+                screen.end(ended, ended.message or "session ended")
         if interactive:
             console.print()  # the summary starts below the prompt line it ended on
         if keeper.waiting:

@@ -25,6 +25,7 @@ from acquire.store import (
 from acquire.store.engine import Database
 from acquire.store.lot_query import LotFilter, OutcomeCounts
 from acquire.store.migrate import ensure_schema, stored_revision
+from acquire.store.publishing import PublishOutbox
 from acquire.store.records import (
     FixtureInfo,
     LotInfo,
@@ -136,7 +137,7 @@ def _has_store_tables(path: Path) -> bool:
     return bool(names)
 
 
-class Store:
+class Store(PublishOutbox):
     """Meters, fixtures, reference sets, sweeps, plans, lots and units in one database.
 
     Make one with :func:`open_store`. Every method is one transaction (a sweep's points, one per

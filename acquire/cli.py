@@ -41,6 +41,7 @@ COMMANDS: dict[str, str] = {
     "report": "report",
     "grr": "grr",
     "verify": "verify",
+    "publish": "publish",
 }
 
 DESCRIPTION = """\

@@ -30,3 +30,7 @@ class ModelError(AcquireError):
 
 class BiasError(AcquireError):
     """A DC-bias measurement cannot be done as asked (a bias above a limit, a curve unusable)."""
+
+
+class PublishError(AcquireError):
+    """Results cannot be published: a malformed broker URL, or a broker that cannot be reached."""

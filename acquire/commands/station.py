@@ -42,6 +42,7 @@ import os
 import sys
 
 from acquire.commands.options import add_dialect, add_resource, add_store
+from acquire.commands.publish_options import add_publish
 
 #: Seconds the station keeps trying to write waiting units to the store when a session ends.
 FINAL_PATIENCE = 15.0
@@ -53,6 +54,7 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
     add_resource(parser)
     add_dialect(parser)
     add_store(parser)
+    add_publish(parser)
     parser.add_argument("--plan", required=True, help="test plan file (TOML)")
     parser.add_argument("--lot", required=True, help="lot (batch) the units belong to")
     parser.add_argument("--operator", required=True, help="who is testing")
@@ -194,7 +196,10 @@ def _store_watchers(store) -> list:
 
 def _publish_watchers(args: argparse.Namespace, store) -> list:
     """Watchers that publish this station's state and units (--publish)."""
-    return []
+    from acquire.commands.publish_options import publisher
+
+    found = publisher(args.publish, args.line, args.store, _name(args.station or "", "--station"))
+    return [] if found is None else [found]
 
 
 def _state_of(station, facts):
@@ -280,7 +285,8 @@ def run(args: argparse.Namespace) -> int:
                 plan_hash=plan.hash, meter=str(identity), fixture=plan.fixture,
                 started_at=utc_now(),
             )  # fmt: skip
-            watchers = _store_watchers(store) + _publish_watchers(args, store)
+            publishers = _publish_watchers(args, store)
+            watchers = _store_watchers(store) + publishers
             shown = StationScreen(console, interactive=interactive, bell=not args.no_bell)
             screen = WatchedScreen(shown, lambda status: station_state(status), watchers)
             station = Station(
@@ -317,4 +323,6 @@ def run(args: argparse.Namespace) -> int:
                 "time the station starts with the store reachable",
                 soft_wrap=True,
             )
+        for note in filter(None, (p.farewell() for p in publishers)):
+            console.print(note, soft_wrap=True, markup=False)
     return 2 if final.blocked and not final.tested else 0

@@ -71,9 +71,17 @@ def _contexts(conn: Connection, ids: list[int]) -> dict[int, UnitContext]:
     f, r = TABLES["fixtures"], TABLES["reference_sets"]
     query = (
         select(
-            u.c.id, u.c.reference_set_id, p.c.name.label("plan_name"), p.c.hash,
-            m.c.id.label("meter_id"), m.c.manufacturer, m.c.model, m.c.serial, m.c.firmware,
-            f.c.name.label("fixture"), r.c.name.label("reference_set"),
+            u.c.id,
+            u.c.reference_set_id,
+            p.c.name.label("plan_name"),
+            p.c.hash,
+            m.c.id.label("meter_id"),
+            m.c.manufacturer,
+            m.c.model,
+            m.c.serial,
+            m.c.firmware,
+            f.c.name.label("fixture"),
+            r.c.name.label("reference_set"),
         )  # fmt: skip
         .outerjoin(p, p.c.id == u.c.plan_id)
         .outerjoin(m, m.c.id == u.c.meter_id)

@@ -87,6 +87,8 @@ class DemoRun:
     state: SweepState | None = None
     outcome: SweepOutcome | None = None
     notes: list[str] = field(default_factory=list)
+    #: (broker URL, line) to publish the production lot to (--publish), or None.
+    publish: tuple[str, str] | None = None
 
 
 def _plan(run: DemoRun) -> FrequencyPlan:
@@ -284,12 +286,14 @@ def run_demo(
     measure_time: float | None = None,
     seed: int = 0,
     steps: list[Callable[[DemoRun], None]] | None = None,
+    publish: tuple[str, str] | None = None,
 ) -> DemoRun:
     """Run every step of ``steps`` (default :data:`STEPS`) against a simulator started for the
     occasion.
 
     ``measure_time`` is the simulated seconds per point; by default :data:`MEASURE_TIME` with the
     live view (so there is something to watch) and 0 without it (scripts want it quick).
+    ``publish`` is (MQTT broker URL, line) to publish the production lot to.
     """
     if measure_time is None:
         measure_time = MEASURE_TIME if live else 0.0
@@ -298,6 +302,7 @@ def run_demo(
     from drivers.simulator import running
 
     run = DemoRun(console=console or Console(), store_url=store_url, live=live, points=points)
+    run.publish = publish
     with (
         running(dut="open", fixture=run.fixture, seed=seed, measure_time=measure_time) as sim,
         ImpedanceMeter.open(sim.resource, dialect="simulated") as meter,

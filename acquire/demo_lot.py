@@ -64,6 +64,9 @@ def production_lot(run: Any) -> None:
         temperature=plan.temperature.value,
     )
     screen = StationScreen(console, interactive=False, bell=False)  # plain lines, no bell
+    publisher = _publisher(run, context.station)
+    if publisher is not None:
+        screen = _watched(screen, publisher, plan, str(ident), lambda: station)
     with Outbox(default_outbox_path(run.store_url, context.station)) as outbox:
         keeper = RecordKeeper(store, outbox)
         station = Station(
@@ -80,8 +83,43 @@ def production_lot(run: Any) -> None:
                 if shown is not None and shown.outcome == "error":
                     console.print(f"(demo) the operator scans {serial} again to retry")
                     station.test(serial)
+        if publisher is not None:
+            screen.end(station.status(), "end of the demo lot")
+            console.print(publisher.farewell() or _published(publisher), markup=False)
         console.print(screen.summary(station.status()))
     lot_report(console, store)
+
+
+def _publisher(run: Any, station: str) -> Any:
+    """The lot's MQTT publisher (``run.publish``: URL and line), or None."""
+    if run.publish is None:
+        return None
+    from acquire.publish.publisher import start_publisher
+
+    url, line = run.publish
+    publisher = start_publisher(url, line, run.store_url, station)
+    run.console.print(
+        f"publishing the lot's units and the station's status to {publisher.target.shown} "
+        f"({publisher.topics.unit}, {publisher.topics.status})",
+        markup=False,
+        soft_wrap=True,
+    )
+    return publisher
+
+
+def _watched(screen: Any, publisher: Any, plan: Any, meter: str, station: Any) -> Any:
+    """``screen`` telling ``publisher`` every status it shows (as `acquire station` does)."""
+    from acquire.production.station_watch import StationFacts, WatchedScreen, describe
+    from acquire.store.schema import utc_now
+
+    facts = StationFacts(plan.hash, meter, plan.fixture, utc_now())
+    return WatchedScreen(
+        screen, lambda status: describe(status, facts, station().blocks, []), [publisher]
+    )
+
+
+def _published(publisher: Any) -> str:
+    return f"{publisher.sent} units published to {publisher.target.shown}"
 
 
 def lot_report(console: Console, store: Any) -> None:

@@ -18,6 +18,8 @@ from __future__ import annotations
 import argparse
 import os
 
+from acquire.commands.publish_options import add_publish
+
 HELP = "run a complete characterisation on the built-in simulated meter (no hardware)"
 
 DEFAULT_STORE = "sqlite:///acquire-demo.db"
@@ -36,16 +38,24 @@ def add_arguments(parser: argparse.ArgumentParser) -> None:
         "--points", type=int, default=201, help="frequencies in the 100 Hz to 10 MHz sweep"
     )
     parser.add_argument("--seed", type=int, default=0, help="seed of the simulated noise")
+    add_publish(parser)
 
 
 def run(args: argparse.Namespace) -> int:
+    from acquire.commands.publish_options import line_name
     from acquire.demo import run_demo
     from acquire.errors import InputError
+    from acquire.publish.target import parse_publish_url
     from drivers.simulator import LIST_MAX
 
     if not 2 <= args.points <= LIST_MAX:
         raise InputError(f"--points must be between 2 and {LIST_MAX} (the simulated meter's list)")
-    result = run_demo(args.store, live=not args.no_live, points=args.points, seed=args.seed)
+    if args.publish:
+        parse_publish_url(args.publish)  # a bad URL is refused before anything is measured
+    publish = (args.publish, line_name(args.line)) if args.publish else None
+    result = run_demo(
+        args.store, live=not args.no_live, points=args.points, seed=args.seed, publish=publish
+    )
     if result.outcome is None:
         return 2
     if result.outcome.interrupted:

@@ -37,18 +37,10 @@ def line_name(text: str) -> str:
 
 
 def publisher(url: str | None, line: str, store_url: str, station: str) -> Any:
-    """A started :class:`~acquire.publish.publisher.Publisher` of ``station``'s units in the
-    store at ``store_url`` (None without ``url``); a bad URL or name raises InputError."""
+    """A started publisher of ``station``'s units (None without ``url``): see
+    :func:`acquire.publish.publisher.start_publisher`."""
     if not url:
         return None
-    from acquire.errors import InputError
-    from acquire.publish.publisher import Publisher
-    from acquire.publish.target import parse_publish_url
-    from acquire.store import open_store
-    from acquire.store.url import parse_store_url
+    from acquire.publish.publisher import start_publisher
 
-    target = parse_publish_url(url)
-    location = parse_store_url(store_url)
-    if location.engine == "sqlite" and location.path is None:
-        raise InputError("--publish needs a store in a file or a database, not in memory")
-    return Publisher(target, store_url, line_name(line), station, open_store)
+    return start_publisher(url, line_name(line), store_url, station)

@@ -72,6 +72,10 @@ class Publisher:
     def topics(self) -> StationTopics:
         return self._topics
 
+    @property
+    def target(self) -> PublishTarget:
+        return self._target
+
     def changed(self, state: StationState) -> None:
         with self._lock:
             self._state = state
@@ -172,3 +176,18 @@ class Publisher:
             f"{self._target.shown}{why}: they go out the next time a station or `acquire "
             "publish` runs with --publish"
         )
+
+
+def start_publisher(url: str, line: str, store_url: str, station: str) -> Publisher:
+    """A started :class:`Publisher` of ``station``'s units in the store at ``store_url`` to the
+    broker at ``url``; a bad URL, name or in-memory store raises InputError."""
+    from acquire.errors import InputError
+    from acquire.publish.target import parse_publish_url
+    from acquire.store import open_store
+    from acquire.store.url import parse_store_url
+
+    target = parse_publish_url(url)
+    location = parse_store_url(store_url)
+    if location.engine == "sqlite" and location.path is None:
+        raise InputError("--publish needs a store in a file or a database, not in memory")
+    return Publisher(target, store_url, line, station, open_store)

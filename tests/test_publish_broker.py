@@ -1,0 +1,151 @@
+"""Publishing to the real Mosquitto on 127.0.0.1:1883: `acquire publish` sends what waits, in
+the store's order, and nothing twice; the station's retained status reaches a late subscriber;
+the will says "stopped"; hostile names stay unchanged in the JSON and one level in the topics.
+Each test publishes under a topic prefix of its own. The messages are checked with the
+``jsonschema`` library against the shipped schema, topics with paho-mqtt's matcher."""
+
+from __future__ import annotations
+
+import json
+import time
+from dataclasses import replace
+from datetime import UTC, datetime
+
+import pytest
+from jsonschema import Draft202012Validator
+from mqtt_support import PORT, Listener, free_port, require_broker, unique_prefix, unit_schema
+from paho.mqtt.client import topic_matches_sub
+from store_support import synthetic_unit
+
+from acquire.cli import main
+from acquire.production.station_watch import RUNNING, STOPPED, StationState
+from acquire.publish.link import Link
+from acquire.publish.message import encode, lost_message
+from acquire.publish.publisher import Publisher
+from acquire.publish.sending import client_id
+from acquire.publish.target import StationTopics, parse_publish_url
+from acquire.store import open_store
+
+HOSTILE_STATION = "<b>st</b>/+#1"
+HOSTILE_LINE = "line <script>window.pwned=1</script> #2"
+T0 = datetime(2026, 3, 2, 8, 0, tzinfo=UTC)
+
+
+@pytest.fixture
+def broker() -> str:
+    require_broker()
+    return f"mqtt://127.0.0.1:{PORT}/{unique_prefix()}"
+
+
+def check_records(messages: list[dict]) -> None:
+    check = Draft202012Validator(unit_schema(), format_checker=Draft202012Validator.FORMAT_CHECKER)
+    for message in messages:
+        check.validate(message)
+
+
+def stored_units(url: str, count: int, stations: tuple[str, ...]) -> dict[str, list[str]]:
+    """``count`` units spread over ``stations``; each station's attempt ids in store order."""
+    order: dict[str, list[str]] = {s: [] for s in stations}
+    with open_store(url) as store:
+        for i in range(count):
+            station = stations[i % len(stations)]
+            unit = replace(synthetic_unit(i, lot="<i>lot</i>/#"), station=station)
+            store.save_unit(unit)
+            order[station].append(unit.attempt_id)
+    return order
+
+
+def test_acquire_publish_sends_every_waiting_unit_once_in_store_order(broker, tmp_path, capsys):
+    url = f"sqlite:///{tmp_path / 'store.db'}"
+    order = stored_units(url, 12, (HOSTILE_STATION, "st-2"))
+    prefix = parse_publish_url(broker).prefix
+    listener = Listener(PORT, f"{prefix}/#")
+    try:
+        args = ["publish", "--store", url, "--publish", broker, "--line", HOSTILE_LINE]
+        assert main(args) == 0
+        assert "12 units published" in capsys.readouterr().out
+        assert listener.wait_for(lambda s: len(s.received("/unit")) >= 12)
+        for station, ids in order.items():
+            topics = StationTopics.of(parse_publish_url(broker), HOSTILE_LINE, station)
+            got = [json.loads(p) for t, p, _ in listener.received() if t == topics.unit]
+            assert [m["attempt_id"] for m in got] == ids  # all, once each, in store order
+            assert {m["station"] for m in got} == {station}  # names unchanged in the JSON
+            assert {m["lot"] for m in got} == {"<i>lot</i>/#"}
+            assert topic_matches_sub(f"{prefix}/+/+/unit", topics.unit)
+        check_records(listener.units())
+        assert main(args) == 0  # nothing waits: nothing is sent again
+        assert "0 units published" in capsys.readouterr().out
+        time.sleep(0.5)
+        assert len(listener.received("/unit")) == 12
+    finally:
+        listener.close()
+
+
+def test_an_unreachable_broker_fails_the_command_and_keeps_the_units_waiting(tmp_path, capsys):
+    url = f"sqlite:///{tmp_path / 'store.db'}"
+    stored_units(url, 3, ("st-1",))
+    nobody = f"mqtt://127.0.0.1:{free_port()}/x"
+    assert main(["publish", "--store", url, "--publish", nobody]) == 2
+    err = capsys.readouterr().err
+    assert err.count("\n") == 1 and "cannot reach the MQTT broker" in err
+    with open_store(url) as store:
+        assert store.unpublished_count("st-1") == 3
+    assert main(["publish", "--store", url, "--publish", "mqtts://127.0.0.1/x"]) == 2
+    assert "TLS" in capsys.readouterr().err
+
+
+def state(station: str, kind: str, tested: int) -> StationState:
+    return StationState(
+        station, kind, "" if kind == RUNNING else "end of input", "L-7", "plan", "ab" * 32,
+        "ana", "meter", "jig", tested, tested, 0, "", "", T0, datetime.now(UTC),
+    )  # fmt: skip
+
+
+def test_the_publisher_sends_units_and_a_retained_status_a_late_subscriber_reads(
+    broker, tmp_path
+):
+    url = f"sqlite:///{tmp_path / 'store.db'}"
+    target = parse_publish_url(broker)
+    publisher = Publisher(target, url, "line-1", HOSTILE_STATION, open_store)
+    early = Listener(PORT, f"{target.prefix}/#")
+    try:
+        publisher.changed(state(HOSTILE_STATION, RUNNING, 0))
+        order = stored_units(url, 5, (HOSTILE_STATION,))
+        publisher.changed(state(HOSTILE_STATION, RUNNING, 5))
+        assert early.wait_for(lambda s: len(s.received("/unit")) == 5)
+        publisher.changed(state(HOSTILE_STATION, STOPPED, 5))
+        publisher.close()
+        assert (publisher.left, publisher.sent, publisher.farewell()) == (0, 5, "")
+        assert [m["attempt_id"] for m in early.units()] == order[HOSTILE_STATION]
+    finally:
+        early.close()
+    late = Listener(PORT, publisher.topics.status)
+    try:
+        assert late.wait_for(lambda s: s.received())
+        ((topic, payload, retained),) = late.received()
+        status = json.loads(payload)
+        assert retained and topic == publisher.topics.status
+        assert (status["state"], status["reason"], status["tested"]) == (STOPPED, "end of input", 5)
+        assert (status["station"], status["line"]) == (HOSTILE_STATION, "line-1")
+    finally:
+        late.close()
+
+
+def test_a_connection_that_drops_leaves_the_will_stopped_connection_lost(broker):
+    target = parse_publish_url(broker)
+    topics = StationTopics.of(target, "line-1", "st-9")
+    will = (topics.status, encode(lost_message(state("st-9", RUNNING, 2), "line-1")))
+    link = Link(target, client_id(), will)
+    link.open()
+    assert link.send([(topics.status, encode({"state": RUNNING}), True)], 5.0) == 1
+    link._client.socket().close()  # gone without a DISCONNECT, as a crashed station
+    listener = Listener(PORT, topics.status)
+    try:
+        stopped = lambda s: s.received() and json.loads(s.received()[-1][1])["state"] == STOPPED  # noqa: E731
+        assert listener.wait_for(stopped)
+        status = json.loads(listener.received()[-1][1])
+        assert (status["reason"], status["tested"], status["station"]) == (
+            "connection lost", 2, "st-9",
+        )  # fmt: skip
+    finally:
+        listener.close()

@@ -16,6 +16,7 @@ import os
 import shutil
 import socket
 import subprocess
+import tempfile
 import threading
 import time
 import uuid
@@ -27,9 +28,8 @@ import pytest
 
 HOST, PORT = "127.0.0.1", 1883
 MOSQUITTO = "/usr/sbin/mosquitto"
-SCHEMA_FILE = (
-    Path(__file__).resolve().parents[1] / "acquire" / "publish" / "unit-record.schema.json"
-)
+ROOT = Path(__file__).resolve().parents[1]
+SCHEMA_FILE = ROOT / "acquire" / "publish" / "unit-record.schema.json"
 
 
 def in_ci() -> bool:
@@ -137,10 +137,14 @@ class PrivateBroker:
             pytest.skip(f"{MOSQUITTO} is missing (Debian package mosquitto)")
         self.port = free_port()
         self.folder = folder
+        # Started as root, Mosquitto runs as its own user: its sessions go to a folder that user
+        # can reach and write (pytest's folders are private to the test's user).
+        self.kept = Path(tempfile.mkdtemp(prefix="acquire-mqtt-"))
+        self.kept.chmod(0o777)
         self.config = folder / "mosquitto.conf"
         self.config.write_text(
             f"listener {self.port} {HOST}\nallow_anonymous true\npersistence true\n"
-            f"persistence_location {folder}/\nautosave_interval 1\n",
+            f"persistence_location {self.kept}/\nautosave_interval 1\n",
             encoding="utf-8",
         )
         self.proc: subprocess.Popen[bytes] | None = None
@@ -169,4 +173,4 @@ class PrivateBroker:
 
     def __exit__(self, *exc: object) -> None:
         self.stop()
-        shutil.rmtree(self.folder / "mosquitto.db", ignore_errors=True)
+        shutil.rmtree(self.kept, ignore_errors=True)

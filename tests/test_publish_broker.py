@@ -101,9 +101,7 @@ def state(station: str, kind: str, tested: int) -> StationState:
     )  # fmt: skip
 
 
-def test_the_publisher_sends_units_and_a_retained_status_a_late_subscriber_reads(
-    broker, tmp_path
-):
+def test_the_publisher_sends_units_and_a_retained_status_a_late_subscriber_reads(broker, tmp_path):
     url = f"sqlite:///{tmp_path / 'store.db'}"
     target = parse_publish_url(broker)
     publisher = Publisher(target, url, "line-1", HOSTILE_STATION, open_store)

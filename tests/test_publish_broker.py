@@ -6,6 +6,7 @@ Each test publishes under a topic prefix of its own. The messages are checked wi
 
 from __future__ import annotations
 
+import io
 import json
 import time
 from dataclasses import replace
@@ -15,9 +16,12 @@ import pytest
 from jsonschema import Draft202012Validator
 from mqtt_support import PORT, Listener, free_port, require_broker, unique_prefix, unit_schema
 from paho.mqtt.client import topic_matches_sub
+from rich.console import Console
 from store_support import synthetic_unit
 
 from acquire.cli import main
+from acquire.demo import capture, introduce, run_demo, sweep
+from acquire.demo_lot import production_lot
 from acquire.production.station_watch import RUNNING, STOPPED, StationState
 from acquire.publish.link import Link
 from acquire.publish.message import encode, lost_message
@@ -147,3 +151,31 @@ def test_a_connection_that_drops_leaves_the_will_stopped_connection_lost(broker)
         )  # fmt: skip
     finally:
         listener.close()
+
+
+def test_the_demo_publishes_its_whole_lot(broker, tmp_path):
+    url = f"sqlite:///{tmp_path / 'demo.db'}"
+    prefix = parse_publish_url(broker).prefix
+    listener = Listener(PORT, f"{prefix}/#")
+    try:
+        console = Console(file=io.StringIO(), width=200)
+        steps = [introduce, capture, sweep, production_lot]  # the lot, not the report's pictures
+        run_demo(url, live=False, console=console, points=21, steps=steps, publish=(broker, "line"))
+        with open_store(url) as store:
+            ids = list(store.lot_units("DEMO-LOT-1").attempt_id)
+        assert len(ids) == 31  # 30 serials, one retested after a meter fault
+        assert listener.wait_for(lambda s: len(s.units()) >= len(ids), 10)
+        assert [m["attempt_id"] for m in listener.units()] == ids
+        check_records(listener.units())
+        status = json.loads(listener.received("/status")[-1][1])
+        assert (status["state"], status["tested"], status["line"]) == (STOPPED, 30, "line")
+        assert "31 units published" in console.file.getvalue()
+    finally:
+        listener.close()
+
+
+def test_a_bad_publish_url_stops_the_demo_before_it_measures(tmp_path, capsys):
+    db = tmp_path / "demo.db"
+    assert main(["demo", "--no-live", "--store", f"sqlite:///{db}", "--publish", "mqtt://h"]) == 2
+    assert "no topic prefix" in capsys.readouterr().err
+    assert not db.exists()

@@ -63,7 +63,8 @@ def production_lot(run: Any) -> None:
         fixture_id=store.record_fixture(plan.fixture) if plan.fixture else None,
         temperature=plan.temperature.value,
     )
-    screen = StationScreen(console, interactive=False, bell=False)  # plain lines, no bell
+    screen: Any = StationScreen(console, interactive=False, bell=False)  # plain lines, no bell
+    station: Station  # made below; the publisher's states read its blocks
     publisher = _publisher(run, context.station)
     if publisher is not None:
         screen = _watched(screen, publisher, plan, str(ident), lambda: station)

@@ -85,6 +85,18 @@ def test_acquire_publish_sends_every_waiting_unit_once_in_store_order(broker, tm
         listener.close()
 
 
+def test_a_bad_publish_url_stops_the_station_before_any_unit(sim, tmp_path, capsys):
+    from acquire.production.plan_file import example_plan_path
+
+    args = ["station", "--resource", sim.resource, "--store", f"sqlite:///{tmp_path / 's.db'}",
+            "--plan", str(example_plan_path()), "--lot", "L", "--operator", "kim",
+            "--station", "st-1", "--outbox", str(tmp_path / "outbox.db")]  # fmt: skip
+    assert main([*args, "--publish", "mqtt://127.0.0.1/a/#"]) == 2
+    assert "--publish 'mqtt://127.0.0.1/a/#'" in capsys.readouterr().err
+    with open_store(f"sqlite:///{tmp_path / 's.db'}") as store:
+        assert store.list_lots() == []
+
+
 def test_an_unreachable_broker_fails_the_command_and_keeps_the_units_waiting(tmp_path, capsys):
     url = f"sqlite:///{tmp_path / 'store.db'}"
     stored_units(url, 3, ("st-1",))
@@ -111,12 +123,17 @@ def test_the_publisher_sends_units_and_a_retained_status_a_late_subscriber_reads
     publisher = Publisher(target, url, "line-1", HOSTILE_STATION, open_store)
     early = Listener(PORT, f"{target.prefix}/#")
     try:
+        started = time.monotonic()
         publisher.changed(state(HOSTILE_STATION, RUNNING, 0))
         order = stored_units(url, 5, (HOSTILE_STATION,))
-        publisher.changed(state(HOSTILE_STATION, RUNNING, 5))
+        for tested in range(1, 51):  # a burst of states: at most one status a second goes out
+            publisher.changed(state(HOSTILE_STATION, RUNNING, tested))
         assert early.wait_for(lambda s: len(s.received("/unit")) == 5)
         publisher.changed(state(HOSTILE_STATION, STOPPED, 5))
         publisher.close()
+        statuses = [json.loads(p) for _, p, _ in early.received("/status")]
+        assert statuses[-1]["state"] == STOPPED  # the final one is never held back
+        assert len(statuses) <= time.monotonic() - started + 2
         assert (publisher.left, publisher.sent, publisher.farewell()) == (0, 5, "")
         assert [m["attempt_id"] for m in early.units()] == order[HOSTILE_STATION]
     finally:

@@ -178,6 +178,8 @@ def test_publish_urls():
         ("mqtt://h/", "no topic prefix"),
         ("mqtt://h/a/+/b", "without '+'"),
         ("mqtt://h/a#b", "no '?' or '#'"),
+        ("mqtt://h/a/#", "no '?' or '#'"),  # a wildcard, not an empty fragment to drop
+        ("mqtt://h/a?", "no '?' or '#'"),
         ("mqtt://h/a//b", "empty levels"),
         ("mqtt://h/$SYS/x", "leading '$'"),
         ("mqtt://h:70000/x", "out of range"),

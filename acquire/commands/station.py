@@ -194,6 +194,16 @@ def _store_watchers(store) -> list:
     return []
 
 
+def _check_publish(args: argparse.Namespace) -> None:
+    """Refuse a bad --publish URL or --line name before the station touches store or meter."""
+    if args.publish:
+        from acquire.commands.publish_options import line_name
+        from acquire.publish.target import parse_publish_url
+
+        parse_publish_url(args.publish)
+        line_name(args.line)
+
+
 def _publish_watchers(args: argparse.Namespace, store) -> list:
     """Watchers that publish this station's state and units (--publish)."""
     from acquire.commands.publish_options import publisher
@@ -230,6 +240,7 @@ def run(args: argparse.Namespace) -> int:
     plan = load_plan(args.plan)
     lot, operator = _name(args.lot, "--lot"), _name(args.operator, "--operator")
     station_name = _name(args.station or "", "--station")
+    _check_publish(args)
     override = _reason(args.use_stale_references)
     interactive = sys.stdin.isatty()
     if not interactive and hasattr(sys.stdin, "reconfigure"):

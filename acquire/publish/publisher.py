@@ -109,7 +109,7 @@ class Publisher:
                     sent, drained = send_waiting(store, link, self._topics, self._station)
                     self.sent += sent
                     pause = RETRY_FIRST
-                except (PublishError, StoreError, OSError) as exc:
+                except (PublishError, StoreError, OSError, ValueError) as exc:
                     self.problem = str(exc)
                     self._wake.wait(pause)
                     self._wake.clear()

@@ -69,7 +69,7 @@ def parse_publish_url(url: str) -> PublishTarget:
         )
     if parts.scheme != "mqtt" or not parts.hostname:
         raise InputError(f"--publish {url!r} is not an MQTT URL: {example}")
-    if parts.query or parts.fragment:
+    if "?" in url or "#" in url:  # urlsplit would drop an empty query or fragment unseen
         raise InputError(f"--publish {url!r}: no '?' or '#' parts are used; {example}")
     prefix = unquote(parts.path).strip("/")
     if not prefix:

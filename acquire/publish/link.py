@@ -23,6 +23,8 @@ from acquire.publish.target import PublishTarget
 KEEPALIVE = 15
 #: Seconds to wait for the TCP connection and for the broker's CONNACK.
 CONNECT_TIMEOUT = 5.0
+#: QoS 1 messages sent before their acknowledgements come back (paho keeps the rest queued).
+IN_FLIGHT = 100
 
 
 class Link:
@@ -40,6 +42,7 @@ class Link:
             reconnect_on_failure=False,
         )
         client.connect_timeout = CONNECT_TIMEOUT
+        client.max_inflight_messages_set(IN_FLIGHT)
         if target.username:
             client.username_pw_set(target.username, target.password)
         if will is not None:

@@ -105,18 +105,19 @@ class Publisher:
                         if link is not None:
                             link.close()
                         link = self._connect()
-                    told = self._tell_status(link)
+                    closing = self._closing_at is not None  # read before the state:
+                    self._tell_status(link)  # the final state comes before close()
                     sent, drained = send_waiting(store, link, self._topics, self._station)
                     self.sent += sent
                     pause = RETRY_FIRST
+                    if closing and drained and self._tell_status(link) and link.alive:
+                        break
                 except (PublishError, StoreError, OSError, ValueError) as exc:
                     self.problem = str(exc)
                     self._wake.wait(pause)
                     self._wake.clear()
                     pause = min(2 * pause, RETRY_LONGEST)
                     continue
-                if self._closing_at is not None and told and drained and link.alive:
-                    break
                 self._rest(link)
         finally:
             self._finish(store, link)

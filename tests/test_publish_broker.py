@@ -197,3 +197,22 @@ def test_a_bad_publish_url_stops_the_demo_before_it_measures(tmp_path, capsys):
     assert main(["demo", "--no-live", "--store", f"sqlite:///{db}", "--publish", "mqtt://h"]) == 2
     assert "no topic prefix" in capsys.readouterr().err
     assert not db.exists()
+
+
+def test_with_the_broker_away_the_units_wait_and_the_farewell_says_how_many(tmp_path, monkeypatch):
+    import acquire.publish.publisher as publishing
+
+    monkeypatch.setattr(publishing, "CLOSE_PATIENCE", 0.5)  # the station would wait 10 s
+    url = f"sqlite:///{tmp_path / 'store.db'}"
+    target = parse_publish_url(f"mqtt://127.0.0.1:{free_port()}/away")
+    publisher = Publisher(target, url, "line-1", "st-1", open_store)
+    publisher.changed(state("st-1", RUNNING, 0))
+    stored_units(url, 4, ("st-1",))
+    publisher.changed(state("st-1", STOPPED, 4))
+    publisher.close()
+    assert (publisher.sent, publisher.left) == (0, 4)
+    note = publisher.farewell()
+    assert note.startswith("4 units of station st-1 wait to be published")
+    assert "cannot reach the MQTT broker" in note and "acquire publish" in note
+    with open_store(url) as store:
+        assert store.publish_position("st-1") == 0

@@ -10,9 +10,8 @@ import pytest
 from sqlalchemy.dialects import sqlite
 
 from acquire.store.columns import UtcDateTime
-from acquire.store.production import serial_key
 from acquire.store.schema import identity_key
-from acquire.store.unit_insert import sqlite_time
+from acquire.store.unit_insert import serial_key, sqlite_time
 
 DIALECT = sqlite.dialect()
 

@@ -15,9 +15,6 @@ from __future__ import annotations
 import math
 from collections.abc import Iterable
 from functools import cache, partial
-from hashlib import sha256
-from json.encoder import encode_basestring
-from operator import attrgetter
 from typing import TYPE_CHECKING, Any
 
 from sqlalchemy import Connection, and_, case, func, select
@@ -30,7 +27,13 @@ from acquire.store.engine import (
 )
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
 from acquire.store.schema import TABLES, identity_key, utc_now
-from acquire.store.unit_insert import UNIT_COLUMNS, insert_postgres, insert_sqlite, process_head
+from acquire.store.unit_insert import (
+    UNIT_COLUMNS,
+    insert_postgres,
+    insert_sqlite,
+    process_head,
+    unit_head,
+)
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -144,33 +147,10 @@ def _new_unit(dialect: str, *returning: str) -> Any:
     return ignoring.returning(*(units.c[name] for name in returning))
 
 
-#: The unit's own fields in :data:`UNIT_COLUMNS` order, read in one call; the three columns
-#: that are not fields of a unit read ``serial`` there and are overwritten (``_unit_head``).
-_HEAD_FIELDS = attrgetter(*(n if n in _UNIT_FIELDS else "serial" for n in UNIT_COLUMNS))
-_SERIAL_KEY, _LOT_ID, _SAVED_AT = (
-    UNIT_COLUMNS.index(n) for n in ("serial_key", "lot_id", "saved_at")
-)
-
-
-def serial_key(serial: str) -> str:
-    """``identity_key(serial)`` written out for one string (the JSON of ``[serial]`` hashed),
-    without ``json.dumps``'s per-call set-up: this runs for every unit stored."""
-    return sha256(f"[{encode_basestring(serial)}]".encode()).hexdigest()
-
-
-def _unit_head(unit: UnitRecord, lot_id: int | None) -> list[Any]:
-    """The values of :func:`_unit_row` as a list in :data:`UNIT_COLUMNS` order."""
-    head = list(_HEAD_FIELDS(unit))
-    head[_SERIAL_KEY] = serial_key(unit.serial)
-    head[_LOT_ID] = lot_id
-    head[_SAVED_AT] = utc_now()
-    return head
-
-
 def unit_parameters(dialect: Any, unit: UnitRecord, lot_id: int | None) -> tuple[list, list]:
     """(unit head, measurement rows) of ``unit`` as :mod:`acquire.store.unit_insert` takes them
     (values bind-processed for ``dialect``)."""
-    head = process_head(dialect, _unit_head(unit, lot_id))
+    head = process_head(dialect, unit_head(unit, lot_id, utc_now()))
     tested = next(head[k] for k in _TESTED_AT if head[k] is not None)
     return head, _measurement_tuples(unit, lot_id, tested)
 

@@ -30,6 +30,9 @@ from __future__ import annotations
 from collections.abc import Callable
 from datetime import UTC, datetime
 from functools import cache
+from hashlib import sha256
+from json.encoder import encode_basestring
+from operator import attrgetter
 from typing import Any
 
 from sqlalchemy import Connection
@@ -41,6 +44,30 @@ from acquire.store.schema import TABLES
 UNIT_COLUMNS = tuple(c.name for c in TABLES["units"].columns if c.name != "id")
 #: The measurement columns written, in the table's order (``unit_id`` first).
 MEASUREMENT_COLUMNS = tuple(c.name for c in TABLES["measurements"].columns)
+
+#: The unit columns that are not fields of the unit record (set by :func:`unit_head`).
+_NOT_FIELDS = ("serial_key", "lot_id", "saved_at")
+#: The unit record's fields in :data:`UNIT_COLUMNS` order, read in one call; the columns of
+#: :data:`_NOT_FIELDS` read ``serial`` there and are overwritten.
+_HEAD_FIELDS = attrgetter(*(n if n not in _NOT_FIELDS else "serial" for n in UNIT_COLUMNS))
+_SERIAL_KEY, _LOT_ID, _SAVED_AT = (UNIT_COLUMNS.index(n) for n in _NOT_FIELDS)
+
+
+def serial_key(serial: str) -> str:
+    """``identity_key(serial)`` written out for one string (the JSON of ``[serial]`` hashed),
+    without ``json.dumps``'s per-call set-up: this runs for every unit stored."""
+    return sha256(f"[{encode_basestring(serial)}]".encode()).hexdigest()
+
+
+def unit_head(unit: Any, lot_id: int | None, saved_at: datetime) -> list[Any]:
+    """A unit record's row as values in :data:`UNIT_COLUMNS` order (before bind processing):
+    its fields, its serial's key, ``lot_id`` and ``saved_at``."""
+    head = list(_HEAD_FIELDS(unit))
+    head[_SERIAL_KEY] = serial_key(unit.serial)
+    head[_LOT_ID] = lot_id
+    head[_SAVED_AT] = saved_at
+    return head
+
 
 _PG_ARRAY_TYPES = {
     "seq": "integer[]",

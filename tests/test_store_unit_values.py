@@ -1,14 +1,20 @@
 """A unit's parameters as the fast insert path prepares them equal those of the libraries the
 store otherwise relies on: times as SQLAlchemy's own SQLite processor writes them (after the
-store's UTC conversion), the serial's key as ``json.dumps`` of ``[serial]`` hashed."""
+store's UTC conversion), the serial's key as ``json.dumps`` of ``[serial]`` hashed. On SQLite
+the unit's transaction, begun and committed on the driver's connection, waits for a locked
+database and then reports it as the store's own error."""
 
 from __future__ import annotations
 
+import sqlite3
 from datetime import UTC, datetime, timedelta, timezone
 
 import pytest
 from sqlalchemy.dialects import sqlite
+from store_support import synthetic_unit
 
+from acquire.errors import StoreError
+from acquire.store import engine, open_store
 from acquire.store.columns import UtcDateTime
 from acquire.store.schema import identity_key
 from acquire.store.unit_insert import serial_key, sqlite_time
@@ -60,3 +66,22 @@ def test_a_time_without_a_zone_is_refused_as_before():
 def test_the_serial_key_is_the_identity_key(serial):
     # identity_key hashes json.dumps([serial], ensure_ascii=False) (Python's json module).
     assert serial_key(serial) == identity_key(serial)
+
+
+def test_a_unit_waits_for_a_locked_database_then_says_it_was_busy(tmp_path, monkeypatch):
+    # SQLite's documented locking (sqlite.org/lang_transaction.html): while one connection
+    # holds a write transaction (BEGIN IMMEDIATE), another's BEGIN IMMEDIATE waits for the busy
+    # timeout, then fails with SQLITE_BUSY ("database is locked").
+    monkeypatch.setattr(engine, "BUSY_TIMEOUT_S", 0.2)
+    path = tmp_path / "store.db"
+    with open_store(f"sqlite:///{path}") as store:
+        other = sqlite3.connect(path, isolation_level=None)
+        other.execute("BEGIN IMMEDIATE")
+        unit = synthetic_unit(1, lot="")  # no lot: the unit's own transaction is the first
+        with pytest.raises(StoreError, match="busy"):
+            store.save_unit(unit)
+        other.execute("ROLLBACK")
+        other.close()
+        assert store.save_unit(unit) is True  # nothing half-begun was left behind
+        assert store.save_unit(unit) is False
+        assert store.load_unit(unit.attempt_id) == unit

@@ -169,7 +169,7 @@ def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool
             lot_cache.update(lots)
         lot_id = lot_cache[unit.lot]
     head, rows = unit_parameters(db.engine.dialect, unit, lot_id)
-    return db.write("saving a unit", lambda c: insert(c, head, rows) is not None, idempotent=True)
+    return db.write_on_driver("saving a unit", lambda c: insert(c, head, rows) is not None)
 
 
 def save_units(

@@ -23,6 +23,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from functools import cache
 from typing import Any
 
 import numpy as np
@@ -126,20 +127,18 @@ class PointUncertainty:
         single reading each)."""
         f = np.asarray(f, dtype=float)
         raw = np.asarray(raw, dtype=complex)
-        settings = self._settings()
+        judged = _judged(self.names)
         corrected = None
         with np.errstate(all="ignore"):
             if references is not None:
-                corrected, cov = self._correct(f, raw, u_m, references, settings)
+                corrected, cov = self._correct(f, raw, u_m, references)
                 if self.accuracy is None and not _all_type_a(references, u_m):
                     cov = np.full(cov.shape, np.nan)
             else:
-                cov = self._raw_cov(f, raw, u_m, settings)
+                cov = self._raw_cov(f, raw, u_m, self._settings())
             z = raw if corrected is None else corrected
             known = np.isfinite(cov)
             judge = cov if known.all() else np.where(known, cov, 0.0)
-            judged = tuple(dict.fromkeys((*self.names, *ALSO_JUDGED)))
-            check_names(judged)
             beyond = judge_points(angular(f), z, judge, judged)
             flags = flags_from(beyond, self.names).astype(object)
             if not np.isfinite(raw).all():
@@ -147,22 +146,33 @@ class PointUncertainty:
                 flags[np.isnan(raw.real) | np.isnan(raw.imag)] = INVALID
         return PointValues(corrected, cov, flags, beyond)
 
-    def _correct(self, f, raw, u_m, references, settings) -> tuple[np.ndarray, np.ndarray]:
+    def _correct(self, f, raw, u_m, references) -> tuple[np.ndarray, np.ndarray]:
         """Corrected readings and their covariance; a reference set is prepared once (its forms,
-        the accuracy's constants) and kept for the sweep's later chunks."""
+        the accuracy's constants, the settings checked) and kept for the sweep's later chunks."""
+        kept = self.__dict__.get("_prepared")
+        if kept is not None and kept.refs is references:
+            return kept.batch(f, raw, u_m)
+        settings = self._settings()
         if not isinstance(getattr(references, "grid_forms", None), GridForms):
             cp = correct_with_uncertainty(f, raw, u_m, references, self.accuracy, **settings)
             return cp.z, cp.cov
-        kept = self.__dict__.get("_prepared")
-        if kept is None or kept.refs is not references:
-            kept = PreparedCorrection(references, self.accuracy, **settings)
-            object.__setattr__(self, "_prepared", kept)
+        kept = PreparedCorrection(references, self.accuracy, **settings)
+        object.__setattr__(self, "_prepared", kept)
         return kept.batch(f, raw, u_m)
 
     def _raw_cov(self, f, raw, u_m, settings) -> np.ndarray:
         if self.accuracy is None and u_m is None:
             return np.full(raw.shape + (2, 2), np.nan)
         return reading_covariance(f, raw, u_m, self.accuracy, settings)
+
+
+@cache
+def _judged(names: tuple[str, ...]) -> tuple[str, ...]:
+    """The quantities judged for a sweep showing ``names`` (checked once per set of names; an
+    unknown name is refused every time, as a refusal is not kept)."""
+    judged = tuple(dict.fromkeys((*names, *ALSO_JUDGED)))
+    check_names(judged)
+    return judged
 
 
 def _all_type_a(references: Any, u_m) -> bool:

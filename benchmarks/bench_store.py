@@ -46,8 +46,8 @@ from sqlalchemy import text
 from acquire.report.statistics import lot_statistics
 from acquire.store import UnitRecord, open_store
 from acquire.store.lot_query import LotFilter
-from acquire.store.production import MEASUREMENT_COLUMNS, _measurement_rows, _unit_row, tested_at
-from acquire.store.schema import TABLES
+from acquire.store.production import MEASUREMENT_COLUMNS, unit_parameters
+from acquire.store.unit_insert import UNIT_COLUMNS
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from goals import Goal  # noqa: E402 - benchmarks run as scripts
@@ -80,17 +80,21 @@ def synthetic_units(
 
 
 def _sqlite_rows(unit):
-    """The unit's rows exactly as the store writes them, as plain tuples for sqlite3."""
-    row = _unit_row(unit, None)
-    units = TABLES["units"]
-    names = list(row)
-    values = []
-    for name in names:
-        v = row[name]
-        process = units.c[name].type.bind_processor(_DIALECT)
-        values.append(process(v) if process else v)
-    rows = _measurement_rows(0, unit, None, tested_at(dict(zip(names, values, strict=True))))
-    return names, tuple(values), [tuple(m[c] for c in MEASUREMENT_COLUMNS[1:]) for m in rows]
+    """The unit's rows exactly as the store writes them (its own preparation, bind processing
+    included), as plain tuples for sqlite3: the unit's values in ``UNIT_COLUMNS`` order and its
+    measurement rows without ``unit_id``."""
+    head, rows = unit_parameters(_DIALECT, unit, None)
+    return tuple(head), rows
+
+
+def _stored(conn) -> tuple[list, list]:
+    """Every unit (without id and saved_at) and measurement (without unit_id) in a store."""
+    keep = [c for c in UNIT_COLUMNS if c != "saved_at"]
+    units = conn.execute(f"SELECT {', '.join(keep)} FROM units ORDER BY id").fetchall()
+    ms = conn.execute(
+        f"SELECT {', '.join(MEASUREMENT_COLUMNS[1:])} FROM measurements ORDER BY unit_id, seq"
+    ).fetchall()
+    return units, ms
 
 
 def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
@@ -105,6 +109,15 @@ def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
     bare.execute("PRAGMA foreign_keys = ON")
     mcols = MEASUREMENT_COLUMNS
     m_sql = f"INSERT INTO measurements ({', '.join(mcols)}) VALUES ({', '.join('?' * len(mcols))})"
+    u_cols = ", ".join(UNIT_COLUMNS)
+    u_sql = f"INSERT INTO units ({u_cols}) VALUES ({', '.join('?' * len(UNIT_COLUMNS))})"
+
+    def bare_unit(head, measurements) -> None:
+        bare.execute("BEGIN IMMEDIATE")
+        unit_id = bare.execute(u_sql, head).lastrowid
+        bare.executemany(m_sql, [(unit_id, *m) for m in measurements])
+        bare.execute("COMMIT")
+
     bare_rates, store_rates = [], []
     for r in range(rounds):
         units = list(synthetic_units(per_round, lot="", worker=2 * r))
@@ -112,12 +125,9 @@ def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
 
         def bare_side(theirs=theirs) -> None:
             began = time.perf_counter()
-            for names, head, measurements in theirs:
-                sql = (
-                    f"INSERT INTO units ({', '.join(names)}) VALUES ({', '.join('?' * len(names))})"
-                )
+            for head, measurements in theirs:  # bare_unit written out: no call per unit
                 bare.execute("BEGIN IMMEDIATE")
-                unit_id = bare.execute(sql, head).lastrowid
+                unit_id = bare.execute(u_sql, head).lastrowid
                 bare.executemany(m_sql, [(unit_id, *m) for m in measurements])
                 bare.execute("COMMIT")
             bare_rates.append(per_round / (time.perf_counter() - began))
@@ -130,9 +140,21 @@ def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
 
         for side in (bare_side, store_side) if r % 2 == 0 else (store_side, bare_side):
             side()
+    # The same rows: one more unit written by each side gives the same stored values.
+    check = next(synthetic_units(1, lot="", worker=2 * rounds))
+    bare_unit(*_sqlite_rows(check))
+    store.save_unit(check)
+    store_raw = store.engine.raw_connection().driver_connection
+    ends = [[rows[-1] for rows in _stored(c)] for c in (bare, store_raw)]
+    assert ends[0] == ends[1], "the baseline stores other values than the store"
+    durability = [
+        [c.execute(f"PRAGMA {p}").fetchone()[0] for p in ("journal_mode", "synchronous")]
+        for c in (bare, store_raw)
+    ]
+    assert durability[0] == durability[1] == ["wal", 2], "the durability settings differ"
     same_indexes = [
         sorted(c.execute("SELECT name, sql FROM sqlite_master WHERE tbl_name = 'measurements'"))
-        for c in (bare, store.engine.raw_connection().driver_connection)
+        for c in (bare, store_raw)
     ]
     assert same_indexes[0] == same_indexes[1], "the baseline's table differs from the store's"
     bare.close()

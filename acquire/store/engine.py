@@ -224,6 +224,44 @@ class Database:
                     raise
             return work(conn)
 
+    def write_on_driver(self, action: str, work: Callable[[Connection], T]) -> T:
+        """:meth:`write` of idempotent ``work`` that itself runs only on the driver's connection
+        (a production unit): on SQLite the same ``BEGIN IMMEDIATE`` ... ``COMMIT`` transaction,
+        errors and retry, begun and committed on the driver's connection itself instead of
+        through SQLAlchemy's transaction object (whose bookkeeping costs more than the unit's
+        own statements). On PostgreSQL, or on a thread already inside a transaction: :meth:`write`.
+        """
+        if self.is_postgres:
+            return self.write(action, work, idempotent=True)
+        for attempt in range(2):
+            try:
+                return self._once_on_driver(work)
+            except DBAPIError as exc:
+                if not (exc.connection_invalidated and attempt == 0):
+                    raise self.error(action, exc) from exc
+            except SQLAlchemyError as exc:
+                raise self.error(action, exc) from exc
+        raise AssertionError("unreachable")  # pragma: no cover
+
+    def _once_on_driver(self, work: Callable[[Connection], T]) -> T:
+        conn = self._connection()
+        if conn.in_transaction():
+            return self._once(work, write=True, check=False)
+        raw = conn.connection.driver_connection
+        if raw is None:
+            raise StoreError("the SQLite connection was closed under the store; open it again")
+        try:
+            raw.execute("BEGIN IMMEDIATE")
+            result = work(conn)
+            raw.commit()
+        except BaseException as exc:
+            if raw.in_transaction:
+                raw.rollback()
+            if isinstance(exc, conn.dialect.loaded_dbapi.Error):  # from BEGIN or COMMIT
+                conn._handle_dbapi_exception(exc, None, None, None, None)  # raises it wrapped
+            raise
+        return result
+
     def error(self, action: str, exc: BaseException | None) -> StoreError:
         """A StoreError for a failed ``action`` that says what to check."""
         where = self.location.shown

@@ -27,7 +27,13 @@ from acquire.store.engine import (
 )
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
 from acquire.store.schema import TABLES, identity_key, utc_now
-from acquire.store.unit_insert import UNIT_COLUMNS, insert_postgres, insert_sqlite, unit_values
+from acquire.store.unit_insert import (
+    UNIT_COLUMNS,
+    insert_postgres,
+    insert_sqlite,
+    process_head,
+    unit_head,
+)
 
 if TYPE_CHECKING:
     import pandas as pd
@@ -144,7 +150,7 @@ def _new_unit(dialect: str, *returning: str) -> Any:
 def unit_parameters(dialect: Any, unit: UnitRecord, lot_id: int | None) -> tuple[list, list]:
     """(unit head, measurement rows) of ``unit`` as :mod:`acquire.store.unit_insert` takes them
     (values bind-processed for ``dialect``)."""
-    head = unit_values(dialect, _unit_row(unit, lot_id))
+    head = process_head(dialect, unit_head(unit, lot_id, utc_now()))
     tested = next(head[k] for k in _TESTED_AT if head[k] is not None)
     return head, _measurement_tuples(unit, lot_id, tested)
 
@@ -163,7 +169,7 @@ def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool
             lot_cache.update(lots)
         lot_id = lot_cache[unit.lot]
     head, rows = unit_parameters(db.engine.dialect, unit, lot_id)
-    return db.write("saving a unit", lambda c: insert(c, head, rows) is not None, idempotent=True)
+    return db.write_on_driver("saving a unit", lambda c: insert(c, head, rows) is not None)
 
 
 def save_units(

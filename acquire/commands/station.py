@@ -189,7 +189,9 @@ def _check_guard(store, plan):
 
 def _store_watchers(store) -> list:
     """Watchers that keep this station's state in the store, for the line overview page."""
-    return []
+    from acquire.production.state_keeper import StateKeeper
+
+    return [StateKeeper(store)]
 
 
 def _publish_watchers(args: argparse.Namespace, store) -> list:

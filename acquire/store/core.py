@@ -20,6 +20,7 @@ from acquire.store import (
     production,
     references,
     rise_runs,
+    station_states,
     sweeps,
 )
 from acquire.store.engine import Database
@@ -174,8 +175,7 @@ class Store:
 
     @property
     def migrated_from(self) -> str | None:
-        """The older schema revision this store was upgraded from when opened ("released" for a
-        store of the first release, which had no revision record), else None."""
+        """The older revision it was upgraded from on opening ("released": the first release's)."""
         return None if self._created or self._found == SCHEMA_REVISION else self._found
 
     @property
@@ -335,6 +335,12 @@ class Store:
         self, chosen: LotFilter, parameter: str | None = None, frequency: float | None = None
     ) -> pd.DataFrame:
         return lot_query.measurement_rows(self._db, chosen, parameter, frequency)
+
+    def save_station_state(self, state: Any) -> None:
+        station_states.save(self._db, state)
+
+    def station_states(self) -> list[station_states.StoredStationState]:
+        return station_states.load(self._db)
 
     # check standards (acquire.store.check_results)
     def save_check(

@@ -84,9 +84,11 @@ def station_card(view: StationView, now: datetime) -> str:
         + _big("tested", "tested", str(view.tested))
         + _big("passed", "passed", str(view.passed))
         + "</div>"
+        + '<div class="fields">'
         + _field("lot", s.lot, "lot")
         + _field("plan", s.plan, "plan")
         + _field("operator", s.operator, "operator")
+        + "</div>"
         + _problems(view)
         + _recent(view)
         + f'<p class="updated">state of {_time(s.updated_at)} from {escape(s.host)}</p>'

@@ -28,8 +28,8 @@ def _thin(count: int) -> np.ndarray:
     return np.unique(np.linspace(0, count - 1, MAX_POINTS).round().astype(int))
 
 
-def _clock(t: datetime) -> str:
-    return t.astimezone().strftime("%H:%M")
+def _clock(t: datetime, seconds: bool) -> str:
+    return t.astimezone().strftime("%H:%M:%S" if seconds else "%H:%M")
 
 
 def yield_picture(times: Sequence[datetime], yields: np.ndarray, title: str) -> str:
@@ -66,10 +66,10 @@ def yield_picture(times: Sequence[datetime], yields: np.ndarray, title: str) -> 
         steps.append(f"{xs[k]:.1f},{ys[k - 1]:.1f} {xs[k]:.1f},{ys[k]:.1f}")
     parts.append(f'<polyline class="yield-line" points="{" ".join(steps)}"/>')
     parts.append(f'<circle class="yield-end" cx="{xs[-1]:.1f}" cy="{ys[-1]:.1f}" r="5"/>')
-    bottom = HEIGHT - 12
-    parts.append(f'<text class="axis" x="{LEFT:g}" y="{bottom:g}">{_clock(times[0])}</text>')
+    bottom, short = HEIGHT - 12, span < 600
+    parts.append(f'<text class="axis" x="{LEFT:g}" y="{bottom:g}">{_clock(times[0], short)}</text>')
     parts.append(
         f'<text class="axis" x="{WIDTH - RIGHT:g}" y="{bottom:g}" text-anchor="end">'
-        f"{_clock(times[-1])}</text></svg>"
+        f"{_clock(times[-1], short)}</text></svg>"
     )
     return "".join(parts)

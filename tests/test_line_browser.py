@@ -54,8 +54,8 @@ def _cards(page) -> dict[str, dict[str, str]]:
             state: c.querySelector('.state').textContent,
             title: c.querySelector('h2.name').textContent,
             shown_yield: c.querySelector('.yield').textContent,
-            operator: c.querySelector('.operator .value').textContent,
-            lot: c.querySelector('.lot .value').textContent}))""",
+            operator: c.querySelector('.field-operator .value').textContent,
+            lot: c.querySelector('.field-lot .value').textContent}))""",
     )
     return {card["name"]: card for card in found}
 
@@ -77,60 +77,71 @@ def _watch(page, names: list[str], want: int, seen: dict[str, list[int]], limit:
     raise AssertionError(f"the page did not reach {want} tested per station: saw {seen}")
 
 
+def _run_line(store_url: str, sims: list, names: list[str], tmp_path: Path) -> None:
+    """Stations ``names`` on simulated meters ``sims`` test two batches of a lot into the store
+    at ``store_url`` while the page is watched; then the page is checked against the lot
+    report."""
+    _capture(sims[0], store_url)
+    for sim in sims[1:]:
+        sim.insert("demo-coil")
+    with line_view(store_url) as address, chromium(tmp_path / "profile") as context:
+        page = context.new_page()
+        page.goto(address)
+        assert "no station has reported" in page.inner_text("main")
+        stations = [
+            station_process(sim.resource, store_url, LOT, OPERATOR, name, tmp_path)
+            for sim, name in zip(sims, names, strict=True)
+        ]
+        seen: dict[str, list[int]] = {n: [] for n in names}
+        for k, proc in enumerate(stations):
+            proc.stdin.write("".join(f"EXAMPLE-{1000 + 100 * k + i}\n" for i in range(4)))
+            proc.stdin.flush()
+        _watch(page, names, 4, seen, limit=30)
+        for k, proc in enumerate(stations):
+            proc.stdin.write("".join(f"EXAMPLE-{1004 + 100 * k + i}\n" for i in range(5)))
+            proc.stdin.close()
+        for proc in stations:
+            assert proc.wait(timeout=60) == 0, proc.stderr.read()
+        _watch(page, names, 9, seen, limit=15)
+        page.wait_for_function(
+            "() => [...document.querySelectorAll('section.station .state')]"
+            ".every(s => s.textContent === 'STOPPED')",
+            timeout=10_000,
+        )
+        cards = _cards(page)
+        shot = tmp_path / f"line-view-{len(names)}-stations.png"
+        page.screenshot(path=str(shot), full_page=True)
+        print(f"screenshot of the line overview: {shot}")
+        assert page.evaluate("typeof window.pwned") == "undefined"
+        assert page.locator("main script, main b, main img, main i").count() == 0
+        lot_yield = page.get_attribute("section.lot", "data-yield")
+        lot_name = page.inner_text("section.lot h2 .name")
+    for name in names:
+        # the page was never reloaded, yet its counts went up while the stations worked
+        assert 4 in seen[name] and seen[name][-1] == 9, seen
+        assert seen[name] == sorted(seen[name]), seen
+        card = cards[name]
+        assert (card["title"], card["operator"], card["lot"]) == (name, OPERATOR, LOT)
+        report = acquire_json("lot", LOT, "--station", name, "--store", store_url)
+        assert int(card["tested"]) == report["units"] == 9
+        assert abs(float(card["yield"]) - report["yield"]) < 1e-6
+        assert card["shown_yield"] == f"{report['yield']:.1%}"
+    whole = acquire_json("lot", LOT, "--store", store_url)
+    assert lot_name == LOT
+    assert abs(float(lot_yield) - whole["yield"]) < 1e-6
+    assert Path(shot).stat().st_size > 10_000
+
+
 def test_two_stations_into_one_postgresql_store_as_the_page_shows_them(tmp_path):
     url = require_postgres()
-    names = [SCRIPT_NAME, BOLD_NAME]
     with (
         temporary_schema(url) as schema,
         running(dut="demo-coil", fixture="bench-leads", noise=True, seed=5, measure_time=0) as a,
         running(dut="demo-coil", fixture="bench-leads", noise=True, seed=6, measure_time=0) as b,
     ):
-        store_url = f"{url}?schema={schema}"
-        _capture(a, store_url)
-        b.insert("demo-coil")
-        with line_view(store_url) as address, chromium(tmp_path / "profile") as context:
-            page = context.new_page()
-            page.goto(address)
-            assert "no station has reported" in page.inner_text("main")
-            stations = [
-                station_process(sim.resource, store_url, LOT, OPERATOR, name, tmp_path)
-                for sim, name in zip((a, b), names, strict=True)
-            ]
-            seen: dict[str, list[int]] = {n: [] for n in names}
-            for k, proc in enumerate(stations):
-                proc.stdin.write("".join(f"EXAMPLE-{1000 + 100 * k + i}\n" for i in range(4)))
-                proc.stdin.flush()
-            _watch(page, names, 4, seen, limit=30)
-            for k, proc in enumerate(stations):
-                proc.stdin.write("".join(f"EXAMPLE-{1004 + 100 * k + i}\n" for i in range(5)))
-                proc.stdin.close()
-            for proc in stations:
-                assert proc.wait(timeout=60) == 0, proc.stderr.read()
-            _watch(page, names, 9, seen, limit=15)
-            page.wait_for_function(
-                "() => [...document.querySelectorAll('section.station .state')]"
-                ".every(s => s.textContent === 'STOPPED')",
-                timeout=10_000,
-            )
-            cards = _cards(page)
-            shot = tmp_path / "line-view.png"
-            page.screenshot(path=str(shot), full_page=True)
-            print(f"screenshot of the line overview: {shot}")
-            assert page.evaluate("typeof window.pwned") == "undefined"
-            assert page.locator("main script, main b, main img, main i").count() == 0
-            lot_yield = page.get_attribute("section.lot", "data-yield")
-            lot_name = page.inner_text("section.lot h2 .name")
-        for name in names:
-            # the page was never reloaded, yet its counts went up while the stations worked
-            assert 4 in seen[name] and seen[name][-1] == 9, seen
-            assert seen[name] == sorted(seen[name]), seen
-            card = cards[name]
-            assert (card["title"], card["operator"], card["lot"]) == (name, OPERATOR, LOT)
-            report = acquire_json("lot", LOT, "--station", name, "--store", store_url)
-            assert int(card["tested"]) == report["units"] == 9
-            assert abs(float(card["yield"]) - report["yield"]) < 1e-6
-            assert card["shown_yield"] == f"{report['yield']:.1%}"
-        whole = acquire_json("lot", LOT, "--store", store_url)
-        assert lot_name == LOT
-        assert abs(float(lot_yield) - whole["yield"]) < 1e-6
-        assert Path(shot).stat().st_size > 10_000
+        _run_line(f"{url}?schema={schema}", [a, b], [SCRIPT_NAME, BOLD_NAME], tmp_path)
+
+
+def test_a_station_writing_an_sqlite_store_while_the_page_reads_it(tmp_path):
+    with running(dut="demo-coil", fixture="bench-leads", noise=True, seed=7, measure_time=0) as a:
+        _run_line(f"sqlite:///{tmp_path / 'line.db'}", [a], [BOLD_NAME], tmp_path)

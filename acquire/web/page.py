@@ -32,7 +32,7 @@ def _time(t: datetime) -> str:
 def _field(label: str, value: str, kind: str = "") -> str:
     shown = escape(value) if value else "—"
     label = f'<span class="label">{label}</span>'
-    return f'<div class="field {kind}">{label} <span class="value">{shown}</span></div>'
+    return f'<div class="field field-{kind}">{label} <span class="value">{shown}</span></div>'
 
 
 def _big(label: str, kind: str, value: str) -> str:

@@ -87,16 +87,17 @@ def line_view(store_url: str, *extra: str) -> Iterator[str]:
 
 
 def station_process(
-    resource: str, store_url: str, lot: str, operator: str, station: str, folder: Path
+    resource: str, store_url: str, lot: str, operator: str, station: str, folder: Path, *extra: str
 ):
-    """An ``acquire station`` of the example plan whose serials the caller writes to stdin."""
+    """An ``acquire station`` of the example plan (options ``extra`` added) whose serials the
+    caller writes to stdin."""
     from acquire.production.plan_file import example_plan_path
 
     outbox = folder / f"outbox-{os.urandom(4).hex()}.db"
     return subprocess.Popen(
         [sys.executable, "-m", "acquire", "station", "--resource", resource, "--store", store_url,
          "--plan", str(example_plan_path()), "--lot", lot, "--operator", operator,
-         "--station", station, "--no-bell", "--outbox", str(outbox)],
+         "--station", station, "--no-bell", "--outbox", str(outbox), *extra],
         stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
         env=_env(), cwd=folder,
     )  # fmt: skip

@@ -31,7 +31,8 @@ OPERATOR = '<img src=x onerror="window.pwned=2">'
 LOT = "lot <i>7</i> & co"
 
 
-def _capture(sim, store_url: str) -> None:
+def _capture(sim, store_url: str, name: str) -> int:
+    """References captured on ``sim``'s fixture, stored as ``name``; their id."""
     plan = load_plan(example_plan_path())
     with ImpedanceMeter.open(sim.resource, dialect="simulated") as meter:
         identity = meter.identify()
@@ -41,7 +42,7 @@ def _capture(sim, store_url: str) -> None:
         )  # fmt: skip
     sim.insert("demo-coil")
     with open_store(store_url) as store:
-        store.save_reference_set(refs, name="line test")
+        return store.save_reference_set(refs, name=name)
 
 
 def _cards(page) -> dict[str, dict[str, str]]:
@@ -81,16 +82,17 @@ def _run_line(store_url: str, sims: list, names: list[str], tmp_path: Path) -> N
     """Stations ``names`` on simulated meters ``sims`` test two batches of a lot into the store
     at ``store_url`` while the page is watched; then the page is checked against the lot
     report."""
-    _capture(sims[0], store_url)
-    for sim in sims[1:]:
-        sim.insert("demo-coil")
+    # each station corrects with the references of its own (simulated) fixture
+    references = [str(_capture(sim, store_url, f"refs {k}")) for k, sim in enumerate(sims)]
     with line_view(store_url) as address, chromium(tmp_path / "profile") as context:
         page = context.new_page()
         page.goto(address)
         assert "no station has reported" in page.inner_text("main")
         stations = [
-            station_process(sim.resource, store_url, LOT, OPERATOR, name, tmp_path)
-            for sim, name in zip(sims, names, strict=True)
+            station_process(
+                sim.resource, store_url, LOT, OPERATOR, name, tmp_path, "--reference", ref
+            )
+            for sim, name, ref in zip(sims, names, references, strict=True)
         ]
         seen: dict[str, list[int]] = {n: [] for n in names}
         for k, proc in enumerate(stations):

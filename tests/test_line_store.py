@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import os
 import socket
+import threading
 from dataclasses import replace
 from datetime import UTC, datetime, timedelta
 
@@ -20,7 +21,7 @@ from store_support import store_location
 from test_store_migration import _raw, make_revision
 
 from acquire.errors import StoreError
-from acquire.production.state_keeper import HEARTBEAT_S, StateKeeper
+from acquire.production.state_keeper import StateKeeper
 from acquire.production.station_watch import STOPPED, StationState
 from acquire.store import open_store
 from acquire.store.read_only import open_read_only
@@ -101,50 +102,52 @@ class Keeping:
     def __init__(self) -> None:
         self.saved: list[StationState] = []
         self.away = False
+        self.beat = threading.Event()
 
     def save_station_state(self, given: StationState) -> None:
         if self.away:
             raise StoreError("saving the station's state failed: server gone")
         self.saved.append(given)
+        if given.updated_at != T0:
+            self.beat.set()
 
 
-class Clock:
-    def __init__(self) -> None:
-        self.now = 100.0
-
-    def __call__(self) -> float:
-        return self.now
-
-
-def test_the_keeper_writes_changes_at_once_and_counts_on_the_heartbeat():
-    store, clock = Keeping(), Clock()
-    keeper = StateKeeper(store, clock)
+def test_the_keeper_writes_changes_at_once_and_leaves_counts_to_the_heartbeat():
+    store = Keeping()
+    keeper = StateKeeper(store, heartbeat=3600)
     keeper.changed(state())
     keeper.changed(state(tested=4, passed=3))  # counts alone wait for the heartbeat
     assert [s.tested for s in store.saved] == [3]
-    keeper.changed(state(tested=4, operator="bo"))  # who tests is written at once
-    assert [s.operator for s in store.saved][-1] == "bo"
-    clock.now += HEARTBEAT_S
-    keeper.changed(state(tested=5, operator="bo"))
-    assert [s.tested for s in store.saved] == [3, 4, 5]
+    keeper.changed(state(tested=5, operator="bo"))  # who tests is written at once
+    assert [(s.tested, s.operator) for s in store.saved][-1] == (5, "bo")
     keeper.changed(state(tested=5, operator="bo", state=STOPPED, reason="end of input"))
     assert store.saved[-1].state == STOPPED
     keeper.close()
+    assert len(store.saved) == 3
 
 
-def test_a_store_away_is_kept_quiet_and_tried_again_a_heartbeat_later():
-    store, clock = Keeping(), Clock()
-    keeper = StateKeeper(store, clock)
+def test_the_heartbeat_restates_the_newest_state_while_the_station_waits():
+    store = Keeping()
+    keeper = StateKeeper(store, heartbeat=0.05)
+    keeper.changed(state(tested=7))
+    assert store.beat.wait(10)  # nothing else happened at the station
+    keeper.close()
+    beats = [s for s in store.saved if s.updated_at != T0]
+    assert beats and all(s.tested == 7 and s.updated_at > T0 for s in beats)
+
+
+def test_a_store_away_is_kept_quiet_and_the_state_written_when_it_is_back():
+    store = Keeping()
+    keeper = StateKeeper(store, heartbeat=0.05)
     store.away = True
     keeper.changed(state())
     keeper.changed(state(reason="x", state="blocked"))
-    assert keeper.failures == 1  # the second change came before the retry was due
+    assert keeper.failures >= 2 and store.saved == []
     store.away = False
-    keeper.changed(state(tested=9))
-    assert store.saved == []
-    clock.now += HEARTBEAT_S
-    keeper.changed(state(tested=10))
-    assert [s.tested for s in store.saved] == [10]
+    assert store.beat.wait(10)
+    assert store.saved[-1].state == "blocked"
     store.away = True
-    keeper.changed(state(state=STOPPED))  # the end is always tried, quietly
-    assert keeper.failures == 2
+    keeper.changed(state(state=STOPPED))  # the end is tried, quietly, and again on closing
+    store.away = False
+    keeper.close()
+    assert store.saved[-1].state == STOPPED

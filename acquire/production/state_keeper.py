@@ -1,28 +1,34 @@
 """A station's state kept in the store, so that the line overview page can show it.
 
-:class:`StateKeeper` is a :class:`~acquire.production.station_watch.StationWatcher`. It writes a
-state at once when what a supervisor reads changes (state, reason, lot, plan, operator, the
-reference or check-standard problems), else at most every :data:`HEARTBEAT_S` seconds (the
-page calls a station silent when its state grows old), and always the final "stopped". One small
-write on the station's thread and store connection; a store that cannot be reached
-(:class:`~acquire.errors.StoreError`) is kept quiet, and the newest state is tried again one
-heartbeat later (so a store that is away costs the station one try per heartbeat, not one per
-unit), and the final "stopped" always.
+:class:`StateKeeper` is a :class:`~acquire.production.station_watch.StationWatcher`. A change a
+supervisor must see at once (state, reason, lot, plan, operator, the reference or check-standard
+problems, and the final "stopped") is written on the station's thread as it happens: one small
+write. Everything else (the counts) and the heartbeat go out from a thread of the keeper's own
+every :data:`HEARTBEAT_S` seconds: it writes the newest state again, made now, so a station
+waiting at its prompt for the next serial is not taken for a silent one (the page calls a station
+silent when its newest state is over a minute old). The heartbeat uses the store from its own
+thread (the store gives each thread its own connection).
+
+A store that cannot be reached (:class:`~acquire.errors.StoreError`) is kept quiet: the state is
+written again with the next heartbeat. The station's screen never hears of it.
 """
 
 from __future__ import annotations
 
-import time
-from collections.abc import Callable
+import threading
+from dataclasses import replace
 from typing import Protocol
 
 from acquire.errors import StoreError
 from acquire.production.station_watch import STOPPED, StationState
+from acquire.store.schema import utc_now
 
-#: Seconds between writes of an unchanged state (the page's heartbeat).
+#: Seconds between heartbeats (writes of the newest state, made again).
 HEARTBEAT_S = 5.0
 #: The fields whose change is written at once.
 NOTICED = ("state", "reason", "lot", "plan", "operator", "references", "check_standard")
+#: Seconds :meth:`StateKeeper.close` waits for a heartbeat write under way.
+CLOSE_WAIT_S = 2.0
 
 
 class StateStore(Protocol):
@@ -32,56 +38,60 @@ class StateStore(Protocol):
 
 
 class StateKeeper:
-    """Writes a station's states to ``store`` (see the module docstring).
+    """Writes a station's states to ``store`` (see the module docstring); ``heartbeat`` is the
+    seconds between heartbeats."""
 
-    ``clock`` gives seconds (monotonic); tests hand in their own.
-    """
-
-    def __init__(
-        self,
-        store: StateStore,
-        clock: Callable[[], float] = time.monotonic,
-        heartbeat: float = HEARTBEAT_S,
-    ) -> None:
+    def __init__(self, store: StateStore, heartbeat: float = HEARTBEAT_S) -> None:
         self._store = store
-        self._clock = clock
         self._heartbeat = heartbeat
+        self._lock = threading.Lock()
+        self._latest: StationState | None = None
         self._written: StationState | None = None
-        self._written_at = 0.0
-        self._retry_at: float | None = None
         self._failures = 0
+        self._stop = threading.Event()
+        self._thread: threading.Thread | None = None
 
     @property
     def failures(self) -> int:
-        """How many writes failed (each is tried again with the next state)."""
+        """How many writes failed (each state is written again with the next heartbeat)."""
         return self._failures
 
     def changed(self, state: StationState) -> None:
-        if self._due(state):
+        self._latest = state
+        last = self._written
+        if last is None or any(getattr(state, f) != getattr(last, f) for f in NOTICED):
             self._write(state)
+        if self._thread is None and state.state != STOPPED:
+            self._thread = threading.Thread(
+                target=self._beat, name="station state heartbeat", daemon=True
+            )
+            self._thread.start()
 
     def close(self) -> None:
-        """Nothing to release: the station's store is closed by the station."""
+        """Stop the heartbeat; the final state is written once more if its write failed."""
+        self._stop.set()
+        if self._thread is not None:
+            self._thread.join(CLOSE_WAIT_S)
+        latest = self._latest
+        if latest is not None and self._written is not latest:
+            self._write(latest)
 
-    def _due(self, state: StationState) -> bool:
-        if state.state == STOPPED:
-            return True
-        if self._retry_at is not None:
-            return self._clock() >= self._retry_at
-        last = self._written
-        if last is None:
-            return True
-        if any(getattr(state, name) != getattr(last, name) for name in NOTICED):
-            return True
-        return self._clock() - self._written_at >= self._heartbeat
+    def _beat(self) -> None:
+        while not self._stop.wait(self._heartbeat):
+            latest = self._latest
+            if latest is None or latest.state == STOPPED:
+                continue
+            self._write(replace(latest, updated_at=utc_now()), told=latest)
 
-    def _write(self, state: StationState) -> None:
-        try:
-            self._store.save_station_state(state)
-        except StoreError:
-            self._failures += 1
-            self._retry_at = self._clock() + self._heartbeat
-            return
-        self._retry_at = None
-        self._written = state
-        self._written_at = self._clock()
+    def _write(self, state: StationState, told: StationState | None = None) -> None:
+        """Save ``state``; a heartbeat's (``told``: the state it restates) is dropped when a
+        newer state came meanwhile."""
+        with self._lock:
+            if told is not None and told is not self._latest:
+                return
+            try:
+                self._store.save_station_state(state)
+            except StoreError:
+                self._failures += 1
+                return
+            self._written = state if told is None else told

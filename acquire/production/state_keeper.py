@@ -7,7 +7,8 @@ write. Everything else (the counts) and the heartbeat go out from a thread of th
 every :data:`HEARTBEAT_S` seconds: it writes the newest state again, made now, so a station
 waiting at its prompt for the next serial is not taken for a silent one (the page calls a station
 silent when its newest state is over a minute old). The heartbeat uses the store from its own
-thread (the store gives each thread its own connection).
+thread (the store gives each thread its own connection), which leaves Ctrl-C and the stop
+signals to the main thread.
 
 A store that cannot be reached (:class:`~acquire.errors.StoreError`) is kept quiet: the state is
 written again with the next heartbeat. The station's screen never hears of it.
@@ -15,6 +16,7 @@ written again with the next heartbeat. The station's screen never hears of it.
 
 from __future__ import annotations
 
+import signal
 import threading
 from dataclasses import replace
 from typing import Protocol
@@ -29,6 +31,16 @@ HEARTBEAT_S = 5.0
 NOTICED = ("state", "reason", "lot", "plan", "operator", "references", "check_standard")
 #: Seconds :meth:`StateKeeper.close` waits for a heartbeat write under way.
 CLOSE_WAIT_S = 2.0
+
+
+def _leave_stops_to_the_main_thread() -> None:
+    """Block Ctrl-C and the stop signals in the calling thread, so that the system hands them
+    to the main thread, interrupting what it waits for there, exactly as without this thread."""
+    if hasattr(signal, "pthread_sigmask"):
+        names = ("SIGINT", "SIGTERM", "SIGHUP")
+        signal.pthread_sigmask(
+            signal.SIG_BLOCK, {getattr(signal, n) for n in names if hasattr(signal, n)}
+        )
 
 
 class StateStore(Protocol):
@@ -77,6 +89,7 @@ class StateKeeper:
             self._write(latest)
 
     def _beat(self) -> None:
+        _leave_stops_to_the_main_thread()
         while not self._stop.wait(self._heartbeat):
             latest = self._latest
             if latest is None or latest.state == STOPPED:

@@ -102,13 +102,14 @@ class Keeping:
     def __init__(self) -> None:
         self.saved: list[StationState] = []
         self.away = False
-        self.beat = threading.Event()
+        self.want = 2
+        self.beat = threading.Event()  # set once ``want`` states are saved
 
     def save_station_state(self, given: StationState) -> None:
         if self.away:
             raise StoreError("saving the station's state failed: server gone")
         self.saved.append(given)
-        if given.updated_at != T0:
+        if len(self.saved) >= self.want:
             self.beat.set()
 
 
@@ -129,11 +130,13 @@ def test_the_keeper_writes_changes_at_once_and_leaves_counts_to_the_heartbeat():
 def test_the_heartbeat_restates_the_newest_state_while_the_station_waits():
     store = Keeping()
     keeper = StateKeeper(store, heartbeat=0.05)
+    store.want = 3
     keeper.changed(state(tested=7))
     assert store.beat.wait(10)  # nothing else happened at the station
     keeper.close()
-    beats = [s for s in store.saved if s.updated_at != T0]
-    assert beats and all(s.tested == 7 and s.updated_at > T0 for s in beats)
+    times = [s.updated_at for s in store.saved]
+    assert all(s.tested == 7 for s in store.saved) and times == sorted(times)
+    assert len(set(times)) == len(times) and times[0] > T0  # each made when written
 
 
 def test_a_store_away_is_kept_quiet_and_the_state_written_when_it_is_back():
@@ -143,6 +146,7 @@ def test_a_store_away_is_kept_quiet_and_the_state_written_when_it_is_back():
     keeper.changed(state())
     keeper.changed(state(reason="x", state="blocked"))
     assert keeper.failures >= 2 and store.saved == []
+    store.want = 1
     store.away = False
     assert store.beat.wait(10)
     assert store.saved[-1].state == "blocked"
@@ -151,3 +155,36 @@ def test_a_store_away_is_kept_quiet_and_the_state_written_when_it_is_back():
     store.away = False
     keeper.close()
     assert store.saved[-1].state == STOPPED
+
+
+class Stuck(Keeping):
+    """A store whose writes, once ``held`` is set, wait until ``release`` is set."""
+
+    def __init__(self) -> None:
+        super().__init__()
+        self.held = threading.Event()
+        self.entered = threading.Event()
+        self.release = threading.Event()
+
+    def save_station_state(self, given: StationState) -> None:
+        if self.held.is_set():
+            self.entered.set()
+            self.release.wait(30)
+        super().save_station_state(given)
+
+
+def test_the_station_never_waits_for_a_heartbeat_write_under_way():
+    store = Stuck()
+    keeper = StateKeeper(store, heartbeat=0.01)
+    keeper.changed(state())
+    store.held.set()
+    assert store.entered.wait(10)  # the heartbeat thread is inside a write now
+    station = threading.Thread(target=keeper.changed, args=(state(state="blocked", reason="x"),))
+    station.start()
+    station.join(10)
+    returned = not station.is_alive()
+    store.held.clear()
+    store.release.set()
+    keeper.close()
+    assert returned  # it left its state to the heartbeat rather than wait
+    assert store.saved[-1].state == "blocked"

@@ -29,7 +29,7 @@ from acquire.store.schema import utc_now
 HEARTBEAT_S = 5.0
 #: The fields whose change is written at once.
 NOTICED = ("state", "reason", "lot", "plan", "operator", "references", "check_standard")
-#: Seconds :meth:`StateKeeper.close` waits for a heartbeat write under way.
+#: Seconds :meth:`StateKeeper.close` waits for the heartbeat thread and a write under way.
 CLOSE_WAIT_S = 2.0
 
 
@@ -86,7 +86,7 @@ class StateKeeper:
             self._thread.join(CLOSE_WAIT_S)
         latest = self._latest
         if latest is not None and self._written is not latest:
-            self._write(latest)
+            self._write(latest, wait=CLOSE_WAIT_S)
 
     def _beat(self) -> None:
         _leave_stops_to_the_main_thread()
@@ -94,17 +94,26 @@ class StateKeeper:
             latest = self._latest
             if latest is None or latest.state == STOPPED:
                 continue
-            self._write(replace(latest, updated_at=utc_now()), told=latest)
+            self._write(latest, told=latest, wait=-1)
 
-    def _write(self, state: StationState, told: StationState | None = None) -> None:
+    def _write(
+        self, state: StationState, told: StationState | None = None, wait: float = 0
+    ) -> None:
         """Save ``state``; a heartbeat's (``told``: the state it restates) is dropped when a
-        newer state came meanwhile."""
-        with self._lock:
+        newer state came meanwhile. Waits ``wait`` seconds (-1: as long as it takes) for a write
+        under way on the other thread; the station's own writes never wait: a state skipped so
+        goes out with the next heartbeat."""
+        got = self._lock.acquire() if wait < 0 else self._lock.acquire(timeout=wait)
+        if not got:
+            return
+        try:
             if told is not None and told is not self._latest:
                 return
-            try:
-                self._store.save_station_state(state)
+            try:  # stamped now, under the lock: a later write never carries an older time
+                self._store.save_station_state(replace(state, updated_at=utc_now()))
             except StoreError:
                 self._failures += 1
                 return
             self._written = state if told is None else told
+        finally:
+            self._lock.release()

@@ -16,8 +16,8 @@ def line_tables(md: MetaData) -> None:
     ``passed`` count serials of the session's lot at that station (latest attempt), ``waiting``
     units kept in the station's local outbox; ``references`` and ``check_standard`` are '' or
     the problem in words; ``host`` and ``pid`` the process that wrote the row. ``updated_at``
-    is when the station made the state (UTC): the line page calls a station that is not stopped
-    silent when it is old.
+    is when the station wrote the state (UTC; again every few seconds while it runs): the line
+    page calls a station that is not stopped silent when it is old.
     """
     Table(
         "station_states",

@@ -38,6 +38,7 @@ COMMANDS: dict[str, str] = {
     "bias-sweep": "bias_sweep",
     "temperature-rise": "temperature_rise",
     "lot": "lot",
+    "line-view": "line_view",
     "report": "report",
     "grr": "grr",
     "verify": "verify",

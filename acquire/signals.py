@@ -111,3 +111,14 @@ def stop_reason(stop: KeyboardInterrupt) -> str:
     if isinstance(stop, StopSignal):
         return f"stopped by {stop.name}"
     return "stopped with Ctrl-C"
+
+
+def leave_stops_to_the_main_thread() -> None:
+    """Block Ctrl-C and the stop signals in the calling (helper) thread, so that the system
+    hands them to the main thread, interrupting what it waits for there, exactly as without the
+    helper thread. Call it first thing in every thread the tool starts beside a measurement."""
+    if hasattr(signal, "pthread_sigmask"):
+        names = ("SIGINT", "SIGTERM", "SIGHUP")
+        signal.pthread_sigmask(
+            signal.SIG_BLOCK, {getattr(signal, n) for n in names if hasattr(signal, n)}
+        )

@@ -191,7 +191,9 @@ def _check_guard(store, plan):
 
 def _store_watchers(store) -> list:
     """Watchers that keep this station's state in the store, for the line overview page."""
-    return []
+    from acquire.production.state_keeper import StateKeeper
+
+    return [StateKeeper(store)]
 
 
 def _check_publish(args: argparse.Namespace) -> None:
@@ -314,9 +316,10 @@ def run(args: argparse.Namespace) -> int:
                 )
             try:
                 final = station.run(interactive)
-            finally:
+            except BaseException:
                 ended = station.status()
-                screen.end(ended, ended.message or "session ended")
+                screen.end(ended, ended.message or "session ended by an error")
+                raise
         if interactive:
             console.print()  # the summary starts below the prompt line it ended on
         if keeper.waiting:
@@ -327,6 +330,7 @@ def run(args: argparse.Namespace) -> int:
             )
             keeper.flush_patiently(FINAL_PATIENCE)
             final = station.status()
+        screen.end(final, final.message or "session ended")  # after the flush: those go out too
         console.print(screen.summary(final))
         if keeper.waiting:
             console.print(

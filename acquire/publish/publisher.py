@@ -24,6 +24,7 @@ from acquire.publish.link import Link
 from acquire.publish.message import encode, lost_message, status_message
 from acquire.publish.sending import client_id, send_waiting
 from acquire.publish.target import PublishTarget, StationTopics
+from acquire.signals import leave_stops_to_the_main_thread
 
 #: Least seconds between two status messages (the final "stopped" is never held back).
 STATUS_EVERY = 1.0
@@ -92,6 +93,7 @@ class Publisher:
         return closing is not None and time.monotonic() - closing > CLOSE_PATIENCE
 
     def _run(self) -> None:
+        leave_stops_to_the_main_thread()
         store: Any = None
         link: Link | None = None
         pause = RETRY_FIRST

@@ -37,6 +37,7 @@ from acquire.store.records import (
     UnitRecord,
 )
 from acquire.store.schema import SCHEMA_REVISION
+from acquire.store.station_states import LineStates
 from acquire.store.sweeps import STALE_AFTER_S, SweepWriter
 from acquire.store.url import StoreLocation, parse_store_url
 
@@ -137,7 +138,7 @@ def _has_store_tables(path: Path) -> bool:
     return bool(names)
 
 
-class Store(PublishOutbox):
+class Store(PublishOutbox, LineStates):
     """Meters, fixtures, reference sets, sweeps, plans, lots and units in one database.
 
     Make one with :func:`open_store`. Every method is one transaction (a sweep's points, one per
@@ -175,8 +176,7 @@ class Store(PublishOutbox):
 
     @property
     def migrated_from(self) -> str | None:
-        """The older schema revision this store was upgraded from when opened ("released" for a
-        store of the first release, which had no revision record), else None."""
+        """The older revision it was upgraded from on opening ("released": the first release's)."""
         return None if self._created or self._found == SCHEMA_REVISION else self._found
 
     @property

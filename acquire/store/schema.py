@@ -73,7 +73,8 @@ references override, temperature); 0004 the measurements' test time and the test
 0005 the bias sweeps, temperature-rise runs and a measurement's bias current; 0006 the check
 standards, their results and acknowledgements, and a unit's ``check_acknowledgement_id``; 0007
 the gauge R&R studies; 0008 the indexes that count a lot's outcomes (each serial's attempts in
-order, the failing measurements); 0009 the MQTT publish positions (``publish_positions``).
+order, the failing measurements); 0009 the MQTT publish positions (``publish_positions``);
+0010 the line's station states (``station_states``).
 ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
@@ -103,11 +104,12 @@ from acquire.store.check_tables import check_tables
 from acquire.store.columns import RUN_STATES as RUN_STATES
 from acquire.store.columns import UtcDateTime as UtcDateTime
 from acquire.store.columns import _id, _real, _ref, _text
+from acquire.store.line_tables import line_tables
 from acquire.store.publish_tables import publish_tables
 from acquire.store.run_tables import bias_tables, grr_tables
 
-#: The newest schema revision (the Alembic revision id of ``migrations/versions/0008_*.py``).
-SCHEMA_REVISION = "0009"
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0010_*.py``).
+SCHEMA_REVISION = "0010"
 #: The condition of ``ix_measurements_failing``: a verdict that counts a check as failing
 #: (not a pass, a conditional pass or "" (not judged); acquire.store.lot_query.NOT_FAILING).
 FAILING_VERDICT = "verdict NOT IN ('pass', 'conditional pass', '')"
@@ -320,6 +322,7 @@ def build_metadata() -> MetaData:
     check_tables(md)
     grr_tables(md)
     publish_tables(md)
+    line_tables(md)
     return md
 
 

@@ -20,7 +20,6 @@ from sqlalchemy import Connection, Select
 from acquire.errors import StoreError
 
 
-
 def compiled_sql(conn: Connection, query: Select) -> tuple[str, Any]:
     """``query`` as the driver's SQL text and parameters (bind-processed as SQLAlchemy would)."""
     dialect = conn.dialect

@@ -12,6 +12,7 @@ measurements by their sequence number. The per quantity numbers are in
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
 from datetime import datetime
 from typing import TYPE_CHECKING, Any
@@ -217,7 +218,9 @@ def outcome_counts(db: Database, chosen: LotFilter) -> OutcomeCounts:
     return db.read("counting outcomes", work)
 
 
-def _counted(per_bin: list[Any], repeats: list[Any], failing: list[Any]) -> OutcomeCounts:
+def _counted(
+    per_bin: Sequence[Any], repeats: Sequence[Any], failing: Sequence[Any]
+) -> OutcomeCounts:
     """OutcomeCounts from (bin, attempts, passing attempts) of every chosen attempt, the
     attempts of serials tested more than once (serial key, attempt, id, outcome, bin; in
     order) and the failing checks (parameter, frequency, serials)."""

@@ -226,7 +226,7 @@ def _counted(
             passed -= passes
             earlier.add(int(row[2]))
     checks: dict[tuple[str, float | None], int] = {}
-    for p, f, unit_id in sorted(set(failing)):
+    for p, f, unit_id in sorted({tuple(row) for row in failing}):
         if unit_id not in earlier:
             key = (p, None if f == DC else f)
             checks[key] = checks.get(key, 0) + 1

@@ -203,8 +203,8 @@ class _Limits:
         self._counted: dict[str, dict[tuple, float | None]] = {}
 
     def median(self, row: Any, column: str) -> float | None:
-        low, high, stated = row.limits[column]
-        if not stated:
+        low, high = row.limits[column]
+        if low is None:
             return None
         if low == high:
             return float(low)

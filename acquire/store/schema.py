@@ -74,7 +74,8 @@ references override, temperature); 0004 the measurements' test time and the test
 standards, their results and acknowledgements, and a unit's ``check_acknowledgement_id``; 0007
 the gauge R&R studies; 0008 the indexes that count a lot's outcomes (each serial's attempts in
 order, the failing measurements); 0009 the MQTT publish positions (``publish_positions``);
-0010 the line's station states (``station_states``).
+0010 the line's station states (``station_states``); 0011 the
+units of a lot by bin and outcome.
 ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
@@ -108,8 +109,8 @@ from acquire.store.line_tables import line_tables
 from acquire.store.publish_tables import publish_tables
 from acquire.store.run_tables import bias_tables, grr_tables
 
-#: The newest schema revision (the Alembic revision id of ``migrations/versions/0010_*.py``).
-SCHEMA_REVISION = "0010"
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0011_*.py``).
+SCHEMA_REVISION = "0011"
 #: The condition of ``ix_measurements_failing``: a verdict that counts a check as failing
 #: (not a pass, a conditional pass or "" (not judged); acquire.store.lot_query.NOT_FAILING).
 FAILING_VERDICT = "verdict NOT IN ('pass', 'conditional pass', '')"
@@ -272,6 +273,7 @@ def build_metadata() -> MetaData:
         _real("temperature"),
         _ref("check_acknowledgement_id", "check_acknowledgements"),
         Index("ix_units_lot_serial", "lot_id", "serial_key", "attempt", "id"),
+        Index("ix_units_lot_bin", "lot_id", "bin", "outcome"),
     )
     Table(
         "measurements",

@@ -284,3 +284,41 @@ def test_ctrl_c_on_the_plain_path_keeps_the_points_marked_interrupted(tmp_path):
         assert (info.recorded_status, info.points) == ("interrupted", saved)
         assert info.note.startswith("stopped") or "Ctrl-C" in info.note, info.note
         assert len(store.sweep_points(1)) == saved
+
+
+def _same_set(a, b) -> None:
+    from dataclasses import fields
+
+    for field in fields(a):
+        x, y = getattr(a, field.name), getattr(b, field.name)
+        if isinstance(x, np.ndarray) or isinstance(y, np.ndarray):
+            np.testing.assert_array_equal(x, y)
+            assert np.asarray(x).dtype == np.asarray(y).dtype, field.name
+        else:
+            assert x == y and type(x) is type(y), field.name
+
+
+def test_reference_sets_read_the_same_either_way(tmp_path):
+    from acquire.compensation import ReferenceSet
+
+    url = _store(tmp_path)
+    f = np.array([1e3, 1e4, 1e5])
+    sets = [
+        ReferenceSet(frequency=f, open=1e-3 - 1e6j / f, short=np.array([0.02, np.nan, 0.03]),
+                     captured_at=datetime(2026, 3, 2, 8, 0, 1, 5, tzinfo=UTC), fixture="jig 'A'",
+                     temperature=23.5, notes="line 1\nline 2", repeats=3, grid_spacing="log",
+                     open_u=np.array([1e-4, 2e-4, np.inf]), short_u=np.full(3, 1e-5)),
+        ReferenceSet(frequency=f, open=1e-3 - 1e6j / f, short=0.02 + 1e-6j * f,
+                     load=np.full(3, 100.1 + 0.2j), load_true=np.full(3, 100.0 + 0j)),
+    ]  # fmt: skip
+    with open_store(url) as store:
+        ids = [store.save_reference_set(s, name=f"set {k}") for k, s in enumerate(sets)]
+        listed = store.list_reference_sets()
+        loaded = [store.load_reference_set(k) for k in ids]
+    with open_sweep_store(url) as plain:
+        assert isinstance(plain, PlainSweepStore)
+        assert plain.list_reference_sets() == listed
+        for k, usual in zip(ids, loaded, strict=True):
+            _same_set(plain.load_reference_set(k), usual)
+        with pytest.raises(StoreError, match="there is no reference set 99 in the store"):
+            plain.load_reference_set(99)

@@ -38,7 +38,8 @@ WRAPPER = (
     "    code = main(sys.argv[2:])\n"
     "finally:\n"
     "    heavy = ('sqlalchemy', 'alembic', 'pandas', 'scipy')\n"
-    "    found = sorted(m for m in sys.modules if m.split('.')[0] in heavy)\n"
+    "    found = sorted(m for m in sys.modules if m.split('.')[0] in heavy\n"
+    "                   or m.startswith('acquire.commands.station'))\n"
     "    open(out, 'w').write(json.dumps(found))\n"
     "sys.exit(code)\n"
 )

@@ -33,6 +33,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from acquire.errors import StoreError
+from acquire.store import sqlite_connection
 from acquire.store.migrations import HEAD_REVISION
 from acquire.store.plain_values import identity_key, sqlite_time, to_json, utc_now
 from acquire.store.quick_read import LISTED_COLUMNS, VERSION_TABLE, plain_sqlite_path
@@ -40,7 +41,7 @@ from acquire.store.quick_read import _info as listed_info
 from acquire.store.records import ReferenceSetInfo
 from acquire.store.reference_rows import HEAD_NAMES, POINT_NAMES, reference_set
 from acquire.store.run_writer import RunWriter
-from acquire.store.sqlite_connection import MIN_SQLITE, PlainDatabase, connect
+from acquire.store.sqlite_connection import MIN_SQLITE, PlainDatabase
 from acquire.store.sweep_batch import (
     SweepNotRunning,
     advance_text,
@@ -94,7 +95,7 @@ class PlainSweepStore:
         if not path.is_file():
             return None
         try:
-            conn = connect(path)
+            conn = sqlite_connection.connect(path)
         except sqlite3.Error:
             return None
         try:

@@ -235,6 +235,8 @@ def test_a_new_file_or_an_older_revision_goes_the_usual_way(tmp_path):
         assert isinstance(store, Store) and store.migrated_from == "0007"
     with open_sweep_store(old) as store:
         assert isinstance(store, PlainSweepStore)
+    for other in ("postgresql://someone@127.0.0.1/test", "sqlite://", f"{old}?mode=ro"):
+        assert PlainSweepStore.open_existing(other) is None  # nothing is reached for these
 
 
 def _sweep_command(url: str, resource: str, out: Path, points: int) -> list[str]:

@@ -165,6 +165,13 @@ def _refusals(store, url: str) -> list[str]:
     return said
 
 
+def test_the_ends_a_sweep_may_have_are_the_schemas():
+    from acquire.store.schema import SWEEP_STATES
+    from acquire.store.sweep_batch import END_STATES
+
+    assert END_STATES == SWEEP_STATES[1:]
+
+
 def test_refusals_and_failures_say_the_same_line(tmp_path):
     urls = _store(tmp_path, "usual.db"), _store(tmp_path, "plain.db")
     with open_store(urls[0]) as store:

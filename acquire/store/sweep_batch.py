@@ -162,9 +162,13 @@ def other_writer(sweep_id: int, have: int, start: int) -> StoreError:
     )
 
 
+#: How a sweep may end (``schema.SWEEP_STATES`` after ``running``).
+END_STATES = ("complete", "interrupted")
+
+
 def check_end(sweep_id: int, status: str, finished: str | None) -> None:
     """Refuse an end status a sweep cannot have, or a second end."""
-    if status not in ("complete", "interrupted"):
+    if status not in END_STATES:
         raise StoreError(f"a sweep finishes as 'complete' or 'interrupted', not {status!r}")
     if finished is not None:
         raise StoreError(f"sweep {sweep_id} is already {finished}")

@@ -169,7 +169,7 @@ def test_the_ends_a_sweep_may_have_are_the_schemas():
     from acquire.store.schema import SWEEP_STATES
     from acquire.store.sweep_batch import END_STATES
 
-    assert END_STATES == SWEEP_STATES[1:]
+    assert SWEEP_STATES[1:] == END_STATES
 
 
 def test_refusals_and_failures_say_the_same_line(tmp_path):

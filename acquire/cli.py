@@ -59,7 +59,19 @@ def _load(name: str):
     return importlib.import_module(f"acquire.commands.{COMMANDS[name]}")
 
 
-def build_parser() -> argparse.ArgumentParser:
+def named_command(argv: Sequence[str]) -> str | None:
+    """The subcommand ``argv`` names (its first word that is not an option), if it is one."""
+    for word in argv:
+        if word == "--":
+            return None
+        if not word.startswith("-"):
+            return word if word in COMMANDS else None
+    return None
+
+
+def build_parser(only: str | None = None) -> argparse.ArgumentParser:
+    """The parser of every subcommand, or of subcommand ``only`` alone (a command line that
+    names one parses the same either way, without loading every other subcommand's module)."""
     parser = argparse.ArgumentParser(
         prog="acquire",
         description=DESCRIPTION,
@@ -67,7 +79,7 @@ def build_parser() -> argparse.ArgumentParser:
     )
     parser.add_argument("--debug", action="store_true", help="show the full traceback on errors")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND")
-    for name in COMMANDS:
+    for name in COMMANDS if only is None else (only,):
         try:
             module = _load(name)
         except ModuleNotFoundError as exc:
@@ -89,8 +101,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     from acquire.display import keep_output_readable
 
     keep_output_readable(sys.stdout, sys.stderr)  # an ASCII terminal, a file name not in UTF-8
-    parser = build_parser()
-    args = parser.parse_args(argv)
+    words = sys.argv[1:] if argv is None else list(argv)
+    parser = build_parser(named_command(words))
+    args = parser.parse_args(words)
     if getattr(args, "_module", None) is None:
         parser.print_help()
         return 0

@@ -26,7 +26,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from acquire.errors import StoreError
-from acquire.store.sweeps import SweepNotRunning
+from acquire.store.sweep_batch import SweepNotRunning
 from acquire.sweep_state import SweepState
 from acquire.uncertainty import expanded
 

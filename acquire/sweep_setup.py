@@ -202,11 +202,12 @@ def review_readings(state: SweepState, refs: Any) -> None:
     Where the fixture limits accuracy (with a reference set), and whether the readings look like
     an empty fixture (:func:`acquire.open_fixture.open_fixture`).
     """
-    from acquire.capture import dut_warnings
     from acquire.open_fixture import open_fixture
 
     f, raw, _ = state.points()
     if refs is not None:
+        from acquire.capture import dut_warnings
+
         for w in dut_warnings(refs, f, raw):
             state.warn(w)
     state.open_fixture = open_fixture(f, raw, refs)

@@ -6,16 +6,19 @@ Goals (each printed with :func:`goals.report`):
     ``acquire sweep --reference ...`` calls it (blocks sized automatically, the error queue read
     after every block, an open/short reference set with each point's uncertainty, the live view
     redrawing on its timer into a terminal-sized console written to the null device, through
-    the same ``_harmless(view.update)`` progress call), without a store and with the real SQLite
-    store's sweep writer. Figure: wall time / (N x 5 ms) - 1, in percent; goal at most 1 %.
+    the same ``_harmless(view.update)`` progress call), without a store and with the sweep
+    writer of the store as ``acquire sweep`` opens an SQLite file already at the newest
+    revision (:mod:`acquire.store.sqlite_sweeps`, plain sqlite3). Figure: wall time /
+    (N x 5 ms) - 1, in percent; goal at most 1 %.
     Beside it, the same blocks sent as bare pyvisa list queries (no driver, no correction, no
     store, no view): what the simulator's fixed cost per list query adds on its own, so the
     reader sees how much of the excess is the tool's.
 (2) sweep points written vs bare ``executemany`` of the same rows with the same durability:
     the rows (as a sweep at 5 ms per point hands them to the store: a group every 0.25 s, about
-    50 points) written by :class:`acquire.sweep_saving.PointSaver` through the store's sweep
-    writer on a thread of their own, vs bare :mod:`sqlite3` ``executemany`` into the same table
-    of a store file of the same layout and indexes in the same folder, with the store's own
+    50 points) written by :class:`acquire.sweep_saving.PointSaver` through the sweep writer of
+    the store ``acquire sweep`` opens on an existing store file (plain sqlite3), on a thread of
+    their own, vs bare :mod:`sqlite3` ``executemany`` into the same table of a store file of
+    the same layout and indexes in the same folder, with the store's own
     connection settings (WAL, ``synchronous=FULL``, foreign keys on), one ``BEGIN IMMEDIATE``
     ... ``COMMIT`` per group. Rows of the bare side are prepared outside the timing; the tool's
     time includes turning its arrays into rows. Tool and bare run interleaved, several rounds
@@ -27,8 +30,9 @@ Goals (each printed with :func:`goals.report`):
     the goal's bare side updates the sweep's row in each group's transaction too; the ratio
     against bare writes of the points alone is printed beside it. Figure: tool rate / bare rate;
     goal at least 0.8. Information lines, not goals: the statements the store sends per group
-    (counted with SQLAlchemy's ``before_cursor_execute``), and a scratch run of both sides with
-    ``synchronous=OFF`` that shows the tool's own CPU time apart from the disk's waits.
+    (counted with sqlite3's trace callback in a run of their own), and a scratch run of both
+    sides with ``synchronous=OFF`` that shows the tool's own CPU time apart from the disk's
+    waits.
 
 The simulated meter runs in its own process (``acquire sim --port 0``). Each case runs several
 times and the best counts (the machine is shared).
@@ -56,16 +60,16 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 import numpy as np  # noqa: E402
 import pyvisa  # noqa: E402
 from goals import Goal, report  # noqa: E402
-from sqlalchemy import event  # noqa: E402
 
 from acquire.commands.sweep import _harmless  # noqa: E402
 from acquire.compensation import ReferenceSet  # noqa: E402
 from acquire.dashboard import open_view  # noqa: E402
 from acquire.display import text_console  # noqa: E402
 from acquire.plan import log_plan  # noqa: E402
-from acquire.store import open_store  # noqa: E402
-from acquire.store.schema import utc_now  # noqa: E402
-from acquire.store.sweeps import POINT_COLUMNS  # noqa: E402
+from acquire.store import open_store, sqlite_connection  # noqa: E402
+from acquire.store.plain_values import utc_now  # noqa: E402
+from acquire.store.sqlite_sweeps import PlainSweepStore, open_sweep_store  # noqa: E402
+from acquire.store.sweep_batch import POINT_COLUMNS  # noqa: E402
 from acquire.sweep import run_sweep  # noqa: E402
 from acquire.sweep_saving import PointSaver  # noqa: E402
 from acquire.sweep_setup import prepare_state, uncertainty_model  # noqa: E402
@@ -164,9 +168,20 @@ def bare_blocks(resource: str, blocks: list[np.ndarray]) -> float:
     return elapsed
 
 
+def existing_store(path: Path) -> PlainSweepStore:
+    """The store ``acquire sweep`` writes to when ``path`` holds one already: made the usual way
+    first (as the first command does), then opened as the command opens it."""
+    url = f"sqlite:///{path}"
+    with open_store(url):
+        pass
+    store = open_sweep_store(url)
+    assert isinstance(store, PlainSweepStore), store
+    return store
+
+
 def sweep_goal(resource: str, n: int, repeats: int, tmp: Path) -> None:
     with (
-        open_store(f"sqlite:///{tmp / 'sweeps.db'}") as store,
+        existing_store(tmp / "sweeps.db") as store,
         ImpedanceMeter.open(resource, dialect="simulated") as meter,
     ):
         refs = references(meter, n)
@@ -229,61 +244,72 @@ def filled_state(n: int) -> SweepState:
     return state
 
 
-class StatementCount:
-    """The statements the store's engine sends (``before_cursor_execute``), by first words."""
+class Connections:
+    """Every connection the plain store opens, made as it makes them and then, for scratch runs,
+    told ``synchronous=OFF``; ``counting`` also counts the statements each runs, by first words
+    (the trace callback sees each row of an ``executemany`` as a statement of its own)."""
 
-    def __init__(self, engine) -> None:
+    def __init__(self, synchronous: str, counting: bool) -> None:
         self.kinds: dict[str, int] = {}
-        self._engine = engine
-        event.listen(engine, "before_cursor_execute", self._seen)
+        self._synchronous = synchronous
+        self._counting = counting
+        self._connect = sqlite_connection.connect
 
-    def _seen(self, conn, cursor, statement, parameters, context, executemany) -> None:
-        words = " ".join(statement.split()[:2]).upper()
-        key = words + (" (executemany)" if executemany else "")
-        self.kinds[key] = self.kinds.get(key, 0) + 1
+    def __enter__(self) -> Connections:
+        sqlite_connection.connect = self._made  # type: ignore[assignment]
+        return self
 
-    def close(self) -> None:
-        event.remove(self._engine, "before_cursor_execute", self._seen)
+    def __exit__(self, *exc) -> None:
+        sqlite_connection.connect = self._connect  # type: ignore[assignment]
+
+    def _made(self, path: Path) -> sqlite3.Connection:
+        conn = self._connect(path)
+        if self._synchronous == "OFF":
+            conn.execute("PRAGMA synchronous = OFF")
+        if self._counting:
+            conn.set_trace_callback(self._seen)
+        return conn
+
+    def _seen(self, statement: str) -> None:
+        words = " ".join(statement.split()[:3]).upper()
+        self.kinds[words] = self.kinds.get(words, 0) + 1
 
 
-def synchronous_off(engine) -> None:
-    """Scratch runs only: every connection the store hands out stops waiting for the disk."""
+def tool_writes(
+    path: Path, state: SweepState, synchronous: str, counting: bool = False
+) -> tuple[float, dict[str, int]]:
+    """The saver's writes of every group, on a thread of their own, through the sweep writer of
+    the store ``acquire sweep`` opens on the existing store file ``path``.
 
-    def off(dbapi_connection, record, proxy) -> None:
-        dbapi_connection.execute("PRAGMA synchronous = OFF")
-
-    event.listen(engine, "checkout", off)
-
-
-def tool_writes(store, state: SweepState, synchronous: str) -> tuple[float, dict[str, int]]:
-    """The saver's writes of every group, on a thread of their own, through the real writer.
-
-    Also the statements the store sent per group (counted over the timed groups)."""
+    With ``counting``, also the statements the store sent (not a timed round: the trace
+    callback costs time of its own)."""
     n = state.count
-    if synchronous == "OFF":
-        synchronous_off(store.engine)
-    writer = store.begin_sweep(dut="bench", settings={"benchmark": True})
-    saver = PointSaver(writer, state, True)
-    elapsed = [0.0]
-    counted = StatementCount(store.engine)
+    with (
+        Connections(synchronous, counting) as connections,
+        existing_store(path) as store,
+    ):
+        writer = store.begin_sweep(dut="bench", settings={"benchmark": True})
+        saver = PointSaver(writer, state, True)
+        elapsed = [0.0]
+        connections.kinds.clear()
 
-    def write_all() -> None:
-        began = time.perf_counter()
-        for end in range(GROUP, n + GROUP, GROUP):
-            state.count = min(end, n)
-            saver.write_waiting()
-        elapsed[0] = time.perf_counter() - began
+        def write_all() -> None:
+            began = time.perf_counter()
+            for end in range(GROUP, n + GROUP, GROUP):
+                state.count = min(end, n)
+                saver.write_waiting()
+            elapsed[0] = time.perf_counter() - began
 
-    try:
-        thread = threading.Thread(target=write_all, name="sweep-saver")
-        thread.start()
-        thread.join()
-    finally:
-        state.count = n
-        counted.close()
-    writer.finish("complete")
-    assert writer.points == n
-    return elapsed[0], counted.kinds
+        try:
+            thread = threading.Thread(target=write_all, name="sweep-saver")
+            thread.start()
+            thread.join()
+        finally:
+            state.count = n
+        kinds = dict(connections.kinds)
+        writer.finish("complete")
+        assert writer.points == n
+    return elapsed[0], kinds
 
 
 def bare_rows(state: SweepState, sweep_id: int) -> list[tuple]:
@@ -329,15 +355,13 @@ def bare_writes(path: Path, rows: list[tuple], header: bool, synchronous: str) -
 def write_round(state: SweepState, tmp: Path, k: int, synchronous: str) -> tuple[float, ...]:
     """One round, interleaved: the tool, the bare writes with the header update, the bare
     writes of the points alone; each into a new store file of its own (same layout, empty)."""
-    with open_store(f"sqlite:///{tmp / f'tool-{synchronous}{k}.db'}") as store:
-        t_tool, kinds = tool_writes(store, state, synchronous)
+    t_tool, _ = tool_writes(tmp / f"tool-{synchronous}{k}.db", state, synchronous)
     times = [t_tool]
     for header in (True, False):
         path = tmp / f"bare-{synchronous}{k}-{int(header)}.db"
         with open_store(f"sqlite:///{path}") as store:
             sweep_id = store.begin_sweep(dut="bench").id
         times.append(bare_writes(path, bare_rows(state, sweep_id), header, synchronous))
-    write_round.kinds = kinds  # type: ignore[attr-defined]
     return tuple(times)
 
 
@@ -349,13 +373,13 @@ def writer_goal(n: int, repeats: int, tmp: Path) -> None:
     for synchronous in ("FULL", "OFF"):
         rounds = [write_round(state, tmp, k, synchronous) for k in range(repeats + 1)]
         best[synchronous] = np.min(np.array(rounds[1:]), axis=0)
-    kinds = write_round.kinds  # type: ignore[attr-defined]
+    _, kinds = tool_writes(tmp / "counted.db", state, "FULL", counting=True)
     per_group = ", ".join(f"{count / groups:g} {kind}" for kind, count in sorted(kinds.items()))
     print(
         f"\n(2) {n} points written in {groups} groups of {GROUP} (one transaction each); "
         f"best of {repeats}, interleaved:"
     )
-    print(f"  statements per group from the store: {per_group} (+ BEGIN IMMEDIATE, COMMIT)")
+    print(f"  statements per group from the store (an executemany's rows each): {per_group}")
     for synchronous, label in (("FULL", "synchronous=FULL"), ("OFF", "synchronous=OFF, scratch")):
         tool, with_header, points_only = n / best[synchronous]
         print(f"  {label}:")

@@ -159,7 +159,7 @@ def _measure(args: argparse.Namespace) -> int:
     from acquire.display import text_console
     from acquire.errors import InputError
     from acquire.plan import check_range
-    from acquire.store import open_store
+    from acquire.store.sqlite_sweeps import open_sweep_store
     from acquire.sweep import check_coverage, run_sweep
     from acquire.sweep_setup import (
         begin,
@@ -182,7 +182,7 @@ def _measure(args: argparse.Namespace) -> int:
     override = _override(args.use_despite_problems)
     level = parse_quantity(args.level, "V") if args.level else None
     console = text_console()
-    with open_store(args.store) as store:
+    with open_sweep_store(args.store) as store:
         if args.csv:
             check_destination(args.csv, store, "--csv")
         ref_id, refs = (None, None)

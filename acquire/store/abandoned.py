@@ -12,7 +12,6 @@ from __future__ import annotations
 
 import os
 import socket
-from datetime import datetime, timedelta
 from functools import partial
 from typing import Any
 
@@ -21,33 +20,8 @@ from sqlalchemy import Connection, select, update
 from acquire.errors import StoreError
 from acquire.store.engine import Database
 from acquire.store.schema import TABLES, utc_now
-
-
-def _process_exists(pid: int) -> bool:
-    if pid == os.getpid():
-        return True
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True
-    return True
-
-
-def writer_gone(
-    host: str | None,
-    pid: int | None,
-    last_write: datetime | None,
-    now: datetime,
-    stale_after: float,
-) -> bool:
-    """True if the process writing a running sweep is known to have ended (see module doc)."""
-    if last_write is None or now - last_write > timedelta(seconds=stale_after):
-        return True
-    if os.name == "posix" and host == socket.gethostname() and pid is not None:
-        return not _process_exists(pid)
-    return False
+from acquire.store.writer_alive import GONE_NOTE, process_exists
+from acquire.store.writer_alive import writer_gone as writer_gone
 
 
 def close_dead_writers(db: Database) -> list[int]:
@@ -69,7 +43,7 @@ def close_dead_writers(db: Database) -> list[int]:
     rows = db.read("looking for sweeps of ended processes", lambda c: c.execute(running).all())
     closed: list[int] = []
     for row in rows:
-        if _process_exists(row.writer_pid):
+        if process_exists(row.writer_pid):
             continue
         mark = (
             update(sweeps)
@@ -77,7 +51,7 @@ def close_dead_writers(db: Database) -> list[int]:
             .where(sweeps.c.last_write_at == row.last_write_at)
             .values(
                 status="interrupted",
-                note=row.note or "the writing process ended without finishing the sweep",
+                note=row.note or GONE_NOTE,
                 finished_at=utc_now(),
             )
         )

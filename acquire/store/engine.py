@@ -21,7 +21,6 @@ before anything is sent, and a failure after that is reported, never retried bli
 
 from __future__ import annotations
 
-import json
 import math
 import threading
 from collections.abc import Callable
@@ -41,30 +40,17 @@ from sqlalchemy.exc import (
 from sqlalchemy.pool import StaticPool
 
 from acquire.errors import StoreError
+from acquire.store.failure import BUSY_TIMEOUT_S as BUSY_TIMEOUT_S
+from acquire.store.failure import store_failure
+from acquire.store.plain_values import to_json as to_json
+from acquire.store.sqlite_connection import MIN_SQLITE as MIN_SQLITE
+from acquire.store.sqlite_connection import apply_settings
 from acquire.store.url import StoreLocation
 
-#: Seconds a writer waits for another process to release an SQLite store before giving up.
-BUSY_TIMEOUT_S = 30.0
-#: Oldest SQLite library the store works with.
-MIN_SQLITE = (3, 35, 0)
 #: Seconds to wait for a PostgreSQL server to answer a new connection.
 CONNECT_TIMEOUT_S = 10
 
 T = TypeVar("T")
-
-
-def _json_default(value: Any) -> Any:
-    if isinstance(value, np.generic):
-        return value.item()
-    if isinstance(value, np.ndarray):
-        return value.tolist()
-    raise TypeError(f"sweep settings hold a {type(value).__name__}, which cannot be stored")
-
-
-def to_json(value: Any) -> str:
-    """Serialise sweep settings as strict JSON (numpy scalars and arrays become plain numbers and
-    lists; NaN and infinity are refused, as PostgreSQL refuses them in JSON)."""
-    return json.dumps(value, default=_json_default, allow_nan=False, ensure_ascii=False)
 
 
 def make_engine(location: StoreLocation) -> Engine:
@@ -93,12 +79,7 @@ def make_engine(location: StoreLocation) -> Engine:
 
 def _sqlite_connect(dbapi_connection: Any, _record: Any) -> None:
     dbapi_connection.isolation_level = None
-    cursor = dbapi_connection.cursor()
-    cursor.execute(f"PRAGMA busy_timeout = {int(BUSY_TIMEOUT_S * 1000)}")
-    cursor.execute("PRAGMA journal_mode = WAL")
-    cursor.execute("PRAGMA synchronous = FULL")
-    cursor.execute("PRAGMA foreign_keys = ON")
-    cursor.close()
+    apply_settings(dbapi_connection)
 
 
 def insert_ignoring_duplicates(conn: Connection, table: Table, index_elements: list[str]):
@@ -264,25 +245,19 @@ class Database:
 
     def error(self, action: str, exc: BaseException | None) -> StoreError:
         """A StoreError for a failed ``action`` that says what to check."""
-        where = self.location.shown
         detail = getattr(exc, "orig", None) or exc
         detail = str(detail).strip().splitlines()[0] if str(detail).strip() else repr(exc)
         if isinstance(exc, StatementError) and not isinstance(exc, DBAPIError):
-            hint = "a value given to the store cannot be stored as it is; change or leave it out"
+            kind = "value"
         elif isinstance(exc, IntegrityError):
-            hint = "the record refers to something that is not in the store, or clashes with one"
+            kind = "integrity"
         elif isinstance(exc, DataError):
-            hint = "a value cannot be held by this database (PostgreSQL text cannot hold NUL)"
-        elif isinstance(exc, OperationalError) and "locked" in detail:
-            hint = (
-                f"another program kept the store busy for more than {BUSY_TIMEOUT_S:.0f} s; "
-                "try again, or use PostgreSQL for several stations"
-            )
+            kind = "data"
         elif isinstance(exc, OperationalError):
-            hint = "check that the database is reachable, running and writable by this user"
+            kind = "operational"
         else:
-            hint = "check the store URL and that the database is a results store of this program"
-        return StoreError(f"{action} failed in store {where}: {detail} ({hint})")
+            kind = "other"
+        return store_failure(action, self.location.shown, detail, kind)
 
     def dispose(self) -> None:
         """Close every connection of every thread, and the pool."""

@@ -21,7 +21,7 @@ from acquire.errors import StoreError
 
 
 def _utc_now() -> datetime:
-    from acquire.store.schema import utc_now  # here, so reading records needs no SQLAlchemy
+    from acquire.store.plain_values import utc_now
 
     return utc_now()
 

@@ -19,16 +19,14 @@ from sqlalchemy import Connection, select
 from acquire.errors import StoreError
 from acquire.store.engine import Database, float_column
 from acquire.store.records import ReferenceSetInfo
+from acquire.store.reference_rows import ARRAYS as _ARRAYS
+from acquire.store.reference_rows import POINT_NAMES, reference_set
+from acquire.store.reference_rows import STANDARDS as STANDARDS
+from acquire.store.reference_rows import UNCERTAINTIES as _UNCERTAINTIES
 from acquire.store.schema import TABLES, utc_now
 
 if TYPE_CHECKING:
     from acquire.compensation import ReferenceSet
-
-#: The standards a reference set may hold, in the order they are reported.
-STANDARDS = ("open", "short", "load")
-_ARRAYS = (*STANDARDS, "load_true")
-#: The per-standard uncertainty arrays (optional fields of a reference set).
-_UNCERTAINTIES = tuple(f"{std}_u" for std in STANDARDS)
 
 
 def _arrays(refs: Any) -> tuple[np.ndarray, dict[str, np.ndarray]]:
@@ -148,34 +146,14 @@ def reference_set_info(db: Database, ref_id: int) -> ReferenceSetInfo:
     return _info(row)
 
 
-def _check_complete(ref_id: int, points: int, indexes: list[int]) -> None:
-    """Raise StoreError if the stored rows of a set are not exactly its points 0..points-1."""
-    present = set(indexes)
-    missing = points - len(present & set(range(points)))
-    extra = len(present) - (points - missing)
-    if missing:
-        raise StoreError(
-            f"reference set {ref_id} is damaged: {missing} of its {points} points are missing; "
-            "capture the references again"
-        )
-    if extra:
-        raise StoreError(
-            f"reference set {ref_id} is damaged: it holds {extra} points beyond its {points}; "
-            "capture the references again"
-        )
-
-
 def load_reference_set(db: Database, ref_id: int) -> ReferenceSet:
     """Reference set ``ref_id`` as a :class:`acquire.compensation.ReferenceSet`.
 
     Raises StoreError when the set is not in the store, or when its stored points are not the
     ones its header counts (rows deleted or added by hand).
     """
-    from acquire.compensation import ReferenceSet
-
     sets, points = TABLES["reference_sets"], TABLES["reference_points"]
-    names = ["frequency"] + [f"{std}_{part}" for std in _ARRAYS for part in "rx"]
-    names += list(_UNCERTAINTIES)
+    names = list(POINT_NAMES)
 
     def work(conn: Connection) -> tuple[Any, list]:
         head = conn.execute(select(sets).where(sets.c.id == ref_id)).first()
@@ -188,29 +166,4 @@ def load_reference_set(db: Database, ref_id: int) -> ReferenceSet:
     head, rows = db.read("loading a reference set", work)
     if head is None:
         raise StoreError(f"there is no reference set {ref_id} in the store")
-    _check_complete(ref_id, head.points, [r[0] for r in rows])
-    table = np.array([tuple(r[1:]) for r in rows], dtype=float).reshape(len(rows), len(names))
-    held = set(head.standards.split(","))
-    arrays: dict[str, Any] = {}
-    for k, std in enumerate(_ARRAYS):
-        if std in held:
-            z = np.empty(len(rows), dtype=complex)
-            z.real, z.imag = table[:, 1 + 2 * k], table[:, 2 + 2 * k]
-            arrays[std] = z
-        else:
-            arrays[std] = None
-    first_u = 1 + 2 * len(_ARRAYS)
-    for k, name in enumerate(_UNCERTAINTIES):
-        u = table[:, first_u + k]
-        arrays[name] = None if np.isnan(u).all() else u.copy()  # NULL reads back as NaN
-    return ReferenceSet(
-        table[:, 0].copy(),
-        **arrays,
-        repeats=head.repeats,
-        grid_spacing=head.grid_spacing,
-        captured_at=head.captured_at,
-        fixture=head.fixture,
-        meter=head.meter,
-        temperature=head.temperature,
-        notes=head.notes,
-    )
+    return reference_set(ref_id, head._asdict(), rows)

@@ -82,10 +82,6 @@ the migrations refuse a newer store: 0002 records version 3 there, which they do
 
 from __future__ import annotations
 
-import hashlib
-import json
-from datetime import UTC, datetime
-
 from sqlalchemy import (
     JSON,
     CheckConstraint,
@@ -106,6 +102,8 @@ from acquire.store.columns import RUN_STATES as RUN_STATES
 from acquire.store.columns import UtcDateTime as UtcDateTime
 from acquire.store.columns import _id, _real, _ref, _text
 from acquire.store.line_tables import line_tables
+from acquire.store.plain_values import identity_key as identity_key
+from acquire.store.plain_values import utc_now as utc_now
 from acquire.store.publish_tables import publish_tables
 from acquire.store.run_tables import bias_tables, grr_tables
 
@@ -116,16 +114,6 @@ SCHEMA_REVISION = "0011"
 FAILING_VERDICT = "verdict NOT IN ('pass', 'conditional pass', '')"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
-
-
-def utc_now() -> datetime:
-    """The current time, timezone-aware, in UTC."""
-    return datetime.now(UTC)
-
-
-def identity_key(*parts: str) -> str:
-    """The SHA-256 key of an identity made of several strings (unambiguous for any content)."""
-    return hashlib.sha256(json.dumps(list(parts), ensure_ascii=False).encode()).hexdigest()
 
 
 def build_metadata() -> MetaData:

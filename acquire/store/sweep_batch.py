@@ -1,27 +1,30 @@
 """A sweep batch as the database driver takes it: the SQL written once per parameter style,
-and the rows built column by column with numpy (:func:`point_rows`).
+and the rows built column by column with numpy (:func:`batch_rows`).
 
-The statements are plain SQL given to ``Connection.exec_driver_sql`` (nothing compiled per
-batch, no dict per row; SQLAlchemy still wraps the driver's errors, so a store that is out of
-reach is reported as one): the sweep row's update in the usual case and the points'
-``executemany``. The heartbeat time gets the column's own bind processing, and NaN is sent as
-None, so the rows stored are those an INSERT built with SQLAlchemy Core stores
-(``tests/test_store_sweep_rows.py``).
+The statements are plain SQL, given to ``Connection.exec_driver_sql`` by
+:class:`acquire.store.sweeps.SweepWriter` (nothing compiled per batch, no dict per row;
+SQLAlchemy still wraps the driver's errors, so a store that is out of reach is reported as one)
+and to :mod:`sqlite3` by :class:`acquire.store.sqlite_sweeps.PlainSweepWriter`: the sweep row's
+update in the usual case and the points' ``executemany``. NaN is sent as None, so the rows
+stored are those an INSERT built with SQLAlchemy Core stores (``tests/test_store_sweep_rows.py``).
+This module imports no SQLAlchemy.
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
-from datetime import datetime
 from functools import cache
 from itertools import repeat
 from typing import Any
 
 import numpy as np
-from sqlalchemy import Select, bindparam, select
 
 from acquire.errors import StoreError
-from acquire.store.schema import TABLES
+
+
+class SweepNotRunning(StoreError):
+    """The sweep was finished or closed as abandoned: writing to it again cannot succeed."""
+
 
 #: The numeric columns of a sweep point, as ``sweep_points`` returns them (then ``flags``).
 POINT_COLUMNS = ("frequency", "raw_r", "raw_x", "corrected_r", "corrected_x", "u_r", "u_x")
@@ -47,30 +50,6 @@ def advance_text(paramstyle: str) -> str:
         f"UPDATE sweeps SET points = {end}, last_write_at = {now} "
         f"WHERE sweeps.id = {sweep} AND sweeps.status = 'running' AND sweeps.points = {start}"
     )
-
-
-@cache
-def held_points() -> Select:
-    """The careful way's locked read of the points a running sweep holds (``sweep``: its id)."""
-    sweeps = TABLES["sweeps"]
-    return (
-        select(sweeps.c.points)
-        .where(sweeps.c.id == bindparam("sweep"), sweeps.c.status == "running")
-        .with_for_update()
-    )
-
-
-@cache
-def _time_processor(dialect: Any) -> Any:
-    column = TABLES["sweeps"].c.last_write_at
-    return column.type.dialect_impl(dialect).bind_processor(dialect)
-
-
-def time_value(dialect: Any, when: datetime) -> Any:
-    """``when`` as the driver's parameter for ``sweeps.last_write_at``: the column's own bind
-    processing (UTC; SQLAlchemy's text format on SQLite), as a Core statement would send it."""
-    process = _time_processor(dialect)
-    return when if process is None else process(when)
 
 
 #: The columns of a sweep point row, in the order ``SweepWriter.add_points`` sends them.
@@ -136,3 +115,60 @@ def check_flags(flags: Sequence[str] | None, n: int) -> list[str]:
     if len(marks) != n or not all(map(isinstance, marks, repeat(str))):
         raise StoreError(f"give the flags of {n} sweep points as {n} strings ('' for none)")
     return marks
+
+
+def batch_rows(
+    sweep_id: int,
+    start: int,
+    frequency: np.ndarray,
+    raw_z: np.ndarray,
+    corrected_z: np.ndarray | None,
+    uncertainty: np.ndarray | None,
+    flags: Sequence[str] | None,
+) -> list[tuple[Any, ...]]:
+    """A batch given to a sweep writer's ``add_points``, checked, as the rows that store it
+    (points ``start``, ``start + 1``, ...); StoreError for arrays that do not fit together."""
+    f = np.atleast_1d(np.asarray(frequency, dtype=float))
+    raw = np.atleast_1d(np.asarray(raw_z, dtype=complex))
+    if corrected_z is None:
+        cor = np.full(raw.shape, complex(np.nan, np.nan))
+    else:
+        cor = np.atleast_1d(np.asarray(corrected_z, dtype=complex))
+    if f.ndim != 1 or raw.shape != f.shape or cor.shape != f.shape:
+        raise StoreError(
+            f"sweep points need matching 1-D arrays, got frequency {f.shape}, "
+            f"raw {raw.shape}, corrected {cor.shape}"
+        )
+    u = check_uncertainty(uncertainty, f.size)
+    marks = check_flags(flags, f.size)
+    if f.size == 0:
+        return []
+    return point_rows(sweep_id, start, f, raw, cor, u, marks)
+
+
+def not_running(sweep_id: int) -> SweepNotRunning:
+    """The refusal of a batch for a sweep the store no longer holds running."""
+    return SweepNotRunning(
+        f"sweep {sweep_id} is no longer running in the store (it was finished or "
+        "closed as abandoned): begin a new sweep"
+    )
+
+
+def other_writer(sweep_id: int, have: int, start: int) -> StoreError:
+    """The refusal of a batch when the store holds a count this writer cannot have made."""
+    return StoreError(
+        f"sweep {sweep_id} holds {have} points in the store, but this writer "
+        f"counts {start}: another program writes to it; begin a new sweep"
+    )
+
+
+#: How a sweep may end (``schema.SWEEP_STATES`` after ``running``).
+END_STATES = ("complete", "interrupted")
+
+
+def check_end(sweep_id: int, status: str, finished: str | None) -> None:
+    """Refuse an end status a sweep cannot have, or a second end."""
+    if status not in END_STATES:
+        raise StoreError(f"a sweep finishes as 'complete' or 'interrupted', not {status!r}")
+    if finished is not None:
+        raise StoreError(f"sweep {sweep_id} is already {finished}")

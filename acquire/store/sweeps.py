@@ -29,11 +29,11 @@ import os
 import socket
 from collections.abc import Sequence
 from datetime import datetime
-from functools import partial
+from functools import cache, partial
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from sqlalchemy import Connection, func, select, update
+from sqlalchemy import Connection, Select, bindparam, func, select, update
 
 from acquire.errors import StoreError
 from acquire.store.abandoned import close_dead_writers as close_dead_writers
@@ -41,16 +41,16 @@ from acquire.store.abandoned import rows_changed, writer_gone
 from acquire.store.engine import Database, to_json
 from acquire.store.records import SweepInfo
 from acquire.store.run_rows import RunWriter
-from acquire.store.schema import SWEEP_STATES, TABLES, utc_now
+from acquire.store.schema import TABLES, utc_now
 from acquire.store.sweep_batch import POINT_COLUMNS as POINT_COLUMNS
+from acquire.store.sweep_batch import SweepNotRunning as SweepNotRunning
 from acquire.store.sweep_batch import (
     advance_text,
-    check_flags,
-    check_uncertainty,
-    held_points,
+    batch_rows,
+    check_end,
     insert_text,
-    point_rows,
-    time_value,
+    not_running,
+    other_writer,
 )
 
 if TYPE_CHECKING:
@@ -58,10 +58,6 @@ if TYPE_CHECKING:
 
 #: Seconds without a write after which a running sweep is taken as abandoned.
 STALE_AFTER_S = 3600.0
-
-
-class SweepNotRunning(StoreError):
-    """The sweep was finished or closed as abandoned: writing to it again cannot succeed."""
 
 
 def begin_sweep(
@@ -100,6 +96,30 @@ def begin_sweep(
     return SweepWriter(db, sweep_id)
 
 
+@cache
+def held_points() -> Select:
+    """The careful way's locked read of the points a running sweep holds (``sweep``: its id)."""
+    sweeps = TABLES["sweeps"]
+    return (
+        select(sweeps.c.points)
+        .where(sweeps.c.id == bindparam("sweep"), sweeps.c.status == "running")
+        .with_for_update()
+    )
+
+
+@cache
+def _time_processor(dialect: Any) -> Any:
+    column = TABLES["sweeps"].c.last_write_at
+    return column.type.dialect_impl(dialect).bind_processor(dialect)
+
+
+def time_value(dialect: Any, when: datetime) -> Any:
+    """``when`` as the driver's parameter for ``sweeps.last_write_at``: the column's own bind
+    processing (UTC; SQLAlchemy's text format on SQLite), as a Core statement would send it."""
+    process = _time_processor(dialect)
+    return when if process is None else process(when)
+
+
 class SweepWriter(RunWriter):
     """Streams the points of one sweep into the store; finish it, or use it as a context manager
     (a normal exit finishes it ``complete``, an exception ``interrupted``)."""
@@ -132,23 +152,11 @@ class SweepWriter(RunWriter):
         """
         if self._finished is not None:
             raise StoreError(f"sweep {self._id} is already {self._finished}: begin a new sweep")
-        f = np.atleast_1d(np.asarray(frequency, dtype=float))
-        raw = np.atleast_1d(np.asarray(raw_z, dtype=complex))
-        if corrected_z is None:
-            cor = np.full(raw.shape, complex(np.nan, np.nan))
-        else:
-            cor = np.atleast_1d(np.asarray(corrected_z, dtype=complex))
-        if f.ndim != 1 or raw.shape != f.shape or cor.shape != f.shape:
-            raise StoreError(
-                f"sweep points need matching 1-D arrays, got frequency {f.shape}, "
-                f"raw {raw.shape}, corrected {cor.shape}"
-            )
-        u = check_uncertainty(uncertainty, f.size)
-        marks = check_flags(flags, f.size)
-        if f.size == 0:
+        start = self._count
+        rows = batch_rows(self._id, start, frequency, raw_z, corrected_z, uncertainty, flags)
+        if not rows:
             return
-        start, count = self._count, f.size
-        rows = point_rows(self._id, start, f, raw, cor, u, marks)
+        count = len(rows)
         sweep_id = self._id
 
         def work(conn: Connection) -> int:
@@ -161,15 +169,9 @@ class SweepWriter(RunWriter):
                 return start + count
             have = conn.execute(held_points(), {"sweep": sweep_id}).scalar_one_or_none()
             if have is None:
-                raise SweepNotRunning(
-                    f"sweep {sweep_id} is no longer running in the store (it was finished or "
-                    "closed as abandoned): begin a new sweep"
-                )
+                raise not_running(sweep_id)
             if not start <= have <= start + count:
-                raise StoreError(
-                    f"sweep {sweep_id} holds {have} points in the store, but this writer "
-                    f"counts {start}: another program writes to it; begin a new sweep"
-                )
+                raise other_writer(sweep_id, have, start)
             new = rows[have - start :]
             sweeps = TABLES["sweeps"]
             bump = (
@@ -186,10 +188,7 @@ class SweepWriter(RunWriter):
 
     def finish(self, status: str = "complete", note: str = "") -> None:
         """Mark the sweep ``complete`` or ``interrupted`` (with an optional note)."""
-        if status not in SWEEP_STATES[1:]:
-            raise StoreError(f"a sweep finishes as 'complete' or 'interrupted', not {status!r}")
-        if self._finished is not None:
-            raise StoreError(f"sweep {self._id} is already {self._finished}")
+        check_end(self._id, status, self._finished)
         sweeps = TABLES["sweeps"]
         done = (
             update(sweeps)

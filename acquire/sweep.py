@@ -31,7 +31,7 @@ import numpy as np
 from acquire.compensation.interpolation import END_TOLERANCE
 from acquire.errors import CompensationError, InputError, StoreError
 from acquire.plan import FrequencyPlan, check_range
-from acquire.signals import stop_reason
+from acquire.signals import leave_stops_to_the_main_thread, stop_reason
 from acquire.sweep_saving import PointSaver, SaveReport
 from acquire.sweep_state import SweepState
 from acquire.sweep_uncertainty import PointUncertainty
@@ -234,6 +234,7 @@ class _Handoff:
             raise failure
 
     def _run(self) -> None:
+        leave_stops_to_the_main_thread()
         while (chunk := self._queue.get()) is not None:
             if not self._failed:
                 try:

@@ -26,6 +26,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from acquire.errors import StoreError
+from acquire.signals import leave_stops_to_the_main_thread
 from acquire.store.sweep_batch import SweepNotRunning
 from acquire.sweep_state import SweepState
 from acquire.uncertainty import expanded
@@ -121,6 +122,7 @@ class PointSaver:
         )
 
     def _run(self) -> None:
+        leave_stops_to_the_main_thread()
         pause = 0.0
         try:
             while not self._abandon:

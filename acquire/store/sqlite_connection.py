@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import sqlite3
 import threading
+import time
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any, TypeVar
@@ -32,10 +33,31 @@ def apply_settings(conn: Any) -> None:
     """The settings every connection to an SQLite store starts with (module doc)."""
     cursor = conn.cursor()
     cursor.execute(f"PRAGMA busy_timeout = {int(BUSY_TIMEOUT_S * 1000)}")
-    cursor.execute("PRAGMA journal_mode = WAL")
+    _write_ahead(cursor)
     cursor.execute("PRAGMA synchronous = FULL")
     cursor.execute("PRAGMA foreign_keys = ON")
     cursor.close()
+
+
+def _write_ahead(cursor: Any) -> None:
+    """Put the file in WAL mode (a no-op when it is already).
+
+    Changing the journal mode needs the file to itself, and SQLite answers "database is locked"
+    at once rather than through the busy timeout while another connection holds it (two
+    programs opening a new store at the same moment): that is tried again until the busy
+    timeout has passed, as any other wait for the file is.
+    """
+    deadline = time.monotonic() + BUSY_TIMEOUT_S
+    while True:
+        try:
+            (mode,) = cursor.execute("PRAGMA journal_mode").fetchone()
+            if str(mode).lower() != "wal":
+                cursor.execute("PRAGMA journal_mode = WAL")
+            return
+        except sqlite3.OperationalError as exc:
+            if "locked" not in str(exc) or time.monotonic() > deadline:
+                raise
+            time.sleep(0.02)
 
 
 def failure_kind(exc: BaseException) -> str:

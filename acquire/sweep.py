@@ -31,7 +31,7 @@ import numpy as np
 from acquire.compensation.interpolation import END_TOLERANCE
 from acquire.errors import CompensationError, InputError, StoreError
 from acquire.plan import FrequencyPlan, check_range
-from acquire.signals import leave_stops_to_the_main_thread, stop_reason
+from acquire.signals import held, leave_stops_to_the_main_thread, stop_reason
 from acquire.sweep_saving import PointSaver, SaveReport
 from acquire.sweep_state import SweepState
 from acquire.sweep_uncertainty import PointUncertainty
@@ -201,6 +201,7 @@ class _Handoff:
         self._queue: queue.SimpleQueue[tuple[Any, ...] | None] = queue.SimpleQueue()
         self._failed = False
         self._failure: BaseException | None = None
+        self._done = threading.Event()
         self._thread = threading.Thread(target=self._run, name="sweep-chunks", daemon=True)
         self._thread.start()
 
@@ -208,25 +209,36 @@ class _Handoff:
         self._held.append((f, z, u_m))
 
     def release(self) -> None:
-        for chunk in self._held:
-            self._queue.put(chunk)
-        self._held.clear()
+        with held():  # handed over whole: a stop in between would send a chunk twice
+            for chunk in self._held:
+                self._queue.put(chunk)
+            self._held.clear()
         self._raise()
 
     def finish(self) -> None:
-        """Every chunk received is in the state when this returns (Ctrl-C does not cut it short:
-        what is left is a few chunks of arithmetic)."""
-        for chunk in self._held:
-            self._queue.put(chunk)
-        self._held.clear()
-        if self._thread.is_alive():
-            self._queue.put(None)
-        while self._thread.is_alive():
-            try:
-                self._thread.join()
-            except KeyboardInterrupt:
-                continue
-        self._raise()
+        """Every chunk received is in the state when this returns. Ctrl-C or a stop signal
+        does not cut that short (what is left is a few chunks of arithmetic); it is raised once
+        the state is whole, so the sweep ends as interrupted with every point it measured.
+
+        The end is told by an event the thread sets, not by ``Thread.join``/``is_alive``: a
+        join interrupted by a signal can leave ``is_alive`` saying False while the thread still
+        works, which once let a unit be judged on a sweep with no points in its state.
+        """
+        with held():  # the tool's handlers (acquire.signals) raise a stop after the block
+            for chunk in self._held:
+                self._queue.put(chunk)
+            self._held.clear()
+            if not self._done.is_set():
+                self._queue.put(None)
+            stop: KeyboardInterrupt | None = None
+            while not self._done.is_set():  # Python's own Ctrl-C handler, outside the tool's
+                try:
+                    self._done.wait()
+                except KeyboardInterrupt as exc:
+                    stop = stop or exc
+            self._raise()
+        if stop is not None:
+            raise stop
 
     def _raise(self) -> None:
         failure, self._failure = self._failure, None
@@ -235,12 +247,15 @@ class _Handoff:
 
     def _run(self) -> None:
         leave_stops_to_the_main_thread()
-        while (chunk := self._queue.get()) is not None:
-            if not self._failed:
-                try:
-                    self._sink(*chunk)
-                except BaseException as exc:  # noqa: BLE001 - raised on the sweep's thread
-                    self._failure, self._failed = exc, True
+        try:
+            while (chunk := self._queue.get()) is not None:
+                if not self._failed:
+                    try:
+                        self._sink(*chunk)
+                    except BaseException as exc:  # noqa: BLE001 - raised on the sweep's thread
+                        self._failure, self._failed = exc, True
+        finally:
+            self._done.set()
 
 
 def run_sweep(

@@ -23,14 +23,11 @@ from __future__ import annotations
 import os
 import socket
 import sqlite3
-from collections.abc import Sequence
 from datetime import UTC, datetime
 from functools import partial
 from pathlib import Path
 from types import TracebackType
 from typing import TYPE_CHECKING, Any
-
-import numpy as np
 
 from acquire.errors import StoreError
 from acquire.store import sqlite_connection
@@ -40,13 +37,10 @@ from acquire.store.quick_read import LISTED_COLUMNS, VERSION_TABLE, plain_sqlite
 from acquire.store.quick_read import _info as listed_info
 from acquire.store.records import ReferenceSetInfo
 from acquire.store.reference_rows import HEAD_NAMES, POINT_NAMES, reference_set
-from acquire.store.run_writer import RunWriter
 from acquire.store.sqlite_connection import MIN_SQLITE, PlainDatabase
 from acquire.store.sweep_batch import (
-    SweepNotRunning,
+    SweepWriterBase,
     advance_text,
-    batch_rows,
-    check_end,
     insert_text,
     not_running,
     other_writer,
@@ -229,38 +223,14 @@ class PlainSweepStore:
         return f"PlainSweepStore({self.url!r})"
 
 
-class PlainSweepWriter(RunWriter):
+class PlainSweepWriter(SweepWriterBase):
     """The points of one sweep into the store, as :class:`acquire.store.sweeps.SweepWriter`
     writes them (the same statements, batches and ends)."""
 
     _db: PlainDatabase
 
-    @property
-    def points(self) -> int:
-        """How many points this writer has stored."""
-        return self._count
-
-    @property
-    def finished(self) -> str | None:
-        """The status the sweep was finished with, or None while it runs."""
-        return self._finished
-
-    def add_points(
-        self,
-        frequency: np.ndarray,
-        raw_z: np.ndarray,
-        corrected_z: np.ndarray | None = None,
-        uncertainty: np.ndarray | None = None,
-        flags: Sequence[str] | None = None,
-    ) -> None:
-        """Store a batch of points in one transaction (as ``SweepWriter.add_points``)."""
-        if self._finished is not None:
-            raise StoreError(f"sweep {self._id} is already {self._finished}: begin a new sweep")
-        start, sweep_id = self._count, self._id
-        rows = batch_rows(sweep_id, start, frequency, raw_z, corrected_z, uncertainty, flags)
-        if not rows:
-            return
-        count = len(rows)
+    def _store_rows(self, start: int, rows: list[tuple]) -> int:
+        count, sweep_id = len(rows), self._id
         insert = insert_text("qmark")
 
         def work(conn: sqlite3.Connection) -> int:
@@ -283,11 +253,9 @@ class PlainSweepWriter(RunWriter):
                 conn.executemany(insert, new)
             return have + len(new)
 
-        self._count = self._db.write("storing sweep points", work)
+        return self._db.write("storing sweep points", work)
 
-    def finish(self, status: str = "complete", note: str = "") -> None:
-        """Mark the sweep ``complete`` or ``interrupted`` (as ``SweepWriter.finish``)."""
-        check_end(self._id, status, self._finished)
+    def _mark_end(self, status: str, note: str) -> bool:
         done = (
             "UPDATE sweeps SET status = ?, note = ?, finished_at = ?, last_write_at = ? "
             "WHERE sweeps.id = ? AND sweeps.status = ?"
@@ -301,12 +269,7 @@ class PlainSweepWriter(RunWriter):
                 return True
             return tuple(conn.execute(ended, (sweep_id,)).fetchone() or ()) == (status, note)
 
-        if not self._db.write("finishing a sweep", work):
-            raise SweepNotRunning(f"sweep {sweep_id} was no longer running in the store")
-        self._finished = status
-
-    def _end(self, status: str, note: str) -> None:
-        self.finish(status, note=note)
+        return bool(self._db.write("finishing a sweep", work))
 
 
 def close_dead_writers(db: PlainDatabase) -> list[int]:

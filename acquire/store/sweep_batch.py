@@ -20,6 +20,7 @@ from typing import Any
 import numpy as np
 
 from acquire.errors import StoreError
+from acquire.store.run_writer import RunWriter
 
 
 class SweepNotRunning(StoreError):
@@ -172,3 +173,60 @@ def check_end(sweep_id: int, status: str, finished: str | None) -> None:
         raise StoreError(f"a sweep finishes as 'complete' or 'interrupted', not {status!r}")
     if finished is not None:
         raise StoreError(f"sweep {sweep_id} is already {finished}")
+
+
+class SweepWriterBase(RunWriter):
+    """What both sweep writers do alike (:class:`acquire.store.sweeps.SweepWriter` through
+    SQLAlchemy, :class:`acquire.store.sqlite_sweeps.PlainSweepWriter` through :mod:`sqlite3`):
+    the checks, the batch's rows, the count and the end. A subclass says how a batch is stored
+    (``_store_rows``: the new count) and how the sweep row is ended (``_mark_end``: True when
+    the sweep is, or already was, ended so)."""
+
+    @property
+    def points(self) -> int:
+        """How many points this writer has stored."""
+        return self._count
+
+    @property
+    def finished(self) -> str | None:
+        """The status the sweep was finished with, or None while it runs."""
+        return self._finished
+
+    def add_points(
+        self,
+        frequency: np.ndarray,
+        raw_z: np.ndarray,
+        corrected_z: np.ndarray | None = None,
+        uncertainty: np.ndarray | None = None,
+        flags: Sequence[str] | None = None,
+    ) -> None:
+        """Store a batch of points (Hz, complex ohm) in one transaction.
+
+        ``corrected_z`` may be None when no reference set is applied; NaN readings are stored as
+        NULL, overrange (infinite) ones as infinity. ``uncertainty`` is an (n, 2) array of the
+        expanded uncertainty (k = 2, ohm) of the corrected R and X, or None when unknown;
+        ``flags`` is one string per point ('' for a measured value, else comma-separated words
+        such as ``overrange``), or None for all ''.
+        """
+        if self._finished is not None:
+            raise StoreError(f"sweep {self._id} is already {self._finished}: begin a new sweep")
+        start = self._count
+        rows = batch_rows(self._id, start, frequency, raw_z, corrected_z, uncertainty, flags)
+        if rows:
+            self._count = self._store_rows(start, rows)
+
+    def finish(self, status: str = "complete", note: str = "") -> None:
+        """Mark the sweep ``complete`` or ``interrupted`` (with an optional note)."""
+        check_end(self._id, status, self._finished)
+        if not self._mark_end(status, note):
+            raise SweepNotRunning(f"sweep {self._id} was no longer running in the store")
+        self._finished = status
+
+    def _end(self, status: str, note: str) -> None:
+        self.finish(status, note=note)
+
+    def _store_rows(self, start: int, rows: list[tuple]) -> int:
+        raise NotImplementedError
+
+    def _mark_end(self, status: str, note: str) -> bool:
+        raise NotImplementedError

@@ -27,7 +27,6 @@ from __future__ import annotations
 
 import os
 import socket
-from collections.abc import Sequence
 from datetime import datetime
 from functools import cache, partial
 from typing import TYPE_CHECKING, Any
@@ -40,14 +39,12 @@ from acquire.store.abandoned import close_dead_writers as close_dead_writers
 from acquire.store.abandoned import rows_changed, writer_gone
 from acquire.store.engine import Database, to_json
 from acquire.store.records import SweepInfo
-from acquire.store.run_rows import RunWriter
 from acquire.store.schema import TABLES, utc_now
 from acquire.store.sweep_batch import POINT_COLUMNS as POINT_COLUMNS
 from acquire.store.sweep_batch import SweepNotRunning as SweepNotRunning
 from acquire.store.sweep_batch import (
+    SweepWriterBase,
     advance_text,
-    batch_rows,
-    check_end,
     insert_text,
     not_running,
     other_writer,
@@ -120,42 +117,11 @@ def time_value(dialect: Any, when: datetime) -> Any:
     return when if process is None else process(when)
 
 
-class SweepWriter(RunWriter):
+class SweepWriter(SweepWriterBase):
     """Streams the points of one sweep into the store; finish it, or use it as a context manager
     (a normal exit finishes it ``complete``, an exception ``interrupted``)."""
 
-    @property
-    def points(self) -> int:
-        """How many points this writer has stored."""
-        return self._count
-
-    @property
-    def finished(self) -> str | None:
-        """The status the sweep was finished with, or None while it runs."""
-        return self._finished
-
-    def add_points(
-        self,
-        frequency: np.ndarray,
-        raw_z: np.ndarray,
-        corrected_z: np.ndarray | None = None,
-        uncertainty: np.ndarray | None = None,
-        flags: Sequence[str] | None = None,
-    ) -> None:
-        """Store a batch of points (Hz, complex ohm) in one transaction.
-
-        ``corrected_z`` may be None when no reference set is applied; NaN readings are stored as
-        NULL, overrange (infinite) ones as infinity. ``uncertainty`` is an (n, 2) array of the
-        expanded uncertainty (k = 2, ohm) of the corrected R and X, or None when unknown;
-        ``flags`` is one string per point ('' for a measured value, else comma-separated words
-        such as ``overrange``), or None for all ''.
-        """
-        if self._finished is not None:
-            raise StoreError(f"sweep {self._id} is already {self._finished}: begin a new sweep")
-        start = self._count
-        rows = batch_rows(self._id, start, frequency, raw_z, corrected_z, uncertainty, flags)
-        if not rows:
-            return
+    def _store_rows(self, start: int, rows: list[tuple]) -> int:
         count = len(rows)
         sweep_id = self._id
 
@@ -184,11 +150,9 @@ class SweepWriter(RunWriter):
                 conn.exec_driver_sql(insert, new)
             return have + len(new)
 
-        self._count = self._db.write("storing sweep points", work, idempotent=True)
+        return self._db.write("storing sweep points", work, idempotent=True)
 
-    def finish(self, status: str = "complete", note: str = "") -> None:
-        """Mark the sweep ``complete`` or ``interrupted`` (with an optional note)."""
-        check_end(self._id, status, self._finished)
+    def _mark_end(self, status: str, note: str) -> bool:
         sweeps = TABLES["sweeps"]
         done = (
             update(sweeps)
@@ -203,12 +167,7 @@ class SweepWriter(RunWriter):
             # Sent again after a lost answer: the first attempt may have committed.
             return tuple(conn.execute(ended).one_or_none() or ()) == (status, note)
 
-        if not self._db.write("finishing a sweep", work, idempotent=True):
-            raise SweepNotRunning(f"sweep {self._id} was no longer running in the store")
-        self._finished = status
-
-    def _end(self, status: str, note: str) -> None:
-        self.finish(status, note=note)
+        return bool(self._db.write("finishing a sweep", work, idempotent=True))
 
 
 def _sweep_info(row: Any, now: datetime, stale_after: float) -> SweepInfo:

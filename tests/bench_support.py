@@ -56,3 +56,24 @@ def keyboard_putting_in(sim: Any, standards: tuple[str, ...] = ("open", "short")
         return ""
 
     return answer
+
+
+def example_plan_references(sim: Any, points: int = 21, repeats: int = 1) -> Any:
+    """Open, short and load captured on the simulated meter ``sim`` over 100 Hz to 1 MHz, for
+    the example plan's fixture, with the demo coil put back in afterwards: what a station test
+    needs before its first unit."""
+    from acquire.capture import capture_references
+    from acquire.plan import log_plan
+    from acquire.production.plan_file import example_plan_path, load_plan
+    from drivers.meter import ImpedanceMeter
+
+    plan = load_plan(example_plan_path())
+    with ImpedanceMeter.open(sim.resource, dialect="simulated") as meter:
+        identity = meter.identify()
+        refs = capture_references(
+            meter, log_plan("100Hz", "1MHz", points), PutsEachStandardIn(sim),
+            load_true=sim.load_true, fixture=plan.fixture, meter_name=str(identity),
+            repeats=repeats,
+        )  # fmt: skip
+    sim.insert("demo-coil")
+    return refs

@@ -14,15 +14,11 @@ from __future__ import annotations
 import time
 from pathlib import Path
 
-from bench_support import PutsEachStandardIn
+from bench_support import example_plan_references
 from line_support import acquire_json, chromium, line_view, station_process
 from store_support import require_postgres, temporary_schema
 
-from acquire.capture import capture_references
-from acquire.plan import log_plan
-from acquire.production.plan_file import example_plan_path, load_plan
 from acquire.store import open_store
-from drivers.meter import ImpedanceMeter
 from drivers.simulator.handle import running
 
 SCRIPT_NAME = "<script>window.pwned=1</script>"
@@ -33,14 +29,7 @@ LOT = "lot <i>7</i> & co"
 
 def _capture(sim, store_url: str, name: str) -> int:
     """References captured on ``sim``'s fixture, stored as ``name``; their id."""
-    plan = load_plan(example_plan_path())
-    with ImpedanceMeter.open(sim.resource, dialect="simulated") as meter:
-        identity = meter.identify()
-        refs = capture_references(
-            meter, log_plan("100Hz", "1MHz", 21), PutsEachStandardIn(sim),
-            load_true=sim.load_true, fixture=plan.fixture, meter_name=str(identity), repeats=1,
-        )  # fmt: skip
-    sim.insert("demo-coil")
+    refs = example_plan_references(sim)
     with open_store(store_url) as store:
         return store.save_reference_set(refs, name=name)
 

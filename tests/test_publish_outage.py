@@ -21,14 +21,11 @@ import time
 import uuid
 
 import pytest
-from bench_support import PutsEachStandardIn
+from bench_support import example_plan_references
 from mqtt_support import ROOT, Listener, PrivateBroker
 
-from acquire.capture import capture_references
-from acquire.plan import log_plan
-from acquire.production.plan_file import example_plan_path, load_plan
+from acquire.production.plan_file import example_plan_path
 from acquire.store import open_store
-from drivers.meter import ImpedanceMeter
 
 pytestmark = pytest.mark.timeout(120)
 
@@ -40,14 +37,7 @@ BEFORE, DURING, AFTER = 6, 6, 6
 @pytest.fixture(scope="module")
 def bench(module_simulator):
     sim = module_simulator(dut="demo-coil", fixture="bench-leads", noise=True, seed=5)
-    plan = load_plan(example_plan_path())
-    with ImpedanceMeter.open(sim.resource, dialect="simulated") as meter:
-        identity = meter.identify()
-        refs = capture_references(
-            meter, log_plan("100Hz", "1MHz", 21), PutsEachStandardIn(sim),
-            load_true=sim.load_true, fixture=plan.fixture, meter_name=str(identity), repeats=1,
-        )  # fmt: skip
-    sim.insert("demo-coil")
+    refs = example_plan_references(sim)
     return sim, refs
 
 

@@ -23,7 +23,7 @@ from pathlib import Path
 from typing import Any
 
 import pytest
-from bench_support import PutsEachStandardIn
+from bench_support import example_plan_references
 from kill_support import (
     LONG,
     Line,
@@ -39,11 +39,8 @@ from sqlalchemy.engine import make_url
 from store_support import require_postgres, temporary_schema
 from test_production_outbox import Relay
 
-from acquire.capture import capture_references
-from acquire.plan import log_plan
 from acquire.production.plan_file import example_plan_path, load_plan
 from acquire.store import open_store
-from drivers.meter import ImpedanceMeter
 
 #: The long variants (ACQUIRE_LONG_TESTS=1) run 100 kills a test: up to about 6 minutes each.
 pytestmark = pytest.mark.timeout(1200 if LONG else 120)
@@ -59,16 +56,10 @@ PER_RUN = 12
 def bench(module_simulator, tmp_path_factory) -> dict[str, Any]:
     """A simulated meter with the demo coil on bench leads and references captured once."""
     sim = module_simulator(dut="demo-coil", fixture="bench-leads", noise=True, seed=11)
-    plan = load_plan(example_plan_path())
-    with ImpedanceMeter.open(sim.resource, dialect="simulated") as meter:
-        identity = meter.identify()
-        refs = capture_references(
-            meter, log_plan("100Hz", "1MHz", 21), PutsEachStandardIn(sim),
-            load_true=sim.load_true, fixture=plan.fixture, meter_name=str(identity), repeats=1,
-        )  # fmt: skip
-    sim.insert("demo-coil")
+    refs = example_plan_references(sim)
     sim.set_measure_time(MEASURE_TIME)
-    return {"sim": sim, "refs": refs, "checks": len(plan.checks)}
+    checks = len(load_plan(example_plan_path()).checks)
+    return {"sim": sim, "refs": refs, "checks": checks}
 
 
 def _line(bench: dict[str, Any], folder: Path, url: str, sqlite_file: Path | None) -> Line:

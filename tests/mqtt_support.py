@@ -30,6 +30,7 @@ HOST, PORT = "127.0.0.1", 1883
 MOSQUITTO = "/usr/sbin/mosquitto"
 ROOT = Path(__file__).resolve().parents[1]
 SCHEMA_FILE = ROOT / "acquire" / "publish" / "unit-record.schema.json"
+STATUS_SCHEMA_FILE = ROOT / "acquire" / "publish" / "station-status.schema.json"
 
 
 def in_ci() -> bool:
@@ -60,6 +61,10 @@ def unique_prefix() -> str:
 
 def unit_schema() -> dict[str, Any]:
     return json.loads(SCHEMA_FILE.read_text(encoding="utf-8"))
+
+
+def status_schema() -> dict[str, Any]:
+    return json.loads(STATUS_SCHEMA_FILE.read_text(encoding="utf-8"))
 
 
 class Listener:

@@ -14,7 +14,15 @@ from datetime import UTC, datetime
 
 import pytest
 from jsonschema import Draft202012Validator
-from mqtt_support import PORT, Listener, free_port, require_broker, unique_prefix, unit_schema
+from mqtt_support import (
+    PORT,
+    Listener,
+    free_port,
+    require_broker,
+    status_schema,
+    unique_prefix,
+    unit_schema,
+)
 from paho.mqtt.client import topic_matches_sub
 from rich.console import Console
 from store_support import synthetic_unit
@@ -135,6 +143,9 @@ def test_the_publisher_sends_units_and_a_retained_status_a_late_subscriber_reads
         assert early.wait_for(lambda s: last(s) == STOPPED)  # the final one is never held back
         statuses = [json.loads(p) for _, p, _ in early.received("/status")]
         assert len(statuses) <= time.monotonic() - started + 2
+        check = Draft202012Validator(status_schema())
+        for sent in statuses:  # as they left over the wire, against the published schema
+            check.validate(sent)
         assert (publisher.left, publisher.sent, publisher.farewell()) == (0, 5, "")
         assert [m["attempt_id"] for m in early.units()] == order[HOSTILE_STATION]
     finally:

@@ -1,5 +1,5 @@
 """The published messages and topics, checked against outside references: the unit record's
-JSON Schema through the ``jsonschema`` library (Draft 2020-12), topic names against paho-mqtt's
+and the station status's JSON Schemas through the ``jsonschema`` library (Draft 2020-12), topic names against paho-mqtt's
 own wildcard matching and the MQTT 3.1.1 rules on topics (OASIS MQTT 3.1.1, section 4.7), the
 JSON against RFC 8259 (no NaN or Infinity tokens)."""
 
@@ -12,11 +12,11 @@ from datetime import UTC, datetime, timedelta
 
 import pytest
 from jsonschema import Draft202012Validator
-from mqtt_support import unit_schema
+from mqtt_support import status_schema, unit_schema
 from paho.mqtt.client import topic_matches_sub
 
 from acquire.errors import InputError
-from acquire.production.station_watch import STOPPED, StationState
+from acquire.production.station_watch import STATES, STOPPED, StationState
 from acquire.publish.message import (
     CONNECTION_LOST,
     STATUS_SCHEMA,
@@ -38,8 +38,8 @@ CONTEXT = UnitContext(
 HOSTILE = '<script>alert(1)</script>/+#%\x07 "quoted" é'
 
 
-def validator() -> Draft202012Validator:
-    schema = unit_schema()
+def validator(schema_of=unit_schema) -> Draft202012Validator:
+    schema = schema_of()
     Draft202012Validator.check_schema(schema)
     return Draft202012Validator(schema, format_checker=Draft202012Validator.FORMAT_CHECKER)
 
@@ -204,3 +204,46 @@ def test_the_status_and_the_will():
     assert datetime.fromisoformat(status["updated_at"]) == T0 + timedelta(seconds=5)
     will = lost_message(state, "line 1")
     assert (will["state"], will["reason"], will["lot"]) == (STOPPED, CONNECTION_LOST, "L1")
+
+
+def a_state(**changes) -> StationState:
+    fields = dict(
+        station=HOSTILE, state="blocked", reason="references too old", lot="L1", plan="plan",
+        plan_hash="ab" * 32, operator="ana", meter="Maker,M-1,S-9,1.0", fixture="jig",
+        tested=3, passed=2, waiting=1, references="too old", check_standard="",
+        started_at=T0, updated_at=T0 + timedelta(seconds=5),
+    )  # fmt: skip
+    return StationState(**(fields | changes))
+
+
+def test_every_status_and_the_will_follow_the_published_status_schema():
+    check = validator(status_schema)
+    schema = status_schema()
+    assert schema["properties"]["schema"]["const"] == STATUS_SCHEMA
+    # the schema names every field a status carries, no more, no fewer
+    assert (
+        set(schema["required"]) == set(schema["properties"]) == set(status_message(a_state(), "x"))
+    )
+    for state in STATES:
+        for line in ("line 1", ""):
+            check.validate(json.loads(encode(status_message(a_state(state=state), line))))
+    check.validate(json.loads(encode(lost_message(a_state(state="running"), "line 1"))))
+    check.validate(json.loads(encode(status_message(a_state(plan_hash="", waiting=0), "l"))))
+
+
+def test_the_status_schema_rejects_broken_statuses():
+    check = validator(status_schema)
+    good = json.loads(encode(status_message(a_state(), "line 1")))
+    broken = {
+        "unknown state": good | {"state": "paused"},
+        "negative count": good | {"tested": -1},
+        "count as text": good | {"passed": "2"},
+        "short hash": good | {"plan_hash": "abc"},
+        "extra field": good | {"colour": "green"},
+        "wrong schema": good | {"schema": "acquire-station-status/2"},
+        "no station": {k: v for k, v in good.items() if k != "station"},
+        "no updated_at": {k: v for k, v in good.items() if k != "updated_at"},
+        "null lot": good | {"lot": None},
+    }
+    accepted = [name for name, message in broken.items() if check.is_valid(message)]
+    assert accepted == [], f"the status schema let broken statuses {accepted} through"

@@ -2,7 +2,8 @@
 
 - :mod:`~acquire.publish.target`: the broker URL (``mqtt://host[:port]/<prefix>``) and the topics;
 - :mod:`~acquire.publish.message`: the JSON of a unit record and of a station's status;
-- ``unit-record.schema.json``: the unit record's JSON Schema (draft 2020-12);
+- ``unit-record.schema.json`` and ``station-status.schema.json``: the JSON Schemas (draft
+  2020-12) of the unit record and of the station's status;
 - :mod:`~acquire.publish.link`: one MQTT connection (paho-mqtt), publishing at QoS 1;
 - :mod:`~acquire.publish.sending`: units from the store's outbox, sent in order, the position
   moved only after the broker's acknowledgement;

@@ -9,8 +9,9 @@ is unknown or unbounded; a limit is ``null`` for an open side. Times are ISO 860
 offset (``2026-03-01T08:15:02.123456+00:00``); frequencies in Hz (``null`` for DC values),
 values, limits and uncertainties in the measurement's SI ``unit``.
 
-A status (``"schema": "acquire-station-status/1"``) is a :class:`StationState` with the line:
-state ("running", "blocked" or "stopped") and why, lot, plan, counts, problems.
+A status (``"schema": "acquire-station-status/1"``, described by ``station-status.schema.json``)
+is a :class:`StationState` with the line: state ("running", "blocked" or "stopped") and why,
+lot, plan, counts, problems.
 """
 
 from __future__ import annotations

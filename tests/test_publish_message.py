@@ -1,7 +1,7 @@
 """The published messages and topics, checked against outside references: the unit record's
-and the station status's JSON Schemas through the ``jsonschema`` library (Draft 2020-12), topic names against paho-mqtt's
-own wildcard matching and the MQTT 3.1.1 rules on topics (OASIS MQTT 3.1.1, section 4.7), the
-JSON against RFC 8259 (no NaN or Infinity tokens)."""
+and the station status's JSON Schemas through the ``jsonschema`` library (Draft 2020-12), topic
+names against paho-mqtt's own wildcard matching and the MQTT 3.1.1 rules on topics (OASIS MQTT
+3.1.1, section 4.7), the JSON against RFC 8259 (no NaN or Infinity tokens)."""
 
 from __future__ import annotations
 

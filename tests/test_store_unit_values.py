@@ -14,7 +14,7 @@ from sqlalchemy.dialects import sqlite
 from store_support import synthetic_unit
 
 from acquire.errors import StoreError
-from acquire.store import engine, open_store
+from acquire.store import engine, open_store, sqlite_connection
 from acquire.store.columns import UtcDateTime
 from acquire.store.schema import identity_key
 from acquire.store.unit_insert import serial_key, sqlite_time
@@ -68,11 +68,17 @@ def test_the_serial_key_is_the_identity_key(serial):
     assert serial_key(serial) == identity_key(serial)
 
 
+def short_busy_timeout(monkeypatch) -> None:
+    """The store's busy timeout cut to 0.2 s, on every connection it opens."""
+    monkeypatch.setattr(engine, "BUSY_TIMEOUT_S", 0.2)
+    monkeypatch.setattr(sqlite_connection, "BUSY_TIMEOUT_S", 0.2)
+
+
 def test_a_unit_waits_for_a_locked_database_then_says_it_was_busy(tmp_path, monkeypatch):
     # SQLite's documented locking (sqlite.org/lang_transaction.html): while one connection
     # holds a write transaction (BEGIN IMMEDIATE), another's BEGIN IMMEDIATE waits for the busy
     # timeout, then fails with SQLITE_BUSY ("database is locked").
-    monkeypatch.setattr(engine, "BUSY_TIMEOUT_S", 0.2)
+    short_busy_timeout(monkeypatch)
     path = tmp_path / "store.db"
     with open_store(f"sqlite:///{path}") as store:
         other = sqlite3.connect(path, isolation_level=None)
@@ -84,4 +90,22 @@ def test_a_unit_waits_for_a_locked_database_then_says_it_was_busy(tmp_path, monk
         other.close()
         assert store.save_unit(unit) is True  # nothing half-begun was left behind
         assert store.save_unit(unit) is False
+        assert store.load_unit(unit.attempt_id) == unit
+
+
+def test_any_write_to_a_locked_database_says_it_was_busy(tmp_path, monkeypatch):
+    # The same documented locking on the store's general write path (a lot created with its
+    # unit): the failed BEGIN IMMEDIATE comes back as the store's one-line error, not as the
+    # driver's own exception, and the store is usable once the lock is gone.
+    short_busy_timeout(monkeypatch)
+    path = tmp_path / "store.db"
+    with open_store(f"sqlite:///{path}") as store:
+        other = sqlite3.connect(path, isolation_level=None)
+        other.execute("BEGIN IMMEDIATE")
+        unit = synthetic_unit(1, lot="LOT-LOCKED")  # a new lot: written on the general path
+        with pytest.raises(StoreError, match="busy"):
+            store.save_unit(unit)
+        other.execute("ROLLBACK")
+        other.close()
+        assert store.save_unit(unit) is True
         assert store.load_unit(unit.attempt_id) == unit

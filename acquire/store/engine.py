@@ -190,7 +190,11 @@ class Database:
         raw = conn.connection.driver_connection
         if raw is None:
             raise StoreError("the SQLite connection was closed under the store; open it again")
-        raw.execute("BEGIN IMMEDIATE" if immediate else "BEGIN")
+        try:
+            raw.execute("BEGIN IMMEDIATE" if immediate else "BEGIN")
+        except conn.dialect.loaded_dbapi.Error as exc:  # locked: SQLAlchemy's own wrapping
+            conn._handle_dbapi_exception(exc, None, None, None, None)  # raises it wrapped
+            raise
 
     def _once(self, work: Callable[[Connection], T], write: bool, check: bool) -> T:
         conn = self._connection()

@@ -260,3 +260,16 @@ def test_the_usual_path_finds_the_store_a_script_made_a_moment_before(tmp_path):
     assert not make_if_new(url)  # held something by then: nothing done twice
     with open_store(url) as store:
         assert not store.created
+
+
+def test_a_script_that_fails_half_way_leaves_nothing_and_says_so(tmp_path):
+    from acquire.errors import StoreError
+
+    broken = _edited(tmp_path, "ON units (lot_id, bin, outcome);", "ON units (lot_id, no_such);")
+    path = tmp_path / "half.db"
+    url = f"sqlite:///{path}"
+    with pytest.raises(StoreError, match=r"^creating or upgrading the store failed in store "):
+        make_if_new(url, broken)
+    with closing(sqlite3.connect(path)) as conn:  # one transaction: none of the tables stayed
+        assert conn.execute("SELECT count(*) FROM sqlite_master").fetchone() == (0,)
+    assert make_if_new(url)  # still empty, so made the next time

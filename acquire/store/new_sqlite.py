@@ -28,11 +28,11 @@ import sqlite3
 from contextlib import closing
 from pathlib import Path
 
-from acquire.store.failure import BUSY_TIMEOUT_S
+from acquire.store.failure import BUSY_TIMEOUT_S, first_line, store_failure
 from acquire.store.migrations import HEAD_REVISION
 from acquire.store.plain_values import sqlite_time, utc_now
 from acquire.store.quick_read import plain_sqlite_path
-from acquire.store.sqlite_connection import MIN_SQLITE, PlainDatabase, apply_settings
+from acquire.store.sqlite_connection import MIN_SQLITE, apply_settings, failure_kind
 
 #: The frozen script of the newest layout (written by ``python -m acquire.store.head_schema``).
 SCRIPT = Path(__file__).with_name("head_schema.sql")
@@ -97,7 +97,7 @@ def make_if_new(url: str, script: Path = SCRIPT) -> bool:
             apply_settings(conn)
             _run(conn, statements)
         except sqlite3.Error as exc:
-            raise PlainDatabase(path, shown).error(ACTION, exc) from exc
+            raise store_failure(ACTION, shown, first_line(exc), failure_kind(exc)) from exc
     return True
 
 

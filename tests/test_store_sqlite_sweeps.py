@@ -336,3 +336,19 @@ def test_reference_sets_read_the_same_either_way(tmp_path):
             _same_set(plain.load_reference_set(k), usual)
         with pytest.raises(StoreError, match="there is no reference set 99 in the store"):
             plain.load_reference_set(99)
+
+
+def test_a_name_that_is_not_utf8_reaches_the_command_line_as_on_the_usual_path(tmp_path):
+    # The bytes b"\xff\xfe" of a command line read with surrogateescape (PEP 383): SQLite's
+    # driver cannot encode them; the usual path lets that UnicodeEncodeError reach
+    # acquire.cli.main, which names the option holding them (tests/test_hardening_cli.py).
+    url = _store(tmp_path)
+    bad = b"coil \xff\xfe".decode("utf-8", "surrogateescape")
+    for opened in (open_store(url), open_sweep_store(url)):
+        with opened as store:
+            with pytest.raises(UnicodeEncodeError, match="surrogates not allowed"):
+                store.begin_sweep(dut=bad)
+            with pytest.raises(UnicodeEncodeError, match="surrogates not allowed"):
+                store.record_fixture(bad)
+    with open_store(url) as store:
+        assert store.list_sweeps() == []

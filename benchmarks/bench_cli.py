@@ -6,7 +6,7 @@ Goals (issue "speed where the user waits"):
 - `acquire sweep` of 1,601 points (the simulated meter in its own process at 0 ms a point, an
   SQLite store in a temporary folder that already exists, as a bench's store does after its
   first use, `--no-live`) at most 2.5x `import numpy`; shown beside it, the same sweep into a
-  new store, which is made (and its layout migrated) the usual way, with SQLAlchemy;
+  new store, which the same path first makes from the frozen script of the newest layout;
 - `acquire --help` at most 2x `import numpy` (help must not load what the commands need).
 
 Shown for reference, with no goal in the issue: `acquire station` from its start until it has
@@ -253,7 +253,7 @@ def main() -> int:
             row("acquire sweep --points 1601 --no-live (0 ms/point)", swept, numpy_s)
             first = [run_once(sweep[:6] + [f"sqlite:///{Path(folder) / f'new{k}.db'}"]
                               + sweep[7:]) for k in range(repeats)]  # fmt: skip
-            row("  the same into a new store (made the usual way)", statistics.median(first),
+            row("  the same into a new store (made from the script)", statistics.median(first),
                 numpy_s)  # fmt: skip
             goals.append(
                 Goal("acquire sweep of 1,601 points (simulator at 0 ms/point, SQLite)",

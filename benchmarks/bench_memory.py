@@ -8,8 +8,9 @@ output is read and thrown away). The figure is that child's own peak resident se
 context the same is measured for ``python -c "import numpy, pyvisa, sqlalchemy, rich"``: the
 libraries the command cannot do without.
 
-The goal's figure is the first sweep, into a new store (SQLAlchemy and Alembic make it); the
-same sweep into the store that then exists (the plain-sqlite3 path) is printed beside it.
+The goal's figure is the first sweep, into a new store (made from the frozen script of the
+newest layout, acquire/store/new_sqlite.py, with sqlite3 alone); the same sweep into the store
+that then exists (the plain-sqlite3 path) is printed beside it.
 
 Goal: at most 100 MB over 100,001 points. ``--quick`` sweeps 20,001 points and says so; its
 figure is a look, not the goal's.

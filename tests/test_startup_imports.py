@@ -3,7 +3,7 @@
 `acquire --help` and the read-only listing of reference sets load none of numpy, SQLAlchemy,
 Alembic, scipy, pandas, pyvisa or matplotlib; importing a store record loads no SQLAlchemy; a
 sweep that opens an SQLite store already at the newest revision loads no SQLAlchemy, Alembic,
-scipy or pandas.
+scipy or pandas, nor one that makes a new SQLite store.
 """
 
 from __future__ import annotations
@@ -68,6 +68,19 @@ def test_opening_a_current_store_for_a_sweep_loads_no_sql_toolkit_nor_scipy(tmp_
     )
     loaded = _loaded_after(code, tmp_path)
     assert not loaded & {"sqlalchemy", "alembic", "scipy", "pandas"}, loaded
+
+
+def test_opening_a_new_sqlite_store_for_a_sweep_loads_no_sql_toolkit(tmp_path):
+    url = f"sqlite:///{tmp_path / 'new.db'}"
+    code = (
+        "from acquire.store.sqlite_sweeps import PlainSweepStore, open_sweep_store\n"
+        f"store = open_sweep_store({url!r})\nassert isinstance(store, PlainSweepStore)\n"
+        "store.close()"
+    )
+    loaded = _loaded_after(code, tmp_path)
+    assert not loaded & {"sqlalchemy", "alembic"}, loaded
+    with open_store(url) as store:
+        assert not store.created  # made, at the newest revision, without them
 
 
 def test_every_name_the_store_package_offers_is_there():

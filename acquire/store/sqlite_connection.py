@@ -8,7 +8,9 @@
 SQLite: one connection per thread (a thread that has ended has its connection closed when
 another opens one), ``BEGIN IMMEDIATE`` for a write and ``BEGIN`` for a read, all of the work or
 none of it, and a failure reported as the same one-line :class:`~acquire.errors.StoreError`
-(:func:`acquire.store.failure.store_failure`). It never creates a file.
+(:func:`acquire.store.failure.store_failure`); text the driver cannot encode (a name holding
+bytes that are not UTF-8) raises its ``UnicodeEncodeError`` unchanged, as there. It never
+creates a file.
 """
 
 from __future__ import annotations
@@ -124,6 +126,8 @@ class PlainDatabase:
                 if conn.in_transaction:
                     conn.execute("ROLLBACK")
                 raise
+        except UnicodeEncodeError:
+            raise  # as on the usual path: the command line names the option holding the bytes
         except (sqlite3.Error, ValueError, TypeError) as exc:
             raise self.error(action, exc) from exc
         return result

@@ -3,10 +3,11 @@ standard library's :mod:`sqlite3` alone (SQLAlchemy takes longer to import than 
 
 :func:`open_sweep_store` gives a :class:`PlainSweepStore` for a plain ``sqlite:///`` file (as
 :func:`acquire.store.quick_read.plain_sqlite_path` spells it) that exists and whose
-``alembic_version`` holds exactly :data:`acquire.store.migrations.HEAD_REVISION`; for anything
-else (a new file, an older or newer revision, PostgreSQL, an in-memory store, an unusual
-spelling) it opens the store the usual way (:func:`acquire.store.open_store`), which creates,
-upgrades or refuses it in its own words.
+``alembic_version`` holds exactly :data:`acquire.store.migrations.HEAD_REVISION`, or that is
+new or empty (made first from the frozen script of the newest layout,
+:func:`acquire.store.new_sqlite.make_if_new`); for anything else (an older or newer revision,
+PostgreSQL, an in-memory store, an unusual spelling) it opens the store the usual way
+(:func:`acquire.store.open_store`), which creates, upgrades or refuses it in its own words.
 
 A :class:`PlainSweepStore` does what ``acquire sweep`` asks of a store, writing the same rows
 with the same types as the usual path (the times in SQLAlchemy's text, settings as the same
@@ -32,6 +33,7 @@ from typing import TYPE_CHECKING, Any
 from acquire.errors import StoreError
 from acquire.store import sqlite_connection
 from acquire.store.migrations import HEAD_REVISION
+from acquire.store.new_sqlite import make_if_new
 from acquire.store.plain_values import identity_key, sqlite_time, to_json, utc_now
 from acquire.store.quick_read import LISTED_COLUMNS, VERSION_TABLE, plain_sqlite_path
 from acquire.store.quick_read import _info as listed_info
@@ -62,6 +64,8 @@ def open_sweep_store(url: str) -> PlainSweepStore | Store:
     """The store at ``url`` for a sweep: plain SQLite when it can be (module doc), else the
     usual :class:`~acquire.store.core.Store`."""
     plain = PlainSweepStore.open_existing(url)
+    if plain is None and make_if_new(url):
+        plain = PlainSweepStore.open_existing(url)
     if plain is not None:
         return plain
     from acquire.store.core import open_store

@@ -90,7 +90,7 @@ def assert_same(mine: dict, usual: dict) -> None:
 def _made_by_migrations(folder: Path) -> dict:
     begun = datetime.now(UTC)
     path = folder / "usual.db"
-    with open_store(f"sqlite:///{path}") as store:
+    with open_store(f"sqlite:///{path}", by_migrations=True) as store:
         assert store.created and store.schema_revision == HEAD_REVISION
     return layout(path, (begun, datetime.now(UTC)))
 
@@ -245,7 +245,7 @@ def test_programs_making_one_new_file_at_once_make_it_once(tmp_path):
         url = f"sqlite:///{path}"
         tasks = [lambda url=url: open_sweep_store(url).close()] * 3
         if k % 3 == 0:  # one of them the usual way (a station starting at the same moment)
-            tasks[0] = lambda url=url: open_store(url).close()
+            tasks[0] = lambda url=url: open_store(url, by_migrations=True).close()
         failures = _at_once(tasks)
         assert not failures, failures
         assert_same(layout(path, (begun, datetime.now(UTC))), reference)

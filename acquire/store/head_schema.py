@@ -50,7 +50,7 @@ def made_the_usual_way(folder: Path) -> Path:
     from acquire.store.core import open_store
 
     path = folder / "head.db"
-    open_store(f"sqlite:///{path.resolve()}").close()
+    open_store(f"sqlite:///{path.resolve()}", by_migrations=True).close()
     return path
 
 

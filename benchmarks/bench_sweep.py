@@ -21,8 +21,10 @@ Goals (each printed with :func:`goals.report`):
     the same layout and indexes in the same folder, with the store's own
     connection settings (WAL, ``synchronous=FULL``, foreign keys on), one ``BEGIN IMMEDIATE``
     ... ``COMMIT`` per group. Rows of the bare side are prepared outside the timing; the tool's
-    time includes turning its arrays into rows. Tool and bare run interleaved, several rounds
-    after a warm-up round, best of each.
+    time includes turning its arrays into rows. Tool and bare run interleaved group by group on
+    one thread of their own (which side goes first turns with each group, so all meet the same
+    moods of the shared disk), several rounds after a warm-up round; the best round total of
+    each side counts, and each round's ratio and each side's thread CPU time are printed.
 
     *Same durability* means the same record on disk after every commit: the group's points and
     the sweep's row saying how many points it holds and when its writer last wrote (the
@@ -30,14 +32,16 @@ Goals (each printed with :func:`goals.report`):
     the goal's bare side updates the sweep's row in each group's transaction too; the ratio
     against bare writes of the points alone is printed beside it. Figure: tool rate / bare rate;
     goal at least 0.8. Information lines, not goals: the statements the store sends per group
-    (counted with sqlite3's trace callback in a run of their own), and a scratch run of both
+    (counted with sqlite3's trace callback in a run of their own; the store sends a group's
+    rows in one multi-row INSERT, the bare side steps its executemany once a row), and a
+    scratch run of both
     sides with ``synchronous=OFF`` that shows the tool's own CPU time apart from the disk's
     waits.
 
 The simulated meter runs in its own process (``acquire sim --port 0``). Each case runs several
 times and the best counts (the machine is shared).
 
-    python benchmarks/bench_sweep.py            # 1,601 points, 5 repeats
+    python benchmarks/bench_sweep.py            # 1,601 points, 5 repeats (writes: 10 rounds)
     python benchmarks/bench_sweep.py --quick    # 401 points, 3 repeats (under a minute)
 """
 

@@ -4,9 +4,11 @@ and the rows built column by column with numpy (:func:`batch_table`).
 The statements are plain SQL, given to ``Connection.exec_driver_sql`` by
 :class:`acquire.store.sweeps.SweepWriter` (nothing compiled per batch, no dict per row;
 SQLAlchemy still wraps the driver's errors, so a store that is out of reach is reported as one)
-and to :mod:`sqlite3` by :class:`acquire.store.sqlite_sweeps.PlainSweepWriter`: the sweep row's
-update in the usual case and the points' ``executemany``. NaN is sent as None, so the rows
-stored are those an INSERT built with SQLAlchemy Core stores (``tests/test_store_sweep_rows.py``).
+and the sweep row's update in the usual case to :mod:`sqlite3` by
+:class:`acquire.store.sqlite_sweeps.PlainSweepWriter` too; the points go to the driver's
+``executemany`` on the usual path and, on the plain path, many rows to an INSERT (the batch's
+:func:`point_table` read row after row). NaN is sent as None, so the rows stored are those an
+INSERT built with SQLAlchemy Core stores (``tests/test_store_sweep_rows.py``).
 This module imports no SQLAlchemy.
 """
 

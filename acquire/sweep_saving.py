@@ -166,6 +166,6 @@ class PointSaver:
                 raw[part].copy(),
                 None if corrected is None else corrected[part].copy(),
                 uncertainty=expanded(state.cov[part]) if self._known else None,
-                flags=[str(x) for x in state.flags[part]] if self._known else None,
+                flags=list(map(str, state.flags[part])) if self._known else None,
             )
             self._saved = part.stop

@@ -2,13 +2,16 @@
 
     python benchmarks/bench_store.py            # full sizes (about two and a half minutes)
     python benchmarks/bench_store.py --quick    # smaller sizes (about 40 s; rougher numbers)
+    python benchmarks/bench_store.py --only units   # one case (units, stations, lot; repeatable)
 
 1. Units into SQLite with durability on (WAL, synchronous=FULL, one transaction per unit), each
    unit with 10 measurements, through ``Store.save_unit``; baseline: bare ``sqlite3`` putting the
    same rows into an identical empty store, one transaction per unit (``execute`` for the unit,
    ``executemany`` for its measurements, same pragmas, same table and indexes, rows prepared
-   outside the timing). Rounds interleave the two (which goes first alternates) and the best
-   round of each counts (the machine is shared). Goal: at least 0.9x the baseline.
+   outside the timing). Each round interleaves the two unit by unit (which goes first
+   alternates), so both meet the same moods of the shared disk, and the best round total of each
+   counts; each round's ratio and the thread's CPU time per unit are printed beside it. Goal: at
+   least 0.9x the baseline.
 2. Four station processes writing units to PostgreSQL at once (``python
    tests/store_support.py``), beside one such process alone and beside what the machine allows:
    four bare psycopg processes (``--bare``) sending the same one statement with the same
@@ -121,28 +124,25 @@ def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
         bare.executemany(m_sql, [(unit_id, *m) for m in measurements])
         bare.execute("COMMIT")
 
-    bare_rates, store_rates = [], []
+    # Interleaved unit by unit (which side goes first turns with each unit), so both meet the
+    # disk's moods alike: a round's total per side, wall and the thread's CPU time.
+    totals = np.zeros((rounds, 2, 2))
     for r in range(rounds):
         units = list(synthetic_units(per_round, lot="", worker=2 * r))
         theirs = [_sqlite_rows(u) for u in synthetic_units(per_round, lot="", worker=2 * r + 1)]
-
-        def bare_side(theirs=theirs) -> None:
-            began = time.perf_counter()
-            for head, measurements in theirs:  # bare_unit written out: no call per unit
-                bare.execute("BEGIN IMMEDIATE")
-                unit_id = bare.execute(u_sql, head).lastrowid
-                bare.executemany(m_sql, [(unit_id, *m) for m in measurements])
-                bare.execute("COMMIT")
-            bare_rates.append(per_round / (time.perf_counter() - began))
-
-        def store_side(units=units) -> None:
-            began = time.perf_counter()
-            for unit in units:
-                store.save_unit(unit)
-            store_rates.append(per_round / (time.perf_counter() - began))
-
-        for side in (bare_side, store_side) if r % 2 == 0 else (store_side, bare_side):
-            side()
+        clock, cpu_clock = time.perf_counter, time.thread_time
+        spent = totals[r]
+        for k, (unit, (head, measurements)) in enumerate(zip(units, theirs, strict=True)):
+            for side in (0, 1) if k % 2 == 0 else (1, 0):
+                wall, cpu = clock(), cpu_clock()
+                if side == 0:  # bare_unit written out: no call per unit
+                    bare.execute("BEGIN IMMEDIATE")
+                    unit_id = bare.execute(u_sql, head).lastrowid
+                    bare.executemany(m_sql, [(unit_id, *m) for m in measurements])
+                    bare.execute("COMMIT")
+                else:
+                    store.save_unit(unit)
+                spent[side] += clock() - wall, cpu_clock() - cpu
     # The same rows: one more unit written by each side gives the same stored values.
     check = next(synthetic_units(1, lot="", worker=2 * rounds))
     bare_unit(*_sqlite_rows(check))
@@ -162,7 +162,14 @@ def bench_sqlite_units(folder: Path, per_round: int, rounds: int) -> None:
     assert same_indexes[0] == same_indexes[1], "the baseline's table differs from the store's"
     bare.close()
     store.close()
-    ours, base = max(store_rates), max(bare_rates)
+    best = totals.min(axis=0)
+    ours, base = per_round / best[1, 0], per_round / best[0, 0]
+    each = totals[:, 0, 0] / totals[:, 1, 0]
+    cpu = 1e6 * best[:, 1] / per_round
+    print(
+        f"SQLite units: each round's ratio {each.min():.2f}x to {each.max():.2f}x (median "
+        f"{np.median(each):.2f}x); thread CPU per unit: store {cpu[1]:.0f} us, bare {cpu[0]:.0f} us"
+    )
     report(
         f"SQLite units (10 meas., FULL sync), {rounds} x {per_round}",
         f"{ours:,.0f} units/s",
@@ -349,20 +356,30 @@ def main() -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--quick", action="store_true", help="smaller sizes, for a fast look")
     parser.add_argument("--no-postgres", action="store_true", help="SQLite only")
+    parser.add_argument(
+        "--only",
+        action="append",
+        choices=CASES,
+        help="run only this case (units: 1, stations: 2, lot: 3); may be given again",
+    )
     args = parser.parse_args()
+    cases = set(args.only or CASES)
     per_round, rounds = (400, 3) if args.quick else (1500, 5)
     per_station = 500 if args.quick else 1000
     summary_units = 20_000 if args.quick else 100_000
-    if args.quick:
+    if args.quick and "lot" in cases:
         print(f"QUICK RUN: the lot statistics use a lot of {summary_units:,} units, not 100,000")
     with tempfile.TemporaryDirectory() as folder:
-        bench_sqlite_units(Path(folder), per_round, rounds)
-        with open_store(f"sqlite:///{Path(folder) / 'big.db'}") as store:
-            bench_summary(store, summary_units, "SQLite")
+        if "units" in cases:
+            bench_sqlite_units(Path(folder), per_round, rounds)
+        if "lot" in cases:
+            with open_store(f"sqlite:///{Path(folder) / 'big.db'}") as store:
+                bench_summary(store, summary_units, "SQLite")
     if not args.no_postgres:
-        bench_postgres_stations(per_station, 2 if args.quick else 3)
+        if "stations" in cases:
+            bench_postgres_stations(per_station, 2 if args.quick else 3)
         url = postgres_url()
-        if postgres_unreachable(url) is None:
+        if "lot" in cases and postgres_unreachable(url) is None:
             with temporary_schema(url) as schema, open_store(url, schema=schema) as store:
                 bench_summary(store, summary_units, "PostgreSQL")
     widths = [max(len(r[i]) for r in ROWS + [HEAD]) for i in range(6)]
@@ -375,6 +392,8 @@ def main() -> int:
     return 0 if all(g.met for g in GOALS) else 1
 
 
+#: The cases ``--only`` picks from, in the order they run.
+CASES = ("units", "stations", "lot")
 GOALS: list[Goal] = []
 ROUND_TRIPS: list[float] = []
 HEAD = ("case", "store", "baseline", "ratio", "goal", "met")

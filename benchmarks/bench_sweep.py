@@ -21,8 +21,10 @@ Goals (each printed with :func:`goals.report`):
     the same layout and indexes in the same folder, with the store's own
     connection settings (WAL, ``synchronous=FULL``, foreign keys on), one ``BEGIN IMMEDIATE``
     ... ``COMMIT`` per group. Rows of the bare side are prepared outside the timing; the tool's
-    time includes turning its arrays into rows. Tool and bare run interleaved, several rounds
-    after a warm-up round, best of each.
+    time includes turning its arrays into rows. Tool and bare run interleaved group by group on
+    one thread of their own (which side goes first turns with each group, so all meet the same
+    moods of the shared disk), several rounds after a warm-up round; the best round total of
+    each side counts, and each round's ratio and each side's thread CPU time are printed.
 
     *Same durability* means the same record on disk after every commit: the group's points and
     the sweep's row saying how many points it holds and when its writer last wrote (the
@@ -30,14 +32,16 @@ Goals (each printed with :func:`goals.report`):
     the goal's bare side updates the sweep's row in each group's transaction too; the ratio
     against bare writes of the points alone is printed beside it. Figure: tool rate / bare rate;
     goal at least 0.8. Information lines, not goals: the statements the store sends per group
-    (counted with sqlite3's trace callback in a run of their own), and a scratch run of both
+    (counted with sqlite3's trace callback in a run of their own; the store sends a group's
+    rows in one multi-row INSERT, the bare side steps its executemany once a row), and a
+    scratch run of both
     sides with ``synchronous=OFF`` that shows the tool's own CPU time apart from the disk's
     waits.
 
 The simulated meter runs in its own process (``acquire sim --port 0``). Each case runs several
 times and the best counts (the machine is shared).
 
-    python benchmarks/bench_sweep.py            # 1,601 points, 5 repeats
+    python benchmarks/bench_sweep.py            # 1,601 points, 5 repeats (writes: 10 rounds)
     python benchmarks/bench_sweep.py --quick    # 401 points, 3 repeats (under a minute)
 """
 
@@ -324,81 +328,137 @@ def bare_rows(state: SweepState, sweep_id: int) -> list[tuple]:
     return [(sweep_id, i, *values) for i, values in enumerate(zip(*cells, flags, strict=True))]
 
 
-def bare_writes(path: Path, rows: list[tuple], header: bool, synchronous: str) -> float:
-    """Bare sqlite3: the same rows in the same groups, one ``BEGIN IMMEDIATE`` ... ``COMMIT``
-    each, with the store's own connection settings (WAL, ``synchronous``, foreign keys on).
+class BareWriter:
+    """Bare sqlite3 into a new store file of the same layout: the same rows in the same groups,
+    one ``BEGIN IMMEDIATE`` ... ``COMMIT`` each, with the store's own connection settings (WAL,
+    ``synchronous``, foreign keys on); rows prepared outside the timing.
 
     ``header``: each group also updates the sweep's row (points so far and the writer's
     heartbeat), in the same transaction, as the store's writer does."""
-    conn = sqlite3.connect(path, isolation_level=None)
-    conn.execute("PRAGMA journal_mode = WAL")
-    conn.execute(f"PRAGMA synchronous = {synchronous}")
-    conn.execute("PRAGMA foreign_keys = ON")
-    names = ", ".join(("sweep_id", "idx", *POINT_COLUMNS, "flags"))
-    insert = f"INSERT INTO sweep_points ({names}) VALUES ({', '.join('?' * (len(rows[0])))})"
-    bump = "UPDATE sweeps SET points = ?, last_write_at = ? WHERE id = ?"
-    sweep_id = rows[0][0]
-    stamp = utc_now().replace(tzinfo=None).isoformat(" ")
-    began = time.perf_counter()
-    for start in range(0, len(rows), GROUP):
-        group = rows[start : start + GROUP]
-        conn.execute("BEGIN IMMEDIATE")
-        if header:
-            conn.execute(bump, (start + len(group), stamp, sweep_id))
-        conn.executemany(insert, group)
-        conn.execute("COMMIT")
-    elapsed = time.perf_counter() - began
-    conn.close()
-    return elapsed
 
-
-def write_round(state: SweepState, tmp: Path, k: int, synchronous: str) -> tuple[float, ...]:
-    """One round, interleaved: the tool, the bare writes with the header update, the bare
-    writes of the points alone; each into a new store file of its own (same layout, empty)."""
-    t_tool, _ = tool_writes(tmp / f"tool-{synchronous}{k}.db", state, synchronous)
-    times = [t_tool]
-    for header in (True, False):
-        path = tmp / f"bare-{synchronous}{k}-{int(header)}.db"
+    def __init__(self, path: Path, state: SweepState, header: bool, synchronous: str) -> None:
         with open_store(f"sqlite:///{path}") as store:
-            sweep_id = store.begin_sweep(dut="bench").id
-        times.append(bare_writes(path, bare_rows(state, sweep_id), header, synchronous))
-    return tuple(times)
+            self._sweep_id = store.begin_sweep(dut="bench").id
+        self._rows = bare_rows(state, self._sweep_id)
+        self._header = header
+        self._conn = sqlite3.connect(path, isolation_level=None, check_same_thread=False)
+        self._conn.execute("PRAGMA journal_mode = WAL")
+        self._conn.execute(f"PRAGMA synchronous = {synchronous}")
+        self._conn.execute("PRAGMA foreign_keys = ON")
+        names = ", ".join(("sweep_id", "idx", *POINT_COLUMNS, "flags"))
+        marks = ", ".join("?" * len(self._rows[0]))
+        self._insert = f"INSERT INTO sweep_points ({names}) VALUES ({marks})"
+        self._bump = "UPDATE sweeps SET points = ?, last_write_at = ? WHERE id = ?"
+        self._stamp = utc_now().replace(tzinfo=None).isoformat(" ")
+
+    def write(self, start: int, end: int) -> None:
+        conn = self._conn
+        conn.execute("BEGIN IMMEDIATE")
+        if self._header:
+            conn.execute(self._bump, (end, self._stamp, self._sweep_id))
+        conn.executemany(self._insert, self._rows[start:end])
+        conn.execute("COMMIT")
+
+    def close(self) -> None:
+        self._conn.close()
 
 
-def writer_goal(n: int, repeats: int, tmp: Path) -> None:
-    """Tool and bare interleaved ``repeats`` times (after a warm-up round); best of each."""
+#: The sides of a round, in the order their times are kept.
+SIDES = ("tool", "bare with header", "bare points only")
+
+
+def write_round(state: SweepState, tmp: Path, k: int, synchronous: str) -> np.ndarray:
+    """One round: the tool (the saver's writes through the sweep writer of the store ``acquire
+    sweep`` opens on an existing store file), the bare writes with the header update and the
+    bare writes of the points alone, each into a new store file of its own (same layout, empty),
+    interleaved group by group on one thread of their own (the side that goes first turns with
+    each group, so every side meets the disk's moods alike).
+
+    Each side's total wall time and its thread's CPU time (``time.thread_time``), shape (3, 2)."""
+    n = state.count
+    totals = np.zeros((len(SIDES), 2))
+    with (
+        Connections(synchronous, counting=False),
+        existing_store(tmp / f"tool-{synchronous}{k}.db") as store,
+    ):
+        writer = store.begin_sweep(dut="bench", settings={"benchmark": True})
+        saver = PointSaver(writer, state, True)
+        bare = [
+            BareWriter(tmp / f"bare-{synchronous}{k}-{int(header)}.db", state, header, synchronous)
+            for header in (True, False)
+        ]
+
+        def tool(start: int, end: int) -> None:
+            state.count = end
+            saver.write_waiting()
+
+        writes = (tool, bare[0].write, bare[1].write)
+
+        def write_all() -> None:
+            for g, start in enumerate(range(0, n, GROUP)):
+                end = min(start + GROUP, n)
+                for turn in range(len(SIDES)):
+                    side = (g + turn) % len(SIDES)
+                    wall, cpu = time.perf_counter(), time.thread_time()
+                    writes[side](start, end)
+                    totals[side] += time.perf_counter() - wall, time.thread_time() - cpu
+
+        try:
+            thread = threading.Thread(target=write_all, name="sweep-saver")
+            thread.start()
+            thread.join()
+        finally:
+            state.count = n
+            for side in bare:
+                side.close()
+        writer.finish("complete")
+        assert writer.points == n
+    return totals
+
+
+def writer_goal(n: int, rounds: int, tmp: Path) -> None:
+    """Tool and bare interleaved group by group, ``rounds`` times (after a warm-up round); best
+    of each side's totals."""
     state = filled_state(n)
     groups = -(-n // GROUP)
     best: dict[str, np.ndarray] = {}
+    spread: dict[str, np.ndarray] = {}
     for synchronous in ("FULL", "OFF"):
-        rounds = [write_round(state, tmp, k, synchronous) for k in range(repeats + 1)]
-        best[synchronous] = np.min(np.array(rounds[1:]), axis=0)
+        times = np.array([write_round(state, tmp, k, synchronous) for k in range(rounds + 1)])[1:]
+        best[synchronous] = times.min(axis=0)
+        spread[synchronous] = times[:, 1, 0] / times[:, 0, 0]
     _, kinds = tool_writes(tmp / "counted.db", state, "FULL", counting=True)
     per_group = ", ".join(f"{count / groups:g} {kind}" for kind, count in sorted(kinds.items()))
     print(
         f"\n(2) {n} points written in {groups} groups of {GROUP} (one transaction each); "
-        f"best of {repeats}, interleaved:"
+        f"{rounds} rounds interleaved group by group after a warm-up, best of each side:"
     )
     print(f"  statements per group from the store (an executemany's rows each): {per_group}")
     for synchronous, label in (("FULL", "synchronous=FULL"), ("OFF", "synchronous=OFF, scratch")):
-        tool, with_header, points_only = n / best[synchronous]
+        (tool, tool_cpu), (header, header_cpu), (points_only, _) = best[synchronous]
         print(f"  {label}:")
-        print(f"    bare sqlite3, points + header row  {with_header:10,.0f} points/s")
-        print(f"    bare sqlite3, points only          {points_only:10,.0f} points/s")
-        ratios = f"{tool / with_header:.2f}x with header, {tool / points_only:.2f}x points only"
-        print(f"    PointSaver -> store sweep writer   {tool:10,.0f} points/s  ({ratios})")
-    tool, with_header, points_only = n / best["FULL"]
-    off_tool, off_header, _ = best["OFF"]
+        print(f"    bare sqlite3, points + header row  {n / header:10,.0f} points/s"
+              f"  (CPU {1e3 * header_cpu / groups:.3f} ms per group)")  # fmt: skip
+        print(f"    bare sqlite3, points only          {n / points_only:10,.0f} points/s")
+        ratios = f"{header / tool:.2f}x with header, {points_only / tool:.2f}x points only"
+        print(f"    PointSaver -> store sweep writer   {n / tool:10,.0f} points/s  ({ratios};"
+              f" CPU {1e3 * tool_cpu / groups:.3f} ms per group)")  # fmt: skip
+        each = spread[synchronous]
+        print(f"    each round's ratio with header: {each.min():.2f}x to {each.max():.2f}x,"
+              f" median {np.median(each):.2f}x")  # fmt: skip
+    (tool, tool_cpu), (header, header_cpu), (points_only, _) = best["FULL"]
+    (off_tool, off_tool_cpu), (off_header, off_header_cpu), _ = best["OFF"]
     print(
-        f"  information: the tool's own CPU beyond the bare writes, without disk waits: "
-        f"{1e3 * (off_tool - off_header) / groups:+.2f} ms per group "
-        f"({off_tool / off_header:.2f}x the bare time)"
+        f"  information: the tool's own time beyond the bare writes, without disk waits: "
+        f"{1e3 * (off_tool - off_header) / groups:+.3f} ms per group "
+        f"({off_tool / off_header:.2f}x the bare time); its thread's CPU "
+        f"{1e3 * (off_tool_cpu - off_header_cpu) / groups:+.3f} ms per group"
     )
-    print(f"  information: points only (no header row) as the bare side: {tool / points_only:.2f}x")
+    print(f"  information: points only (no header row) as the bare side: {points_only / tool:.2f}x")
     report(
         Goal(
             what="sweep points written (SQLite, WAL, synchronous FULL)",
-            figure=tool / with_header,
+            figure=header / tool,
             target=0.8,
             unit="x",
             better="higher",
@@ -417,7 +477,7 @@ def main() -> int:
     try:
         with tempfile.TemporaryDirectory() as tmp:
             sweep_goal(resource, n, repeats, Path(tmp))
-            writer_goal(n if args.quick else 20 * n, repeats, Path(tmp))
+            writer_goal(n if args.quick else 20 * n, 2 * repeats, Path(tmp))
     finally:
         process.terminate()
         process.wait(10)

@@ -25,7 +25,7 @@ import os
 import socket
 import sqlite3
 from datetime import UTC, datetime
-from functools import partial
+from functools import cache, partial
 from pathlib import Path
 from types import TracebackType
 from typing import TYPE_CHECKING, Any
@@ -41,15 +41,17 @@ from acquire.store.records import ReferenceSetInfo
 from acquire.store.reference_rows import HEAD_NAMES, POINT_NAMES, reference_set
 from acquire.store.sqlite_connection import MIN_SQLITE, PlainDatabase
 from acquire.store.sweep_batch import (
+    ROW_COLUMNS,
     SweepWriterBase,
     advance_text,
-    insert_text,
     not_running,
     other_writer,
 )
 from acquire.store.writer_alive import GONE_NOTE, process_exists
 
 if TYPE_CHECKING:
+    import numpy as np
+
     from acquire.compensation import ReferenceSet
     from acquire.store.core import Store
 
@@ -227,21 +229,47 @@ class PlainSweepStore:
         return f"PlainSweepStore({self.url!r})"
 
 
+#: The most point rows one INSERT carries (ten parameters a row: 640, under the 999 parameters
+#: a statement of the oldest SQLite may hold).
+ROWS_PER_INSERT = 64
+
+
+@cache
+def rows_insert_text(rows: int) -> str:
+    """The INSERT of ``rows`` point rows (:data:`~acquire.store.sweep_batch.ROW_COLUMNS`) in one
+    statement, its parameters the rows' values one row after another. One text per count, so
+    sqlite3's statement cache keeps each prepared (at most :data:`ROWS_PER_INSERT` of them)."""
+    row = f"({', '.join('?' * len(ROW_COLUMNS))})"
+    return f"INSERT INTO sweep_points ({', '.join(ROW_COLUMNS)}) VALUES {', '.join([row] * rows)}"
+
+
+def insert_rows(conn: sqlite3.Connection, table: np.ndarray) -> None:
+    """Insert the rows of a batch's table (:func:`~acquire.store.sweep_batch.point_table`) in
+    order, :data:`ROWS_PER_INSERT` to a statement: the rows an ``executemany`` of the one-row
+    INSERT stores, with one statement where that runs one per row."""
+    for first in range(0, len(table), ROWS_PER_INSERT):
+        part = table[first : first + ROWS_PER_INSERT]
+        conn.execute(rows_insert_text(len(part)), part.ravel().tolist())
+
+
 class PlainSweepWriter(SweepWriterBase):
     """The points of one sweep into the store, as :class:`acquire.store.sweeps.SweepWriter`
-    writes them (the same statements, batches and ends)."""
+    writes them (the same rows, batches, transactions and ends; the rows of a batch go
+    :data:`ROWS_PER_INSERT` to a statement, :func:`insert_rows`)."""
 
     _db: PlainDatabase
 
-    def _store_rows(self, start: int, rows: list[tuple]) -> int:
+    def _rows(self, table: np.ndarray) -> np.ndarray:
+        return table
+
+    def _store_rows(self, start: int, rows: np.ndarray) -> int:
         count, sweep_id = len(rows), self._id
-        insert = insert_text("qmark")
 
         def work(conn: sqlite3.Connection) -> int:
             now = sqlite_time(utc_now())
             advance = (start + count, now, sweep_id, start)
             if conn.execute(advance_text("qmark"), advance).rowcount:
-                conn.executemany(insert, rows)
+                insert_rows(conn, rows)
                 return start + count
             held = "SELECT sweeps.points FROM sweeps WHERE sweeps.id = ? AND sweeps.status = ?"
             found = conn.execute(held, (sweep_id, "running")).fetchone()
@@ -253,8 +281,7 @@ class PlainSweepWriter(SweepWriterBase):
             new = rows[have - start :]
             bump = "UPDATE sweeps SET points = ?, last_write_at = ? WHERE sweeps.id = ?"
             conn.execute(bump, (have + len(new), now, sweep_id))
-            if new:
-                conn.executemany(insert, new)
+            insert_rows(conn, new)
             return have + len(new)
 
         return self._db.write("storing sweep points", work)

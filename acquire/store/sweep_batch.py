@@ -1,12 +1,14 @@
 """A sweep batch as the database driver takes it: the SQL written once per parameter style,
-and the rows built column by column with numpy (:func:`batch_rows`).
+and the rows built column by column with numpy (:func:`batch_table`).
 
 The statements are plain SQL, given to ``Connection.exec_driver_sql`` by
 :class:`acquire.store.sweeps.SweepWriter` (nothing compiled per batch, no dict per row;
 SQLAlchemy still wraps the driver's errors, so a store that is out of reach is reported as one)
-and to :mod:`sqlite3` by :class:`acquire.store.sqlite_sweeps.PlainSweepWriter`: the sweep row's
-update in the usual case and the points' ``executemany``. NaN is sent as None, so the rows
-stored are those an INSERT built with SQLAlchemy Core stores (``tests/test_store_sweep_rows.py``).
+and the sweep row's update in the usual case to :mod:`sqlite3` by
+:class:`acquire.store.sqlite_sweeps.PlainSweepWriter` too; the points go to the driver's
+``executemany`` on the usual path and, on the plain path, many rows to an INSERT (the batch's
+:func:`point_table` read row after row). NaN is sent as None, so the rows stored are those an
+INSERT built with SQLAlchemy Core stores (``tests/test_store_sweep_rows.py``).
 This module imports no SQLAlchemy.
 """
 
@@ -65,7 +67,7 @@ def insert_text(paramstyle: str) -> str:
     return f"INSERT INTO sweep_points ({', '.join(ROW_COLUMNS)}) VALUES ({marks})"
 
 
-def point_rows(
+def point_table(
     sweep_id: int,
     start: int,
     f: np.ndarray,
@@ -73,10 +75,11 @@ def point_rows(
     cor: np.ndarray,
     u: np.ndarray,
     marks: list[str],
-) -> list[tuple[Any, ...]]:
-    """The rows of a batch in :data:`ROW_COLUMNS` order, built column by column with numpy:
-    Python ints, floats and strings, NaN as None (stored as NULL) and infinity kept, in
-    every column but the frequency."""
+) -> np.ndarray:
+    """The rows of a batch as an ``(n, len(ROW_COLUMNS))`` array of Python objects in
+    :data:`ROW_COLUMNS` order, built column by column with numpy: Python ints, floats and
+    strings, NaN as None (stored as NULL) and infinity kept, in every column but the frequency.
+    C-ordered, so ``table.ravel()`` holds the rows' values one row after another."""
     n = f.size
     numbers = np.empty((n, len(POINT_COLUMNS) - 1))
     numbers[:, 0], numbers[:, 1] = raw.real, raw.imag
@@ -92,6 +95,11 @@ def point_rows(
     if missing.any():
         values[missing] = None
     table[:, -1] = marks
+    return table
+
+
+def point_rows(table: np.ndarray) -> list[tuple[Any, ...]]:
+    """The rows of :func:`point_table` as tuples, as a driver's ``executemany`` takes them."""
     return list(map(tuple, table.tolist()))
 
 
@@ -118,7 +126,7 @@ def check_flags(flags: Sequence[str] | None, n: int) -> list[str]:
     return marks
 
 
-def batch_rows(
+def batch_table(
     sweep_id: int,
     start: int,
     frequency: np.ndarray,
@@ -126,9 +134,10 @@ def batch_rows(
     corrected_z: np.ndarray | None,
     uncertainty: np.ndarray | None,
     flags: Sequence[str] | None,
-) -> list[tuple[Any, ...]]:
+) -> np.ndarray:
     """A batch given to a sweep writer's ``add_points``, checked, as the rows that store it
-    (points ``start``, ``start + 1``, ...); StoreError for arrays that do not fit together."""
+    (points ``start``, ``start + 1``, ...; :func:`point_table`); StoreError for arrays that do
+    not fit together."""
     f = np.atleast_1d(np.asarray(frequency, dtype=float))
     raw = np.atleast_1d(np.asarray(raw_z, dtype=complex))
     if corrected_z is None:
@@ -142,9 +151,7 @@ def batch_rows(
         )
     u = check_uncertainty(uncertainty, f.size)
     marks = check_flags(flags, f.size)
-    if f.size == 0:
-        return []
-    return point_rows(sweep_id, start, f, raw, cor, u, marks)
+    return point_table(sweep_id, start, f, raw, cor, u, marks)
 
 
 def not_running(sweep_id: int) -> SweepNotRunning:
@@ -179,8 +186,9 @@ class SweepWriterBase(RunWriter):
     """What both sweep writers do alike (:class:`acquire.store.sweeps.SweepWriter` through
     SQLAlchemy, :class:`acquire.store.sqlite_sweeps.PlainSweepWriter` through :mod:`sqlite3`):
     the checks, the batch's rows, the count and the end. A subclass says how a batch is stored
-    (``_store_rows``: the new count) and how the sweep row is ended (``_mark_end``: True when
-    the sweep is, or already was, ended so)."""
+    (``_store_rows``, given the batch's :func:`point_table` as ``_rows`` makes it ready: the new
+    count) and how the sweep row is ended (``_mark_end``: True when the sweep is, or already
+    was, ended so)."""
 
     @property
     def points(self) -> int:
@@ -211,9 +219,9 @@ class SweepWriterBase(RunWriter):
         if self._finished is not None:
             raise StoreError(f"sweep {self._id} is already {self._finished}: begin a new sweep")
         start = self._count
-        rows = batch_rows(self._id, start, frequency, raw_z, corrected_z, uncertainty, flags)
-        if rows:
-            self._count = self._store_rows(start, rows)
+        table = batch_table(self._id, start, frequency, raw_z, corrected_z, uncertainty, flags)
+        if len(table):
+            self._count = self._store_rows(start, self._rows(table))
 
     def finish(self, status: str = "complete", note: str = "") -> None:
         """Mark the sweep ``complete`` or ``interrupted`` (with an optional note)."""
@@ -225,7 +233,11 @@ class SweepWriterBase(RunWriter):
     def _end(self, status: str, note: str) -> None:
         self.finish(status, note=note)
 
-    def _store_rows(self, start: int, rows: list[tuple]) -> int:
+    def _rows(self, table: np.ndarray) -> Any:
+        """A batch's rows as ``_store_rows`` takes them: tuples, for ``executemany``."""
+        return point_rows(table)
+
+    def _store_rows(self, start: int, rows: Any) -> int:
         raise NotImplementedError
 
     def _mark_end(self, status: str, note: str) -> bool:

@@ -3,11 +3,14 @@
 `acquire --help` and the read-only listing of reference sets load none of numpy, SQLAlchemy,
 Alembic, scipy, pandas, pyvisa or matplotlib; importing a store record loads no SQLAlchemy; a
 sweep that opens an SQLite store already at the newest revision loads no SQLAlchemy, Alembic,
-scipy or pandas.
+scipy or pandas; the sweep command itself, with --no-live into a pipe, loads neither rich nor
+what only other paths need (the live view, CSV output, the store's records, the reference
+set's checks and file, DC bias).
 """
 
 from __future__ import annotations
 
+import os
 import subprocess
 import sys
 from pathlib import Path
@@ -16,6 +19,7 @@ import numpy as np
 
 from acquire.compensation import ReferenceSet
 from acquire.store import open_store
+from drivers.simulator import running
 
 ROOT = Path(__file__).resolve().parents[1]
 HEAVY = ("numpy", "sqlalchemy", "alembic", "scipy", "pandas", "pyvisa", "matplotlib")
@@ -68,6 +72,46 @@ def test_opening_a_current_store_for_a_sweep_loads_no_sql_toolkit_nor_scipy(tmp_
     )
     loaded = _loaded_after(code, tmp_path)
     assert not loaded & {"sqlalchemy", "alembic", "scipy", "pandas"}, loaded
+
+
+#: What `acquire sweep --no-live` into a pipe must not load: rich (the plain text is printed
+#: without it, acquire.plain_console) and modules that only other paths need.
+NOT_ON_THE_PLAIN_SWEEP = (
+    "rich",
+    "acquire.dashboard",
+    "acquire.dashboard_side",
+    "acquire.csvout",
+    "acquire.destination",
+    "acquire.capture",
+    "acquire.store.records",
+    "acquire.compensation.reference_set",
+    "acquire.compensation.checks",
+    "acquire.compensation.refs_file",
+    "drivers.bias",
+    "drivers.supply",
+)
+
+
+def test_a_plain_sweep_loads_neither_rich_nor_what_other_paths_need(tmp_path):
+    url = f"sqlite:///{tmp_path / 's.db'}"
+    open_store(url).close()
+    wrapper = (
+        "import sys\nfrom acquire.cli import main\ncode = main(sys.argv[1:])\n"
+        f"gone = {NOT_ON_THE_PLAIN_SWEEP!r}\n"
+        "print('LOADED', *sorted(m for m in sys.modules if m in gone or m.split('.')[0] in gone))\n"
+        "sys.exit(code)\n"
+    )
+    env = {k: v for k, v in os.environ.items() if not k.startswith(("ACQUIRE_", "FORCE_COLOR"))}
+    with running(dut="demo-coil", fixture="bench-leads", seed=3, measure_time=0.0) as sim:
+        done = subprocess.run(
+            [sys.executable, "-c", wrapper, "sweep", "--resource", sim.resource, "--store", url,
+             "--points", "41", "--no-live"],
+            capture_output=True, text=True, cwd=ROOT, env=env, timeout=120,
+        )  # fmt: skip
+    assert done.returncode == 0, done.stderr
+    assert "Sweep complete: 41 of 41 points" in done.stdout
+    loaded = done.stdout.splitlines()[-1].split()
+    assert loaded == ["LOADED"], loaded
 
 
 def test_every_name_the_store_package_offers_is_there():

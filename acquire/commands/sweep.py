@@ -153,7 +153,6 @@ def _measure(args: argparse.Namespace) -> int:
     from datetime import UTC, datetime
 
     from acquire.commands.options import plan_from_args
-    from acquire.destination import check_destination
     from acquire.errors import InputError
     from acquire.plan import check_range
     from acquire.store.sqlite_sweeps import open_sweep_store
@@ -181,6 +180,8 @@ def _measure(args: argparse.Namespace) -> int:
     console = _console(args.no_live)
     with open_sweep_store(args.store) as store:
         if args.csv:
+            from acquire.destination import check_destination
+
             check_destination(args.csv, store, "--csv")
         ref_id, refs = (None, None)
         if args.reference:

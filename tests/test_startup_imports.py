@@ -3,7 +3,7 @@
 `acquire --help` and the read-only listing of reference sets load none of numpy, SQLAlchemy,
 Alembic, scipy, pandas, pyvisa or matplotlib; importing a store record loads no SQLAlchemy; a
 sweep that opens an SQLite store already at the newest revision loads no SQLAlchemy, Alembic,
-scipy or pandas; the sweep command itself, with --no-live into a pipe, loads neither rich nor
+scipy or pandas; the sweep command itself, into a pipe, loads neither rich nor
 what only other paths need (the live view, CSV output, the store's records, the reference
 set's checks and file, DC bias).
 """
@@ -16,6 +16,7 @@ import sys
 from pathlib import Path
 
 import numpy as np
+import pytest
 
 from acquire.compensation import ReferenceSet
 from acquire.store import open_store
@@ -74,8 +75,9 @@ def test_opening_a_current_store_for_a_sweep_loads_no_sql_toolkit_nor_scipy(tmp_
     assert not loaded & {"sqlalchemy", "alembic", "scipy", "pandas"}, loaded
 
 
-#: What `acquire sweep --no-live` into a pipe must not load: rich (the plain text is printed
-#: without it, acquire.plain_console) and modules that only other paths need.
+#: What `acquire sweep` into a pipe (with --no-live or without: off a terminal there is no live
+#: view) must not load: rich (the plain text is printed without it, acquire.plain_console) and
+#: modules that only other paths need.
 NOT_ON_THE_PLAIN_SWEEP = (
     "rich",
     "acquire.dashboard",
@@ -92,7 +94,8 @@ NOT_ON_THE_PLAIN_SWEEP = (
 )
 
 
-def test_a_plain_sweep_loads_neither_rich_nor_what_other_paths_need(tmp_path):
+@pytest.mark.parametrize("live", [["--no-live"], []])
+def test_a_sweep_into_a_pipe_loads_neither_rich_nor_what_other_paths_need(tmp_path, live):
     url = f"sqlite:///{tmp_path / 's.db'}"
     open_store(url).close()
     wrapper = (
@@ -105,7 +108,7 @@ def test_a_plain_sweep_loads_neither_rich_nor_what_other_paths_need(tmp_path):
     with running(dut="demo-coil", fixture="bench-leads", seed=3, measure_time=0.0) as sim:
         done = subprocess.run(
             [sys.executable, "-c", wrapper, "sweep", "--resource", sim.resource, "--store", url,
-             "--points", "41", "--no-live"],
+             "--points", "41", *live],
             capture_output=True, text=True, cwd=ROOT, env=env, timeout=120,
         )  # fmt: skip
     assert done.returncode == 0, done.stderr

@@ -177,7 +177,7 @@ def _measure(args: argparse.Namespace) -> int:
         check_csv_destination(args.csv)
     override = _override(args.use_despite_problems)
     level = parse_quantity(args.level, "V") if args.level else None
-    console = _console(args.no_live)
+    console = _console()
     with open_sweep_store(args.store) as store:
         if args.csv:
             from acquire.destination import check_destination
@@ -218,7 +218,7 @@ def _measure(args: argparse.Namespace) -> int:
                            measurement, references=refs, override=used)  # fmt: skip
             state.destination = f"sweep {writer.id} in {store.url}"
             started = datetime.now(UTC)
-            with _view(state, args.no_live, console) as view:
+            with _view(state, not args.no_live, console) as view:
                 outcome = run_sweep(
                     meter, plan, refs, writer, state, on_progress=_harmless(view.update),
                     uncertainty=model, repeats=args.repeats,
@@ -244,24 +244,23 @@ def _measure(args: argparse.Namespace) -> int:
     return 130 if isinstance(outcome.error, KeyboardInterrupt) else 2
 
 
-def _console(plain: bool):
-    """Where the command prints: with --no-live, rich only where its output is not plain
-    text (a terminal, see :mod:`acquire.plain_console`), so a sweep into a pipe or a file does
-    not load it; else a rich console."""
-    if plain:
-        from acquire.plain_console import plain_console
+def _console():
+    """Where the command prints: off a terminal, a console that prints rich's plain text
+    without loading rich (:mod:`acquire.plain_console`); else rich's."""
+    from acquire.plain_console import plain_console
 
-        console = plain_console()
-        if console is not None:
-            return console
+    console = plain_console()
+    if console is not None:
+        return console
     from acquire.display import text_console
 
     return text_console()
 
 
-def _view(state, plain: bool, console):
-    """Plain progress lines with --no-live (or off a terminal), else the live view."""
-    if plain:
+def _view(state, live: bool, console):
+    """The live view on a terminal unless --no-live, else plain progress lines (as
+    :func:`acquire.dashboard.open_view` chooses, without loading rich for the lines)."""
+    if not live or not console.is_terminal:
         from acquire.sweep_text import PlainProgress
 
         return PlainProgress(state, console.file)

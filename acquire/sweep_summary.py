@@ -7,6 +7,7 @@ the self-resonance and the warnings (the same table `acquire sweep show` prints 
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -17,6 +18,9 @@ from acquire.resonance import self_resonance, summary_frequencies
 from acquire.sweep_state import SweepState
 from acquire.sweep_text import override_line, point_u
 from acquire.units import format_si
+
+if TYPE_CHECKING:
+    from rich.console import Group
 
 
 @dataclass(frozen=True)
@@ -31,7 +35,7 @@ class SweepSummary:
     resonance: str | None = None
     warnings: str | None = None
 
-    def __rich__(self):
+    def __rich__(self) -> Group:
         from rich.console import Group
         from rich.table import Table
         from rich.text import Text

@@ -91,6 +91,7 @@ NOT_ON_THE_PLAIN_SWEEP = (
     "acquire.compensation.refs_file",
     "drivers.bias",
     "drivers.supply",
+    "hashlib",  # OpenSSL: identity keys use CPython's own SHA-256 (acquire.store.plain_values)
 )
 
 
@@ -122,3 +123,17 @@ def test_every_name_the_store_package_offers_is_there():
 
     for name in acquire.store.__all__:
         assert getattr(acquire.store, name) is not None, name
+
+
+def test_the_identity_key_s_sha256_is_the_standard_one():
+    import hashlib
+    import json
+
+    from acquire.store import plain_values
+
+    # FIPS 180-4 (Secure Hash Standard), example "abc": SHA-256 of the three bytes.
+    abc = "ba7816bf8f01cfea414140de5dae2223b00361a396177a9cb410ff61f20015ad"
+    assert plain_values.sha256(b"abc").hexdigest() == abc
+    for parts in [("Maker", "M1", "SN 7", "1.0"), ("bench 'leads' µΩ",), ("",)]:
+        text = json.dumps(list(parts), ensure_ascii=False).encode()
+        assert plain_values.identity_key(*parts) == hashlib.sha256(text).hexdigest()

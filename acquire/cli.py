@@ -22,8 +22,9 @@ from collections.abc import Sequence
 
 from acquire import signals
 
-#: A byte of the command line that was not text (PEP 383 decodes it as U+DC80..U+DCFF).
-_SURROGATE = re.compile("[\udc80-\udcff]")
+#: A byte of the command line that was not text (PEP 383 decodes it as U+DC80..U+DCFF); compiled
+#: by the re module on first use (only for a command line that needs it).
+_SURROGATE = "[\udc80-\udcff]"
 
 #: Subcommand name -> module under acquire.commands, in the order shown by --help.
 COMMANDS: dict[str, str] = {
@@ -159,7 +160,7 @@ def _holding(value: str, argv: list[str]) -> str:
     """The option of the command line whose text is (or holds) ``value``, else "a name"."""
     for i, token in enumerate(argv):
         text = token.split("=", 1)[1] if token.startswith("--") and "=" in token else token
-        if not _SURROGATE.search(text) or not (value in text or text in value):
+        if not re.search(_SURROGATE, text) or not (value in text or text in value):
             continue
         if text is not token:
             return token.split("=", 1)[0]

@@ -332,7 +332,9 @@ class ImpedanceMeter:
         steps = [d.operations[name] for name in d.list_sequence]
         for start, stop in _chunks(f.size, d.list_max_points):
             part = f[start:stop]
-            context = {"frequencies": ",".join(map(number_text, part)), "count": str(part.size)}
+            # what number_text writes for each value (repr of a float: exact), in one pass
+            listed = ",".join(map(repr, part.tolist()))
+            context = {"frequencies": listed, "count": str(part.size)}
             sent = [(op, context) for op in steps]
             timeout = self._timeout(part.size)
             self._mode_known = False

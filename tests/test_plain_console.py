@@ -148,3 +148,13 @@ def test_a_terminal_or_forced_colour_gets_rich(monkeypatch):
     assert isinstance(plain_console(io.StringIO()), PlainConsole)
     latin = io.TextIOWrapper(io.BytesIO(), encoding="latin-1")
     assert plain_console(latin) is None  # rich draws an ASCII box there
+
+
+def test_every_character_taken_as_one_cell_is_one_cell_for_rich():
+    from rich.cells import cell_len
+
+    from acquire.plain_console import _NARROW, narrow
+
+    assert all(cell_len(c) == 1 for c in _NARROW)
+    assert all(cell_len(chr(i)) == 1 for i in range(0x20, 0x300) if narrow(chr(i)))
+    assert not narrow("\t") and not narrow("\r") and not narrow("\u0301") and not narrow("漢")

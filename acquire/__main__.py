@@ -1,5 +1,3 @@
-import sys
+from acquire.cli import program
 
-from acquire.cli import main
-
-sys.exit(main())
+program()

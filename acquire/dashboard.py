@@ -16,11 +16,7 @@ it out, and a warning line says how many points were flagged and from which freq
 
 from __future__ import annotations
 
-import math
-import sys
-import time
 from datetime import UTC, datetime
-from typing import IO
 
 import numpy as np
 from rich.console import Console, ConsoleOptions, RenderResult
@@ -30,12 +26,14 @@ from rich.segment import Segment
 from rich.table import Table
 from rich.text import Text
 
-from acquire.dashboard_side import latest_rows, point_u, side_column, side_lines
-from acquire.display import UNITS, format_duration, format_measured
+from acquire.dashboard_side import latest_rows, side_column, side_lines
+from acquire.display import UNITS, format_duration
 from acquire.impedance import quantities
 from acquire.sweep_state import SweepState
+from acquire.sweep_text import PlainProgress, override_line
 from acquire.textplot import draw, x_axis, y_labels, y_limits
-from acquire.units import format_si
+
+__all__ = ["DashboardView", "LiveDashboard", "PlainProgress", "open_view", "reference_age"]
 
 COLOURS = ("cyan", "magenta", "green", "yellow", "blue", "red")
 SIDE_WIDTH = 34
@@ -47,11 +45,6 @@ def reference_age(state: SweepState, now: datetime | None = None) -> float | Non
         return None
     now = now or datetime.now(UTC)
     return (now - state.reference_captured_at).total_seconds()
-
-
-def override_line(state: SweepState) -> str:
-    """The line saying the reference set failed its check and was used anyway, and why."""
-    return f"reference set used despite failing its check; reason given: {state.reference_override}"
 
 
 class DashboardView:
@@ -255,59 +248,6 @@ class LiveDashboard:
 
     def update(self) -> None:
         """Nothing to do per chunk: the refresh thread redraws on its own timer."""
-
-
-class PlainProgress:
-    """Plain progress lines for pipes and scripts, at most one every ``interval`` seconds."""
-
-    def __init__(
-        self, state: SweepState, out: IO[str] | None = None, interval: float = 2.0
-    ) -> None:
-        self.state = state
-        self.out = out or sys.stdout
-        self.interval = interval
-        self._last = -math.inf
-
-    def __enter__(self) -> PlainProgress:
-        self.out.write(f"sweep: {self.state.plan.describe()}\n")
-        self.out.flush()
-        return self
-
-    def __exit__(self, *exc: object) -> None:
-        self.line()
-
-    def update(self) -> None:
-        now = time.monotonic()
-        if now - self._last >= self.interval:
-            self._last = now
-            self.line()
-
-    def line(self) -> None:
-        """Print one progress line for the state as it stands."""
-        s = self.state
-        text = f"{s.count}/{s.planned} points ({100.0 * s.count / max(s.planned, 1):.0f} %)"
-        f, raw, corrected = s.points()
-        if f.size:
-            z = raw if corrected is None else corrected
-            q = quantities(f[-1:], z[-1:])
-            last = slice(f.size - 1, f.size)
-            u = point_u(s, f, z, last, s.quantities)
-            values = "  ".join(
-                f"{n}="
-                + format_measured(
-                    n,
-                    float(q[n][0]),
-                    None if u is None else float(u[n][0]),
-                    bool(s.hidden_at(n, last)[0]),
-                )
-                for n in s.quantities
-            )
-            text += f"  f={format_si(float(f[-1]), 'Hz')}  {values}"
-        left = s.remaining()
-        if left is not None:
-            text += f"  about {format_duration(left)} left"
-        self.out.write(text + "\n")
-        self.out.flush()
 
 
 def open_view(

@@ -19,7 +19,7 @@ from rich.text import Text
 
 from acquire.display import format_measured
 from acquire.sweep_state import SweepState
-from acquire.uncertainty import quantity_uncertainty
+from acquire.sweep_text import point_u
 from acquire.units import format_si
 
 LATEST = "latest point"
@@ -103,11 +103,3 @@ def side_lines(
     if srf is not None:
         lines += console.render_lines(resonance_panel(srf), options)
     return lines
-
-
-def point_u(state: SweepState, f: np.ndarray, z: np.ndarray, part, names):
-    """Expanded uncertainty of ``names`` at the points ``part`` of ``f`` and the shown ``z`` (the
-    state's first ``f.size`` points), or None when the view does not show uncertainty."""
-    if not state.show_uncertainty:
-        return None
-    return quantity_uncertainty(f[part], z[part], state.cov[: f.size][part], names)

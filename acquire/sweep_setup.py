@@ -122,10 +122,10 @@ def warn_about_references(
     state: SweepState, refs: Any, meter_name: str, fixture: str, max_hours: float | None
 ) -> None:
     """Put the reference set's warnings (age, meter, fixture, checks) on the view."""
-    from acquire.capture import reference_warnings
-
     if refs is None:
         return
+    from acquire.capture import reference_warnings
+
     max_age = None if max_hours is None or max_hours <= 0 else max_hours * 3600.0
     for w in reference_warnings(refs, meter_name, fixture, max_age):
         state.warn(w)

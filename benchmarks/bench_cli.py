@@ -12,7 +12,8 @@ Goals (issue "speed where the user waits"):
 Shown for reference, with no goal in the issue: `acquire station` from its start until it has
 waited for a serial and read the end of its input (no unit measured), and `acquire lot` on a
 store holding one lot. Also printed: the import floor of the sweep (numpy, pyvisa with
-pyvisa-py's TCP/IP session, rich's live view and table, sqlite3), and the same with SQLAlchemy,
+pyvisa-py's TCP/IP session, rich's live view and table, sqlite3), the same without rich (which a
+sweep with --no-live into a pipe does not load), and the same with SQLAlchemy,
 which every write to the store goes through, so the reader sees what is reachable.
 
 Every figure is the median of several fresh interpreter runs, interleaved with the baseline's
@@ -46,6 +47,10 @@ NUMPY = ["-c", "import numpy"]
 FLOOR = (
     "import numpy, sqlite3, pyvisa, pyvisa_py.tcpip, pyvisa_py.highlevel, rich.live, "
     "rich.table, rich.console; pyvisa.ResourceManager('@py')"
+)
+#: The same without rich: a sweep with --no-live into a pipe or a file prints without it.
+FLOOR_PLAIN = "import numpy, sqlite3, pyvisa, pyvisa_py.tcpip, pyvisa_py.highlevel; " + (
+    "pyvisa.ResourceManager('@py')"
 )
 BASELINE = 'python -c "import numpy"'
 
@@ -227,6 +232,8 @@ def main() -> int:
             row(BASELINE, numpy, numpy)
             floor, numpy_f = against_numpy(["-c", FLOOR], repeats)
             row("floor: numpy+sqlite3+pyvisa(+py TCPIP)+rich live/table", floor, numpy_f)
+            plain, numpy_p = against_numpy(["-c", FLOOR_PLAIN], repeats)
+            row("floor without rich (a --no-live sweep into a pipe)", plain, numpy_p)
             floor_sa, numpy_fs = against_numpy(["-c", FLOOR + "; import sqlalchemy"], repeats)
             row("floor with sqlalchemy (the store's writes)", floor_sa, numpy_fs)
 

@@ -23,7 +23,7 @@ FORMS = (
 ADVICE_OPEN = (
     "Check that the meter is on and reachable and that the resource string (address, port) is right"
 )
-_SENTENCE_END = re.compile(r"\.\s+(?=[A-Z])")
+_SENTENCE_END = r"\.\s+(?=[A-Z])"  # compiled by the re module on first use
 
 
 def one_line(text: str) -> str:
@@ -33,7 +33,7 @@ def one_line(text: str) -> str:
 
 def first_sentence(text: str) -> str:
     """The first sentence of a message (its advice, if any, dropped), on one line."""
-    return _SENTENCE_END.split(one_line(text), maxsplit=1)[0].rstrip(".")
+    return re.split(_SENTENCE_END, one_line(text), maxsplit=1)[0].rstrip(".")
 
 
 def resource_problem(resource: str) -> str | None:

@@ -13,12 +13,11 @@ from __future__ import annotations
 import functools
 import logging
 from collections.abc import Callable
-from typing import Any, TypeVar
+from typing import TYPE_CHECKING, Any, TypeVar
 
 import numpy as np
 
 from drivers import readings, scpi
-from drivers.bias import MeterBias
 from drivers.dialect import Dialect
 from drivers.dialect_file import load_dialect
 from drivers.error_queue import ErrorQueue
@@ -27,6 +26,9 @@ from drivers.exchange import Exchange
 from drivers.scpi import ErrorEntry, Identity
 from drivers.session import TRANSIENT, Session
 from drivers.settings import number_text, setting_step, transfer_steps
+
+if TYPE_CHECKING:
+    from drivers.bias import MeterBias
 
 __all__ = ["ImpedanceMeter", "Identity", "ErrorEntry"]
 
@@ -143,6 +145,8 @@ class ImpedanceMeter:
         """The meter's own DC bias (:class:`~drivers.bias.MeterBias`; the same one every call);
         :class:`DialectError` if its dialect declares no bias operations."""
         if self._bias is None:
+            from drivers.bias import MeterBias  # loaded by the first use of bias, not by a sweep
+
             self._bias = MeterBias(self._session, self._dialect)
         return self._bias
 
@@ -328,7 +332,9 @@ class ImpedanceMeter:
         steps = [d.operations[name] for name in d.list_sequence]
         for start, stop in _chunks(f.size, d.list_max_points):
             part = f[start:stop]
-            context = {"frequencies": ",".join(map(number_text, part)), "count": str(part.size)}
+            # what number_text writes for each value (repr of a float: exact), in one pass
+            listed = ",".join(map(repr, part.tolist()))
+            context = {"frequencies": listed, "count": str(part.size)}
             sent = [(op, context) for op in steps]
             timeout = self._timeout(part.size)
             self._mode_known = False

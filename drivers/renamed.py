@@ -31,7 +31,8 @@ NEW_SPEED_DIALECT = (
 )
 
 _PAIR_COMMAND = re.compile(r"(?:^|[;\s:])FORM(?:AT)?:PAIR\s+([A-Z]+)\s*(?:;|$)", re.IGNORECASE)
-_SPEED_COMMAND = re.compile(r"(?:^|;)\s*:?(?:SENS(?:E)?:)?SPE(?:ED)?(?:\s|\?|;|$)", re.IGNORECASE)
+#: Compiled by the re module on first use: only a command holding "SPE" is searched.
+_SPEED_COMMAND = r"(?:^|;)\s*:?(?:SENS(?:E)?:)?SPE(?:ED)?(?:\s|\?|;|$)"
 
 
 def old_pair(command: str) -> str | None:
@@ -49,7 +50,9 @@ def selects_pair(command: str) -> bool:
 
 def old_speed(command: str) -> bool:
     """True if the command uses the retired speed header."""
-    return _SPEED_COMMAND.search(command) is not None
+    return (
+        "SPE" in command.upper() and re.search(_SPEED_COMMAND, command, re.IGNORECASE) is not None
+    )
 
 
 def dialect_problems(commands: dict[str, str]) -> list[tuple[str, str]]:

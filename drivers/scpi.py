@@ -30,7 +30,7 @@ _WS = r"[\x00-\x09\x0b-\x20]*"
 #: white space allowed around its E). ASCII digits only: no underscores, no other scripts'
 #: digits, no words such as inf or nan (which Python's float would accept).
 _NUMBER = r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:" + _WS + r"[Ee]" + _WS + r"[+-]?[0-9]+)?"
-_ONE_NUMBER = re.compile(_WS + "(" + _NUMBER + ")" + _WS)
+_ONE_NUMBER = _WS + "(" + _NUMBER + ")" + _WS  # compiled by the re module on first use
 _NUMBER_LIST = re.compile(_WS + _NUMBER + _WS + "(?:," + _WS + _NUMBER + _WS + ")*")
 _WHITE = re.compile(r"[\x00-\x09\x0b-\x20]+")
 
@@ -203,7 +203,7 @@ def special_values(values: np.ndarray) -> np.ndarray:
 
 def is_number(text: str) -> bool:
     """True if ``text`` is one IEEE 488.2 decimal number (NR1, NR2 or NR3), white space around."""
-    return _ONE_NUMBER.fullmatch(text) is not None
+    return re.fullmatch(_ONE_NUMBER, text) is not None
 
 
 def parse_number(text: str) -> float:

@@ -410,7 +410,7 @@ def test_a_progress_line_that_cannot_be_written_does_not_stop_the_sweep(
     def unwritable(self):
         raise OSError(5, "Input/output error")  # a terminal that went away mid-sweep
 
-    monkeypatch.setattr("acquire.dashboard.PlainProgress.update", unwritable)
+    monkeypatch.setattr("acquire.sweep_text.PlainProgress.update", unwritable)
     url = f"sqlite:///{tmp_path / 'p.db'}"
     with running(dut="air-core-coil", fixture="bench-leads", seed=9, measure_time=0) as sim:
         code = main(["sweep", "--resource", sim.resource, "--store", url, "--points", "7",

@@ -153,10 +153,6 @@ def _measure(args: argparse.Namespace) -> int:
     from datetime import UTC, datetime
 
     from acquire.commands.options import plan_from_args
-    from acquire.csvout import write_sweep_csv
-    from acquire.dashboard import open_view
-    from acquire.destination import check_destination
-    from acquire.display import text_console
     from acquire.errors import InputError
     from acquire.plan import check_range
     from acquire.store.sqlite_sweeps import open_sweep_store
@@ -181,9 +177,11 @@ def _measure(args: argparse.Namespace) -> int:
         check_csv_destination(args.csv)
     override = _override(args.use_despite_problems)
     level = parse_quantity(args.level, "V") if args.level else None
-    console = text_console()
+    console = _console()
     with open_sweep_store(args.store) as store:
         if args.csv:
+            from acquire.destination import check_destination
+
             check_destination(args.csv, store, "--csv")
         ref_id, refs = (None, None)
         if args.reference:
@@ -220,7 +218,7 @@ def _measure(args: argparse.Namespace) -> int:
                            measurement, references=refs, override=used)  # fmt: skip
             state.destination = f"sweep {writer.id} in {store.url}"
             started = datetime.now(UTC)
-            with open_view(state, live=not args.no_live, console=console) as view:
+            with _view(state, not args.no_live, console) as view:
                 outcome = run_sweep(
                     meter, plan, refs, writer, state, on_progress=_harmless(view.update),
                     uncertainty=model, repeats=args.repeats,
@@ -228,6 +226,8 @@ def _measure(args: argparse.Namespace) -> int:
                 review_readings(state, refs)
         console.print(summary(state))
         if args.csv:
+            from acquire.csvout import write_sweep_csv
+
             about = csv_heading(state, args, started, outcome)
             path = write_sweep_csv(
                 args.csv, outcome.frequency, outcome.raw, outcome.corrected, show, about,
@@ -242,6 +242,31 @@ def _measure(args: argparse.Namespace) -> int:
         return 0
     print(f"acquire sweep: {line}", file=sys.stderr)
     return 130 if isinstance(outcome.error, KeyboardInterrupt) else 2
+
+
+def _console():
+    """Where the command prints: off a terminal, a console that prints rich's plain text
+    without loading rich (:mod:`acquire.plain_console`); else rich's."""
+    from acquire.plain_console import plain_console
+
+    console = plain_console()
+    if console is not None:
+        return console
+    from acquire.display import text_console
+
+    return text_console()
+
+
+def _view(state, live: bool, console):
+    """The live view on a terminal unless --no-live, else plain progress lines (as
+    :func:`acquire.dashboard.open_view` chooses, without loading rich for the lines)."""
+    if not live or not console.is_terminal:
+        from acquire.sweep_text import PlainProgress
+
+        return PlainProgress(state, console.file)
+    from acquire.dashboard import open_view
+
+    return open_view(state, live=True, console=console)
 
 
 def _harmless(update: Callable[[], None]) -> Callable[[], None]:

@@ -40,7 +40,6 @@ from typing import Any
 import numpy as np
 
 from acquire.compensation import formulas
-from acquire.compensation.findings import hz
 from acquire.errors import CompensationError
 from acquire.impedance import computed_once
 
@@ -140,6 +139,8 @@ def place(grid: np.ndarray, f: np.ndarray, log_grid: np.ndarray | None = None) -
 
 
 def _refuse_outside(grid: np.ndarray, f: np.ndarray) -> None:
+    from acquire.compensation.findings import hz  # the checks' wording, loaded for this message
+
     lo, hi = grid[0], grid[-1]
     outside = f[(f < lo * (1 - END_TOLERANCE)) | (f > hi * (1 + END_TOLERANCE))]
     what = (

@@ -9,12 +9,20 @@ SQLAlchemy's SQLite ``DATETIME`` stores (``tests/test_store_sqlite_sweeps.py`` h
 
 from __future__ import annotations
 
-import hashlib
 import json
 from datetime import UTC, datetime
 from typing import Any
 
 import numpy as np
+
+try:  # CPython's own SHA-256 (3.11: _sha256, 3.12 on: _sha2): the same digest as hashlib's,
+    # without loading OpenSSL as `import hashlib` does (milliseconds at every sweep's start)
+    from _sha256 import sha256
+except ImportError:  # pragma: no cover - another Python or build
+    try:
+        from _sha2 import sha256
+    except ImportError:
+        from hashlib import sha256
 
 
 def utc_now() -> datetime:
@@ -24,7 +32,7 @@ def utc_now() -> datetime:
 
 def identity_key(*parts: str) -> str:
     """The SHA-256 key of an identity made of several strings (unambiguous for any content)."""
-    return hashlib.sha256(json.dumps(list(parts), ensure_ascii=False).encode()).hexdigest()
+    return sha256(json.dumps(list(parts), ensure_ascii=False).encode()).hexdigest()
 
 
 def _json_default(value: Any) -> Any:

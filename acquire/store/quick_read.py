@@ -20,9 +20,12 @@ import sqlite3
 from contextlib import closing
 from datetime import UTC, datetime
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from acquire.store.migrations import HEAD_REVISION
-from acquire.store.records import ReferenceSetInfo
+
+if TYPE_CHECKING:
+    from acquire.store.records import ReferenceSetInfo
 
 #: The table of reference-set headers and the columns a listing reads (tests check them against
 #: :mod:`acquire.store.schema`).
@@ -93,6 +96,9 @@ def list_reference_sets(url: str) -> tuple[str, list[ReferenceSetInfo]] | None:
 
 
 def _info(row: dict) -> ReferenceSetInfo:
+    from acquire.store.records import ReferenceSetInfo  # only when sets are read (a sweep
+    # that uses none does not load the store's records)
+
     held = tuple(s for s in row["standards"].split(",") if s)
     return ReferenceSetInfo(
         id=row["id"],

@@ -37,7 +37,6 @@ from acquire.store.new_sqlite import make_if_new
 from acquire.store.plain_values import identity_key, sqlite_time, to_json, utc_now
 from acquire.store.quick_read import LISTED_COLUMNS, VERSION_TABLE, plain_sqlite_path
 from acquire.store.quick_read import _info as listed_info
-from acquire.store.records import ReferenceSetInfo
 from acquire.store.reference_rows import HEAD_NAMES, POINT_NAMES, reference_set
 from acquire.store.sqlite_connection import MIN_SQLITE, PlainDatabase
 from acquire.store.sweep_batch import (
@@ -54,6 +53,7 @@ if TYPE_CHECKING:
 
     from acquire.compensation import ReferenceSet
     from acquire.store.core import Store
+    from acquire.store.records import ReferenceSetInfo
 
 #: The columns of a new sweep's row, in the order they are sent (as ``sweeps.begin_sweep``).
 SWEEP_COLUMNS = (

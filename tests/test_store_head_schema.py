@@ -19,8 +19,9 @@ from pathlib import Path
 import numpy as np
 import pytest
 
+from acquire.commands.head_schema import main
 from acquire.store import UnitRecord, open_store
-from acquire.store.head_schema import COMMAND, main
+from acquire.store.head_schema import COMMAND
 from acquire.store.migrations import HEAD_REVISION
 from acquire.store.new_sqlite import SCRIPT, make_if_new, read_script
 from acquire.store.records import MeasurementRecord

@@ -16,15 +16,13 @@ what that file holds:
 Run it after every new migration (DEVELOPERS.md, "Changing the store's schema");
 ``tests/test_store_head_schema.py`` fails while the script is stale and names the command::
 
-    python -m acquire.store.head_schema --write   # write acquire/store/head_schema.sql again
-    python -m acquire.store.head_schema --check   # exit 1 when it is not what --write writes
+    python -m acquire.commands.head_schema --write   # write acquire/store/head_schema.sql again
+    python -m acquire.commands.head_schema --check   # exit 1 when it is not what --write writes
 """
 
 from __future__ import annotations
 
-import argparse
 import sqlite3
-import sys
 import tempfile
 from contextlib import closing
 from pathlib import Path
@@ -32,7 +30,7 @@ from pathlib import Path
 from acquire.store.new_sqlite import NOW, REVISION_LINE, SCRIPT
 
 #: The command that writes the script again, as messages name it.
-COMMAND = "python -m acquire.store.head_schema --write"
+COMMAND = "python -m acquire.commands.head_schema --write"
 #: Declared types whose values are times of making (SQLAlchemy's SQLite ``DATETIME``).
 TIME_TYPES = ("DATETIME", "TIMESTAMP")
 
@@ -108,25 +106,12 @@ def script_text() -> str:
         return dump(made_the_usual_way(Path(folder)))
 
 
-def main(argv: list[str] | None = None) -> int:
-    parser = argparse.ArgumentParser(
-        prog="python -m acquire.store.head_schema", description=__doc__.splitlines()[0]
-    )
-    what = parser.add_mutually_exclusive_group(required=True)
-    what.add_argument("--write", action="store_true", help=f"write {SCRIPT.name} again")
-    what.add_argument("--check", action="store_true", help="exit 1 when the script is stale")
-    args = parser.parse_args(argv)
-    text = script_text()
-    if args.write:
-        SCRIPT.write_text(text, encoding="utf-8")
-        print(f"wrote {SCRIPT}")
-        return 0
-    if SCRIPT.is_file() and SCRIPT.read_text(encoding="utf-8") == text:
-        print(f"{SCRIPT.name} makes the newest layout")
-        return 0
-    print(f"{SCRIPT.name} is stale: run `{COMMAND}`", file=sys.stderr)
-    return 1
+def script_is_current() -> bool:
+    """Whether the script in the package is what :func:`script_text` makes now."""
+    return SCRIPT.is_file() and SCRIPT.read_text(encoding="utf-8") == script_text()
 
 
-if __name__ == "__main__":
-    sys.exit(main())
+def write_script() -> Path:
+    """Write the script again from a store made the usual way; its path."""
+    SCRIPT.write_text(script_text(), encoding="utf-8")
+    return SCRIPT

@@ -1,5 +1,5 @@
 -- The newest layout of a results store on SQLite, as Alembic's migrations leave a new file.
--- Written by `python -m acquire.store.head_schema --write`; never edit it by hand.
+-- Written by `python -m acquire.commands.head_schema --write`; never edit it by hand.
 -- Write it again after every new migration (DEVELOPERS.md, "Changing the store's schema").
 -- `acquire sweep` runs it into a new SQLite file (acquire/store/new_sqlite.py); :now is the
 -- time of making.

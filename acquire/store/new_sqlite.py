@@ -34,7 +34,7 @@ from acquire.store.plain_values import sqlite_time, utc_now
 from acquire.store.quick_read import plain_sqlite_path
 from acquire.store.sqlite_connection import MIN_SQLITE, apply_settings, failure_kind
 
-#: The frozen script of the newest layout (written by ``python -m acquire.store.head_schema``).
+#: The frozen script of the newest layout (written by ``python -m acquire.commands.head_schema``).
 SCRIPT = Path(__file__).with_name("head_schema.sql")
 #: The script's line naming the revision it makes.
 REVISION_LINE = "-- revision: "

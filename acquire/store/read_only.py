@@ -15,10 +15,11 @@ from typing import Any
 from sqlalchemy import event
 
 from acquire.errors import StoreError
-from acquire.store.core import Store, _check_store_file
+from acquire.store.core import Store
 from acquire.store.engine import Database
 from acquire.store.migrate import stored_revision
 from acquire.store.schema import SCHEMA_REVISION
+from acquire.store.store_file import check_store_file
 from acquire.store.sweeps import STALE_AFTER_S
 from acquire.store.url import StoreLocation, parse_store_url
 
@@ -49,7 +50,7 @@ def open_read_only(url: str) -> Store:
     location = parse_store_url(url)
     if location.engine == "sqlite" and location.path is None:
         raise StoreError("an in-memory store (sqlite://) is empty when opened: give a file")
-    _check_store_file(location)
+    check_store_file(location)
     db = Database(_read_only_location(location))
     if db.is_postgres:
         event.listen(db.engine, "connect", _server_read_only)

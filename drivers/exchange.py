@@ -33,7 +33,8 @@ class PreparedPoint:
     #: The sequence's queries, in order, and which of them are acknowledgements.
     queries: tuple[Operation, ...]
     acks: tuple[int, ...]
-    #: Which reply holds the readings.
+    #: Which reply holds the readings, and the pattern of a plain reading pair
+    #: (:func:`drivers.point_message.pair_pattern`).
     at: int
     pattern: re.Pattern[str]
 
@@ -89,7 +90,7 @@ class Exchange:
         acks = tuple(k for k, op in enumerate(queries) if op.reply == "ack")
         return PreparedPoint(parts, queries, acks, readings[0], point_message.pair_pattern())
 
-    def at(
+    def point_at(
         self,
         operations: list[Operation],
         prepared: PreparedPoint | None,

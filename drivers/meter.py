@@ -297,7 +297,8 @@ class ImpedanceMeter:
         may be in list mode (at first, after a list sweep, a reset or a reconnect).
 
         The sequences' messages are made once (:meth:`Exchange.prepare_point`) and each point
-        sends its frequency's text in them; a point's name in messages ("measuring at ...")
+        sends its frequency's text in them (``repr`` of the float, as ``number_text`` writes
+        it); a point's name in messages ("measuring at ...")
         is made only when a failure needs it."""
         d = self._dialect
         full = [d.operations[name] for name in d.point_sequence]
@@ -311,7 +312,7 @@ class ImpedanceMeter:
 
         def point() -> tuple[float, float] | np.ndarray:
             known = self._mode_known
-            pair = self._io.at(steps[known], prepared[known], at.text, timeout, self._binary)
+            pair = self._io.point_at(steps[known], prepared[known], at.text, timeout, self._binary)
             self._mode_known = True
             return pair
 

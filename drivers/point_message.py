@@ -8,6 +8,7 @@ with any other field, a format spec or a conversion is left to that slower way: 
 :func:`reading_pair` reads a reply of two plain numbers with a pattern made once, and hands any
 other reply to :func:`drivers.scpi.parse_numbers`, which takes or refuses it by its own rules;
 so every reply is accepted or refused exactly as that function does, with the same numbers.
+:class:`Position` holds the point a sweep is at and makes its name only when asked.
 """
 
 from __future__ import annotations

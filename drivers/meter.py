@@ -294,12 +294,8 @@ class ImpedanceMeter:
 
     def _sweep_points(self, f: np.ndarray, on_points: OnPoints | None) -> np.ndarray:
         """One compound query per point. The ``point_mode`` step is sent only while the meter
-        may be in list mode (at first, after a list sweep, a reset or a reconnect).
-
-        The sequences' messages are made once (:meth:`Exchange.prepare_point`) and each point
-        sends its frequency's text in them (``repr`` of the float, as ``number_text`` writes
-        it); a point's name in messages ("measuring at ...")
-        is made only when a failure needs it."""
+        may be in list mode (at first, after a list sweep, a reset or a reconnect). Messages are
+        made once (:meth:`Exchange.prepare_point`); a point's name only when a failure needs it."""
         d = self._dialect
         full = [d.operations[name] for name in d.point_sequence]
         lean = [op for op in full if op.name != "point_mode"]

@@ -312,11 +312,10 @@ class ImpedanceMeter:
             self._mode_known = True
             return pair
 
-        describe = at.describe
-        attempt = self._queue.explained(describe, point)
+        attempt = self._queue.explained(at.describe, point)
         for i, fi in enumerate(f.tolist()):
             at.frequency, at.text = fi, repr(fi)
-            values[2 * i], values[2 * i + 1] = self._attempt(describe, attempt, repeatable)
+            values[2 * i], values[2 * i + 1] = self._attempt(at.describe, attempt, repeatable)
             if on_points is not None:
                 here = f[i : i + 1]
                 z = readings.from_flat(d.pair, here, values[2 * i : 2 * i + 2].copy(), d.qd_sign)
@@ -371,8 +370,7 @@ class ImpedanceMeter:
         return self._attempt(what, self._queue.explained(what, action), idempotent)
 
     def _attempt(self, what: Described, explained: Callable[[], T], idempotent: bool) -> T:
-        """:meth:`_call` of an action already wrapped by :meth:`ErrorQueue.explained` (made
-        once for the many points of a sweep)."""
+        """:meth:`_call` of an action :meth:`ErrorQueue.explained` wrapped (once per sweep)."""
         self._queue.found = []
         try:
             return self._session.call(what, explained, idempotent)

@@ -21,6 +21,7 @@ from drivers import scpi
 from drivers.dialect import Dialect
 from drivers.errors import InstrumentError, ReplyError, SettingRefused
 from drivers.failure_text import first_sentence
+from drivers.retry import Described, described
 from drivers.scpi import ErrorEntry
 from drivers.session import Session
 
@@ -81,9 +82,10 @@ class ErrorQueue:
         else:
             log.info("%s: discarded errors queued before this session: %s", self.resource, listed)
 
-    def explained(self, what: str, action: Callable[[], T]) -> Callable[[], T]:
+    def explained(self, what: Described, action: Callable[[], T]) -> Callable[[], T]:
         """``action``, but a reply it cannot understand is followed by reading the queue on the
-        same connection; if the meter reported an error, that ends the operation."""
+        same connection; if the meter reported an error, that ends the operation (``what``
+        names it: text, or a function giving it, called only then)."""
 
         def run() -> T:
             try:
@@ -98,14 +100,15 @@ class ErrorQueue:
 
         return run
 
-    def reason(self, what: str, failure: Exception) -> SettingRefused | None:
+    def reason(self, what: Described, failure: Exception) -> SettingRefused | None:
         """The meter's own reason for ``failure`` if a recovery read one, else None."""
         listed = self._errors()
         if listed is None:
             return None
         then = first_sentence(str(failure)).split("; ")[0]
+        name = described(what)
         return SettingRefused(
-            f"{what} on {self.resource}: the meter reported {listed} (and then {then}). Check "
+            f"{name} on {self.resource}: the meter reported {listed} (and then {then}). Check "
             "the values sent against the meter's limits and the dialect's commands for them"
         )
 

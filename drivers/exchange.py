@@ -10,16 +10,33 @@ truncated, stale or mis-shaped reply never becomes a reading.
 
 from __future__ import annotations
 
+import re
 import time
+from dataclasses import dataclass
 
 import numpy as np
 
-from drivers import scpi
+from drivers import point_message, scpi
 from drivers.dialect import Dialect, Operation
 from drivers.errors import ReplyError
 from drivers.session import Session
 
 Steps = list[tuple[Operation, dict]]
+
+
+@dataclass(frozen=True)
+class PreparedPoint:
+    """A point sequence made ready once for a sweep (:meth:`Exchange.prepare_point`)."""
+
+    #: The message's text around each frequency (:func:`drivers.point_message.message_parts`).
+    parts: tuple[str, ...]
+    #: The sequence's queries, in order, and which of them are acknowledgements.
+    queries: tuple[Operation, ...]
+    acks: tuple[int, ...]
+    #: Which reply holds the readings, and the pattern of a plain reading pair
+    #: (:func:`drivers.point_message.pair_pattern`).
+    at: int
+    pattern: re.Pattern[str]
 
 
 class Exchange:
@@ -59,6 +76,48 @@ class Exchange:
                 )
             return values
         return scpi.parse_numbers(reply, expected=2 * points)
+
+    def prepare_point(self, operations: list[Operation]) -> PreparedPoint | None:
+        """``operations`` (a point sequence) made ready for :meth:`point`; None when the dialect
+        sends them one by one or settles after the frequency change, or a command has a
+        placeholder other than a plain ``{frequency}`` (then use :meth:`readings`)."""
+        d = self._dialect
+        parts = point_message.message_parts(operations, d.separator)
+        queries = tuple(op for op in operations if op.query)
+        readings = [k for k, op in enumerate(queries) if op.reply == "readings"]
+        if not d.compound or d.settle > 0 or parts is None or not readings:
+            return None
+        acks = tuple(k for k, op in enumerate(queries) if op.reply == "ack")
+        return PreparedPoint(parts, queries, acks, readings[0], point_message.pair_pattern())
+
+    def point_at(
+        self,
+        operations: list[Operation],
+        prepared: PreparedPoint | None,
+        frequency: str,
+        timeout: float,
+        binary: bool,
+    ) -> tuple[float, float] | np.ndarray:
+        """One point of a sweep at ``frequency`` (its text): :meth:`point` when the sequence
+        was prepared and readings come as text, else :meth:`readings` (settling if asked)."""
+        if prepared is not None and not binary:
+            return self.point(prepared, frequency, timeout)
+        context = {"frequency": frequency}
+        return self.readings([(op, context) for op in operations], 1, timeout, binary, settle=True)
+
+    def point(self, prepared: PreparedPoint, frequency: str, timeout: float) -> tuple[float, float]:
+        """One point of an ASCII sweep: what :meth:`readings` does for the prepared sequence
+        with ``frequency`` (its text) and one point, the same message sent and the reply
+        checked and refused alike."""
+        queries = prepared.queries
+        reply = self._session.query(frequency.join(prepared.parts), timeout)
+        parts = reply.split(self._dialect.reply_separator) if len(queries) > 1 else [reply]
+        if len(parts) != len(queries):
+            raise self._miscounted(parts, len(queries))
+        for k in prepared.acks:
+            if parts[k] != "1":
+                self._acknowledged(parts, list(queries))
+        return point_message.reading_pair(parts[prepared.at], prepared.pattern)
 
     def guarded(self, op: Operation, timeout: float) -> str:
         """The reply text of the single query ``op``, followed by the dialect's ``wait`` when its
@@ -103,12 +162,15 @@ class Exchange:
             reply = self._session.query(message, timeout)
             parts = reply.split(d.reply_separator) if len(queries) > 1 else [reply]
         if len(parts) != len(queries):
-            raise ReplyError(
-                f"expected {len(queries)} replies joined by {d.reply_separator!r}, "
-                f"got {len(parts)} (starting {str(parts[0])[:40]!r}); a meter that answers each "
-                "query of a message on a line of its own needs sequences with one query each"
-            )
+            raise self._miscounted(parts, len(queries))
         return self._acknowledged(parts, queries)
+
+    def _miscounted(self, parts: list, count: int) -> ReplyError:
+        return ReplyError(
+            f"expected {count} replies joined by {self._dialect.reply_separator!r}, "
+            f"got {len(parts)} (starting {str(parts[0])[:40]!r}); a meter that answers each "
+            "query of a message on a line of its own needs sequences with one query each"
+        )
 
     def _block(self, message: str, timeout: float | None, before: int, after: int) -> list:
         """The replies around a binary block: ``before - 1`` texts, the block, ``after - 1``."""

@@ -23,6 +23,8 @@ from drivers.dialect_file import load_dialect
 from drivers.error_queue import ErrorQueue
 from drivers.errors import DialectError, OutOfRange, SettingRefused
 from drivers.exchange import Exchange
+from drivers.point_message import Position
+from drivers.retry import Described
 from drivers.scpi import ErrorEntry, Identity
 from drivers.session import TRANSIENT, Session
 from drivers.settings import number_text, setting_step, transfer_steps
@@ -296,34 +298,32 @@ class ImpedanceMeter:
 
     def _sweep_points(self, f: np.ndarray, on_points: OnPoints | None) -> np.ndarray:
         """One compound query per point. The ``point_mode`` step is sent only while the meter
-        may be in list mode (at first, after a list sweep, a reset or a reconnect)."""
+        may be in list mode (at first, after a list sweep, a reset or a reconnect). Messages are
+        made once (:meth:`Exchange.prepare_point`); a point's name only when a failure needs it."""
         d = self._dialect
         full = [d.operations[name] for name in d.point_sequence]
         lean = [op for op in full if op.name != "point_mode"]
+        steps = {False: full, True: lean}
+        prepared = {known: self._io.prepare_point(steps[known]) for known in steps}
         values = np.empty(2 * f.size)
         timeout = self._timeout(1)
         repeatable = all(o.idempotent for o in full)
+        at = Position()
 
-        def point(context: dict[str, str]) -> np.ndarray:
-            steps = lean if self._mode_known else full
-            values = self._io.readings(
-                [(op, context) for op in steps], 1, timeout, self._binary, settle=True
-            )
+        def point() -> tuple[float, float] | np.ndarray:
+            known = self._mode_known
+            pair = self._io.point_at(steps[known], prepared[known], at.text, timeout, self._binary)
             self._mode_known = True
-            return values
+            return pair
 
-        for i, fi in enumerate(f):
-            context = {"frequency": number_text(fi)}
-            chunk = self._call(
-                f"measuring at {fi:g} Hz",
-                functools.partial(point, context),
-                repeatable,
-            )
-            values[2 * i : 2 * i + 2] = chunk
+        attempt = self._queue.explained(at.describe, point)
+        for i, fi in enumerate(f.tolist()):
+            at.frequency, at.text = fi, repr(fi)
+            values[2 * i], values[2 * i + 1] = self._attempt(at.describe, attempt, repeatable)
             if on_points is not None:
-                on_points(
-                    f[i : i + 1].copy(), readings.from_flat(d.pair, f[i : i + 1], chunk, d.qd_sign)
-                )
+                here = f[i : i + 1]
+                z = readings.from_flat(d.pair, here, values[2 * i : 2 * i + 2].copy(), d.qd_sign)
+                on_points(here.copy(), z)
         return readings.from_flat(d.pair, f, values, d.qd_sign)
 
     def _sweep_list(self, f: np.ndarray, on_points: OnPoints | None) -> np.ndarray:
@@ -370,12 +370,16 @@ class ImpedanceMeter:
 
     # -- exchanges -------------------------------------------------------------------------------
 
-    def _call(self, what: str, action: Callable[[], T], idempotent: bool = True) -> T:
+    def _call(self, what: Described, action: Callable[[], T], idempotent: bool = True) -> T:
         """:meth:`Session.call`, with the meter's error queue read first whenever a reply was
         not understood or the connection was reopened; what the meter reported is the error."""
+        return self._attempt(what, self._queue.explained(what, action), idempotent)
+
+    def _attempt(self, what: Described, explained: Callable[[], T], idempotent: bool) -> T:
+        """:meth:`_call` of an action :meth:`ErrorQueue.explained` wrapped (once per sweep)."""
         self._queue.found = []
         try:
-            return self._session.call(what, self._queue.explained(what, action), idempotent)
+            return self._session.call(what, explained, idempotent)
         except TRANSIENT as exc:
             told = self._queue.with_reason(exc)
             if told is None:

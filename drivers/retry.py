@@ -31,26 +31,44 @@ class Session(Protocol):
 #: Failures after which reconnecting and repeating may help.
 TRANSIENT = (ConnectionLost, MeterTimeout, ReplyError)
 
+#: What an operation is called in messages: the text, or a function that gives it (for a
+#: name costly to make and needed only when something fails, e.g. each point of a sweep).
+Described = str | Callable[[], str]
 
-def call(session: Session, what: str, action: Callable[[], T], idempotent: bool = True) -> T:
+
+def call(session: Session, what: Described, action: Callable[[], T], idempotent: bool = True) -> T:
     """Run ``action`` on ``session``; after a transient failure reconnect and repeat it (at most
-    ``session.retries`` times), or, if it is not ``idempotent``, reconnect and raise."""
+    ``session.retries`` times), or, if it is not ``idempotent``, reconnect and raise.
+
+    ``what`` names the operation in messages; a function giving the name is called only when
+    a message needs it."""
+    try:
+        return action()
+    except TRANSIENT as exc:
+        last = exc
     attempts = Attempts(session.resource_name)
+    attempts.failed(last)
+    name = described(what)
     while True:
+        if not idempotent:
+            reopen(session, name, attempts)
+            raise type(last)(
+                f"{name} on {session.resource_name} failed ({attempts.last}); it was not "
+                "repeated because repeating it is not safe; the connection was reopened"
+            ) from last
+        if len(attempts.tried) > session.retries:
+            raise gave_up(session.resource_name, name, attempts, last) from last
+        reopen(session, name, attempts)
         try:
             return action()
         except TRANSIENT as exc:
             attempts.failed(exc)
             last = exc
-        if not idempotent:
-            reopen(session, what, attempts)
-            raise type(last)(
-                f"{what} on {session.resource_name} failed ({attempts.last}); it was not "
-                "repeated because repeating it is not safe; the connection was reopened"
-            ) from last
-        if len(attempts.tried) > session.retries:
-            raise gave_up(session.resource_name, what, attempts, last) from last
-        reopen(session, what, attempts)
+
+
+def described(what: Described) -> str:
+    """The name of an operation given as text or as a function giving it."""
+    return what if isinstance(what, str) else what()
 
 
 def reopen(session: Session, what: str, attempts: Attempts) -> None:

@@ -259,11 +259,12 @@ class Session:
 
     # -- reconnecting ----------------------------------------------------------------------------
 
-    def call(self, what: str, action: Callable[[], T], idempotent: bool = True) -> T:
+    def call(self, what: retry.Described, action: Callable[[], T], idempotent: bool = True) -> T:
         """Run ``action``; after a drop, timeout or garbled reply reconnect and repeat it.
 
-        ``what`` names the operation in messages. An action that is not idempotent is not
-        repeated: the session reconnects (so it stays usable) and the failure is raised.
+        ``what`` names the operation in messages (text, or a function giving it when needed).
+        An action that is not idempotent is not repeated: the session reconnects (so it stays
+        usable) and the failure is raised.
         See :func:`drivers.retry.call`.
         """
         return retry.call(self, what, action, idempotent)

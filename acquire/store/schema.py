@@ -75,7 +75,9 @@ standards, their results and acknowledgements, and a unit's ``check_acknowledgem
 the gauge R&R studies; 0008 the indexes that count a lot's outcomes (each serial's attempts in
 order, the failing measurements); 0009 the MQTT publish positions (``publish_positions``);
 0010 the line's station states (``station_states``); 0011 the
-units of a lot by bin and outcome.
+units of a lot by bin and outcome; 0012 each unit's readings packed into its row
+(``readings_layout``, ``readings``; :mod:`acquire.store.packed_readings`), a read-optimised
+copy of its measurement rows for lot statistics.
 ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
@@ -90,6 +92,7 @@ from sqlalchemy import (
     ForeignKey,
     Index,
     Integer,
+    LargeBinary,
     MetaData,
     String,
     Table,
@@ -107,8 +110,8 @@ from acquire.store.plain_values import utc_now as utc_now
 from acquire.store.publish_tables import publish_tables
 from acquire.store.run_tables import bias_tables, grr_tables
 
-#: The newest schema revision (the Alembic revision id of ``migrations/versions/0011_*.py``).
-SCHEMA_REVISION = "0011"
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0012_*.py``).
+SCHEMA_REVISION = "0012"
 #: The condition of ``ix_measurements_failing``: a verdict that counts a check as failing
 #: (not a pass, a conditional pass or "" (not judged); acquire.store.lot_query.NOT_FAILING).
 FAILING_VERDICT = "verdict NOT IN ('pass', 'conditional pass', '')"
@@ -260,6 +263,8 @@ def build_metadata() -> MetaData:
         Column("reference_override", Text, nullable=False, default="", server_default=""),
         _real("temperature"),
         _ref("check_acknowledgement_id", "check_acknowledgements"),
+        Column("readings_layout", Text, nullable=True),
+        Column("readings", LargeBinary, nullable=True),
         Index("ix_units_lot_serial", "lot_id", "serial_key", "attempt", "id"),
         Index("ix_units_lot_bin", "lot_id", "bin", "outcome"),
     )

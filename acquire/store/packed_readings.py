@@ -93,9 +93,10 @@ def unpack(layout: str, readings: bytes) -> dict[str, Any]:
     """One packed copy as plain columns: ``parameter``, ``frequency``, ``si_unit`` (lists),
     the :data:`FLOAT_COLUMNS` (float arrays), ``verdict`` and ``special`` (byte arrays)."""
     keys = unpack_layout(layout)
-    record = np.frombuffer(readings, record_dtype(len(keys)))
-    if record.size != 1:
+    dtype = record_dtype(len(keys))
+    if len(readings) != dtype.itemsize:
         raise ValueError("a packed copy does not match its layout")
+    record = np.zeros(1, dtype) if not keys else np.frombuffer(readings, dtype)
     out: dict[str, Any] = {
         "parameter": [k[0] for k in keys],
         "frequency": [k[1] for k in keys],

@@ -103,17 +103,24 @@ def test_every_write_path_stores_a_copy_equal_to_the_rows(engine, tmp_path):
 def test_the_migration_fills_units_stored_before_it(engine, tmp_path):
     """A store as revision 0011 left it (the new columns dropped, the version set back) is
     opened: every unit gets its copy from its rows; one whose rows cannot be packed exactly
-    (a value_special no path writes) keeps NULL."""
+    (a value_special no path writes) keeps NULL; the test-order index is made."""
     units = [varied_unit(k) for k in range(9)]
     with store_location(engine, tmp_path) as (url, schema):
         with open_store(url, schema=schema) as store:
             assert store.save_units(units, batch=4) == len(units)
+        _change(url, schema, "DROP INDEX ix_units_lot_order")
         _change(url, schema, "ALTER TABLE units DROP COLUMN readings")
         _change(url, schema, "ALTER TABLE units DROP COLUMN readings_layout")
         _change(url, schema, "UPDATE alembic_version SET version_num = '0011'")
         _change(url, schema, "UPDATE measurements SET value_special = 'odd' WHERE unit_id = 5")
         with open_store(url, schema=schema) as store:
             assert store.migrated_from == "0011"
+        indexes = (
+            "SELECT name FROM sqlite_master WHERE type = 'index'"
+            if engine == "sqlite"
+            else f"SELECT indexname FROM pg_indexes WHERE schemaname = '{schema}'"
+        )
+        assert ("ix_units_lot_order",) in _raw(url, schema, indexes)
         assert _raw(url, schema, "SELECT readings_layout, readings FROM units WHERE id = 5") == [
             (None, None)
         ]

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 from dataclasses import replace
 from functools import partial
+from operator import itemgetter
 from typing import Any
 
 import numpy as np
@@ -70,18 +71,24 @@ def _from_packed(conn: Connection, chosen: LotFilter) -> Any:
     if conn.dialect.name == "postgresql":
         conn.exec_driver_sql("SET TRANSACTION ISOLATION LEVEL REPEATABLE READ READ ONLY")
     terms = _conditions(conn, chosen, measurements=False)
-    units = _read_units(conn, terms)
-    if any(layout is None for _, layout, _ in units):
+    groups = _groups(_read_units(conn, terms))
+    if groups is None:
         return None
     per_bin, repeats = attempt_counts(conn, terms)
-    sources, failing = _grouped(units)
+    sources: dict[Key, list[tuple[_Group, int]]] = {}
+    failing: list[tuple] = []
+    for group in groups:
+        for position, key in enumerate(group.keys):
+            sources.setdefault(key, []).append((group, position))
+        failing += group.failing
     rows = {key: _quantity(key, parts) for key, parts in sources.items()}
     ordered = [rows[key] for key in _sorted_keys(conn, list(rows))]
     return counted(per_bin, repeats, failing), ordered
 
 
 def _read_units(conn: Connection, terms: list[Any]) -> list[Any]:
-    """(id, readings_layout, readings) of the chosen units in test order, by the driver."""
+    """(id, readings_layout, readings) of the chosen units in test order, by the driver (on
+    ``ix_units_lot_order`` when a lot is chosen: no sort)."""
     u = TABLES["units"]
     query = (
         select(u.c.id, u.c.readings_layout, u.c.readings)
@@ -98,67 +105,88 @@ def _read_units(conn: Connection, terms: list[Any]) -> list[Any]:
         cursor.close()
 
 
-def _grouped(units: list[Any]) -> tuple[dict[Key, list[tuple]], list[tuple]]:
-    """Per quantity its sources (test ranks of a layout's units, position in the layout, the
-    layout's packed records), and the failing measurements (parameter, frequency, unit id)."""
-    by_layout: dict[str, tuple[list[int], list[int], list[bytes]]] = {}
-    for rank, (unit_id, layout, readings) in enumerate(units):
-        group = by_layout.get(layout)
-        if group is None:
-            group = by_layout[layout] = ([], [], [])
-        group[0].append(rank)
-        group[1].append(unit_id)
-        group[2].append(readings)
-    sources: dict[Key, list[tuple]] = {}
-    failing: list[tuple] = []
-    for layout, (ranks, ids, blobs) in by_layout.items():
-        keys = unpack_layout(layout)
-        if not keys:
-            continue
+class _Group:
+    """The chosen units of one layout: their quantities ``keys`` (in ``seq`` order), test
+    ``ranks``; per position its values (one contiguous array a position, in test order), the
+    packed records (for other columns), its passes and the smallest and largest of each limit
+    (NaN: none stated); and the failing measurements (parameter, frequency, unit id)."""
+
+    def __init__(self, layout: str, ranks: Any, ids: Any, blobs: Any) -> None:
+        self.keys = unpack_layout(layout)
+        n = len(self.keys)
+        dtype = record_dtype(n)
         joined = b"".join(blobs)
-        dtype = record_dtype(len(keys))
         if len(joined) != len(ids) * dtype.itemsize:
             raise StoreError("a unit's packed readings do not match their layout")
-        records = np.frombuffer(joined, dtype)
-        order = np.array(ranks)
-        for position, key in enumerate(keys):
-            sources.setdefault(key, []).append((order, position, records))
-        bad = np.isin(records["verdict"], NOT_FAILING_CODES, invert=True)
-        for unit, position in zip(*np.nonzero(bad), strict=True):
-            failing.append((keys[position][0], keys[position][1], ids[unit]))
-    return sources, failing
+        self.ranks = ranks
+        self.records = np.frombuffer(joined, dtype)
+        self.values = np.ascontiguousarray(self.records["value"].T)
+        # The four limit arrays side by side (they follow each other in a record): one pass.
+        limits = np.ndarray(
+            (len(ids), 4 * n), "<f8", joined, offset=8 * n, strides=(dtype.itemsize, 8)
+        )
+        low, high = np.fmin.reduce(limits, axis=0), np.fmax.reduce(limits, axis=0)
+        self.low = {c: low[k * n : (k + 1) * n] for k, c in enumerate(LIMIT_COLUMNS)}
+        self.high = {c: high[k * n : (k + 1) * n] for k, c in enumerate(LIMIT_COLUMNS)}
+        verdicts = np.array(self.records["verdict"])
+        self.passed = np.count_nonzero(verdicts == PASS_CODE, axis=0)
+        bad = np.nonzero(np.isin(verdicts, NOT_FAILING_CODES, invert=True))
+        self.failing = [(*self.keys[p][:2], ids[k]) for k, p in zip(*bad, strict=True)]
+
+    def column(self, name: str, position: int) -> Any:
+        return self.records[name][:, position]
 
 
-def _column(parts: list[tuple], name: str, order: Any) -> Any:
-    """One packed column of a quantity, in test order (``order``: None when already)."""
-    if order is None:
-        _, position, records = parts[0]
-        return records[name][:, position]
-    joined = np.concatenate([records[name][:, position] for _, position, records in parts])
-    return joined[order]
+def _groups(units: list[Any]) -> list[_Group] | None:
+    """The chosen units (id, layout, readings; in test order) by layout; None when a unit has
+    no packed copy."""
+    ids = list(map(itemgetter(0), units))
+    layouts = list(map(itemgetter(1), units))
+    blobs = list(map(itemgetter(2), units))
+    codes: dict[str | None, int] = {}
+    of_unit = [codes.setdefault(layout, len(codes)) for layout in layouts]
+    if None in codes:
+        return None
+    if len(codes) == 1:
+        return [_Group(layouts[0], np.arange(len(ids)), ids, blobs)] if layouts[0] != "[]" else []
+    which = np.array(of_unit)
+    groups = []
+    for layout, code in codes.items():
+        if layout == "[]":
+            continue
+        members = np.flatnonzero(which == code)
+        picked = [blobs[k] for k in members]
+        groups.append(_Group(str(layout), members, [ids[k] for k in members], picked))
+    return groups
 
 
-def _quantity(key: Key, parts: list[tuple]) -> QuantityRow:
-    """The QuantityRow of ``key`` from its sources (see :func:`_grouped`)."""
-    order = None
-    if len(parts) > 1:
-        ranks = np.concatenate([ranks for ranks, _, _ in parts])
-        seqs = np.concatenate([np.full(ranks.size, position) for ranks, position, _ in parts])
+def _quantity(key: Key, parts: list[tuple[_Group, int]]) -> QuantityRow:
+    """The QuantityRow of ``key`` from its sources (a group and a position in its layout)."""
+    if len(parts) == 1:
+        group, position = parts[0]
+        values = group.values[position]
+    else:
+        ranks = np.concatenate([g.ranks for g, _ in parts])
+        seqs = np.concatenate([np.full(g.ranks.size, p) for g, p in parts])
         order = np.lexsort((seqs, ranks))
-    values = _column(parts, "value", order)
-    x = np.ascontiguousarray(values[~np.isnan(values)], dtype=float)
-    passed = int(np.count_nonzero(_column(parts, "verdict", order) == PASS_CODE))
+        values = np.concatenate([g.values[p] for g, p in parts])[order]
+    x = values[~np.isnan(values)]
+    passed = sum(int(g.passed[p]) for g, p in parts)
     spans: list[float | None] = []
     medians: dict[str, float | None] = {}
     for name in LIMIT_COLUMNS:
-        stated = _column(parts, name, order)
-        low, high = np.fmin.reduce(stated), np.fmax.reduce(stated)
+        low = np.fmin.reduce([g.low[name][p] for g, p in parts])
+        high = np.fmax.reduce([g.high[name][p] for g, p in parts])
         if np.isnan(low):
             spans += [None, None]
             medians[name] = None
             continue
         spans += [float(low), float(high)]
-        medians[name] = float(low) if low == high else float(np.median(stated[~np.isnan(stated)]))
+        if low == high:
+            medians[name] = float(low)
+            continue
+        stated = np.concatenate([g.column(name, p) for g, p in parts])
+        medians[name] = float(np.median(stated[~np.isnan(stated)]))
     row = _numbers(key, values.size, passed, x, spans)
     return replace(row, medians=medians)
 

@@ -77,7 +77,8 @@ order, the failing measurements); 0009 the MQTT publish positions (``publish_pos
 0010 the line's station states (``station_states``); 0011 the
 units of a lot by bin and outcome; 0012 each unit's readings packed into its row
 (``readings_layout``, ``readings``; :mod:`acquire.store.packed_readings`), a read-optimised
-copy of its measurement rows for lot statistics.
+copy of its measurement rows for lot statistics, and ``ix_units_lot_order``, a lot's units in
+test order.
 ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
@@ -115,6 +116,9 @@ SCHEMA_REVISION = "0012"
 #: The condition of ``ix_measurements_failing``: a verdict that counts a check as failing
 #: (not a pass, a conditional pass or "" (not judged); acquire.store.lot_query.NOT_FAILING).
 FAILING_VERDICT = "verdict NOT IN ('pass', 'conditional pass', '')"
+#: A unit's test time (what its measurements' ``tested_at`` holds), as ``ix_units_lot_order``
+#: and the lot statistics' query write it.
+UNIT_TEST_TIME = "coalesce(finished_at, started_at, saved_at)"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
 
@@ -267,6 +271,7 @@ def build_metadata() -> MetaData:
         Column("readings", LargeBinary, nullable=True),
         Index("ix_units_lot_serial", "lot_id", "serial_key", "attempt", "id"),
         Index("ix_units_lot_bin", "lot_id", "bin", "outcome"),
+        Index("ix_units_lot_order", "lot_id", text(UNIT_TEST_TIME), "id"),
     )
     Table(
         "measurements",

@@ -22,7 +22,7 @@ from __future__ import annotations
 
 import json
 import struct
-from functools import cache
+from functools import cache, lru_cache
 from typing import Any
 
 import numpy as np
@@ -62,26 +62,31 @@ def pack(rows: list[tuple] | tuple) -> tuple[str | None, bytes | None]:
     """(readings_layout, readings) of a unit's measurement ``rows`` (tuples of the measurement
     columns after ``unit_id``, in ``seq`` order, as the store writes or reads them); (None,
     None) when a row cannot be packed exactly."""
-    layout = []
-    values: list[Any] = []
-    lows, highs, tol_lows, tol_highs, verdicts, specials = [], [], [], [], [], []
-    for r in rows:
-        special = SPECIAL_CODES.get(r[_SPECIAL])
-        value = r[_VALUE]
-        if special is None or (special == 0 and value is not None and value != value):
-            return None, None
-        layout.append([r[_PARAMETER], r[_FREQUENCY], r[_SI_UNIT]])
-        values.append(_NAN if special or value is None else value)
-        lows.append(_NAN if r[_LOW] is None else r[_LOW])
-        highs.append(_NAN if r[_HIGH] is None else r[_HIGH])
-        tol_lows.append(_NAN if r[_TOL_LOW] is None else r[_TOL_LOW])
-        tol_highs.append(_NAN if r[_TOL_HIGH] is None else r[_TOL_HIGH])
-        verdicts.append(VERDICT_CODES.get(r[_VERDICT], OTHER_VERDICT))
-        specials.append(special)
-    blob = _packer(len(layout)).pack(
-        *values, *lows, *highs, *tol_lows, *tol_highs, *verdicts, *specials
+    specials = [SPECIAL_CODES.get(r[_SPECIAL]) for r in rows]
+    if None in specials or any(
+        s == 0 and r[_VALUE] is not None and r[_VALUE] != r[_VALUE]
+        for r, s in zip(rows, specials, strict=True)
+    ):
+        return None, None
+    values = [
+        _NAN if s or r[_VALUE] is None else r[_VALUE] for r, s in zip(rows, specials, strict=True)
+    ]
+    blob = _packer(len(rows)).pack(
+        *values,
+        *[_NAN if r[_LOW] is None else r[_LOW] for r in rows],
+        *[_NAN if r[_HIGH] is None else r[_HIGH] for r in rows],
+        *[_NAN if r[_TOL_LOW] is None else r[_TOL_LOW] for r in rows],
+        *[_NAN if r[_TOL_HIGH] is None else r[_TOL_HIGH] for r in rows],
+        *[VERDICT_CODES.get(r[_VERDICT], OTHER_VERDICT) for r in rows],
+        *specials,
     )
-    return json.dumps(layout, separators=(",", ":")), blob
+    return _layout(tuple([(r[_PARAMETER], r[_FREQUENCY], r[_SI_UNIT]) for r in rows])), blob
+
+
+@lru_cache(maxsize=256)
+def _layout(keys: tuple[tuple[str, float | None, str], ...]) -> str:
+    """The ``readings_layout`` text of a unit's quantities (a plan's few layouts are kept)."""
+    return json.dumps([list(k) for k in keys], separators=(",", ":"))
 
 
 def unpack_layout(layout: str) -> list[tuple[str, float | None, str]]:

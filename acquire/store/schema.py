@@ -17,7 +17,11 @@ a finite value, else "nan", "inf" or "-inf" (so SQL averages need no filtering);
 (``tested_at``: the unit's ``finished_at``, else ``started_at``, else ``saved_at``), so a lot's
 statistics, moving ranges in test order included, read one index (``ix_measurements_lot_order``:
 lot, quantity, finite or not, test time, unit, sequence number, then value, verdict and limits)
-in its own order instead of joining and sorting every unit.
+in its own order instead of joining and sorting every unit. Each unit's row also carries a
+read-optimised copy of its readings (``readings_layout``, ``readings``; see
+:mod:`acquire.store.packed_readings`), written in the same INSERT; lot statistics read those,
+a row per unit, in test order (``ix_units_lot_order``: lot, test time, id). The measurement
+rows stay the record.
 Names that identify a record (a meter's identity, a fixture's or lot's name, a serial number)
 may be of any length; their uniqueness and look-ups go through a SHA-256 ``key`` column.
 

@@ -10,9 +10,10 @@ Two ways of counting, each where it answers the question asked:
   attempt): a unit is sorted once, as it left the station.
 
 Counts, mean, the standard deviation (two passes: the deviations from the mean are summed in a
-second pass), min and max are worked out by the database, and so is the mean moving range in
-test order (:mod:`acquire.store.quantity_summary`: the counts by the database, the values read
-in test order from an index that holds them in that order, then numpy).
+second pass), min, max, the mean moving range in test order and the limits' medians are worked
+out with numpy from the chosen units' packed readings, read in test order
+(:mod:`acquire.store.packed_statistics`; from the measurement rows,
+:mod:`acquire.store.quantity_summary`, for a unit stored without them).
 
 Capability (NIST/SEMATECH e-Handbook of Statistical Methods, 6.1.6, "What is Process
 Capability?"): Cp = (USL - LSL) / 6σ and Cpk = min(USL - µ, µ - LSL) / 3σ with the within sigma
@@ -203,6 +204,8 @@ class _Limits:
         self._counted: dict[str, dict[tuple, float | None]] = {}
 
     def median(self, row: Any, column: str) -> float | None:
+        if row.medians is not None:
+            return row.medians[column]
         low, high = row.limits[column]
         if low is None:
             return None
@@ -254,9 +257,9 @@ def _quantity(row: Any, limits: _Limits) -> QuantityStatistics:
 
 def lot_statistics(store: Store, filter: LotFilter) -> LotStatistics:
     """Yields, bins, failing checks and per quantity statistics of the units ``filter`` picks."""
-    counts = store.outcome_counts(filter)
+    counts, rows = store.lot_numbers(filter)
     limits = _Limits(store, filter)
-    quantities = tuple(_quantity(r, limits) for r in store.quantity_summary(filter))
+    quantities = tuple(_quantity(r, limits) for r in rows)
     serials = counts.serials
     return LotStatistics(
         filter=filter,

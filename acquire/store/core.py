@@ -290,6 +290,11 @@ class Store(PublishOutbox, LineStates):
 
         return quantity_rows(self._db, chosen)
 
+    def lot_numbers(self, chosen: LotFilter) -> tuple[OutcomeCounts, list[Any]]:
+        from acquire.store.packed_statistics import lot_numbers
+
+        return lot_numbers(self._db, chosen)
+
     def limit_counts(self, chosen: LotFilter, column: str) -> list[Any]:
         return lot_query.limit_counts(self._db, chosen, column)
 

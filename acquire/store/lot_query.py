@@ -173,36 +173,42 @@ def outcome_counts(db: Database, chosen: LotFilter) -> OutcomeCounts:
     u, m = TABLES["units"], TABLES["measurements"]
 
     def work(conn: Connection) -> OutcomeCounts:
-        chosen_units = and_(true(), *_conditions(conn, chosen, measurements=False))
-        per_bin = conn.execute(
-            select(u.c.bin, func.count(), func.count(case((u.c.outcome == PASS, 1))))
-            .where(chosen_units)
-            .group_by(u.c.bin)
-            .order_by(u.c.bin)
-        ).all()
-        retested = (
-            select(u.c.serial_key)
-            .where(chosen_units)
-            .group_by(u.c.serial_key)
-            .having(func.count() > 1)
-        )
-        repeats = conn.execute(
-            select(u.c.serial_key, u.c.attempt, u.c.id, u.c.outcome, u.c.bin)
-            .where(chosen_units, u.c.serial_key.in_(retested))
-            .order_by(u.c.serial_key, u.c.attempt, u.c.id)
-        ).all()
+        per_bin, repeats = attempt_counts(conn, _conditions(conn, chosen, measurements=False))
         failing = conn.execute(
             select(m.c.parameter, m.c.frequency, m.c.unit_id)
             .select_from(m.join(u, u.c.id == m.c.unit_id))
             .where(sql_text(FAILING_SQL), *_conditions(conn, chosen, measurements=True))
             .with_hint(m, "INDEXED BY ix_measurements_failing", dialect_name="sqlite")
         ).all()
-        return _counted(per_bin, repeats, failing)
+        return counted(per_bin, repeats, failing)
 
     return db.read("counting outcomes", work)
 
 
-def _counted(
+def attempt_counts(conn: Connection, terms: list[Any]) -> tuple[Sequence[Any], Sequence[Any]]:
+    """(bin, attempts, passing attempts) of the attempts chosen by ``terms`` (on ``units``),
+    and the attempts of serials tested more than once among them (serial key, attempt, id,
+    outcome, bin; in order), as :func:`outcome_counts` counts them."""
+    u = TABLES["units"]
+    chosen_units = and_(true(), *terms)
+    per_bin = conn.execute(
+        select(u.c.bin, func.count(), func.count(case((u.c.outcome == PASS, 1))))
+        .where(chosen_units)
+        .group_by(u.c.bin)
+        .order_by(u.c.bin)
+    ).all()
+    retested = (
+        select(u.c.serial_key).where(chosen_units).group_by(u.c.serial_key).having(func.count() > 1)
+    )
+    repeats = conn.execute(
+        select(u.c.serial_key, u.c.attempt, u.c.id, u.c.outcome, u.c.bin)
+        .where(chosen_units, u.c.serial_key.in_(retested))
+        .order_by(u.c.serial_key, u.c.attempt, u.c.id)
+    ).all()
+    return per_bin, repeats
+
+
+def counted(
     per_bin: Sequence[Any], repeats: Sequence[Any], failing: Sequence[Any]
 ) -> OutcomeCounts:
     """OutcomeCounts from (bin, attempts, passing attempts) of every chosen attempt, the

@@ -4,7 +4,9 @@
 id: a second write of the same attempt (a retry after a lost connection, a replay after a
 restart) stores nothing and returns False. A measurement's uncertainty and tolerance limits and a
 unit's references override and temperature (schema revision 0003) go with it; an unknown
-uncertainty (None or NaN) is stored as NULL and reads back as None. ``save_units`` does the
+uncertainty (None or NaN) is stored as NULL and reads back as None. The unit's row also carries
+a packed copy of its readings for lot statistics (:mod:`acquire.store.packed_readings`, revision
+0012), made from the same prepared rows. ``save_units`` does the
 same for many units at once, a batch per transaction (for imports). Both use SQLAlchemy Core's
 own bulk path: a list of rows given to one ``execute`` becomes multi-row INSERTs
 ("insertmanyvalues") on PostgreSQL and the driver's ``executemany`` on SQLite.
@@ -25,6 +27,7 @@ from acquire.store.engine import (
     Database,
     insert_ignoring,
 )
+from acquire.store.packed_readings import pack
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
 from acquire.store.schema import TABLES, identity_key, utc_now
 from acquire.store.unit_insert import (
@@ -33,6 +36,7 @@ from acquire.store.unit_insert import (
     insert_sqlite,
     process_head,
     unit_head,
+    with_packed,
 )
 
 if TYPE_CHECKING:
@@ -115,16 +119,6 @@ def _measurement_tuples(unit: UnitRecord, lot_id: int | None, tested: Any) -> li
     return rows
 
 
-def _measurement_rows(
-    unit_id: int, unit: UnitRecord, lot_id: int | None, tested: Any
-) -> list[dict]:
-    """The unit's measurement rows (one dict of ``MEASUREMENT_COLUMNS`` per measurement)."""
-    return [
-        dict(zip(MEASUREMENT_COLUMNS, (unit_id, *row), strict=True))
-        for row in _measurement_tuples(unit, lot_id, tested)
-    ]
-
-
 def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> dict[str, int]:
     found = {}
     for name in set(names) - {""}:
@@ -152,7 +146,8 @@ def unit_parameters(dialect: Any, unit: UnitRecord, lot_id: int | None) -> tuple
     (values bind-processed for ``dialect``)."""
     head = process_head(dialect, unit_head(unit, lot_id, utc_now()))
     tested = next(head[k] for k in _TESTED_AT if head[k] is not None)
-    return head, _measurement_tuples(unit, lot_id, tested)
+    rows = _measurement_tuples(unit, lot_id, tested)
+    return with_packed(head, rows), rows
 
 
 def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool:
@@ -180,13 +175,19 @@ def save_units(
     def work(chunk: list[UnitRecord], conn: Connection) -> tuple[int, dict[str, int]]:
         lots = _lot_ids(conn, (u.lot for u in chunk), lot_cache)
         heads = [_unit_row(u, lots.get(u.lot)) for u in chunk]
+        prepared = [
+            _measurement_tuples(u, lots.get(u.lot), tested_at(head))
+            for u, head in zip(chunk, heads, strict=True)
+        ]
+        for head, tuples in zip(heads, prepared, strict=True):
+            head["readings_layout"], head["readings"] = pack(tuples)
         insert = _new_unit(conn.dialect.name, "id", "attempt_id")
         new = {a: i for i, a in conn.execute(insert, heads)}
         rows = [
-            r
-            for u, head in zip(chunk, heads, strict=True)
+            dict(zip(MEASUREMENT_COLUMNS, (new[u.attempt_id], *r), strict=True))
+            for u, tuples in zip(chunk, prepared, strict=True)
             if u.attempt_id in new
-            for r in _measurement_rows(new[u.attempt_id], u, lots.get(u.lot), tested_at(head))
+            for r in tuples
         ]
         if rows:
             conn.execute(TABLES["measurements"].insert(), rows)

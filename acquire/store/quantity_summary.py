@@ -60,7 +60,9 @@ class QuantityRow:
     ``count`` measurements, ``valid`` finite, ``passed`` with verdict "pass"; over the finite
     values ``mean``, ``ss`` (sum of squared deviations from the mean), ``min``, ``max`` (None
     with none), ``mr_sum`` and ``mr_count`` (moving ranges in test order); ``limits``: per limit
-    column the smallest and largest value stated (both None when none is)."""
+    column the smallest and largest value stated (both None when none is); ``medians``: per
+    limit column the median of the values stated (None when none is), when the reader had them
+    at hand (None: ask :func:`acquire.store.lot_query.limit_counts`)."""
 
     parameter: str
     frequency: float
@@ -75,6 +77,7 @@ class QuantityRow:
     mr_sum: float
     mr_count: int
     limits: dict[str, tuple[float | None, float | None]]
+    medians: dict[str, float | None] | None = None
 
 
 def _numbers(key: Any, count: int, passed: int, x: Any, spans: Any) -> QuantityRow:

@@ -17,7 +17,11 @@ a finite value, else "nan", "inf" or "-inf" (so SQL averages need no filtering);
 (``tested_at``: the unit's ``finished_at``, else ``started_at``, else ``saved_at``), so a lot's
 statistics, moving ranges in test order included, read one index (``ix_measurements_lot_order``:
 lot, quantity, finite or not, test time, unit, sequence number, then value, verdict and limits)
-in its own order instead of joining and sorting every unit.
+in its own order instead of joining and sorting every unit. Each unit's row also carries a
+read-optimised copy of its readings (``readings_layout``, ``readings``; see
+:mod:`acquire.store.packed_readings`), written in the same INSERT; lot statistics read those,
+a row per unit, in test order (``ix_units_lot_order``: lot, test time, id). The measurement
+rows stay the record.
 Names that identify a record (a meter's identity, a fixture's or lot's name, a serial number)
 may be of any length; their uniqueness and look-ups go through a SHA-256 ``key`` column.
 
@@ -75,7 +79,10 @@ standards, their results and acknowledgements, and a unit's ``check_acknowledgem
 the gauge R&R studies; 0008 the indexes that count a lot's outcomes (each serial's attempts in
 order, the failing measurements); 0009 the MQTT publish positions (``publish_positions``);
 0010 the line's station states (``station_states``); 0011 the
-units of a lot by bin and outcome.
+units of a lot by bin and outcome; 0012 each unit's readings packed into its row
+(``readings_layout``, ``readings``; :mod:`acquire.store.packed_readings`), a read-optimised
+copy of its measurement rows for lot statistics, and ``ix_units_lot_order``, a lot's units in
+test order.
 ``schema_version`` is kept only so that releases from before
 the migrations refuse a newer store: 0002 records version 3 there, which they do not know.
 """
@@ -90,6 +97,7 @@ from sqlalchemy import (
     ForeignKey,
     Index,
     Integer,
+    LargeBinary,
     MetaData,
     String,
     Table,
@@ -107,11 +115,14 @@ from acquire.store.plain_values import utc_now as utc_now
 from acquire.store.publish_tables import publish_tables
 from acquire.store.run_tables import bias_tables, grr_tables
 
-#: The newest schema revision (the Alembic revision id of ``migrations/versions/0011_*.py``).
-SCHEMA_REVISION = "0011"
+#: The newest schema revision (the Alembic revision id of ``migrations/versions/0012_*.py``).
+SCHEMA_REVISION = "0012"
 #: The condition of ``ix_measurements_failing``: a verdict that counts a check as failing
 #: (not a pass, a conditional pass or "" (not judged); acquire.store.lot_query.NOT_FAILING).
 FAILING_VERDICT = "verdict NOT IN ('pass', 'conditional pass', '')"
+#: A unit's test time (what its measurements' ``tested_at`` holds), as ``ix_units_lot_order``
+#: and the lot statistics' query write it.
+UNIT_TEST_TIME = "coalesce(finished_at, started_at, saved_at)"
 #: Sweep states as stored.
 SWEEP_STATES = ("running", "complete", "interrupted")
 
@@ -260,8 +271,11 @@ def build_metadata() -> MetaData:
         Column("reference_override", Text, nullable=False, default="", server_default=""),
         _real("temperature"),
         _ref("check_acknowledgement_id", "check_acknowledgements"),
+        Column("readings_layout", Text, nullable=True),
+        Column("readings", LargeBinary, nullable=True),
         Index("ix_units_lot_serial", "lot_id", "serial_key", "attempt", "id"),
         Index("ix_units_lot_bin", "lot_id", "bin", "outcome"),
+        Index("ix_units_lot_order", "lot_id", text(UNIT_TEST_TIME), "id"),
     )
     Table(
         "measurements",

@@ -1,6 +1,7 @@
 """The SQL that stores one production unit, prepared once per database kind.
 
-A unit is one transaction: its row and all its measurements, or nothing; a unit whose attempt id
+A unit is one transaction: its row (with the packed copy of its readings,
+:mod:`acquire.store.packed_readings`) and all its measurements, or nothing; a unit whose attempt id
 is already stored is skipped (``ON CONFLICT (attempt_id) DO NOTHING``), so a repeated write stores
 it once.
 
@@ -38,6 +39,7 @@ from typing import Any
 from sqlalchemy import Connection
 
 from acquire.store.columns import UtcDateTime
+from acquire.store.packed_readings import pack
 from acquire.store.schema import TABLES
 
 #: The unit columns written (``id`` is given by the database).
@@ -45,12 +47,13 @@ UNIT_COLUMNS = tuple(c.name for c in TABLES["units"].columns if c.name != "id")
 #: The measurement columns written, in the table's order (``unit_id`` first).
 MEASUREMENT_COLUMNS = tuple(c.name for c in TABLES["measurements"].columns)
 
-#: The unit columns that are not fields of the unit record (set by :func:`unit_head`).
-_NOT_FIELDS = ("serial_key", "lot_id", "saved_at")
+#: The unit columns that are not fields of the unit record (set by :func:`unit_head`, the
+#: packed copy of the readings by :func:`with_packed`).
+_NOT_FIELDS = ("serial_key", "lot_id", "saved_at", "readings_layout", "readings")
 #: The unit record's fields in :data:`UNIT_COLUMNS` order, read in one call; the columns of
 #: :data:`_NOT_FIELDS` read ``serial`` there and are overwritten.
 _HEAD_FIELDS = attrgetter(*(n if n not in _NOT_FIELDS else "serial" for n in UNIT_COLUMNS))
-_SERIAL_KEY, _LOT_ID, _SAVED_AT = (UNIT_COLUMNS.index(n) for n in _NOT_FIELDS)
+_SERIAL_KEY, _LOT_ID, _SAVED_AT, _LAYOUT, _READINGS = (UNIT_COLUMNS.index(n) for n in _NOT_FIELDS)
 
 
 def serial_key(serial: str) -> str:
@@ -66,6 +69,14 @@ def unit_head(unit: Any, lot_id: int | None, saved_at: datetime) -> list[Any]:
     head[_SERIAL_KEY] = serial_key(unit.serial)
     head[_LOT_ID] = lot_id
     head[_SAVED_AT] = saved_at
+    head[_LAYOUT] = head[_READINGS] = None
+    return head
+
+
+def with_packed(head: list[Any], rows: list[tuple]) -> list[Any]:
+    """``head`` (bind-processed) given the packed copy of the unit's measurement ``rows``
+    (:func:`acquire.store.packed_readings.pack`), in place: both go in the unit's INSERT."""
+    head[_LAYOUT], head[_READINGS] = pack(rows)
     return head
 
 

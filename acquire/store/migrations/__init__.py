@@ -12,4 +12,4 @@ DEVELOPERS.md, "Changing the store's schema").
 #: The newest revision in ``versions/``, for readers that check a store's revision without
 #: importing Alembic or SQLAlchemy (:mod:`acquire.store.quick_read`). A test keeps it equal to
 #: Alembic's head and to :data:`acquire.store.schema.SCHEMA_REVISION`.
-HEAD_REVISION = "0011"
+HEAD_REVISION = "0012"

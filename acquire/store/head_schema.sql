@@ -3,7 +3,7 @@
 -- Write it again after every new migration (DEVELOPERS.md, "Changing the store's schema").
 -- `acquire sweep` runs it into a new SQLite file (acquire/store/new_sqlite.py); :now is the
 -- time of making.
--- revision: 0011
+-- revision: 0012
 
 CREATE TABLE alembic_version (
 	version_num VARCHAR(32) NOT NULL, 
@@ -138,7 +138,7 @@ CREATE TABLE units (
 	bin TEXT NOT NULL, 
 	notes TEXT NOT NULL, 
 	saved_at DATETIME NOT NULL, 
-	lot_id INTEGER, reference_override TEXT DEFAULT '' NOT NULL, temperature DOUBLE, check_acknowledgement_id INTEGER REFERENCES check_acknowledgements (id), 
+	lot_id INTEGER, reference_override TEXT DEFAULT '' NOT NULL, temperature DOUBLE, check_acknowledgement_id INTEGER REFERENCES check_acknowledgements (id), readings_layout TEXT, readings BLOB, 
 	PRIMARY KEY (id), 
 	UNIQUE (attempt_id), 
 	FOREIGN KEY(plan_id) REFERENCES plans (id), 
@@ -410,7 +410,9 @@ CREATE TABLE station_states (
 
 CREATE INDEX ix_units_lot_bin ON units (lot_id, bin, outcome);
 
-INSERT INTO "alembic_version" ("version_num") VALUES ('0011');
+CREATE INDEX ix_units_lot_order ON units (lot_id, coalesce(finished_at, started_at, saved_at), id);
+
+INSERT INTO "alembic_version" ("version_num") VALUES ('0012');
 
 INSERT INTO "schema_version" ("version", "applied_at", "note") VALUES (2, :now, 'created');
 

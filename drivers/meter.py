@@ -27,7 +27,7 @@ from drivers.point_message import Position
 from drivers.retry import Described
 from drivers.scpi import ErrorEntry, Identity
 from drivers.session import TRANSIENT, Session
-from drivers.settings import number_text, setting_step, transfer_steps
+from drivers.settings import setting_step, transfer_steps
 
 if TYPE_CHECKING:
     from drivers.bias import MeterBias

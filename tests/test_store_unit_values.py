@@ -68,44 +68,29 @@ def test_the_serial_key_is_the_identity_key(serial):
     assert serial_key(serial) == identity_key(serial)
 
 
-def short_busy_timeout(monkeypatch) -> None:
-    """The store's busy timeout cut to 0.2 s, on every connection it opens."""
-    monkeypatch.setattr(engine, "BUSY_TIMEOUT_S", 0.2)
-    monkeypatch.setattr(sqlite_connection, "BUSY_TIMEOUT_S", 0.2)
-
-
-def test_a_unit_waits_for_a_locked_database_then_says_it_was_busy(tmp_path, monkeypatch):
+@pytest.mark.parametrize(
+    "lot",
+    [
+        "",  # no lot: the unit's own transaction is the first (the unit's own write path)
+        "LOT-LOCKED",  # a new lot: made first on the store's general write path
+    ],
+)
+def test_a_write_to_a_locked_database_waits_then_says_it_was_busy(tmp_path, monkeypatch, lot):
     # SQLite's documented locking (sqlite.org/lang_transaction.html): while one connection
     # holds a write transaction (BEGIN IMMEDIATE), another's BEGIN IMMEDIATE waits for the busy
-    # timeout, then fails with SQLITE_BUSY ("database is locked").
-    short_busy_timeout(monkeypatch)
+    # timeout, then fails with SQLITE_BUSY ("database is locked"); the store says so in its one
+    # line (not the driver's own exception) and is usable once the lock is gone.
+    monkeypatch.setattr(engine, "BUSY_TIMEOUT_S", 0.2)  # on every connection the store opens
+    monkeypatch.setattr(sqlite_connection, "BUSY_TIMEOUT_S", 0.2)
     path = tmp_path / "store.db"
     with open_store(f"sqlite:///{path}") as store:
         other = sqlite3.connect(path, isolation_level=None)
         other.execute("BEGIN IMMEDIATE")
-        unit = synthetic_unit(1, lot="")  # no lot: the unit's own transaction is the first
+        unit = synthetic_unit(1, lot=lot)
         with pytest.raises(StoreError, match="busy"):
             store.save_unit(unit)
         other.execute("ROLLBACK")
         other.close()
         assert store.save_unit(unit) is True  # nothing half-begun was left behind
         assert store.save_unit(unit) is False
-        assert store.load_unit(unit.attempt_id) == unit
-
-
-def test_any_write_to_a_locked_database_says_it_was_busy(tmp_path, monkeypatch):
-    # The same documented locking on the store's general write path (a lot created with its
-    # unit): the failed BEGIN IMMEDIATE comes back as the store's one-line error, not as the
-    # driver's own exception, and the store is usable once the lock is gone.
-    short_busy_timeout(monkeypatch)
-    path = tmp_path / "store.db"
-    with open_store(f"sqlite:///{path}") as store:
-        other = sqlite3.connect(path, isolation_level=None)
-        other.execute("BEGIN IMMEDIATE")
-        unit = synthetic_unit(1, lot="LOT-LOCKED")  # a new lot: written on the general path
-        with pytest.raises(StoreError, match="busy"):
-            store.save_unit(unit)
-        other.execute("ROLLBACK")
-        other.close()
-        assert store.save_unit(unit) is True
         assert store.load_unit(unit.attempt_id) == unit

@@ -286,6 +286,23 @@ def _pandas_summary(store) -> pd.DataFrame:
     )
 
 
+def _bare_rows(store, sql: str) -> list:
+    """Every row of ``sql``, fetched at once by the bare driver (binary rows on PostgreSQL)."""
+    postgres = store.engine_name == "postgresql"
+    raw = store.engine.raw_connection()
+    try:
+        driver = raw.driver_connection
+        cursor = driver.cursor(binary=True) if postgres else driver.cursor()
+        cursor.execute(sql)
+        rows = cursor.fetchall()
+        cursor.close()
+        if postgres:
+            driver.rollback()
+    finally:
+        raw.close()
+    return rows
+
+
 def _bare_values(store) -> np.ndarray:
     """The lot's finite values in test order, read by the bare driver into numpy: one plain
     query on the test-order index (no sort), rows fetched at once (binary rows on PostgreSQL)."""
@@ -296,41 +313,18 @@ def _bare_values(store) -> np.ndarray:
         f"'LOT-BIG') AND {finite} AND m.value IS NOT NULL ORDER BY m.parameter, m.frequency, "
         "m.si_unit, m.value_special, m.tested_at, m.unit_id, m.seq"
     )
-    raw = store.engine.raw_connection()
-    try:
-        driver = raw.driver_connection
-        cursor = driver.cursor(binary=True) if postgres else driver.cursor()
-        cursor.execute(sql)
-        values = np.fromiter((v for (v,) in cursor.fetchall()), float)
-        cursor.close()
-        if postgres:
-            driver.rollback()
-    finally:
-        raw.close()
-    return values
+    return np.fromiter((v for (v,) in _bare_rows(store, sql)), float)
 
 
 def _bare_packed(store) -> np.ndarray:
     """The lot's packed readings (every unit's values, limits, verdicts; one row a unit) in
     test order, read by the bare driver and taken by numpy as one byte array: the floor of
     what lot_statistics reads now."""
-    postgres = store.engine_name == "postgresql"
     sql = (
         "SELECT u.readings FROM units u WHERE u.lot_id = (SELECT id FROM lots WHERE name = "
         "'LOT-BIG') ORDER BY COALESCE(u.finished_at, u.started_at, u.saved_at), u.id"
     )
-    raw = store.engine.raw_connection()
-    try:
-        driver = raw.driver_connection
-        cursor = driver.cursor(binary=True) if postgres else driver.cursor()
-        cursor.execute(sql)
-        values = np.frombuffer(b"".join(b for (b,) in cursor.fetchall()), np.uint8)
-        cursor.close()
-        if postgres:
-            driver.rollback()
-    finally:
-        raw.close()
-    return values
+    return np.frombuffer(b"".join(b for (b,) in _bare_rows(store, sql)), np.uint8)
 
 
 def _command_filter(lot: str) -> LotFilter:
@@ -356,13 +350,14 @@ def bench_summary(store, units: int, label: str) -> None:
     chosen = _command_filter("LOT-BIG")
     assert chosen == LotFilter(lot="LOT-BIG"), "the command selects other units"
     stats = _time(lambda: lot_statistics(store, chosen))
+    finite = _bare_values(store).size
     floor = _time(lambda: _bare_values(store))
     packed = _time(lambda: _bare_packed(store))
     GOALS.append(
         Goal(f"{label} lot summary (acquire lot's statistics) over {units:,} units", stats,
              0.5, " s", "lower",
              f"the driver alone reading the lot's packed readings in test order (one row a "
-             f"unit, what lot_statistics reads): {packed:.3f} s; the lot's 1M finite values "
+             f"unit, what lot_statistics reads): {packed:.3f} s; the lot's {finite:,} finite values "
              f"in test order from the measurement rows (a row each): {floor:.3f} s")
     )  # fmt: skip
     theirs = _time(lambda: _pandas_summary(store), repeat=1)

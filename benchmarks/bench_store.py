@@ -357,8 +357,8 @@ def bench_summary(store, units: int, label: str) -> None:
         Goal(f"{label} lot summary (acquire lot's statistics) over {units:,} units", stats,
              0.5, " s", "lower",
              f"the driver alone reading the lot's packed readings in test order (one row a "
-             f"unit, what lot_statistics reads): {packed:.3f} s; the lot's {finite:,} finite values "
-             f"in test order from the measurement rows (a row each): {floor:.3f} s")
+             f"unit, what lot_statistics reads): {packed:.3f} s; the lot's {finite:,} finite "
+             f"values in test order from the measurement rows (a row each): {floor:.3f} s")
     )  # fmt: skip
     theirs = _time(lambda: _pandas_summary(store), repeat=1)
     report(

@@ -22,6 +22,7 @@ from datetime import UTC, datetime, timedelta
 
 import numpy as np
 import pytest
+from lot_reference import serial_counts
 from store_support import store_location
 
 from acquire.report.statistics import LotFilter, lot_statistics, quantity_key
@@ -93,23 +94,8 @@ def plain(units: list[UnitRecord]) -> dict:
             "tolerance_low": statistics.median(m.tolerance_low for m in rows),
             "acceptance_high": statistics.median(m.high for m in rows),
         }  # fmt: skip
-    by_serial: dict[str, list[UnitRecord]] = {}
-    for unit in units:
-        by_serial.setdefault(unit.serial, []).append(unit)
-    latest = [max(a, key=lambda u: u.attempt) for a in by_serial.values()]
-    first = [min(a, key=lambda u: u.attempt) for a in by_serial.values()]
-    failing: dict[str, int] = {}
-    for unit in latest:
-        for key in {quantity_key(m.parameter, m.frequency) for m in unit.measurements
-                    if m.verdict == "fail"}:  # fmt: skip
-            failing[key] = failing.get(key, 0) + 1
-    return {
-        "units": len(by_serial), "attempts": len(units),
-        "passed": sum(u.outcome == "pass" for u in latest),
-        "first_pass": sum(u.outcome == "pass" for u in first),
-        "bins": {b: sum(u.bin == b for u in latest) for b in {u.bin for u in latest}},
-        "failing": failing, "quantities": quantities,
-    }  # fmt: skip
+    counts = serial_counts(units, lambda m: m.verdict == "fail")
+    return counts | {"quantities": quantities}
 
 
 def check(stats, want: dict) -> None:

@@ -25,6 +25,7 @@ from unittest import mock
 
 import numpy as np
 import pytest
+from lot_reference import serial_counts
 from store_support import store_location
 from test_store_migration import _change
 
@@ -140,23 +141,8 @@ def plain(picked: list) -> dict:
             "acceptance_low": median("low"), "acceptance_high": median("high"),
             "tolerance_low": median("tolerance_low"), "tolerance_high": median("tolerance_high"),
         })  # fmt: skip
-    by_serial: dict[str, list[UnitRecord]] = {}
-    for _, unit in picked:
-        by_serial.setdefault(unit.serial, []).append(unit)
-    latest = [max(a, key=lambda u: u.attempt) for a in by_serial.values()]
-    first = [min(a, key=lambda u: u.attempt) for a in by_serial.values()]
-    failing: dict[str, int] = {}
-    for unit in latest:
-        for key in {quantity_key(m.parameter, m.frequency) for m in unit.measurements
-                    if m.verdict not in NOT_FAILING}:  # fmt: skip
-            failing[key] = failing.get(key, 0) + 1
-    return {
-        "units": len(by_serial), "attempts": len(picked),
-        "passed": sum(u.outcome == "pass" for u in latest),
-        "first_pass": sum(u.outcome == "pass" for u in first),
-        "bins": {b: sum(u.bin == b for u in latest) for b in {u.bin for u in latest}},
-        "failing": failing, "quantities": quantities,
-    }  # fmt: skip
+    counts = serial_counts([unit for _, unit in picked], lambda m: m.verdict not in NOT_FAILING)
+    return counts | {"quantities": quantities}
 
 
 def same(got, want) -> bool:

@@ -21,7 +21,8 @@ from test_store_migration import _change, _raw
 
 from acquire.production.outbox import Outbox, RecordKeeper
 from acquire.store import MeasurementRecord, UnitRecord, open_store
-from acquire.store.packed_readings import SPECIAL_CODES, VERDICT_CODES, unpack
+from acquire.store.packed_readings import SPECIAL_CODES, VERDICT_CODES, pack, unpack
+from acquire.store.unit_rows import measurement_rows
 
 T0 = datetime(2021, 3, 1, 9, 0, tzinfo=UTC)
 VERDICTS = ["pass", "fail", "conditional pass", "conditional fail", "", "fail high"]
@@ -125,3 +126,33 @@ def test_the_migration_fills_units_stored_before_it(engine, tmp_path):
             (None, None)
         ]
         check_copies(url, schema, len(units), skip=5)
+
+
+def test_the_one_pass_rows_and_copy_equal_packing_the_rows_afterwards():
+    # measurement_rows builds a unit's rows and their packed copy together (the station's path);
+    # pack(), the reference also used on rows read back from a store, must give the same copy
+    # of those rows, for the awkward cases above and for NaN where a number may be NaN.
+    odd = MeasurementRecord(
+        "Ls", math.nan, "H", math.nan, math.nan, math.nan, "pass",
+        uncertainty=math.inf, bias_current=math.nan,
+    )  # fmt: skip
+    units = [varied_unit(k) for k in range(12)]
+    units.append(UnitRecord(serial="P-odd", outcome="fail", measurements=(odd,) * 3))
+    for lot_id, unit in enumerate(units):
+        rows, layout, readings = measurement_rows(unit.measurements, lot_id, "2021-03-01")
+        assert pack(rows) == (layout, readings)
+        assert [r[0] for r in rows] == list(range(len(unit.measurements)))
+        for row, m in zip(rows, unit.measurements, strict=True):
+            assert row[1] == m.parameter and row[4] == m.unit and row[7] == m.verdict
+            assert row[8] == lot_id and row[13] == "2021-03-01"
+            assert (
+                row[2] == (0.0 if m.frequency is None else m.frequency)
+                or m.frequency != m.frequency
+            )
+            if math.isfinite(m.value):
+                assert (row[3], row[9]) == (m.value, "")
+            else:
+                assert (row[3], row[9]) == (None, repr(m.value))
+    odd_row = measurement_rows((odd,), None, "t")[0][0]
+    assert odd_row[2] is None and odd_row[5] is None and odd_row[6] is None
+    assert odd_row[10] == math.inf and odd_row[14] is None

@@ -47,7 +47,8 @@ _NAN = float("nan")
 
 
 @cache
-def _packer(n: int) -> struct.Struct:
+def packer(n: int) -> struct.Struct:
+    """The layout of ``readings`` for ``n`` measurements, as a :class:`struct.Struct`."""
     return struct.Struct(f"<{5 * n}d{2 * n}B")
 
 
@@ -71,7 +72,7 @@ def pack(rows: list[tuple] | tuple) -> tuple[str | None, bytes | None]:
     values = [
         _NAN if s or r[_VALUE] is None else r[_VALUE] for r, s in zip(rows, specials, strict=True)
     ]
-    blob = _packer(len(rows)).pack(
+    blob = packer(len(rows)).pack(
         *values,
         *[_NAN if r[_LOW] is None else r[_LOW] for r in rows],
         *[_NAN if r[_HIGH] is None else r[_HIGH] for r in rows],
@@ -80,11 +81,11 @@ def pack(rows: list[tuple] | tuple) -> tuple[str | None, bytes | None]:
         *[VERDICT_CODES.get(r[_VERDICT], OTHER_VERDICT) for r in rows],
         *specials,
     )
-    return _layout(tuple([(r[_PARAMETER], r[_FREQUENCY], r[_SI_UNIT]) for r in rows])), blob
+    return layout_text(tuple([(r[_PARAMETER], r[_FREQUENCY], r[_SI_UNIT]) for r in rows])), blob
 
 
 @lru_cache(maxsize=256)
-def _layout(keys: tuple[tuple[str, float | None, str], ...]) -> str:
+def layout_text(keys: tuple[tuple[str, float | None, str], ...]) -> str:
     """The ``readings_layout`` text of a unit's quantities (a plan's few layouts are kept)."""
     return json.dumps([list(k) for k in keys], separators=(",", ":"))
 

@@ -14,7 +14,6 @@ own bulk path: a list of rows given to one ``execute`` becomes multi-row INSERTs
 
 from __future__ import annotations
 
-import math
 from collections.abc import Iterable
 from functools import cache, partial
 from typing import TYPE_CHECKING, Any
@@ -27,7 +26,6 @@ from acquire.store.engine import (
     Database,
     insert_ignoring,
 )
-from acquire.store.packed_readings import pack
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
 from acquire.store.schema import TABLES, identity_key, utc_now
 from acquire.store.unit_insert import (
@@ -36,14 +34,11 @@ from acquire.store.unit_insert import (
     insert_sqlite,
     process_head,
     unit_head,
-    with_packed,
 )
+from acquire.store.unit_rows import DC, measurement_rows
 
 if TYPE_CHECKING:
     import pandas as pd
-
-#: The frequency stored for a DC value (a measurement whose ``frequency`` is None).
-DC = 0.0
 
 _UNIT_FIELDS = (
     "serial",
@@ -72,12 +67,6 @@ def _unit_row(unit: UnitRecord, lot_id: int | None) -> dict[str, Any]:
     return row
 
 
-def _split(value: float) -> tuple[float | None, str]:
-    """A measured value as (finite value or None, "" or "nan" / "inf" / "-inf")."""
-    value = float(value)
-    return (value, "") if math.isfinite(value) else (None, repr(value))
-
-
 def tested_at(row: dict[str, Any]) -> Any:
     """A unit's test time, as each of its measurements carries it: its ``finished_at``, else
     its ``started_at``, else its ``saved_at`` (from the unit's row, as given or bind-processed)."""
@@ -87,38 +76,6 @@ def tested_at(row: dict[str, Any]) -> Any:
     return row["saved_at"]
 
 
-def _measurement_tuples(unit: UnitRecord, lot_id: int | None, tested: Any) -> list[tuple]:
-    """The unit's measurement rows as tuples of ``MEASUREMENT_COLUMNS[1:]`` (no ``unit_id``);
-    ``tested`` is the unit's :func:`tested_at`. Numbers become Python floats, NaN None (as
-    :func:`finite_or_none`), written out here: this runs for every measurement stored."""
-    isfinite = math.isfinite
-    rows = []
-    for seq, m in enumerate(unit.measurements):
-        value = float(m.value)
-        special = "" if isfinite(value) else repr(value)
-        f, low, high, u, bias = m.frequency, m.low, m.high, m.uncertainty, m.bias_current
-        rows.append(
-            (
-                seq,
-                m.parameter,
-                DC if f is None else None if f != f else float(f),
-                value if not special else None,
-                m.unit,
-                None if low is None or low != low else float(low),
-                None if high is None or high != high else float(high),
-                m.verdict,
-                lot_id,
-                special,
-                None if u is None or u != u else float(u),
-                m.tolerance_low,
-                m.tolerance_high,
-                tested,
-                None if bias is None or bias != bias else float(bias),
-            )
-        )
-    return rows
-
-
 def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> dict[str, int]:
     found = {}
     for name in set(names) - {""}:
@@ -126,6 +83,8 @@ def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> d
     return found
 
 
+#: Where the packed copy goes in a unit's row.
+_LAYOUT, _READINGS = (UNIT_COLUMNS.index(n) for n in ("readings_layout", "readings"))
 #: Where a unit's :func:`tested_at` candidates lie in :data:`UNIT_COLUMNS`, in its order.
 _TESTED_AT = tuple(UNIT_COLUMNS.index(n) for n in ("finished_at", "started_at", "saved_at"))
 
@@ -146,8 +105,8 @@ def unit_parameters(dialect: Any, unit: UnitRecord, lot_id: int | None) -> tuple
     (values bind-processed for ``dialect``)."""
     head = process_head(dialect, unit_head(unit, lot_id, utc_now()))
     tested = next(head[k] for k in _TESTED_AT if head[k] is not None)
-    rows = _measurement_tuples(unit, lot_id, tested)
-    return with_packed(head, rows), rows
+    rows, head[_LAYOUT], head[_READINGS] = measurement_rows(unit.measurements, lot_id, tested)
+    return head, rows
 
 
 def save_unit(db: Database, unit: UnitRecord, lot_cache: dict[str, int]) -> bool:
@@ -175,12 +134,12 @@ def save_units(
     def work(chunk: list[UnitRecord], conn: Connection) -> tuple[int, dict[str, int]]:
         lots = _lot_ids(conn, (u.lot for u in chunk), lot_cache)
         heads = [_unit_row(u, lots.get(u.lot)) for u in chunk]
-        prepared = [
-            _measurement_tuples(u, lots.get(u.lot), tested_at(head))
-            for u, head in zip(chunk, heads, strict=True)
-        ]
-        for head, tuples in zip(heads, prepared, strict=True):
-            head["readings_layout"], head["readings"] = pack(tuples)
+        prepared = []
+        for u, head in zip(chunk, heads, strict=True):
+            rows, head["readings_layout"], head["readings"] = measurement_rows(
+                u.measurements, lots.get(u.lot), tested_at(head)
+            )
+            prepared.append(rows)
         insert = _new_unit(conn.dialect.name, "id", "attempt_id")
         new = {a: i for i, a in conn.execute(insert, heads)}
         rows = [

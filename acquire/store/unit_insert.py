@@ -39,7 +39,6 @@ from typing import Any
 from sqlalchemy import Connection
 
 from acquire.store.columns import UtcDateTime
-from acquire.store.packed_readings import pack
 from acquire.store.schema import TABLES
 
 #: The unit columns written (``id`` is given by the database).
@@ -48,7 +47,7 @@ UNIT_COLUMNS = tuple(c.name for c in TABLES["units"].columns if c.name != "id")
 MEASUREMENT_COLUMNS = tuple(c.name for c in TABLES["measurements"].columns)
 
 #: The unit columns that are not fields of the unit record (set by :func:`unit_head`, the
-#: packed copy of the readings by :func:`with_packed`).
+#: packed copy of the readings by :func:`acquire.store.unit_rows.measurement_rows`).
 _NOT_FIELDS = ("serial_key", "lot_id", "saved_at", "readings_layout", "readings")
 #: The unit record's fields in :data:`UNIT_COLUMNS` order, read in one call; the columns of
 #: :data:`_NOT_FIELDS` read ``serial`` there and are overwritten.
@@ -70,13 +69,6 @@ def unit_head(unit: Any, lot_id: int | None, saved_at: datetime) -> list[Any]:
     head[_LOT_ID] = lot_id
     head[_SAVED_AT] = saved_at
     head[_LAYOUT] = head[_READINGS] = None
-    return head
-
-
-def with_packed(head: list[Any], rows: list[tuple]) -> list[Any]:
-    """``head`` (bind-processed) given the packed copy of the unit's measurement ``rows``
-    (:func:`acquire.store.packed_readings.pack`), in place: both go in the unit's INSERT."""
-    head[_LAYOUT], head[_READINGS] = pack(rows)
     return head
 
 

@@ -134,12 +134,12 @@ def save_units(
     def work(chunk: list[UnitRecord], conn: Connection) -> tuple[int, dict[str, int]]:
         lots = _lot_ids(conn, (u.lot for u in chunk), lot_cache)
         heads = [_unit_row(u, lots.get(u.lot)) for u in chunk]
-        prepared = []
+        prepared: list[list[tuple]] = []
         for u, head in zip(chunk, heads, strict=True):
-            rows, head["readings_layout"], head["readings"] = measurement_rows(
+            tuples, head["readings_layout"], head["readings"] = measurement_rows(
                 u.measurements, lots.get(u.lot), tested_at(head)
             )
-            prepared.append(rows)
+            prepared.append(tuples)
         insert = _new_unit(conn.dialect.name, "id", "attempt_id")
         new = {a: i for i, a in conn.execute(insert, heads)}
         rows = [

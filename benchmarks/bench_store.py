@@ -8,10 +8,12 @@
    unit with 10 measurements, through ``Store.save_unit``; baseline: bare ``sqlite3`` putting the
    same rows into an identical empty store, one transaction per unit (``execute`` for the unit,
    ``executemany`` for its measurements, same pragmas, same table and indexes, rows prepared
-   outside the timing). Each round interleaves the two unit by unit (which goes first
-   alternates), so both meet the same moods of the shared disk, and the best round total of each
-   counts; each round's ratio and the thread's CPU time per unit are printed beside it. Goal: at
-   least 0.9x the baseline.
+   outside the timing). A third side, bare ``sqlite3`` that prepares each unit with the store's
+   own ``unit_parameters`` inside the timing, shows how much of the gap is preparing the values
+   and how much is the store around them. Each round interleaves the three unit by unit (the
+   order turns with each unit), so all meet the same moods of the shared disk, and the best
+   round total of each counts; each round's ratio and the thread's CPU time per unit are
+   printed beside it. Goal: at least 0.9x the baseline.
 2. Four station processes writing units to PostgreSQL at once (``python
    tests/store_support.py``), beside one such process alone and beside what the machine allows:
    four bare psycopg processes (``--bare``) sending the same one statement with the same

@@ -48,8 +48,8 @@ Like with like:
 Before anything is timed each tool result is compared with the baseline's: impedances and
 expanded uncertainties within 1e-12 relative, covariances within 1e-10 of each point's largest
 element, flags equal; so the benchmark never times a wrong path. Each time is the best of
-several rounds; in pieces the tool's rounds and the baseline's are interleaved (which goes first
-alternating), as the machine is shared and its load drifts.
+15 rounds (5 with ``--quick``), the tool's rounds and the baseline's interleaved (which goes
+first alternating), as the machine is shared and its load drifts.
 """
 
 from __future__ import annotations
@@ -80,22 +80,6 @@ TOLERANCE = 1e-12
 COV_TOLERANCE = 1e-10
 #: The standards' Type A (relative to |Z|, plus 10 µΩ), as from a capture with repeats.
 TYPE_A, REPEATS = 1e-4, 3
-
-
-def best_time(fn: Callable[[], object], repeat: int, min_round: float = 0.05) -> float:
-    """Best seconds per call over ``repeat`` rounds of enough calls to last ``min_round``."""
-    fn()
-    start = time.perf_counter()
-    fn()
-    once = time.perf_counter() - start
-    loops = max(1, math.ceil(min_round / max(once, 1e-9)))
-    best = math.inf
-    for _ in range(repeat):
-        start = time.perf_counter()
-        for _ in range(loops):
-            fn()
-        best = min(best, (time.perf_counter() - start) / loops)
-    return best
 
 
 def fixture_case(n: int, seed: int = 0):
@@ -212,14 +196,15 @@ def build_and_apply(n: int, where: str, repeat: int) -> tuple[float, float]:
         return numpy_correct(grid, zo, zs, zl, zt, f, zm)
 
     same(tool(), bare(), f"build and apply, {n} points {where}")
-    return best_time(tool, repeat), best_time(bare, repeat)
+    return best_times_interleaved(tool, bare, repeat)
 
 
 def best_times_interleaved(
     a: Callable[[], object], b: Callable[[], object], repeat: int, min_round: float = 0.05
 ) -> tuple[float, float]:
-    """:func:`best_time` of ``a`` and of ``b`` with their rounds interleaved (which goes first
-    alternating), so that a change in the shared machine's load falls on both sides."""
+    """Best seconds per call of ``a`` and of ``b`` over ``repeat`` rounds each of enough calls
+    to last ``min_round``, their rounds interleaved (which goes first alternating), so that a
+    change in the shared machine's load falls on both sides."""
     loops = []
     for fn in (a, b):
         fn()
@@ -419,15 +404,16 @@ def main() -> None:
     parser.add_argument("--quick", action="store_true", help="smaller sizes, fewer rounds")
     args = parser.parse_args()
     sizes = [201, 1_601] if args.quick else [201, 1_601, 20_001]
-    repeat = 3 if args.quick else 7
-    print(f"numpy {np.__version__}; best of {repeat} rounds per entry")
+    rounds = 5 if args.quick else 15
+    print(f"numpy {np.__version__}; best of {rounds} rounds per entry, the tool's and the "
+          "baseline's interleaved")  # fmt: skip
 
     print("\nbuild and apply (a new ReferenceSet, one correct of the whole sweep)")
     print(f"  {'points':>7} {'where':<9}{'tool':>13}{'numpy':>13}{'ratio':>8}")
     worst_build = 0.0
     for n in sizes:
         for where in ("between", "on grid"):
-            t_tool, t_bare = build_and_apply(n, where, repeat)
+            t_tool, t_bare = build_and_apply(n, where, rounds)
             worst_build = max(worst_build, t_tool / t_bare)
             print(f"  {n:>7,} {where:<9}{_ms(t_tool)}{_ms(t_bare)}{t_tool / t_bare:7.2f}x")
 
@@ -440,7 +426,7 @@ def main() -> None:
     for n in sizes:
         for where in ("between", "on grid"):
             for per_point, label in ((0.005, "5 ms/pt"), (0.0, "at once")):
-                count, t_u, b_u, t_tool, t_bare = pieces(n, where, per_point, repeat)
+                count, t_u, b_u, t_tool, t_bare = pieces(n, where, per_point, rounds)
                 worst_pieces = max(worst_pieces, t_u / b_u)
                 worst_plain = max(worst_plain, t_tool / t_bare)
                 print(

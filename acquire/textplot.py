@@ -120,9 +120,10 @@ def draw(
                 column = rows[:, col]
                 column[grid[:, col] == 0] = MARKER
                 columns.append(col)
-    return Plot(
-        ["".join(r) for r in rows], x_range, (y_range[0], y_range[1]), y_log, tuple(columns)
-    )
+    # Each row's cells side by side in memory read as one string of ``width`` characters (no
+    # cell is NUL, the only character such a string drops at its end).
+    lines = rows.view(f"<U{width}").ravel().tolist()
+    return Plot(lines, x_range, (y_range[0], y_range[1]), y_log, tuple(columns))
 
 
 def _join(

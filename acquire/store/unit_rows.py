@@ -16,13 +16,17 @@ from collections.abc import Iterable
 from operator import attrgetter
 from typing import Any
 
-from acquire.store.packed_readings import OTHER_VERDICT, VERDICT_CODES, layout_text, packer
+from acquire.store.packed_readings import (
+    OTHER_VERDICT,
+    SPECIAL_CODES,
+    VERDICT_CODES,
+    layout_text,
+    packer,
+)
 
 #: The frequency stored for a DC value (a measurement whose ``frequency`` is None).
 DC = 0.0
 _NAN = float("nan")
-#: ``value_special`` of a reading that is not finite -> its byte in the packed copy.
-_SPECIAL_CODE = {"nan": 1, "inf": 2, "-inf": 3}
 #: A measurement record's fields, in the order :func:`measurement_rows` takes them.
 _FIELDS = attrgetter(
     "parameter",
@@ -68,7 +72,7 @@ def measurement_rows(
             special = repr(value)
             value = None
             values.append(_NAN)
-            specials.append(_SPECIAL_CODE[special])
+            specials.append(SPECIAL_CODES[special])
         f = DC if f is None else None if f != f else float(f)
         if low is None or low != low:
             low = None

@@ -29,6 +29,8 @@ from acquire.store.engine import (
 from acquire.store.records import PASS, LotYield, MeasurementRecord, UnitRecord
 from acquire.store.schema import TABLES, identity_key, utc_now
 from acquire.store.unit_insert import (
+    LAYOUT_AT,
+    READINGS_AT,
     UNIT_COLUMNS,
     insert_postgres,
     insert_sqlite,
@@ -83,8 +85,6 @@ def _lot_ids(conn: Connection, names: Iterable[str], cache: dict[str, int]) -> d
     return found
 
 
-#: Where the packed copy goes in a unit's row.
-_LAYOUT, _READINGS = (UNIT_COLUMNS.index(n) for n in ("readings_layout", "readings"))
 #: Where a unit's :func:`tested_at` candidates lie in :data:`UNIT_COLUMNS`, in its order.
 _TESTED_AT = tuple(UNIT_COLUMNS.index(n) for n in ("finished_at", "started_at", "saved_at"))
 
@@ -105,7 +105,7 @@ def unit_parameters(dialect: Any, unit: UnitRecord, lot_id: int | None) -> tuple
     (values bind-processed for ``dialect``)."""
     head = process_head(dialect, unit_head(unit, lot_id, utc_now()))
     tested = next(head[k] for k in _TESTED_AT if head[k] is not None)
-    rows, head[_LAYOUT], head[_READINGS] = measurement_rows(unit.measurements, lot_id, tested)
+    rows, head[LAYOUT_AT], head[READINGS_AT] = measurement_rows(unit.measurements, lot_id, tested)
     return head, rows
 
 

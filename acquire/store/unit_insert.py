@@ -52,7 +52,10 @@ _NOT_FIELDS = ("serial_key", "lot_id", "saved_at", "readings_layout", "readings"
 #: The unit record's fields in :data:`UNIT_COLUMNS` order, read in one call; the columns of
 #: :data:`_NOT_FIELDS` read ``serial`` there and are overwritten.
 _HEAD_FIELDS = attrgetter(*(n if n not in _NOT_FIELDS else "serial" for n in UNIT_COLUMNS))
-_SERIAL_KEY, _LOT_ID, _SAVED_AT, _LAYOUT, _READINGS = (UNIT_COLUMNS.index(n) for n in _NOT_FIELDS)
+#: Where each of :data:`_NOT_FIELDS` lies in :data:`UNIT_COLUMNS` (the last two: the packed copy).
+_SERIAL_KEY, _LOT_ID, _SAVED_AT, LAYOUT_AT, READINGS_AT = (
+    UNIT_COLUMNS.index(n) for n in _NOT_FIELDS
+)
 
 
 def serial_key(serial: str) -> str:
@@ -68,7 +71,7 @@ def unit_head(unit: Any, lot_id: int | None, saved_at: datetime) -> list[Any]:
     head[_SERIAL_KEY] = serial_key(unit.serial)
     head[_LOT_ID] = lot_id
     head[_SAVED_AT] = saved_at
-    head[_LAYOUT] = head[_READINGS] = None
+    head[LAYOUT_AT] = head[READINGS_AT] = None
     return head
 
 

@@ -74,18 +74,10 @@ def measurement_rows(
             values.append(_NAN)
             specials.append(SPECIAL_CODES[special])
         f = DC if f is None else None if f != f else float(f)
-        if low is None or low != low:
-            low = None
-            lows.append(_NAN)
-        else:
-            low = float(low)
-            lows.append(low)
-        if high is None or high != high:
-            high = None
-            highs.append(_NAN)
-        else:
-            high = float(high)
-            highs.append(high)
+        low = None if low is None or low != low else float(low)
+        high = None if high is None or high != high else float(high)
+        lows.append(_NAN if low is None else low)
+        highs.append(_NAN if high is None else high)
         tolerance_lows.append(_NAN if t_low is None else t_low)
         tolerance_highs.append(_NAN if t_high is None else t_high)
         verdicts.append(verdict_code(verdict, OTHER_VERDICT))
